@@ -1,0 +1,71 @@
+// Rule packs of the personal-data screen: the data model and the loader.
+//
+// A rule pack is a JSON file (comments allowed) in rules/ or anywhere on disk;
+// its format is specified in docs/personal-data.md. Loading validates every
+// field and compiles every pattern once; a bad file yields a Status naming the
+// file, the line of the rule, the rule id and the reason (RE2's own message
+// for a bad pattern). A RuleSet is a plain value: immutable after loading and
+// safe to read from many threads.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "core/status.h"
+
+namespace prefsift::screen {
+
+// Which part of a preference record a text comes from.
+enum class FieldKind : uint8_t { kPrompt = 0, kCandidate = 1, kMetadata = 2 };
+inline constexpr int kFieldKindCount = 3;
+
+// What the caller should do with a finding's span.
+enum class Action : uint8_t { kFlag = 0, kMask = 1, kPseudonymise = 2, kDrop = 3 };
+
+enum class Severity : uint8_t { kLow = 0, kMedium = 1, kHigh = 2, kCritical = 3 };
+
+std::string_view FieldKindName(FieldKind f);   // "prompt" | "candidates" | "metadata"
+std::string_view ActionName(Action a);         // "flag" | "mask" | "pseudonymise" | "drop"
+std::string_view SeverityName(Severity s);     // "low" | "medium" | "high" | "critical"
+
+// Words looked for (ASCII case-insensitive substring) within `window` bytes
+// on either side of a span.
+struct ContextRule {
+  int window = 40;
+  std::vector<std::string> boost_words;     // any present: confidence += boost
+  double boost = 0.0;
+  std::vector<std::string> required_words;  // non-empty and none present: no finding
+  std::vector<std::string> deny_words;      // any present: no finding
+};
+
+struct Rule {
+  std::string id;           // our own name, e.g. "contact.email"; unique in a RuleSet
+  std::string description;
+  std::string pattern;      // RE2 syntax, UTF-8
+  std::string validator;    // "" or a name known to validators.h
+  ContextRule context;
+  bool fields[kFieldKindCount] = {true, true, true};
+  Severity severity = Severity::kMedium;
+  Action action = Action::kMask;
+  double confidence = 0.8;  // base confidence in [0, 1]
+  std::string source_file;  // where it was loaded from (for messages)
+  int source_line = 0;      // 1-based line of the rule's id in that file
+};
+
+struct RuleSet {
+  std::vector<Rule> rules;  // in load order; the order breaks overlap ties
+};
+
+// Parses one pack from its text. `source_name` is used in error messages.
+// Checks every field, the validator name and that the pattern compiles.
+Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name);
+
+// Loads packs in the given order. An entry without '/' and not ending in
+// ".json" is a pack name, read from `rules_dir`/<name>.json; anything else is
+// a path. Rule ids must be unique across all packs.
+Result<RuleSet> LoadRulePacks(const std::vector<std::string>& names_or_paths,
+                              const std::string& rules_dir);
+
+}  // namespace prefsift::screen

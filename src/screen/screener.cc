@@ -1,0 +1,251 @@
+// RE2::Set based scanner. See screener.h for the method and thread-safety.
+#include "screen/screener.h"
+
+#include <algorithm>
+#include <cstdint>
+
+#include <re2/re2.h>
+#include <re2/set.h>
+#include <utf8proc.h>
+
+#include "screen/actions.h"
+#include "screen/validators.h"
+
+namespace prefsift::screen {
+
+struct Screener::Impl {
+  struct Compiled {
+    Rule rule;
+    std::unique_ptr<RE2> re;
+    ValidatorFn validator = nullptr;
+  };
+  std::vector<Compiled> rules;
+  std::unique_ptr<RE2::Set> sets[kFieldKindCount];
+  std::vector<int> set_to_rule[kFieldKindCount];
+  double min_confidence = 0.0;
+};
+
+namespace {
+
+bool IsAsciiAlnum(unsigned char c) {
+  return (c >= '0' && c <= '9') || (c >= 'A' && c <= 'Z') || (c >= 'a' && c <= 'z');
+}
+
+// Does the code point block a match edge? See screener.h.
+bool BlocksEdge(int32_t cp) {
+  utf8proc_category_t cat = static_cast<utf8proc_category_t>(utf8proc_category(cp));
+  if (cat == UTF8PROC_CATEGORY_ND) return true;
+  bool letter = cat == UTF8PROC_CATEGORY_LU || cat == UTF8PROC_CATEGORY_LL ||
+                cat == UTF8PROC_CATEGORY_LT || cat == UTF8PROC_CATEGORY_LM ||
+                cat == UTF8PROC_CATEGORY_LO || cat == UTF8PROC_CATEGORY_MN;
+  if (!letter) return false;
+  return cp < 0x0590 || (cp >= 0x1E00 && cp <= 0x1FFF) || (cp >= 0xFF21 && cp <= 0xFF5A);
+}
+
+int32_t CodePointBefore(std::string_view t, size_t pos) {
+  size_t s = pos;
+  while (s > 0 && pos - s < 4) {
+    --s;
+    if ((static_cast<unsigned char>(t[s]) & 0xC0) != 0x80) break;
+  }
+  int32_t cp = -1;
+  utf8proc_iterate(reinterpret_cast<const uint8_t*>(t.data() + s), static_cast<utf8proc_ssize_t>(pos - s), &cp);
+  return cp;
+}
+
+int32_t CodePointAt(std::string_view t, size_t pos) {
+  int32_t cp = -1;
+  size_t n = std::min<size_t>(4, t.size() - pos);
+  utf8proc_iterate(reinterpret_cast<const uint8_t*>(t.data() + pos), static_cast<utf8proc_ssize_t>(n), &cp);
+  return cp;
+}
+
+bool NonAsciiNeighbourBlocks(std::string_view t, size_t b, size_t e) {
+  if (b > 0 && static_cast<unsigned char>(t[b - 1]) >= 0x80 && IsAsciiAlnum(static_cast<unsigned char>(t[b]))) {
+    int32_t cp = CodePointBefore(t, b);
+    if (cp >= 0 && BlocksEdge(cp)) return true;
+  }
+  if (e < t.size() && static_cast<unsigned char>(t[e]) >= 0x80 &&
+      IsAsciiAlnum(static_cast<unsigned char>(t[e - 1]))) {
+    int32_t cp = CodePointAt(t, e);
+    if (cp >= 0 && BlocksEdge(cp)) return true;
+  }
+  return false;
+}
+
+bool AnyWordIn(const std::string& haystack_lower, const std::vector<std::string>& words) {
+  for (const std::string& w : words) {
+    if (haystack_lower.find(w) != std::string::npos) return true;
+  }
+  return false;
+}
+
+// Returns false if the finding is refused by its context; else sets *conf.
+bool ApplyContext(const ContextRule& c, std::string_view t, size_t b, size_t e, double base, double* conf) {
+  *conf = base;
+  if (c.boost_words.empty() && c.required_words.empty() && c.deny_words.empty()) return true;
+  size_t w = static_cast<size_t>(c.window);
+  size_t lo = b > w ? b - w : 0;
+  size_t hi = std::min(t.size(), e + w);
+  std::string around;
+  around.reserve((b - lo) + (hi - e) + 1);
+  around.append(t.substr(lo, b - lo));
+  around.push_back('\n');  // so no word spans the value
+  around.append(t.substr(e, hi - e));
+  for (char& ch : around) {
+    if (ch >= 'A' && ch <= 'Z') ch = static_cast<char>(ch - 'A' + 'a');
+  }
+  if (!c.deny_words.empty() && AnyWordIn(around, c.deny_words)) return false;
+  if (!c.required_words.empty() && !AnyWordIn(around, c.required_words)) return false;
+  if (!c.boost_words.empty() && AnyWordIn(around, c.boost_words)) {
+    *conf = std::clamp(base + c.boost, 0.0, 1.0);
+  }
+  return true;
+}
+
+struct Candidate {
+  size_t begin, end;
+  int rule;
+  double confidence;
+};
+
+}  // namespace
+
+Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& options) {
+  auto impl = std::make_shared<Impl>();
+  impl->min_confidence = options.min_confidence;
+  RE2::Options ro;
+  ro.set_log_errors(false);
+  ro.set_max_mem(options.rule_max_mem);
+  RE2::Options so;
+  so.set_log_errors(false);
+  so.set_max_mem(options.set_max_mem);
+  for (int f = 0; f < kFieldKindCount; ++f) impl->sets[f] = std::make_unique<RE2::Set>(so, RE2::UNANCHORED);
+
+  for (const Rule& r : rules.rules) {
+    const std::string where = r.source_file + ":" + std::to_string(r.source_line) + ": rule '" + r.id + "': ";
+    Impl::Compiled c;
+    c.rule = r;
+    c.re = std::make_unique<RE2>(r.pattern, ro);
+    if (!c.re->ok()) return Status::Usage(where + "bad pattern: " + c.re->error());
+    if (!r.validator.empty()) {
+      c.validator = FindValidator(r.validator);
+      if (c.validator == nullptr) return Status::Usage(where + "unknown validator '" + r.validator + "'");
+    }
+    int idx = static_cast<int>(impl->rules.size());
+    for (int f = 0; f < kFieldKindCount; ++f) {
+      if (!r.fields[f]) continue;
+      std::string err;
+      int id = impl->sets[f]->Add(r.pattern, &err);
+      if (id < 0) return Status::Usage(where + "bad pattern: " + err);
+      impl->set_to_rule[f].push_back(idx);
+    }
+    impl->rules.push_back(std::move(c));
+  }
+  for (int f = 0; f < kFieldKindCount; ++f) {
+    if (impl->set_to_rule[f].empty()) {
+      impl->sets[f].reset();
+      continue;
+    }
+    if (!impl->sets[f]->Compile()) {
+      return Status::Internal("cannot compile the rule set for field kind '" +
+                              std::string(FieldKindName(static_cast<FieldKind>(f))) +
+                              "': out of memory (raise the set memory budget)");
+    }
+  }
+  return Screener(std::move(impl));
+}
+
+size_t Screener::rule_count() const { return impl_->rules.size(); }
+
+Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind field) const {
+  std::vector<Finding> out;
+  const int f = static_cast<int>(field);
+  const RE2::Set* set = impl_->sets[f].get();
+  if (set == nullptr || text.empty()) return out;
+
+  std::vector<int> hits;
+  RE2::Set::ErrorInfo info;
+  info.kind = RE2::Set::kNoError;
+  if (!set->Match(text, &hits, &info)) {
+    if (info.kind != RE2::Set::kNoError) {
+      return Status::Internal(info.kind == RE2::Set::kOutOfMemory
+                                  ? "personal-data screen: regex engine ran out of memory (text of " +
+                                        std::to_string(text.size()) + " bytes); raise the set memory budget"
+                                  : "personal-data screen: regex engine failed");
+    }
+    return out;
+  }
+  std::sort(hits.begin(), hits.end());
+
+  std::vector<Candidate> cands;
+  for (int h : hits) {
+    const int ri = impl_->set_to_rule[f][static_cast<size_t>(h)];
+    const Impl::Compiled& c = impl_->rules[static_cast<size_t>(ri)];
+    size_t pos = 0;
+    re2::StringPiece m;
+    while (pos <= text.size() &&
+           c.re->Match(text, pos, text.size(), RE2::UNANCHORED, &m, 1)) {
+      size_t b = static_cast<size_t>(m.data() - text.data());
+      size_t e = b + m.size();
+      if (e == b) {  // empty match: step one byte
+        pos = b + 1;
+        continue;
+      }
+      pos = e;
+      if (NonAsciiNeighbourBlocks(text, b, e)) continue;
+      if (c.validator != nullptr) {
+        size_t e2 = e;
+        if (!c.validator(text, b, &e2)) continue;
+        if (e2 > b && e2 < e) {
+          e = e2;
+          pos = e2;
+        }
+      }
+      double conf;
+      if (!ApplyContext(c.rule.context, text, b, e, c.rule.confidence, &conf)) continue;
+      if (conf < impl_->min_confidence) continue;
+      cands.push_back({b, e, ri, conf});
+    }
+  }
+  if (cands.empty()) return out;
+
+  // Overlap order: severity, length, rule order, start.
+  std::sort(cands.begin(), cands.end(), [&](const Candidate& x, const Candidate& y) {
+    const Rule& rx = impl_->rules[static_cast<size_t>(x.rule)].rule;
+    const Rule& ry = impl_->rules[static_cast<size_t>(y.rule)].rule;
+    if (rx.severity != ry.severity) return rx.severity > ry.severity;
+    if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
+    if (x.rule != y.rule) return x.rule < y.rule;
+    return x.begin < y.begin;
+  });
+  std::vector<Candidate> kept;
+  for (const Candidate& c : cands) {
+    bool overlaps = false;
+    for (const Candidate& k : kept) {
+      if (c.begin < k.end && k.begin < c.end) {
+        overlaps = true;
+        break;
+      }
+    }
+    if (!overlaps) kept.push_back(c);
+  }
+  std::sort(kept.begin(), kept.end(), [](const Candidate& x, const Candidate& y) { return x.begin < y.begin; });
+  out.reserve(kept.size());
+  for (const Candidate& k : kept) {
+    const Rule& r = impl_->rules[static_cast<size_t>(k.rule)].rule;
+    Finding fd;
+    fd.rule_id = r.id;
+    fd.field = field;
+    fd.begin = k.begin;
+    fd.end = k.end;
+    fd.action = r.action;
+    fd.severity = r.severity;
+    fd.confidence = k.confidence;
+    fd.preview = MaskedPreview(text.substr(k.begin, k.end - k.begin));
+    out.push_back(std::move(fd));
+  }
+  return out;
+}
+
+}  // namespace prefsift::screen
