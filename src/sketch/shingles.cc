@@ -1,0 +1,230 @@
+// Word and code-point shingling; see shingles.h.
+#include "sketch/shingles.h"
+
+#include <algorithm>
+
+#define XXH_INLINE_ALL
+#include <xxhash.h>
+
+namespace prefsift::sketch {
+namespace {
+
+// Distinct seeds for the two stages of word hashing and for character mode,
+// so a one-word text and a one-code-point text never share a hash by design.
+constexpr uint64_t kWordSeedTweak = 0x9e3779b97f4a7c15ULL;
+constexpr uint64_t kGramSeedTweak = 0xc2b2ae3d27d4eb4fULL;
+constexpr uint64_t kCharSeedTweak = 0x165667b19e3779f9ULL;
+
+inline bool IsSpaceByte(unsigned char c) {
+  return c == ' ' || c == '\t' || c == '\n' || c == '\r' || c == '\v' || c == '\f';
+}
+
+bool IsWhitespaceCp(char32_t cp) {
+  return cp == U' ' || cp == U'\t' || cp == U'\n' || cp == U'\r' || cp == U'\v' ||
+         cp == U'\f' || cp == 0x85 || cp == 0xA0 || cp == 0x1680 ||
+         (cp >= 0x2000 && cp <= 0x200A) || cp == 0x2028 || cp == 0x2029 ||
+         cp == 0x202F || cp == 0x205F || cp == 0x3000;
+}
+
+// Decodes one code point at text[i]; sets *len to the bytes consumed.
+char32_t DecodeOne(std::string_view text, size_t i, size_t* len) {
+  const auto b0 = static_cast<unsigned char>(text[i]);
+  *len = 1;
+  if (b0 < 0x80) return b0;
+  int need;
+  char32_t cp;
+  char32_t min;
+  if (b0 >= 0xC2 && b0 <= 0xDF) {
+    need = 1; cp = b0 & 0x1F; min = 0x80;
+  } else if (b0 >= 0xE0 && b0 <= 0xEF) {
+    need = 2; cp = b0 & 0x0F; min = 0x800;
+  } else if (b0 >= 0xF0 && b0 <= 0xF4) {
+    need = 3; cp = b0 & 0x07; min = 0x10000;
+  } else {
+    return 0xFFFD;
+  }
+  if (text.size() - i <= static_cast<size_t>(need)) return 0xFFFD;
+  for (int k = 1; k <= need; ++k) {
+    const auto b = static_cast<unsigned char>(text[i + static_cast<size_t>(k)]);
+    if ((b & 0xC0) != 0x80) return 0xFFFD;
+    cp = (cp << 6) | (b & 0x3F);
+  }
+  if (cp < min || cp > 0x10FFFF || (cp >= 0xD800 && cp <= 0xDFFF)) return 0xFFFD;
+  *len = static_cast<size_t>(need) + 1;
+  return cp;
+}
+
+void AppendWordShingles(std::string_view text, int n, uint64_t seed,
+                        std::vector<uint64_t>* out) {
+  thread_local std::vector<uint64_t> word_hashes;
+  word_hashes.clear();
+  const uint64_t word_seed = seed ^ kWordSeedTweak;
+  const size_t size = text.size();
+  size_t i = 0;
+  while (i < size) {
+    while (i < size && IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
+    if (i >= size) break;
+    const size_t start = i;
+    while (i < size && !IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
+    word_hashes.push_back(XXH3_64bits_withSeed(text.data() + start, i - start, word_seed));
+  }
+  const uint64_t gram_seed = seed ^ kGramSeedTweak;
+  const size_t un = static_cast<size_t>(n);
+  if (word_hashes.size() < un) {
+    // Fewer than n words (including none): the whole text is one shingle.
+    out->push_back(XXH3_64bits_withSeed(word_hashes.data(),
+                                        word_hashes.size() * sizeof(uint64_t), gram_seed));
+    return;
+  }
+  const size_t count = word_hashes.size() - un + 1;
+  for (size_t k = 0; k < count; ++k) {
+    out->push_back(XXH3_64bits_withSeed(word_hashes.data() + k, un * sizeof(uint64_t), gram_seed));
+  }
+}
+
+void AppendCharShingles(std::string_view text, int n, uint64_t seed,
+                        std::vector<uint64_t>* out) {
+  thread_local std::vector<uint32_t> cps;
+  cps.clear();
+  size_t i = 0;
+  while (i < text.size()) {
+    size_t len;
+    cps.push_back(static_cast<uint32_t>(DecodeOne(text, i, &len)));
+    i += len;
+  }
+  const uint64_t char_seed = seed ^ kCharSeedTweak;
+  const size_t un = static_cast<size_t>(n);
+  if (cps.size() < un) {
+    out->push_back(XXH3_64bits_withSeed(cps.data(), cps.size() * sizeof(uint32_t), char_seed));
+    return;
+  }
+  const size_t count = cps.size() - un + 1;
+  for (size_t k = 0; k < count; ++k) {
+    out->push_back(XXH3_64bits_withSeed(cps.data() + k, un * sizeof(uint32_t), char_seed));
+  }
+}
+
+void SortUnique(std::vector<uint64_t>* v) {
+  std::sort(v->begin(), v->end());
+  v->erase(std::unique(v->begin(), v->end()), v->end());
+}
+
+}  // namespace
+
+std::vector<std::string_view> Words(std::string_view text) {
+  std::vector<std::string_view> words;
+  size_t i = 0;
+  while (i < text.size()) {
+    while (i < text.size() && IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
+    if (i >= text.size()) break;
+    const size_t start = i;
+    while (i < text.size() && !IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
+    words.push_back(text.substr(start, i - start));
+  }
+  return words;
+}
+
+size_t CountWords(std::string_view text) {
+  size_t count = 0;
+  bool in_word = false;
+  for (char c : text) {
+    const bool space = IsSpaceByte(static_cast<unsigned char>(c));
+    if (!space && !in_word) ++count;
+    in_word = !space;
+  }
+  return count;
+}
+
+std::vector<char32_t> DecodeUtf8(std::string_view text) {
+  std::vector<char32_t> cps;
+  size_t i = 0;
+  while (i < text.size()) {
+    size_t len;
+    cps.push_back(DecodeOne(text, i, &len));
+    i += len;
+  }
+  return cps;
+}
+
+bool IsNoSpaceScript(char32_t cp) {
+  return (cp >= 0x0E00 && cp <= 0x0E7F) ||    // Thai
+         (cp >= 0x0E80 && cp <= 0x0EFF) ||    // Lao
+         (cp >= 0x1000 && cp <= 0x109F) ||    // Myanmar
+         (cp >= 0x1100 && cp <= 0x11FF) ||    // Hangul Jamo
+         (cp >= 0x1780 && cp <= 0x17FF) ||    // Khmer
+         (cp >= 0x19E0 && cp <= 0x19FF) ||    // Khmer Symbols
+         (cp >= 0x2E80 && cp <= 0x2FDF) ||    // CJK Radicals Supplement, Kangxi Radicals
+         (cp >= 0x3040 && cp <= 0x309F) ||    // Hiragana
+         (cp >= 0x30A0 && cp <= 0x30FF) ||    // Katakana
+         (cp >= 0x3130 && cp <= 0x318F) ||    // Hangul Compatibility Jamo
+         (cp >= 0x31F0 && cp <= 0x31FF) ||    // Katakana Phonetic Extensions
+         (cp >= 0x3400 && cp <= 0x4DBF) ||    // CJK Extension A
+         (cp >= 0x4E00 && cp <= 0x9FFF) ||    // CJK Unified Ideographs
+         (cp >= 0xA960 && cp <= 0xA97F) ||    // Hangul Jamo Extended-A
+         (cp >= 0xA9E0 && cp <= 0xA9FF) ||    // Myanmar Extended-B
+         (cp >= 0xAA60 && cp <= 0xAA7F) ||    // Myanmar Extended-A
+         (cp >= 0xAC00 && cp <= 0xD7FF) ||    // Hangul Syllables, Jamo Extended-B
+         (cp >= 0xF900 && cp <= 0xFAFF) ||    // CJK Compatibility Ideographs
+         (cp >= 0xFF66 && cp <= 0xFFDC) ||    // half-width Katakana and Hangul
+         (cp >= 0x1B000 && cp <= 0x1B16F) ||  // Kana Supplement/Extended-A, Small Kana
+         (cp >= 0x20000 && cp <= 0x323AF);    // CJK Extensions B-H, compatibility supplement
+}
+
+double NoSpaceScriptShare(std::string_view text) {
+  size_t total = 0;
+  size_t no_space = 0;
+  size_t i = 0;
+  while (i < text.size()) {
+    const auto b = static_cast<unsigned char>(text[i]);
+    if (b < 0x80) {  // ASCII fast path: never a no-space script
+      if (!IsSpaceByte(b)) ++total;
+      ++i;
+      continue;
+    }
+    size_t len;
+    const char32_t cp = DecodeOne(text, i, &len);
+    i += len;
+    if (IsWhitespaceCp(cp)) continue;
+    ++total;
+    if (IsNoSpaceScript(cp)) ++no_space;
+  }
+  return total == 0 ? 0.0 : static_cast<double>(no_space) / static_cast<double>(total);
+}
+
+ShingleMode ResolveMode(std::string_view text, const ShingleOptions& options) {
+  if (options.mode != ShingleMode::kAuto) return options.mode;
+  return NoSpaceScriptShare(text) >= options.no_space_share ? ShingleMode::kChars
+                                                            : ShingleMode::kWords;
+}
+
+void AppendShingles(std::string_view text, const ShingleOptions& options,
+                    std::vector<uint64_t>* out) {
+  if (ResolveMode(text, options) == ShingleMode::kChars) {
+    AppendCharShingles(text, options.char_n, options.seed, out);
+  } else {
+    AppendWordShingles(text, options.word_n, options.seed, out);
+  }
+}
+
+std::vector<uint64_t> Shingles(std::string_view text, const ShingleOptions& options) {
+  std::vector<uint64_t> out;
+  AppendShingles(text, options, &out);
+  SortUnique(&out);
+  return out;
+}
+
+std::vector<uint64_t> WordNgramHashes(std::string_view text, int n, uint64_t seed) {
+  std::vector<uint64_t> out;
+  AppendWordShingles(text, n, seed, &out);
+  SortUnique(&out);
+  return out;
+}
+
+std::vector<uint64_t> CharNgramHashes(std::string_view text, int n, uint64_t seed) {
+  std::vector<uint64_t> out;
+  AppendCharShingles(text, n, seed, &out);
+  SortUnique(&out);
+  return out;
+}
+
+}  // namespace prefsift::sketch
