@@ -1,0 +1,19 @@
+#!/usr/bin/env bash
+# Installs everything prefsift needs to build, test and run its demo on Debian 12.
+# Safe to run again; needs root (or sudo).
+set -euo pipefail
+SUDO=""
+if [ "$(id -u)" -ne 0 ]; then SUDO="sudo"; fi
+PKGS=(build-essential cmake ninja-build pkg-config git
+  libre2-dev libxxhash-dev nlohmann-json3-dev libcli11-dev libgtest-dev libgmock-dev
+  libsimdjson-dev libutf8proc-dev libsqlite3-dev libssl-dev zlib1g-dev libzstd-dev libbenchmark-dev
+  zstd python3 python3-stdnum python3-phonenumbers python3-scipy python3-sklearn python3-numpy
+  unicode-data)
+missing=()
+for p in "${PKGS[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+done
+if [ "${#missing[@]}" -gt 0 ]; then
+  $SUDO apt-get update -q
+  DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -q "${missing[@]}"
+fi

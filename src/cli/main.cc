@@ -1,0 +1,198 @@
+// prefsift command line. The only place that knows CLI11 and exit codes.
+//
+// Exit codes (docs/cli.md):
+//   0 success   1 internal or output error   2 usage error (command line,
+//   plan, rule file)   3 input error (unreadable input)   4 the gate failed
+//   5 --strict and at least one record was rejected
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include <unistd.h>
+
+#include <cstdio>
+#include <iostream>
+
+#include "core/plan.h"
+#include "io/file_system.h"
+#include "prefsift_version.h"
+#include "stages/pipeline.h"
+#include "stages/stage.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+enum ExitCode { kExitOk = 0, kExitInternal = 1, kExitUsage = 2, kExitInput = 3, kExitGate = 4, kExitStrict = 5 };
+
+int ExitFor(const Status& s) {
+  switch (s.code()) {
+    case StatusCode::kOk: return kExitOk;
+    case StatusCode::kUsage: return kExitUsage;
+    case StatusCode::kInput: return kExitInput;
+    case StatusCode::kLimit: return kExitInput;
+    case StatusCode::kIo:
+    case StatusCode::kInternal: return kExitInternal;
+  }
+  return kExitInternal;
+}
+
+// Options every record-reading subcommand shares.
+struct CommonOptions {
+  std::vector<std::string> inputs;
+  std::string plan_path;
+  std::string layout = "";
+  std::vector<std::string> fields;
+  std::string out;
+  bool overwrite = false;
+  bool strict = false;
+  unsigned threads = 0;
+  bool quiet = false;
+  long long seed = -1;
+};
+
+void AddCommon(CLI::App* cmd, CommonOptions* o) {
+  cmd->add_option("inputs", o->inputs, "Input JSONL files (plain, .gz or .zst); or give them in --plan");
+  cmd->add_option("-p,--plan", o->plan_path, "Plan file (JSON, comments allowed): inputs, layouts, stage settings");
+  cmd->add_option("--layout", o->layout, "Layout preset for inputs named on the command line (see `prefsift layouts`)");
+  cmd->add_option("--field", o->fields,
+                  "Map one field with a JSON Pointer, KEY=POINTER, e.g. --field prompt=/question "
+                  "--field candidates=/answers --field ranks=/ranking (repeatable)");
+  cmd->add_option("-o,--out", o->out, "Output folder (must not exist unless --overwrite)");
+  cmd->add_flag("--overwrite", o->overwrite, "Replace an existing output folder (atomically, at the end)");
+  cmd->add_flag("--strict", o->strict, "Exit with code 5 if any record is rejected");
+  cmd->add_option("--threads", o->threads, "Worker threads (default: all cores); results do not depend on it");
+  cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
+  cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
+}
+
+Result<Plan> BuildPlan(const CommonOptions& o) {
+  Plan plan;
+  if (!o.plan_path.empty()) {
+    auto loaded = LoadPlanFile(o.plan_path);
+    if (!loaded.ok()) return loaded.status();
+    plan = std::move(loaded).value();
+  }
+  if (!o.inputs.empty()) {
+    Json spec = Json::object();
+    if (!o.layout.empty()) spec["preset"] = o.layout;
+    for (const auto& f : o.fields) {
+      auto eq = f.find('=');
+      if (eq == std::string::npos || eq == 0) {
+        return Status::Usage("--field " + f + ": expected KEY=POINTER, e.g. prompt=/question");
+      }
+      std::string key = f.substr(0, eq), value = f.substr(eq + 1);
+      if (key == "choice_base") {
+        if (value != "0" && value != "1") return Status::Usage("--field choice_base=" + value + ": must be 0 or 1");
+        spec[key] = std::stoi(value);
+      } else {
+        spec[key] = value;
+      }
+    }
+    if (spec.empty()) {
+      return Status::Usage("inputs on the command line need a layout: --layout PRESET and/or --field KEY=POINTER");
+    }
+    for (size_t i = 0; i < o.inputs.size(); ++i) {
+      Status s = AddInput(&plan, o.inputs[i], spec, "command line");
+      if (!s.ok()) return s;
+    }
+  } else if (!o.layout.empty() || !o.fields.empty()) {
+    return Status::Usage("--layout and --field apply to inputs named on the command line; none were given");
+  }
+  if (!o.out.empty()) plan.output = o.out;
+  if (o.overwrite) plan.overwrite = true;
+  if (o.strict) plan.strict = true;
+  if (o.threads) plan.threads = o.threads;
+  if (o.seed >= 0) plan.seed = static_cast<uint64_t>(o.seed);
+  return plan;
+}
+
+int RunWith(const CommonOptions& o, const std::vector<std::string>& stages) {
+  auto plan = BuildPlan(o);
+  if (!plan.ok()) {
+    std::fprintf(stderr, "prefsift: %s\n", plan.status().message().c_str());
+    return ExitFor(plan.status());
+  }
+  PipelineOptions opts;
+  opts.stages = stages;
+  opts.progress = !o.quiet && ::isatty(2);
+  opts.table = !o.quiet;
+  auto outcome = RunPipeline(plan.value(), opts, DefaultFileSystem(), stderr);
+  if (!outcome.ok()) {
+    std::fprintf(stderr, "prefsift: %s\n", outcome.status().message().c_str());
+    return ExitFor(outcome.status());
+  }
+  if (!o.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
+  if (outcome.value().gate_failed) return kExitGate;
+  if (plan.value().strict && outcome.value().rejected > 0) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
+                 static_cast<unsigned long long>(outcome.value().rejected));
+    return kExitStrict;
+  }
+  return kExitOk;
+}
+
+std::vector<std::string> AllStageNames() {
+  std::vector<std::string> names;
+  for (const auto& s : AllStages()) names.push_back(s.name);
+  return names;
+}
+
+}  // namespace
+}  // namespace prefsift
+
+int main(int argc, char** argv) {
+  using namespace prefsift;  // NOLINT: main only
+  CLI::App app{
+      "prefsift: gate a human-preference dataset before reward-model training.\n"
+      "Every input record ends in exactly one output: a kept file or rejects.jsonl, with a reason.\n"
+      "Exit codes: 0 ok, 1 internal/output error, 2 usage error, 3 input error, 4 gate failed, 5 --strict rejects."};
+  app.set_version_flag("--version", std::string("prefsift ") + PREFSIFT_VERSION + " (" + PREFSIFT_REVISION + ")");
+  app.require_subcommand(1);
+
+  // One table of record-reading subcommands: name, help, stages it runs.
+  struct Command {
+    const char* name;
+    const char* help;
+    std::vector<std::string> stages;
+  };
+  std::vector<Command> commands = {
+      {"run", "Run the whole pipeline, usually from a plan file (--plan)", AllStageNames()},
+      {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
+      {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
+  };
+  std::vector<CommonOptions> options(commands.size());
+  std::vector<CLI::App*> subs;
+  for (size_t i = 0; i < commands.size(); ++i) {
+    CLI::App* sub = app.add_subcommand(commands[i].name, commands[i].help);
+    AddCommon(sub, &options[i]);
+    subs.push_back(sub);
+  }
+  CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
+
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::CallForHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::CallForAllHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::Success& e) {
+    return app.exit(e);
+  } catch (const CLI::ParseError& e) {
+    app.exit(e);
+    return 2;
+  }
+  if (layouts->parsed()) {
+    for (const auto& name : LayoutPresetNames()) {
+      auto l = LayoutFromJson(nlohmann::ordered_json{{"preset", name}}, "preset");
+      nlohmann::ordered_json j;
+      LayoutToJson(l.value(), &j);
+      std::printf("%-10s %s\n", name.c_str(), j.dump().c_str());
+    }
+    return 0;
+  }
+  for (size_t i = 0; i < commands.size(); ++i) {
+    if (subs[i]->parsed()) return RunWith(options[i], commands[i].stages);
+  }
+  return 2;
+}

@@ -1,0 +1,141 @@
+#include "core/normalize.h"
+
+#include <utf8proc.h>
+
+#include <cstdlib>
+
+namespace prefsift {
+namespace {
+
+bool IsAscii(std::string_view s) {
+  for (unsigned char c : s) {
+    if (c >= 0x80) return false;
+  }
+  return true;
+}
+
+std::string MapWith(std::string_view text, int options) {
+  utf8proc_uint8_t* out = nullptr;
+  utf8proc_ssize_t n = utf8proc_map(reinterpret_cast<const utf8proc_uint8_t*>(text.data()),
+                                    static_cast<utf8proc_ssize_t>(text.size()), &out,
+                                    static_cast<utf8proc_option_t>(options));
+  if (n < 0) {
+    // Invalid UTF-8 never reaches here (ingest validates); be safe anyway and
+    // fall back to the bytes unchanged.
+    return std::string(text);
+  }
+  std::string result(reinterpret_cast<char*>(out), static_cast<size_t>(n));
+  std::free(out);
+  return result;
+}
+
+bool IsSpaceCodepoint(utf8proc_int32_t cp) {
+  if (cp == 0x09 || cp == 0x0A || cp == 0x0B || cp == 0x0C || cp == 0x0D || cp == 0x20 || cp == 0x85) return true;
+  if (cp < 0x80) return false;
+  auto cat = utf8proc_category(cp);
+  return cat == UTF8PROC_CATEGORY_ZS || cat == UTF8PROC_CATEGORY_ZL || cat == UTF8PROC_CATEGORY_ZP;
+}
+
+bool IsPunctCodepoint(utf8proc_int32_t cp) {
+  auto cat = utf8proc_category(cp);
+  return cat == UTF8PROC_CATEGORY_PC || cat == UTF8PROC_CATEGORY_PD || cat == UTF8PROC_CATEGORY_PS ||
+         cat == UTF8PROC_CATEGORY_PE || cat == UTF8PROC_CATEGORY_PI || cat == UTF8PROC_CATEGORY_PF ||
+         cat == UTF8PROC_CATEGORY_PO;
+}
+
+// Folds white space and optionally removes punctuation, walking code points.
+std::string FoldSpaceAndPunct(std::string_view s, bool strip_punct) {
+  std::string out;
+  out.reserve(s.size());
+  bool pending_space = false;
+  size_t i = 0;
+  const auto* p = reinterpret_cast<const utf8proc_uint8_t*>(s.data());
+  while (i < s.size()) {
+    unsigned char c = static_cast<unsigned char>(s[i]);
+    utf8proc_int32_t cp;
+    size_t len;
+    if (c < 0x80) {
+      cp = c;
+      len = 1;
+    } else {
+      utf8proc_ssize_t n = utf8proc_iterate(p + i, static_cast<utf8proc_ssize_t>(s.size() - i), &cp);
+      if (n <= 0) {  // not reachable for validated input; keep the byte
+        cp = -1;
+        len = 1;
+      } else {
+        len = static_cast<size_t>(n);
+      }
+    }
+    if (cp >= 0 && IsSpaceCodepoint(cp)) {
+      pending_space = !out.empty();
+    } else if (cp >= 0 && strip_punct && IsPunctCodepoint(cp)) {
+      // dropped
+    } else {
+      if (pending_space) out.push_back(' ');
+      pending_space = false;
+      out.append(s.data() + i, len);
+    }
+    i += len;
+  }
+  return out;
+}
+
+}  // namespace
+
+std::string NormalizeForMatch(std::string_view text, const NormalizeOptions& options) {
+  std::string folded;
+  if (IsAscii(text)) {
+    // Exact: NFKC leaves ASCII unchanged, ASCII has no default-ignorables, and
+    // full case folding of ASCII is ASCII lowercase.
+    folded.assign(text);
+    for (char& c : folded) {
+      if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+    }
+  } else {
+    folded = MapWith(text, UTF8PROC_STABLE | UTF8PROC_COMPOSE | UTF8PROC_COMPAT | UTF8PROC_CASEFOLD |
+                               UTF8PROC_IGNORE);
+  }
+  return FoldSpaceAndPunct(folded, options.strip_punctuation);
+}
+
+std::string NfkcOnly(std::string_view text) {
+  return MapWith(text, UTF8PROC_STABLE | UTF8PROC_COMPOSE | UTF8PROC_COMPAT);
+}
+
+bool IsValidUtf8(std::string_view s) {
+  size_t i = 0;
+  const size_t n = s.size();
+  while (i < n) {
+    unsigned char c = static_cast<unsigned char>(s[i]);
+    if (c < 0x80) {
+      ++i;
+      continue;
+    }
+    size_t len;
+    uint32_t cp;
+    if ((c & 0xE0) == 0xC0) {
+      len = 2;
+      cp = c & 0x1F;
+    } else if ((c & 0xF0) == 0xE0) {
+      len = 3;
+      cp = c & 0x0F;
+    } else if ((c & 0xF8) == 0xF0) {
+      len = 4;
+      cp = c & 0x07;
+    } else {
+      return false;
+    }
+    if (i + len > n) return false;
+    for (size_t k = 1; k < len; ++k) {
+      unsigned char cc = static_cast<unsigned char>(s[i + k]);
+      if ((cc & 0xC0) != 0x80) return false;
+      cp = (cp << 6) | (cc & 0x3F);
+    }
+    if ((len == 2 && cp < 0x80) || (len == 3 && cp < 0x800) || (len == 4 && cp < 0x10000)) return false;  // overlong
+    if (cp > 0x10FFFF || (cp >= 0xD800 && cp <= 0xDFFF)) return false;
+    i += len;
+  }
+  return true;
+}
+
+}  // namespace prefsift

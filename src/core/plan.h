@@ -1,0 +1,56 @@
+// Plan: everything a run needs, read from a JSON plan file (comments allowed)
+// and/or the command line. Paths in a plan file are relative to the plan
+// file's folder. docs/plan.md documents every key.
+#pragma once
+
+#include <nlohmann/json.hpp>
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "core/layout.h"
+#include "core/normalize.h"
+#include "core/record_reader.h"
+#include "core/status.h"
+
+namespace prefsift {
+
+struct InputSpec {
+  std::string path;
+  std::string name;     // short name used in ids and output names (default: file stem)
+  Layout layout;
+  std::string layout_key;  // canonical JSON of the layout, to tell layouts apart
+};
+
+struct Plan {
+  std::vector<InputSpec> inputs;
+  std::string output;            // output folder
+  bool overwrite = false;
+  bool strict = false;           // any reject makes the run fail (exit 5)
+  uint64_t seed = 0;
+  unsigned threads = 0;          // 0 = all cores
+  InputLimits limits;
+  NormalizeOptions normalize;
+  nlohmann::ordered_json stages = nlohmann::ordered_json::object();  // per-stage settings by stage name
+  nlohmann::ordered_json provenance = nlohmann::ordered_json::object();
+  nlohmann::ordered_json gate = nlohmann::ordered_json::object();
+  std::string plan_path;         // "" when built from the command line only
+  std::string plan_digest;       // SHA-256 of the plan file bytes, hex ("" without a file)
+};
+
+// Reads a plan file. Errors name the file and the key at fault.
+Result<Plan> LoadPlanFile(const std::string& path);
+
+// Parses plan JSON already in memory; `base_dir` resolves relative paths and
+// `where` names the source in errors.
+Result<Plan> PlanFromJson(const nlohmann::ordered_json& j, const std::string& base_dir, const std::string& where);
+
+// Adds an input given on the command line with a layout spec.
+Status AddInput(Plan* plan, const std::string& path, const nlohmann::ordered_json& layout_spec,
+                const std::string& where);
+
+// The settings object of one stage ({} when absent).
+const nlohmann::ordered_json& StageSettings(const Plan& plan, const std::string& stage);
+
+}  // namespace prefsift

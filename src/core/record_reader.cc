@@ -1,0 +1,369 @@
+#include "core/record_reader.h"
+
+#include <simdjson.h>
+
+#include <algorithm>
+
+namespace prefsift {
+namespace {
+
+using simdjson::dom::element;
+using simdjson::dom::element_type;
+
+const char* TypeName(element_type t) {
+  switch (t) {
+    case element_type::ARRAY: return "an array";
+    case element_type::OBJECT: return "an object";
+    case element_type::INT64:
+    case element_type::UINT64:
+    case element_type::DOUBLE: return "a number";
+    case element_type::STRING: return "a string";
+    case element_type::BOOL: return "a boolean";
+    case element_type::NULL_VALUE: return "null";
+  }
+  return "a value";
+}
+
+enum class Lookup { kFound, kMissing, kDuplicate, kNotContainer };
+
+// Resolves `ptr` from `root`. Unlike a plain lookup it notices a key that
+// occurs twice in an object on the path (JSON allows it; the meaning is then
+// ambiguous, so the record is rejected rather than guessed at).
+Lookup Resolve(element root, const JsonPointer& ptr, element* out, std::string* at) {
+  element cur = root;
+  std::string path;
+  for (const auto& tok : ptr.tokens) {
+    path += "/" + tok;
+    if (cur.type() == element_type::OBJECT) {
+      simdjson::dom::object obj = cur.get_object().value_unsafe();
+      int found = 0;
+      element next;
+      for (auto field : obj) {
+        if (field.key == tok) {
+          if (found == 0) next = field.value;
+          ++found;
+        }
+      }
+      if (found == 0) { *at = path; return Lookup::kMissing; }
+      if (found > 1) { *at = path; return Lookup::kDuplicate; }
+      cur = next;
+    } else if (cur.type() == element_type::ARRAY) {
+      size_t idx;
+      simdjson::dom::array arr = cur.get_array().value_unsafe();
+      if (!ArrayIndexToken(tok, &idx) || idx >= arr.size()) { *at = path; return Lookup::kMissing; }
+      cur = arr.at(idx).value_unsafe();
+    } else {
+      *at = path;
+      return Lookup::kNotContainer;
+    }
+  }
+  *out = cur;
+  return Lookup::kFound;
+}
+
+std::string Join(const std::string& base, const JsonPointer& rel) {
+  return base + rel.text;
+}
+
+}  // namespace
+
+struct RecordReader::Impl {
+  Layout layout;
+  InputLimits limits;
+  simdjson::dom::parser parser;
+};
+
+RecordReader::RecordReader(const Layout& layout, const InputLimits& limits) : impl_(new Impl) {
+  impl_->layout = layout;
+  impl_->limits = limits;
+  // Sets the depth limit; capacity grows on demand. A failure here only means
+  // the first parse allocates instead.
+  if (impl_->parser.allocate(1u << 16, limits.max_depth) != simdjson::SUCCESS) {
+    impl_->limits.max_depth = simdjson::DEFAULT_MAX_DEPTH;
+  }
+}
+
+RecordReader::~RecordReader() = default;
+
+bool RecordReader::Read(std::string_view line, const std::string& default_id, Record* rec, RejectReason* why) {
+  const Layout& L = impl_->layout;
+  const InputLimits& lim = impl_->limits;
+  std::string seen_id;
+  auto fail = [&](std::string code, std::string field, std::string message) {
+    why->id = seen_id;
+    why->code = std::move(code);
+    why->field = std::move(field);
+    why->message = std::move(message);
+    return false;
+  };
+
+  element root;
+  auto err = impl_->parser.parse(line.data(), line.size()).get(root);
+  if (err) {
+    if (err == simdjson::UTF8_ERROR) return fail("invalid_utf8", "", "the line is not valid UTF-8");
+    if (err == simdjson::DEPTH_ERROR) {
+      return fail("json_too_deep", "", "JSON nesting is deeper than the limit of " + std::to_string(lim.max_depth) +
+                                           " levels (limits.max_depth)");
+    }
+    return fail("not_json", "", std::string("the line is not a JSON value: ") + simdjson::error_message(err));
+  }
+  if (root.type() != element_type::OBJECT) {
+    return fail("not_an_object", "", std::string("the line is ") + TypeName(root.type()) + ", not a JSON object");
+  }
+
+  // Looks a field up and checks its presence; returns false after fail().
+  auto get = [&](element base, const std::string& base_path, const JsonPointer& ptr, bool required, element* out,
+                 bool* present) -> bool {
+    std::string at;
+    Lookup r = Resolve(base, ptr, out, &at);
+    if (present) *present = (r == Lookup::kFound);
+    switch (r) {
+      case Lookup::kFound: return true;
+      case Lookup::kDuplicate:
+        return fail("duplicate_key", base_path + at, "the key at " + base_path + at + " occurs more than once");
+      case Lookup::kMissing:
+      case Lookup::kNotContainer:
+        if (!required) return true;
+        return fail("missing_field", base_path + ptr.text, "no value at " + base_path + ptr.text);
+    }
+    return false;
+  };
+  auto text_of = [&](element e, const std::string& path, std::string* out) -> bool {
+    if (e.type() != element_type::STRING) {
+      return fail("wrong_type", path, "the value at " + path + " is " + TypeName(e.type()) + ", not a string");
+    }
+    std::string_view sv = e.get_string().value_unsafe();
+    if (sv.size() > lim.max_text_bytes) {
+      return fail("text_too_long", path, "the text at " + path + " has " + std::to_string(sv.size()) +
+                                             " bytes, more than limits.max_text_bytes = " +
+                                             std::to_string(lim.max_text_bytes));
+    }
+    out->assign(sv);
+    return true;
+  };
+  auto optional_scalar = [&](const JsonPointer& ptr, bool has, std::optional<std::string>* out) -> bool {
+    if (!has) return true;
+    element e;
+    bool present = false;
+    if (!get(root, "", ptr, false, &e, &present)) return false;
+    if (!present || e.type() == element_type::NULL_VALUE) return true;
+    if (e.type() == element_type::STRING) {
+      *out = std::string(e.get_string().value_unsafe());
+    } else if (e.type() == element_type::INT64) {
+      *out = std::to_string(e.get_int64().value_unsafe());
+    } else if (e.type() == element_type::UINT64) {
+      *out = std::to_string(e.get_uint64().value_unsafe());
+    } else {
+      return fail("wrong_type", ptr.text, "the value at " + ptr.text + " is " + TypeName(e.type()) +
+                                               ", not a string or an integer");
+    }
+    return true;
+  };
+
+  Record r;
+  // id
+  if (L.has_id) {
+    element e;
+    if (!get(root, "", L.id, true, &e, nullptr)) return false;
+    if (e.type() == element_type::STRING) {
+      r.id = std::string(e.get_string().value_unsafe());
+    } else if (e.type() == element_type::INT64) {
+      r.id = std::to_string(e.get_int64().value_unsafe());
+    } else if (e.type() == element_type::UINT64) {
+      r.id = std::to_string(e.get_uint64().value_unsafe());
+    } else {
+      return fail("wrong_type", L.id.text, "the id at " + L.id.text + " is " + TypeName(e.type()) +
+                                               ", not a string or an integer");
+    }
+    if (r.id.empty()) return fail("missing_field", L.id.text, "the id at " + L.id.text + " is empty");
+    seen_id = r.id;
+  } else {
+    r.id = default_id;
+  }
+
+  // prompt
+  {
+    element e;
+    if (!get(root, "", L.prompt, true, &e, nullptr)) return false;
+    if (e.type() == element_type::STRING) {
+      if (!text_of(e, L.prompt.text, &r.prompt)) return false;
+    } else if (e.type() == element_type::ARRAY) {
+      r.prompt_is_chat = true;
+      size_t i = 0;
+      simdjson::dom::array turns = e.get_array().value_unsafe();
+      for (element turn : turns) {
+        std::string base = L.prompt.text + "/" + std::to_string(i++);
+        Turn t;
+        element role, text;
+        if (turn.type() != element_type::OBJECT) {
+          return fail("wrong_type", base, "the chat turn at " + base + " is " + TypeName(turn.type()) + ", not an object");
+        }
+        if (!get(turn, base, L.turn_role, true, &role, nullptr)) return false;
+        if (!text_of(role, Join(base, L.turn_role), &t.role)) return false;
+        if (!get(turn, base, L.turn_text, true, &text, nullptr)) return false;
+        if (!text_of(text, Join(base, L.turn_text), &t.text)) return false;
+        if (!r.prompt.empty()) r.prompt.push_back('\n');
+        r.prompt += t.role + ": " + t.text;
+        r.turns.push_back(std::move(t));
+      }
+      if (r.turns.empty()) return fail("empty_prompt", L.prompt.text, "the chat at " + L.prompt.text + " has no turns");
+    } else {
+      return fail("wrong_type", L.prompt.text, "the prompt at " + L.prompt.text + " is " + TypeName(e.type()) +
+                                                   ", not a string or an array of chat turns");
+    }
+    bool blank = std::all_of(r.prompt.begin(), r.prompt.end(), [](char c) { return c == ' ' || c == '\t' || c == '\n' || c == '\r'; });
+    if (!r.prompt_is_chat && blank) return fail("empty_prompt", L.prompt.text, "the prompt at " + L.prompt.text + " is empty");
+  }
+
+  // candidates
+  r.shape = L.judgment;
+  if (L.judgment == JudgmentShape::kPairwise) {
+    element c, j;
+    std::string chosen, rejected;
+    if (!get(root, "", L.chosen, true, &c, nullptr) || !text_of(c, L.chosen.text, &chosen)) return false;
+    if (!get(root, "", L.rejected, true, &j, nullptr) || !text_of(j, L.rejected.text, &rejected)) return false;
+    r.candidates = {std::move(chosen), std::move(rejected)};
+    r.ranks = {1, 2};
+    r.chosen = 0;
+  } else {
+    element arr_e;
+    if (!get(root, "", L.candidates, true, &arr_e, nullptr)) return false;
+    if (arr_e.type() != element_type::ARRAY) {
+      return fail("wrong_type", L.candidates.text, "the candidates at " + L.candidates.text + " are " +
+                                                       TypeName(arr_e.type()) + ", not an array");
+    }
+    simdjson::dom::array arr = arr_e.get_array().value_unsafe();
+    size_t b = arr.size();
+    if (b < 2) {
+      return fail("too_few_candidates", L.candidates.text, "the record has " + std::to_string(b) +
+                                                               " candidate(s); a comparison needs at least 2");
+    }
+    if (b > lim.max_candidates) {
+      return fail("too_many_candidates", L.candidates.text, "the record has " + std::to_string(b) +
+                                                                " candidates, more than limits.max_candidates = " +
+                                                                std::to_string(lim.max_candidates));
+    }
+    size_t i = 0;
+    for (element cand : arr) {
+      std::string base = L.candidates.text + "/" + std::to_string(i++);
+      element t;
+      if (!get(cand, base, L.candidate_text, true, &t, nullptr)) return false;
+      std::string text;
+      if (!text_of(t, Join(base, L.candidate_text), &text)) return false;
+      r.candidates.push_back(std::move(text));
+      if (L.has_candidate_origin) {
+        element o;
+        bool present = false;
+        if (!get(cand, base, L.candidate_origin, false, &o, &present)) return false;
+        if (present && o.type() == element_type::STRING) {
+          r.candidate_origin.emplace_back(o.get_string().value_unsafe());
+        } else {
+          r.candidate_origin.emplace_back();
+        }
+      }
+    }
+    // judgment
+    if (L.judgment == JudgmentShape::kChoice) {
+      element e;
+      if (!get(root, "", L.choice, true, &e, nullptr)) return false;
+      long long v;
+      if (e.type() == element_type::INT64) {
+        v = e.get_int64().value_unsafe();
+      } else if (e.type() == element_type::UINT64) {
+        v = -1;  // far out of range either way
+      } else {
+        return fail("wrong_type", L.choice.text, "the choice at " + L.choice.text + " is " + TypeName(e.type()) +
+                                                     ", not an integer");
+      }
+      long long idx = v - L.choice_base;
+      if (idx < 0 || idx >= static_cast<long long>(b)) {
+        return fail("choice_out_of_range", L.choice.text,
+                    "the choice at " + L.choice.text + " is " + std::to_string(v) + "; with " + std::to_string(b) +
+                        " candidates and choice_base " + std::to_string(L.choice_base) + " it must be " +
+                        std::to_string(L.choice_base) + ".." + std::to_string(static_cast<long long>(b) - 1 + L.choice_base));
+      }
+      r.chosen = static_cast<int>(idx);
+      r.ranks.assign(b, 2);
+      r.ranks[idx] = 1;
+    } else {
+      element e;
+      if (!get(root, "", L.ranking, true, &e, nullptr)) return false;
+      if (e.type() != element_type::ARRAY) {
+        return fail("wrong_type", L.ranking.text, "the ranking at " + L.ranking.text + " is " + TypeName(e.type()) +
+                                                      ", not an array");
+      }
+      std::vector<long long> vals;
+      size_t k = 0;
+      simdjson::dom::array ranking = e.get_array().value_unsafe();
+      for (element x : ranking) {
+        if (x.type() != element_type::INT64) {
+          return fail("bad_ranking", L.ranking.text + "/" + std::to_string(k),
+                      "ranking entries must be integers; " + L.ranking.text + "/" + std::to_string(k) + " is " +
+                          TypeName(x.type()));
+        }
+        vals.push_back(x.get_int64().value_unsafe());
+        ++k;
+      }
+      if (vals.size() != b) {
+        return fail("bad_ranking", L.ranking.text, "the ranking has " + std::to_string(vals.size()) +
+                                                       " entries for " + std::to_string(b) + " candidates");
+      }
+      if (L.judgment == JudgmentShape::kOrder) {
+        std::vector<char> seen(b, 0);
+        r.ranks.assign(b, 0);
+        for (size_t pos = 0; pos < b; ++pos) {
+          long long c = vals[pos];
+          if (c < 0 || c >= static_cast<long long>(b) || seen[c]) {
+            return fail("bad_ranking", L.ranking.text, "an order must list each candidate index 0.." +
+                                                           std::to_string(b - 1) + " exactly once");
+          }
+          seen[c] = 1;
+          r.ranks[c] = static_cast<int>(pos) + 1;
+        }
+      } else {
+        // Ranks: 1 = best. Accepted: dense ranks (1,1,2) and standard
+        // competition ranks (1,1,3); anything else (no 1, zero, negative, gaps
+        // not explained by ties) is not a ranking.
+        std::vector<long long> sorted(vals);
+        std::sort(sorted.begin(), sorted.end());
+        bool dense = sorted[0] == 1, competition = sorted[0] == 1;
+        for (size_t q = 1; q < sorted.size(); ++q) {
+          if (sorted[q] != sorted[q - 1]) {
+            dense = dense && sorted[q] == sorted[q - 1] + 1;
+            competition = competition && sorted[q] == static_cast<long long>(q) + 1;
+          }
+        }
+        if (!dense && !competition) {
+          return fail("bad_ranking", L.ranking.text,
+                      "the ranks are not a ranking: they must start at 1 and have no gaps except after ties "
+                      "(dense 1,1,2 or competition 1,1,3)");
+        }
+        r.ranks = DenseRanks(vals);
+      }
+      int top = 0, top_idx = -1;
+      for (size_t q = 0; q < b; ++q) {
+        if (r.ranks[q] == 1) { ++top; top_idx = static_cast<int>(q); }
+      }
+      r.chosen = top == 1 ? top_idx : -1;
+    }
+  }
+  for (size_t i = 0; i < r.candidates.size(); ++i) {
+    const auto& c = r.candidates[i];
+    bool blank = std::all_of(c.begin(), c.end(), [](char ch) { return ch == ' ' || ch == '\t' || ch == '\n' || ch == '\r'; });
+    if (blank) {
+      std::string where = L.judgment == JudgmentShape::kPairwise ? (i == 0 ? L.chosen.text : L.rejected.text)
+                                                                   : L.candidates.text + "/" + std::to_string(i);
+      return fail("empty_candidate", where, "the candidate at " + where + " is empty");
+    }
+  }
+
+  if (!optional_scalar(L.annotator, L.has_annotator, &r.annotator)) return false;
+  if (!optional_scalar(L.thread, L.has_thread, &r.thread)) return false;
+  if (!optional_scalar(L.source, L.has_source, &r.source)) return false;
+  if (!optional_scalar(L.timestamp, L.has_timestamp, &r.timestamp)) return false;
+  if (!optional_scalar(L.group, L.has_group, &r.group)) return false;
+  *rec = std::move(r);
+  return true;
+}
+
+}  // namespace prefsift

@@ -1,0 +1,103 @@
+#include "report/summary.h"
+
+#include "prefsift_version.h"
+
+namespace prefsift {
+
+using Json = nlohmann::ordered_json;
+
+Json BuildSummary(const Plan& plan, const RunState& st, const std::vector<const Stage*>& stages,
+                  const std::map<std::string, uint64_t>& written) {
+  Json s;
+  s["tool"] = Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}};
+  uint64_t entries = 0, kept = 0, rejected = 0;
+  Json inputs = Json::array();
+  for (size_t i = 0; i < plan.inputs.size(); ++i) {
+    const InputStats& is = st.inputs[i];
+    Json reasons = Json::object();
+    for (const auto& [r, n] : is.rejected_by_reason) reasons[r] = n;
+    Json layout;
+    LayoutToJson(plan.inputs[i].layout, &layout);
+    inputs.push_back(Json{{"name", plan.inputs[i].name},
+                          {"path", plan.inputs[i].path},
+                          {"compression", is.compression},
+                          {"layout", layout},
+                          {"lines", is.lines},
+                          {"blank_lines", is.blank_lines},
+                          {"records_in", is.entries},
+                          {"parsed", is.records},
+                          {"kept", is.kept},
+                          {"rejected", is.rejected},
+                          {"rejected_by_reason", reasons}});
+    entries += is.entries;
+    kept += is.kept;
+    rejected += is.rejected;
+  }
+  s["ledger"] = Json{{"records_in", entries},
+                     {"kept", kept},
+                     {"rejected", rejected},
+                     {"balanced", kept + rejected == entries},
+                     {"note", "records_in counts every non-blank input line; each ends in exactly one output file"}};
+  s["inputs"] = inputs;
+  Json by_stage = Json::array();
+  for (const auto& [stage, reasons] : st.rejects_by_stage()) {
+    uint64_t total = 0;
+    Json r = Json::object();
+    for (const auto& [reason, n] : reasons) {
+      r[reason] = n;
+      total += n;
+    }
+    by_stage.push_back(Json{{"stage", stage}, {"rejected", total}, {"by_reason", r}});
+  }
+  s["rejects_by_stage"] = by_stage;
+  Json outs = Json::object();
+  for (const auto& [name, n] : written) outs[name] = n;
+  s["outputs"] = outs;
+  Json settings;
+  settings["seed"] = plan.seed;
+  settings["normalize"] = Json{{"form", "NFKC with case folding, default-ignorables removed"},
+                               {"whitespace", "folded"},
+                               {"strip_punctuation", plan.normalize.strip_punctuation}};
+  settings["limits"] = Json{{"max_line_bytes", plan.limits.max_line_bytes},
+                            {"max_depth", plan.limits.max_depth},
+                            {"max_candidates", plan.limits.max_candidates},
+                            {"max_text_bytes", plan.limits.max_text_bytes}};
+  if (!plan.plan_digest.empty()) settings["plan_sha256"] = plan.plan_digest;
+  s["settings"] = settings;
+  Json sections = Json::object();
+  for (const Stage* stage : stages) {
+    Json sec = Json::object();
+    stage->Report(st, &sec);
+    sections[stage->name()] = sec;
+  }
+  s["stages"] = sections;
+  return s;
+}
+
+void PrintLedgerTable(const Json& s, std::FILE* out) {
+  std::fprintf(out, "prefsift ledger\n");
+  std::fprintf(out, "  %-28s %10s %10s %10s\n", "input", "records", "kept", "rejected");
+  for (const auto& in : s["inputs"]) {
+    std::fprintf(out, "  %-28s %10llu %10llu %10llu\n", in["name"].get<std::string>().c_str(),
+                 static_cast<unsigned long long>(in["records_in"].get<uint64_t>()),
+                 static_cast<unsigned long long>(in["kept"].get<uint64_t>()),
+                 static_cast<unsigned long long>(in["rejected"].get<uint64_t>()));
+  }
+  const Json& l = s["ledger"];
+  std::fprintf(out, "  %-28s %10llu %10llu %10llu  %s\n", "total",
+               static_cast<unsigned long long>(l["records_in"].get<uint64_t>()),
+               static_cast<unsigned long long>(l["kept"].get<uint64_t>()),
+               static_cast<unsigned long long>(l["rejected"].get<uint64_t>()),
+               l["balanced"].get<bool>() ? "(balanced)" : "(NOT BALANCED)");
+  if (!s["rejects_by_stage"].empty()) {
+    std::fprintf(out, "  %-12s %-30s %10s\n", "stage", "reason", "rejected");
+    for (const auto& st : s["rejects_by_stage"]) {
+      for (auto it = st["by_reason"].begin(); it != st["by_reason"].end(); ++it) {
+        std::fprintf(out, "  %-12s %-30s %10llu\n", st["stage"].get<std::string>().c_str(), it.key().c_str(),
+                     static_cast<unsigned long long>(it.value().get<uint64_t>()));
+      }
+    }
+  }
+}
+
+}  // namespace prefsift

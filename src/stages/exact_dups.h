@@ -1,0 +1,24 @@
+// Exact duplicates, label conflicts and degenerate comparisons.
+//
+// Keys are XXH3-128 hashes of normalised text (core/normalize.h):
+//   comparison key = prompt hash + the sorted set of candidate hashes
+//   judgment       = the ranks, read in that sorted candidate order
+// Cases (docs/exact-duplicates.md):
+//   degenerate            two candidates equal after normalisation, one ranked
+//                         above the other -> rejected (degenerate_comparison)
+//   repeated comparison   same key, same judgment -> the first in input order is
+//                         kept, the rest rejected (duplicate_comparison)
+//   label conflict        same key, different judgments -> policy "conflicts":
+//                         keep-majority (default), drop-all, keep-all
+// Settings (plan "stages": {"exact": {...}}): "conflicts".
+#pragma once
+
+#include <memory>
+
+#include "stages/stage.h"
+
+namespace prefsift {
+
+std::unique_ptr<Stage> MakeExactDupsStage(const Plan& plan, Status* error);
+
+}  // namespace prefsift

@@ -1,0 +1,373 @@
+#include "stages/pipeline.h"
+
+#include <nlohmann/json.hpp>
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <optional>
+#include <thread>
+
+#include "core/record_reader.h"
+#include "io/line_reader.h"
+#include "io/output_dir.h"
+#include "report/summary.h"
+#include "stages/facts.h"
+#include "stages/stage.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+constexpr size_t kChunkLines = 4096;
+
+std::string Base64(std::string_view in) {
+  static const char* k = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+  std::string out;
+  size_t i = 0;
+  for (; i + 2 < in.size(); i += 3) {
+    uint32_t v = (uint32_t(uint8_t(in[i])) << 16) | (uint32_t(uint8_t(in[i + 1])) << 8) | uint8_t(in[i + 2]);
+    out += {k[v >> 18], k[(v >> 12) & 63], k[(v >> 6) & 63], k[v & 63]};
+  }
+  if (i + 1 == in.size()) {
+    uint32_t v = uint32_t(uint8_t(in[i])) << 16;
+    out += {k[v >> 18], k[(v >> 12) & 63], '=', '='};
+  } else if (i + 2 == in.size()) {
+    uint32_t v = (uint32_t(uint8_t(in[i])) << 16) | (uint32_t(uint8_t(in[i + 1])) << 8);
+    out += {k[v >> 18], k[(v >> 12) & 63], k[(v >> 6) & 63], '='};
+  }
+  return out;
+}
+
+bool IsBlank(std::string_view s) {
+  return std::all_of(s.begin(), s.end(), [](char c) { return c == ' ' || c == '\t' || c == '\r'; });
+}
+
+const char* CompressionName(Compression c) {
+  switch (c) {
+    case Compression::kNone: return "none";
+    case Compression::kGzip: return "gzip";
+    case Compression::kZstd: return "zstd";
+  }
+  return "?";
+}
+
+// One line of a chunk, after parsing.
+struct Parsed {
+  uint64_t line = 0;
+  bool too_long = false;
+  bool ok = false;
+  Record rec;
+  RecordFacts facts;
+  RejectReason why;
+};
+
+class Progress {
+ public:
+  Progress(bool on, std::FILE* log) : on_(on), log_(log), start_(std::chrono::steady_clock::now()), last_(start_) {}
+  void Tick(const std::string& what, uint64_t lines, uint64_t bytes) {
+    if (!on_) return;
+    auto now = std::chrono::steady_clock::now();
+    if (now - last_ < std::chrono::milliseconds(500)) return;
+    last_ = now;
+    double s = std::chrono::duration<double>(now - start_).count();
+    std::fprintf(log_, "\r%s: %llu lines, %.1f MB, %.0f s   ", what.c_str(), static_cast<unsigned long long>(lines),
+                 static_cast<double>(bytes) / 1e6, s);
+    std::fflush(log_);
+    shown_ = true;
+  }
+  void Done() {
+    if (shown_) std::fprintf(log_, "\r%60s\r", "");
+  }
+
+ private:
+  bool on_;
+  std::FILE* log_;
+  std::chrono::steady_clock::time_point start_, last_;
+  bool shown_ = false;
+};
+
+// Runs fn(i) for i in [0, n) on up to `threads` threads. fn must be safe for distinct i.
+template <typename Fn>
+void ParallelFor(size_t n, unsigned threads, Fn fn) {
+  if (threads <= 1 || n < 64) {
+    for (size_t i = 0; i < n; ++i) fn(i, 0u);
+    return;
+  }
+  std::vector<std::thread> pool;
+  for (unsigned t = 0; t < threads; ++t) {
+    pool.emplace_back([&, t] {
+      for (size_t i = t; i < n; i += threads) fn(i, t);
+    });
+  }
+  for (auto& th : pool) th.join();
+}
+
+Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+               unsigned threads, Progress& progress) {
+  st.inputs.resize(plan.inputs.size());
+  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    const InputSpec& spec = plan.inputs[in];
+    InputStats& stats = st.inputs[in];
+    auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes);
+    if (!opened.ok()) return opened.status();
+    auto& reader = opened.value();
+    stats.compression = CompressionName(reader->compression());
+    std::vector<std::unique_ptr<RecordReader>> parsers;
+    for (unsigned t = 0; t < std::max(1u, threads); ++t) {
+      parsers.push_back(std::make_unique<RecordReader>(spec.layout, plan.limits));
+    }
+    bool eof = false;
+    while (!eof) {
+      // Read a chunk of lines (text copied; the reader's view is transient).
+      std::vector<std::string> texts;
+      std::vector<Parsed> chunk;
+      while (chunk.size() < kChunkLines) {
+        std::string_view line;
+        uint64_t no = 0;
+        auto next = reader->Read(&line, &no);
+        if (!next.ok()) return next.status();
+        if (next.value() == LineReader::Next::kEnd) { eof = true; break; }
+        ++stats.lines;
+        if (next.value() == LineReader::Next::kLine && IsBlank(line)) { ++stats.blank_lines; continue; }
+        Parsed p;
+        p.line = no;
+        p.too_long = next.value() == LineReader::Next::kTooLong;
+        texts.emplace_back(p.too_long ? std::string_view() : line);
+        chunk.push_back(std::move(p));
+      }
+      ParallelFor(chunk.size(), threads, [&](size_t i, unsigned t) {
+        Parsed& p = chunk[i];
+        if (p.too_long) return;
+        p.ok = parsers[t]->Read(texts[i], spec.name + ":" + std::to_string(p.line), &p.rec, &p.why);
+        if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize);
+      });
+      // Number entries and records in input order.
+      size_t first_record = st.records.size();
+      std::vector<size_t> rec_of(chunk.size(), SIZE_MAX);
+      for (size_t i = 0; i < chunk.size(); ++i) {
+        Parsed& p = chunk[i];
+        Entry e;
+        e.input = in;
+        e.line = p.line;
+        size_t entry_index = st.entries.size();
+        ++stats.entries;
+        if (p.ok) {
+          e.record = static_cast<int64_t>(st.records.size());
+          rec_of[i] = st.records.size();
+          p.facts.entry = static_cast<uint32_t>(entry_index);
+          st.records.push_back(std::move(p.facts));
+          ++stats.records;
+        }
+        st.entries.push_back(e);
+        st.decisions.emplace_back();
+        if (p.too_long) {
+          st.RejectEntry(entry_index, "ingest", "line_too_long", "",
+                         "the line is longer than limits.max_line_bytes = " + std::to_string(plan.limits.max_line_bytes));
+        } else if (!p.ok) {
+          st.RejectEntry(entry_index, "ingest", p.why.code, p.why.field, p.why.message, p.why.id);
+        }
+      }
+      for (auto& s : stages) s->Grow(st.records.size());
+      ParallelFor(chunk.size(), threads, [&](size_t i, unsigned) {
+        if (rec_of[i] == SIZE_MAX) return;
+        for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]]);
+      });
+      (void)first_record;
+      progress.Tick("reading " + spec.name, stats.lines, reader->bytes_read());
+    }
+  }
+  return Status::Ok();
+}
+
+std::string OutputName(const Plan& plan, const std::string& split, uint32_t input) {
+  bool same_layout = true;
+  for (const auto& in : plan.inputs) same_layout = same_layout && in.layout_key == plan.inputs[0].layout_key;
+  if (same_layout) return split + ".jsonl";
+  return split + "." + plan.inputs[input].name + ".jsonl";
+}
+
+std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, const Decision& d, std::string_view raw) {
+  Json j;
+  j["input"] = plan.inputs[e.input].name;
+  j["file"] = plan.inputs[e.input].path;
+  j["line"] = e.line;
+  j["id"] = e.record >= 0 ? Json(st.records[e.record].id) : d.id.empty() ? Json(nullptr) : Json(d.id);
+  j["stage"] = d.stage;
+  j["reason"] = d.reason;
+  if (!d.field.empty()) j["field"] = d.field;
+  j["message"] = d.message;
+  std::string head = j.dump();
+  head.pop_back();  // reopen the object to append raw JSON without re-serialising it
+  if (!d.detail.empty()) head += ",\"detail\":" + d.detail;
+  if (d.reason == "line_too_long") {
+    head += ",\"record_omitted\":\"longer than the line limit; see file and line\"";
+  } else if (e.record >= 0 || (d.reason != "not_json" && d.reason != "invalid_utf8" && d.reason != "json_too_deep")) {
+    head += ",\"record\":";
+    head.append(raw);
+  } else if (d.reason == "invalid_utf8") {
+    head += ",\"record_base64\":\"" + Base64(raw) + "\"";
+  } else {
+    head += ",\"record_text\":" + Json(std::string(raw)).dump();
+  }
+  head += "}\n";
+  return head;
+}
+
+Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+             OutputDir& out, std::map<std::string, uint64_t>* written) {
+  std::map<std::string, std::unique_ptr<WritableFile>> files;
+  auto file = [&](const std::string& name) -> Result<WritableFile*> {
+    auto it = files.find(name);
+    if (it != files.end()) return it->second.get();
+    auto f = out.Create(name);
+    if (!f.ok()) return f.status();
+    (*written)[name] = 0;
+    return (files[name] = std::move(f).value()).get();
+  };
+  // Every split file exists, even when empty, so downstream jobs find them.
+  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    for (const auto& split : st.split_names) {
+      auto f = file(OutputName(plan, split, in));
+      if (!f.ok()) return f.status();
+    }
+  }
+  auto rejects = file("rejects.jsonl");
+  if (!rejects.ok()) return rejects.status();
+
+  size_t cursor = 0;
+  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes);
+    if (!opened.ok()) return opened.status();
+    auto& reader = opened.value();
+    for (;;) {
+      std::string_view line;
+      uint64_t no = 0;
+      auto next = reader->Read(&line, &no);
+      if (!next.ok()) return next.status();
+      if (next.value() == LineReader::Next::kEnd) break;
+      if (next.value() == LineReader::Next::kLine && IsBlank(line)) continue;
+      if (cursor >= st.entries.size() || st.entries[cursor].input != in || st.entries[cursor].line != no) {
+        return Status::Input(plan.inputs[in].path + " changed while prefsift was reading it (line " +
+                             std::to_string(no) + "); nothing was written");
+      }
+      const Entry& e = st.entries[cursor];
+      const Decision& d = st.decisions[cursor];
+      ++cursor;
+      if (d.rejected) {
+        Status s = rejects.value()->Append(RejectLine(plan, st, e, d, line));
+        if (!s.ok()) return s;
+        ++(*written)["rejects.jsonl"];
+        continue;
+      }
+      std::string name = OutputName(plan, st.split_names[d.split], in);
+      auto f = file(name);
+      if (!f.ok()) return f.status();
+      bool rewrite = false;
+      for (auto& s : stages) rewrite = rewrite || s->Rewrites(static_cast<size_t>(e.record));
+      Status s;
+      if (!rewrite) {
+        s = f.value()->Append(line);
+        if (s.ok()) s = f.value()->Append("\n");
+      } else {
+        Json doc = Json::parse(line);
+        for (auto& stage : stages) {
+          if (!stage->Rewrites(static_cast<size_t>(e.record))) continue;
+          Status rs = stage->Rewrite(static_cast<size_t>(e.record), plan.inputs[in], &doc);
+          if (!rs.ok()) return rs;
+        }
+        s = f.value()->Append(doc.dump() + "\n");
+      }
+      if (!s.ok()) return s;
+      ++(*written)[name];
+    }
+  }
+  if (cursor != st.entries.size()) {
+    return Status::Input("an input file got shorter while prefsift was reading it; nothing was written");
+  }
+  for (auto& [name, f] : files) {
+    Status s = f->Close();
+    if (!s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
+  if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
+  if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
+  // Stages, in pipeline order.
+  std::vector<std::unique_ptr<Stage>> stages;
+  for (const auto& info : AllStages()) {
+    if (std::find(options.stages.begin(), options.stages.end(), info.name) == options.stages.end()) continue;
+    const Json& settings = StageSettings(plan, info.name);
+    if (settings.contains("enabled") && settings["enabled"].is_boolean() && !settings["enabled"].get<bool>()) continue;
+    Status err;
+    auto stage = info.make(plan, &err);
+    if (!stage) return err.ok() ? Status::Internal(std::string("stage ") + info.name + " failed to start") : err;
+    stages.push_back(std::move(stage));
+  }
+  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
+    bool known = false;
+    for (const auto& info : AllStages()) known = known || it.key() == info.name;
+    if (!known) return Status::Usage("plan: unknown stage \"" + it.key() + "\" under \"stages\"");
+  }
+  auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
+  if (!out.ok()) return out.status();
+
+  unsigned threads = plan.threads ? plan.threads : std::max(1u, std::thread::hardware_concurrency());
+  RunState st(plan);
+  Progress progress(options.progress, log);
+  Status s = Observe(plan, st, stages, fs, threads, progress);
+  progress.Done();
+  if (!s.ok()) return s;
+  for (auto& stage : stages) {
+    s = stage->Decide(st);
+    if (!s.ok()) return s;
+  }
+  std::map<std::string, uint64_t> written;
+  s = Apply(plan, st, stages, fs, *out.value(), &written);
+  if (!s.ok()) return s;
+  for (auto& stage : stages) {
+    s = stage->WriteOutputs(st, *out.value());
+    if (!s.ok()) return s;
+  }
+  RunOutcome outcome;
+  for (size_t i = 0; i < st.entries.size(); ++i) {
+    InputStats& is = st.inputs[st.entries[i].input];
+    if (st.decisions[i].rejected) {
+      ++is.rejected;
+      ++is.rejected_by_reason[st.decisions[i].reason];
+      ++outcome.rejected;
+    } else {
+      ++is.kept;
+      ++outcome.kept;
+    }
+  }
+  outcome.entries = st.entries.size();
+  for (const auto& is : st.inputs) outcome.blank_lines += is.blank_lines;
+  // The ledger invariant: every entry is in exactly one output.
+  uint64_t out_lines = 0;
+  for (const auto& [name, n] : written) out_lines += n;
+  if (outcome.kept + outcome.rejected != outcome.entries || out_lines != outcome.entries) {
+    return Status::Internal("the ledger does not balance (input " + std::to_string(outcome.entries) + ", kept " +
+                            std::to_string(outcome.kept) + ", rejected " + std::to_string(outcome.rejected) +
+                            ", lines written " + std::to_string(out_lines) + "); nothing was written");
+  }
+  std::vector<const Stage*> stage_ptrs;
+  for (auto& stage : stages) stage_ptrs.push_back(stage.get());
+  Json summary = BuildSummary(plan, st, stage_ptrs, written);
+  auto sf = out.value()->Create("summary.json");
+  if (!sf.ok()) return sf.status();
+  s = sf.value()->Append(summary.dump(2) + "\n");
+  if (s.ok()) s = sf.value()->Close();
+  if (!s.ok()) return s;
+  s = out.value()->Commit();
+  if (!s.ok()) return s;
+  if (options.table) PrintLedgerTable(summary, log);
+  return outcome;
+}
+
+}  // namespace prefsift

@@ -1,0 +1,29 @@
+// The pipeline: observe (pass 1, parallel over chunks of lines), decide (each
+// stage in order), apply (pass 2: every input line to exactly one output), then
+// summary.json and the stages' own files. Outputs appear atomically.
+#pragma once
+
+#include <cstdio>
+#include <string>
+#include <vector>
+
+#include "core/plan.h"
+#include "core/status.h"
+#include "io/file_system.h"
+
+namespace prefsift {
+
+struct PipelineOptions {
+  std::vector<std::string> stages;  // stage names to run, in any order; run in pipeline order
+  bool progress = false;            // a progress line on `log` (use when it is a terminal)
+  bool table = true;                // the ledger table on `log` at the end
+};
+
+struct RunOutcome {
+  uint64_t entries = 0, kept = 0, rejected = 0, blank_lines = 0;
+  bool gate_failed = false;
+};
+
+Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log);
+
+}  // namespace prefsift

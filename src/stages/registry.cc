@@ -1,0 +1,13 @@
+#include "stages/exact_dups.h"
+#include "stages/stage.h"
+
+namespace prefsift {
+
+const std::vector<StageInfo>& AllStages() {
+  static const std::vector<StageInfo> kStages = {
+      {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
+  };
+  return kStages;
+}
+
+}  // namespace prefsift

@@ -1,0 +1,41 @@
+#include "stages/run_state.h"
+
+namespace prefsift {
+
+void RunState::Count(const std::string& stage, const std::string& reason) {
+  for (auto& [name, reasons] : by_stage_) {
+    if (name == stage) {
+      ++reasons[reason];
+      return;
+    }
+  }
+  by_stage_.push_back({stage, {{reason, 1}}});
+}
+
+bool RunState::Reject(size_t record, const std::string& stage, const std::string& reason, std::string message,
+                      std::string detail, std::string field) {
+  Decision& d = DecisionOf(record);
+  if (d.rejected) return false;
+  d.rejected = true;
+  d.stage = stage;
+  d.reason = reason;
+  d.message = std::move(message);
+  d.detail = std::move(detail);
+  d.field = std::move(field);
+  Count(stage, reason);
+  return true;
+}
+
+void RunState::RejectEntry(size_t entry, const std::string& stage, const std::string& reason, std::string field,
+                           std::string message, std::string id) {
+  Decision& d = decisions[entry];
+  d.id = std::move(id);
+  d.rejected = true;
+  d.stage = stage;
+  d.reason = reason;
+  d.field = std::move(field);
+  d.message = std::move(message);
+  Count(stage, reason);
+}
+
+}  // namespace prefsift

@@ -1,0 +1,91 @@
+// RunState: the fact table and the decisions of one run (observe, decide,
+// apply). Stages read facts and record decisions here; the ledger is these
+// decisions counted.
+//
+// Every non-blank input line is an Entry and gets exactly one Decision: kept
+// (with a split) or rejected (with the first stage and reason that rejected
+// it). Thread-safety: Observe-time writes go to distinct indexes; Decide runs
+// on one thread.
+#pragma once
+
+#include <cstdint>
+#include <map>
+#include <string>
+#include <vector>
+
+#include "core/hash.h"
+#include "core/plan.h"
+
+namespace prefsift {
+
+struct Entry {
+  uint32_t input = 0;
+  uint64_t line = 0;      // 1-based line number in its file
+  int64_t record = -1;    // index into RunState::records, -1 when the line did not parse
+};
+
+struct Decision {
+  bool rejected = false;
+  std::string stage;      // the stage that rejected it
+  std::string reason;     // reason code (docs/reasons.md)
+  std::string field;      // JSON Pointer at fault, when there is one
+  std::string message;    // a sentence for people
+  std::string detail;     // a compact JSON object with specifics, or ""
+  uint32_t split = 0;     // index into RunState::split_names when kept
+  std::string id;         // for entries that never became records: the id if it was readable
+};
+
+// Small, fixed facts about one parsed record; the text itself is not kept.
+struct RecordFacts {
+  uint32_t entry = 0;
+  std::string id;
+  Hash128 prompt_hash;                 // normalised prompt (chat: all turns with roles)
+  std::vector<Hash128> cand_hashes;    // normalised candidates, file order
+  std::vector<int> ranks;              // dense ranks, 1 = best
+  int chosen = -1;                     // single best candidate or -1
+  JudgmentShape shape = JudgmentShape::kChoice;
+  std::string annotator, thread, source, group;  // "" when absent
+  std::vector<uint32_t> cand_chars, cand_words;  // code points and whitespace-separated words
+  uint32_t prompt_chars = 0;
+};
+
+struct InputStats {
+  uint64_t lines = 0, blank_lines = 0, entries = 0, records = 0, kept = 0, rejected = 0;
+  std::map<std::string, uint64_t> rejected_by_reason;
+  std::string compression;
+};
+
+class RunState {
+ public:
+  explicit RunState(const Plan& plan) : plan_(plan) {}
+  const Plan& plan() const { return plan_; }
+
+  std::vector<InputStats> inputs;
+  std::vector<Entry> entries;
+  std::vector<RecordFacts> records;
+  std::vector<Decision> decisions;     // one per entry
+  std::vector<std::string> split_names{"kept"};
+
+  bool IsKept(size_t record) const { return !decisions[records[record].entry].rejected; }
+  Decision& DecisionOf(size_t record) { return decisions[records[record].entry]; }
+
+  // Rejects a record unless an earlier stage already did; returns whether this
+  // call rejected it. `detail` is a compact JSON object or "".
+  bool Reject(size_t record, const std::string& stage, const std::string& reason, std::string message,
+              std::string detail = "", std::string field = "");
+  // Rejects an entry that never became a record (ingest).
+  void RejectEntry(size_t entry, const std::string& stage, const std::string& reason, std::string field,
+                   std::string message, std::string id = "");
+
+  // Counts of rejects by stage and reason, in the order stages first rejected.
+  const std::vector<std::pair<std::string, std::map<std::string, uint64_t>>>& rejects_by_stage() const {
+    return by_stage_;
+  }
+
+ private:
+  void Count(const std::string& stage, const std::string& reason);
+  const Plan& plan_;
+  std::vector<std::pair<std::string, std::map<std::string, uint64_t>>> by_stage_;
+};
+
+}  // namespace prefsift

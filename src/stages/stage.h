@@ -1,0 +1,51 @@
+// Stage: one step of the pipeline, in three parts (docs/architecture.md).
+//
+//   Observe  per record, pass 1: compute small facts from the text.
+//   Decide   once, over all facts: reject records, assign groups or splits.
+//   Report   add a section to summary.json; WriteOutputs adds files.
+//   Rewrite  pass 2: change a kept record before it is written (optional).
+//
+// Observe may be called from several threads for distinct record indexes,
+// after Grow(n) has sized the stage's storage; everything else runs on one
+// thread. A stage must be deterministic given the plan and its seed.
+#pragma once
+
+#include <nlohmann/json_fwd.hpp>
+
+#include <memory>
+#include <string>
+
+#include "core/record.h"
+#include "core/status.h"
+#include "stages/run_state.h"
+
+namespace prefsift {
+
+class OutputDir;
+
+class Stage {
+ public:
+  virtual ~Stage() = default;
+  virtual std::string name() const = 0;
+  virtual void Grow(size_t /*records*/) {}
+  virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/) {}
+  virtual Status Decide(RunState& state) = 0;
+  virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
+  virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }
+  virtual bool Rewrites(size_t /*record*/) const { return false; }
+  virtual Status Rewrite(size_t /*record*/, const InputSpec& /*input*/, nlohmann::ordered_json* /*doc*/) const {
+    return Status::Ok();
+  }
+};
+
+struct StageInfo {
+  const char* name;
+  const char* summary;  // one line for --help
+  std::unique_ptr<Stage> (*make)(const Plan& plan, Status* error);
+};
+
+// All stages, in pipeline order. Adding a stage: a file pair in src/stages and
+// one row in the table in registry.cc.
+const std::vector<StageInfo>& AllStages();
+
+}  // namespace prefsift
