@@ -1,7 +1,8 @@
 // Tests of src/stats/multiple_testing. Reference: adjusted p-values computed
 // in tests/reference/stats_reference.py directly from the published
 // definitions (Holm 1979, Scand. J. Statist. 6:65-70; Benjamini & Hochberg
-// 1995, J. R. Statist. Soc. B 57:289-300), written as O(m^2) max/min
+// 1995, J. R. Statist. Soc. B 57:289-300; citations from memory, unverified;
+// the formulas are the common-practice adjusted-p forms), written as O(m^2) max/min
 // formulas, independent of the C++ sweep. scipy 1.10.1 has no
 // false_discovery_control (added in scipy 1.11), so it is not used.
 #include "stats/multiple_testing.h"
