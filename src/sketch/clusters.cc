@@ -12,10 +12,8 @@
 namespace prefsift::sketch {
 namespace {
 
-// SimFn: double(uint32_t a, uint32_t b).
-template <typename SimFn>
-Result<Clustering> Cluster(std::span<const uint8_t> signatures, uint32_t num_slots,
-                           const ClusterOptions& options, const SimFn& similarity) {
+Status Validate(std::span<const uint8_t> signatures, uint32_t num_slots,
+                const ClusterOptions& options) {
   if (num_slots == 0 || signatures.size() % num_slots != 0) {
     return Status::Usage("signature buffer is not a whole number of " +
                          std::to_string(num_slots) + "-slot signatures");
@@ -23,10 +21,13 @@ Result<Clustering> Cluster(std::span<const uint8_t> signatures, uint32_t num_slo
   if (!(options.threshold > 0.0 && options.threshold <= 1.0)) {
     return Status::Usage("similarity threshold must be in (0, 1]");
   }
-  const size_t n64 = signatures.size() / num_slots;
-  if (n64 >= 0xffffffffULL) return Status::Usage("too many records for one clustering");
-  const auto n = static_cast<uint32_t>(n64);
+  if (signatures.size() / num_slots >= 0xffffffffULL) {
+    return Status::Usage("too many records for one clustering");
+  }
+  return Status::Ok();
+}
 
+Result<Banding> ResolveBanding(uint32_t num_slots, const ClusterOptions& options) {
   Banding banding = options.banding;
   if (banding.bands == 0 || banding.rows == 0) {
     auto chosen = ChooseBanding(num_slots, std::min(options.threshold, 0.999));
@@ -36,14 +37,15 @@ Result<Clustering> Cluster(std::span<const uint8_t> signatures, uint32_t num_slo
   if (static_cast<uint64_t>(banding.bands) * banding.rows > num_slots) {
     return Status::Usage("banding uses more slots than the signature has");
   }
+  return banding;
+}
 
+// Verifies `pairs` with similarity(a, b) and clusters. SimFn: double(uint32_t, uint32_t).
+template <typename SimFn>
+Clustering VerifyAndCluster(uint32_t n, std::span<const uint64_t> pairs,
+                            const ClusterOptions& options, const SimFn& similarity) {
   Clustering out;
-  out.stats.banding = banding;
-  const CandidateOptions cand_options{options.max_run, options.threads};
-  const std::vector<uint64_t> pairs = CandidatePairs(signatures, num_slots, banding,
-                                                     options.band_seed, cand_options,
-                                                     &out.stats.candidates);
-
+  out.stats.candidates.unique_pairs = pairs.size();
   // Verify every distinct pair; contiguous chunks per thread.
   std::vector<float> sims(pairs.size());
   const uint32_t threads = std::max<uint32_t>(options.threads, 1);
@@ -108,17 +110,53 @@ Result<Clustering> Cluster(std::span<const uint8_t> signatures, uint32_t num_slo
   return out;
 }
 
-}  // namespace
+// Candidates from the bands, then VerifyAndCluster.
+template <typename SimFn>
+Result<Clustering> Cluster(std::span<const uint8_t> signatures, uint32_t num_slots,
+                           const ClusterOptions& options, const SimFn& similarity) {
+  if (Status st = Validate(signatures, num_slots, options); !st.ok()) return st;
+  auto banding = ResolveBanding(num_slots, options);
+  if (!banding.ok()) return banding.status();
+  CandidateStats cand_stats;
+  const std::vector<uint64_t> pairs =
+      CandidatePairs(signatures, num_slots, banding.value(), options.band_seed,
+                     CandidateOptions{options.max_run, options.threads}, &cand_stats);
+  Clustering out = VerifyAndCluster(static_cast<uint32_t>(signatures.size() / num_slots), pairs,
+                                    options, similarity);
+  out.stats.banding = banding.value();
+  out.stats.candidates = cand_stats;
+  return out;
+}
 
-Result<Clustering> ClusterCompactSignatures(std::span<const uint8_t> signatures,
-                                            uint32_t num_slots, const ClusterOptions& options) {
-  auto sim = [&](uint32_t a, uint32_t b) {
+// Estimated Jaccard from compact signatures.
+auto CompactSimilarity(std::span<const uint8_t> signatures, uint32_t num_slots) {
+  return [signatures, num_slots](uint32_t a, uint32_t b) {
     return CompactMatchesToJaccard(
         CountEqualSlots(signatures.subspan(static_cast<size_t>(a) * num_slots, num_slots),
                         signatures.subspan(static_cast<size_t>(b) * num_slots, num_slots)),
         num_slots);
   };
-  return Cluster(signatures, num_slots, options, sim);
+}
+
+}  // namespace
+
+Result<Clustering> ClusterCompactSignatures(std::span<const uint8_t> signatures,
+                                            uint32_t num_slots, const ClusterOptions& options) {
+  return Cluster(signatures, num_slots, options, CompactSimilarity(signatures, num_slots));
+}
+
+Result<Clustering> ClusterCandidates(std::span<const uint8_t> signatures, uint32_t num_slots,
+                                     std::span<const uint64_t> pairs,
+                                     const ClusterOptions& options) {
+  if (Status st = Validate(signatures, num_slots, options); !st.ok()) return st;
+  const auto n = static_cast<uint32_t>(signatures.size() / num_slots);
+  for (size_t p = 0; p < pairs.size(); ++p) {
+    if (PairFirst(pairs[p]) >= PairSecond(pairs[p]) || PairSecond(pairs[p]) >= n ||
+        (p > 0 && pairs[p - 1] >= pairs[p])) {
+      return Status::Usage("candidate pairs must be sorted, distinct, a < b < N");
+    }
+  }
+  return VerifyAndCluster(n, pairs, options, CompactSimilarity(signatures, num_slots));
 }
 
 Result<Clustering> ClusterWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,

@@ -64,7 +64,15 @@ struct Clustering {
 Result<Clustering> ClusterCompactSignatures(std::span<const uint8_t> signatures,
                                             uint32_t num_slots, const ClusterOptions& options);
 
-// As above, but candidate pairs are verified by exact Jaccard of the given
+// The second half of ClusterCompactSignatures: verifies the given candidate
+// pairs (packed, sorted, distinct; e.g. from CandidatePairs) and clusters.
+// stats.candidates is left zero apart from unique_pairs. options.banding and
+// band_seed are not used.
+Result<Clustering> ClusterCandidates(std::span<const uint8_t> signatures, uint32_t num_slots,
+                                     std::span<const uint64_t> pairs,
+                                     const ClusterOptions& options);
+
+// As ClusterCompactSignatures, but candidate pairs are verified by exact Jaccard of the given
 // shingle sets (sorted, duplicate-free; one per record).
 Result<Clustering> ClusterWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,
                                         std::span<const std::vector<uint64_t>> sets,

@@ -2,6 +2,7 @@
 #include "sketch/shingles.h"
 
 #include <algorithm>
+#include <cstring>
 
 #define XXH_INLINE_ALL
 #include <xxhash.h>
@@ -171,6 +172,18 @@ bool IsNoSpaceScript(char32_t cp) {
 }
 
 double NoSpaceScriptShare(std::string_view text) {
+  // Fast exit for pure ASCII text (the common case): 8 bytes at a time.
+  {
+    size_t i = 0;
+    uint64_t high = 0;
+    for (; i + 8 <= text.size(); i += 8) {
+      uint64_t word;
+      std::memcpy(&word, text.data() + i, 8);
+      high |= word;
+    }
+    for (; i < text.size(); ++i) high |= static_cast<unsigned char>(text[i]);
+    if ((high & 0x8080808080808080ULL) == 0) return 0.0;
+  }
   size_t total = 0;
   size_t no_space = 0;
   size_t i = 0;
