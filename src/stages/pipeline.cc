@@ -255,6 +255,23 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
       const Entry& e = st.entries[cursor];
       const Decision& d = st.decisions[cursor];
       ++cursor;
+      bool rewrite = false;
+      if (e.record >= 0) {
+        for (auto& s : stages) rewrite = rewrite || s->Rewrites(static_cast<size_t>(e.record));
+      }
+      std::string rewritten;
+      if (rewrite) {
+        // A stage changes this record (e.g. masks personal data); kept or
+        // rejected, only the changed form is written.
+        Json doc = Json::parse(line);
+        for (auto& stage : stages) {
+          if (!stage->Rewrites(static_cast<size_t>(e.record))) continue;
+          Status rs = stage->Rewrite(static_cast<size_t>(e.record), plan.inputs[in], &doc);
+          if (!rs.ok()) return rs;
+        }
+        rewritten = doc.dump();
+        line = rewritten;
+      }
       if (d.rejected) {
         Status s = rejects.value()->Append(RejectLine(plan, st, e, d, line));
         if (!s.ok()) return s;
@@ -264,21 +281,8 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
       std::string name = OutputName(plan, st.split_names[d.split], in);
       auto f = file(name);
       if (!f.ok()) return f.status();
-      bool rewrite = false;
-      for (auto& s : stages) rewrite = rewrite || s->Rewrites(static_cast<size_t>(e.record));
-      Status s;
-      if (!rewrite) {
-        s = f.value()->Append(line);
-        if (s.ok()) s = f.value()->Append("\n");
-      } else {
-        Json doc = Json::parse(line);
-        for (auto& stage : stages) {
-          if (!stage->Rewrites(static_cast<size_t>(e.record))) continue;
-          Status rs = stage->Rewrite(static_cast<size_t>(e.record), plan.inputs[in], &doc);
-          if (!rs.ok()) return rs;
-        }
-        s = f.value()->Append(doc.dump() + "\n");
-      }
+      Status s = f.value()->Append(line);
+      if (s.ok()) s = f.value()->Append("\n");
       if (!s.ok()) return s;
       ++(*written)[name];
     }
@@ -347,6 +351,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     }
   }
   outcome.entries = st.entries.size();
+  outcome.gate_failed = st.gate_failed;
   for (const auto& is : st.inputs) outcome.blank_lines += is.blank_lines;
   // The ledger invariant: every entry is in exactly one output.
   uint64_t out_lines = 0;

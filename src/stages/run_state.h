@@ -66,6 +66,10 @@ class RunState {
   std::vector<Decision> decisions;     // one per entry
   std::vector<std::string> split_names{"kept"};
 
+  // Shared between stages (filled by the stage named, read by later ones).
+  std::vector<int64_t> near_cluster;   // near: cluster id per record (smallest member index), -1 = none
+  bool gate_failed = false;            // gate: set when any gate check fails
+
   bool IsKept(size_t record) const { return !decisions[records[record].entry].rejected; }
   Decision& DecisionOf(size_t record) { return decisions[records[record].entry]; }
 

@@ -3,7 +3,8 @@
 //   Observe  per record, pass 1: compute small facts from the text.
 //   Decide   once, over all facts: reject records, assign groups or splits.
 //   Report   add a section to summary.json; WriteOutputs adds files.
-//   Rewrite  pass 2: change a kept record before it is written (optional).
+//   Rewrite  pass 2: change a record before it is written (optional); applies
+//            to kept records and to the copy embedded in rejects.jsonl.
 //
 // Observe may be called from several threads for distinct record indexes,
 // after Grow(n) has sized the stage's storage; everything else runs on one

@@ -1,0 +1,103 @@
+#include "core/normalize.h"
+
+#include <gtest/gtest.h>
+
+#include <cstdio>
+#include <sstream>
+#include <string>
+#include <vector>
+
+namespace prefsift {
+namespace {
+
+std::string Utf8(uint32_t cp) {
+  std::string s;
+  if (cp < 0x80) s += char(cp);
+  else if (cp < 0x800) { s += char(0xC0 | (cp >> 6)); s += char(0x80 | (cp & 63)); }
+  else if (cp < 0x10000) { s += char(0xE0 | (cp >> 12)); s += char(0x80 | ((cp >> 6) & 63)); s += char(0x80 | (cp & 63)); }
+  else { s += char(0xF0 | (cp >> 18)); s += char(0x80 | ((cp >> 12) & 63)); s += char(0x80 | ((cp >> 6) & 63)); s += char(0x80 | (cp & 63)); }
+  return s;
+}
+
+std::string Field(const std::string& hexes) {
+  std::istringstream in(hexes);
+  std::string h, out;
+  while (in >> h) out += Utf8(static_cast<uint32_t>(std::stoul(h, nullptr, 16)));
+  return out;
+}
+
+// Conformance against the Unicode Consortium's NormalizationTest.txt (UAX #15,
+// shipped by Debian's unicode-data package, Unicode 15.0 like utf8proc 2.8):
+// for every line, NFKC(c1) = NFKC(c2) = NFKC(c3) = NFKC(c4) = NFKC(c5) = c4.
+TEST(Normalize, NfkcMatchesUnicodeNormalizationTest) {
+  const char* path = "/usr/share/unicode/NormalizationTest.txt.bz2";
+  std::FILE* probe = std::fopen(path, "rb");
+  if (!probe) GTEST_SKIP() << "unicode-data is not installed (" << path << "); scripts/install-deps.sh installs it";
+  std::fclose(probe);
+  std::FILE* p = popen((std::string("bzcat ") + path).c_str(), "r");
+  ASSERT_NE(p, nullptr);
+  char buf[4096];
+  size_t lines = 0, failures = 0;
+  while (std::fgets(buf, sizeof buf, p)) {
+    std::string line(buf);
+    if (line.empty() || line[0] == '#' || line[0] == '@') continue;
+    std::vector<std::string> cols;
+    size_t start = 0;
+    for (int k = 0; k < 5; ++k) {
+      size_t semi = line.find(';', start);
+      if (semi == std::string::npos) break;
+      cols.push_back(Field(line.substr(start, semi - start)));
+      start = semi + 1;
+    }
+    if (cols.size() != 5) continue;
+    ++lines;
+    for (const auto& c : cols) {
+      if (NfkcOnly(c) != cols[3] && ++failures < 10) ADD_FAILURE() << "NFKC mismatch on line: " << line;
+    }
+  }
+  pclose(p);
+  EXPECT_GT(lines, 18000u);  // the 15.0 file has about 19,000 test lines
+  EXPECT_EQ(failures, 0u);
+}
+
+TEST(Normalize, CaseFoldWidthAndWhitespace) {
+  // Full-width letters fold to ASCII (NFKC), case folds, white space folds.
+  EXPECT_EQ(NormalizeForMatch("\xEF\xBC\xA6\xEF\xBD\x95\xEF\xBD\x8C\xEF\xBD\x8C  Width"), "full width");
+  // U+00DF sharp s case-folds to "ss" (Unicode CaseFolding.txt, status F).
+  EXPECT_EQ(NormalizeForMatch("Stra\xC3\x9F" "e"), "strasse");
+  // Default-ignorables such as U+200B ZERO WIDTH SPACE are dropped.
+  EXPECT_EQ(NormalizeForMatch("ab\xE2\x80\x8B" "c"), "abc");
+  // U+3000 IDEOGRAPHIC SPACE is white space (category Zs); NFKC maps it to U+0020.
+  EXPECT_EQ(NormalizeForMatch("  a\t\n b\xE3\x80\x80" "c  "), "a b c");
+  EXPECT_EQ(NormalizeForMatch(""), "");
+}
+
+TEST(Normalize, AsciiFastPathAgreesWithUtf8proc) {
+  // The ASCII fast path must give what utf8proc gives; append a non-ASCII
+  // character that normalises to itself to force the slow path.
+  for (int c = 1; c < 128; ++c) {
+    std::string s = "x" + std::string(1, char(c)) + "Y";
+    std::string slow = NormalizeForMatch(s + "\xC3\xA9");  // e-acute, NFKC-stable
+    std::string fast = NormalizeForMatch(s);
+    ASSERT_EQ(fast + "\xC3\xA9", slow) << "byte " << c;
+  }
+}
+
+TEST(Normalize, PunctuationStripping) {
+  NormalizeOptions o;
+  o.strip_punctuation = true;
+  EXPECT_EQ(NormalizeForMatch("Hello, world! \xC2\xBF" "Qu\xC3\xA9?", o), "hello world qu\xC3\xA9");
+  EXPECT_EQ(NormalizeForMatch("don't", o), "dont");
+}
+
+TEST(Utf8, RejectsOverlongSurrogatesAndTruncation) {
+  EXPECT_TRUE(IsValidUtf8("plain \xE2\x82\xAC \xF0\x9F\x98\x80"));
+  EXPECT_FALSE(IsValidUtf8("\xC0\xAF"));          // overlong '/'
+  EXPECT_FALSE(IsValidUtf8("\xED\xA0\x80"));      // U+D800, a surrogate
+  EXPECT_FALSE(IsValidUtf8("\xF4\x90\x80\x80"));  // above U+10FFFF
+  EXPECT_FALSE(IsValidUtf8("\xE2\x82"));          // truncated
+  EXPECT_FALSE(IsValidUtf8("\xFF"));
+}
+
+}  // namespace
+}  // namespace prefsift

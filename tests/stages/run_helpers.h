@@ -1,0 +1,53 @@
+// Helpers for tests that run the pipeline on small files in a temp folder.
+#pragma once
+
+#include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "stages/pipeline.h"
+
+namespace prefsift::testing {
+
+inline std::string TempPath(const std::string& name) { return ::testing::TempDir() + name; }
+
+inline std::string WriteFile(const std::string& name, const std::string& bytes) {
+  std::string path = TempPath(name);
+  std::ofstream(path, std::ios::binary) << bytes;
+  return path;
+}
+
+inline std::string ReadFile(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  return ss.str();
+}
+
+inline std::vector<nlohmann::ordered_json> ReadJsonl(const std::string& path) {
+  std::vector<nlohmann::ordered_json> out;
+  std::ifstream in(path);
+  std::string line;
+  while (std::getline(in, line)) {
+    if (!line.empty()) out.push_back(nlohmann::ordered_json::parse(line));
+  }
+  return out;
+}
+
+inline Plan PlanFor(const std::vector<std::string>& inputs, const nlohmann::ordered_json& layout, const std::string& out) {
+  Plan plan;
+  for (const auto& in : inputs) {
+    Status s = AddInput(&plan, in, layout, "test");
+    EXPECT_TRUE(s.ok()) << s.message();
+  }
+  plan.output = out;
+  plan.overwrite = true;
+  return plan;
+}
+
+}  // namespace prefsift::testing
