@@ -232,6 +232,22 @@ TEST(Clusters, SameResultForAnyThreadCount) {
   }
 }
 
+TEST(Clusters, TwoStepApiEqualsOneStep) {
+  const Corpus c = MakeCorpus(800, 9);
+  ClusterOptions opts;
+  auto one = ClusterCompactSignatures(c.sigs, c.k, opts);
+  ASSERT_TRUE(one.ok());
+  const auto pairs = CandidatePairs(c.sigs, c.k, one.value().stats.banding, opts.band_seed,
+                                    CandidateOptions{opts.max_run, 1}, nullptr);
+  auto two = ClusterCandidates(c.sigs, c.k, pairs, opts);
+  ASSERT_TRUE(two.ok());
+  EXPECT_EQ(one.value().cluster_of, two.value().cluster_of);
+  EXPECT_EQ(one.value().stats.verified_edges, two.value().stats.verified_edges);
+  // Unsorted or out-of-range pairs are a usage error, not a crash.
+  EXPECT_FALSE(ClusterCandidates(c.sigs, c.k, std::vector<uint64_t>{PackPair(5, 4)}, opts).ok());
+  EXPECT_FALSE(ClusterCandidates(c.sigs, c.k, std::vector<uint64_t>{PackPair(1, 800)}, opts).ok());
+}
+
 TEST(Clusters, HugeBucketOfCopiesBecomesOneCluster) {
   constexpr uint32_t kK = 256;
   std::vector<uint8_t> sigs;
