@@ -98,22 +98,6 @@ Corpus Generate(size_t n, uint64_t seed) {
   return c;
 }
 
-template <typename Fn>
-void ParallelChunks(size_t n, uint32_t threads, const Fn& fn) {
-  if (threads <= 1) {
-    fn(0, n);
-    return;
-  }
-  std::vector<std::thread> pool;
-  const size_t chunk = (n + threads - 1) / threads;
-  for (uint32_t t = 0; t < threads; ++t) {
-    const size_t b = std::min(n, t * chunk);
-    const size_t e = std::min(n, b + chunk);
-    pool.emplace_back(fn, b, e);
-  }
-  for (auto& th : pool) th.join();
-}
-
 uint64_t Checksum(const std::vector<uint32_t>& v) {
   uint64_t h = 1469598103934665603ULL;
   for (uint32_t x : v) h = (h ^ x) * 1099511628211ULL;
@@ -131,13 +115,11 @@ uint64_t Run(const Corpus& c, uint32_t threads) {
   co.banding = ChooseBanding(k, co.threshold).value();
 
   std::vector<uint8_t> sigs(n * k);
+  std::vector<std::string_view> views(n);
+  for (size_t i = 0; i < n; ++i) views[i] = c.Get(i);
   const double c0 = CpuSeconds();
   const auto t0 = Clock::now();
-  ParallelChunks(n, threads, [&](size_t b, size_t e) {
-    for (size_t i = b; i < e; ++i) {
-      SignTextCompact(c.Get(i), so, mp, std::span<uint8_t>(sigs).subspan(i * k, k));
-    }
-  });
+  SignTextsCompact(views, so, mp, threads, sigs);
   const auto t1 = Clock::now();
   const double c1 = CpuSeconds();
   CandidateStats cs;

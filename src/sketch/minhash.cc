@@ -4,6 +4,7 @@
 #include <algorithm>
 #include <bit>
 #include <limits>
+#include <thread>
 
 namespace prefsift::sketch {
 namespace {
@@ -140,6 +141,30 @@ void SignTextCompact(std::string_view text, const ShingleOptions& shingle_option
   full.resize(params.num_slots);
   Sign(shingles, params, full);
   Compact(full, out);
+}
+
+void SignTextsCompact(std::span<const std::string_view> texts,
+                      const ShingleOptions& shingle_options, const MinHashParams& params,
+                      uint32_t threads, std::span<uint8_t> out) {
+  const size_t n = texts.size();
+  const size_t k = params.num_slots;
+  auto work = [&](size_t begin, size_t end) {
+    for (size_t i = begin; i < end; ++i) {
+      SignTextCompact(texts[i], shingle_options, params, out.subspan(i * k, k));
+    }
+  };
+  threads = std::max<uint32_t>(threads, 1);
+  if (threads == 1 || n < 2 * static_cast<size_t>(threads)) {
+    work(0, n);
+    return;
+  }
+  std::vector<std::thread> pool;
+  const size_t chunk = (n + threads - 1) / threads;
+  for (uint32_t t = 0; t < threads; ++t) {
+    const size_t begin = std::min(n, t * chunk);
+    pool.emplace_back(work, begin, std::min(n, begin + chunk));
+  }
+  for (auto& th : pool) th.join();
 }
 
 double EstimateJaccard(std::span<const uint64_t> a, std::span<const uint64_t> b) {

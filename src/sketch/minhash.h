@@ -50,6 +50,13 @@ void Compact(std::span<const uint64_t> signature, std::span<uint8_t> out);
 void SignTextCompact(std::string_view text, const ShingleOptions& shingle_options,
                      const MinHashParams& params, std::span<uint8_t> out);
 
+// SignTextCompact for many texts, split into contiguous chunks over up to
+// `threads` std::threads; record i goes to out[i*K, (i+1)*K). The output does
+// not depend on the thread count. REQUIRES: out.size() == texts.size() * K.
+void SignTextsCompact(std::span<const std::string_view> texts,
+                      const ShingleOptions& shingle_options, const MinHashParams& params,
+                      uint32_t threads, std::span<uint8_t> out);
+
 // Share of equal slots: unbiased estimate of Jaccard similarity.
 // REQUIRES: a.size() == b.size() >= 1.
 double EstimateJaccard(std::span<const uint64_t> a, std::span<const uint64_t> b);

@@ -12,6 +12,7 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <random>
 #include <vector>
@@ -150,6 +151,36 @@ TEST(MinHash, CompactCorrectionIsExactAtTheEnds) {
   EXPECT_DOUBLE_EQ(CompactMatchesToJaccard(256, 256), 1.0);
   EXPECT_DOUBLE_EQ(CompactMatchesToJaccard(1, 256), 0.0);
   EXPECT_DOUBLE_EQ(CompactMatchesToJaccard(0, 256), 0.0);  // clamped
+}
+
+}  // namespace
+}  // namespace prefsift::sketch
+
+namespace prefsift::sketch {
+namespace {
+
+TEST(MinHash, ManyTextsSameForAnyThreadCount) {
+  std::vector<std::string> texts;
+  for (int i = 0; i < 500; ++i) {
+    texts.push_back("prompt number " + std::to_string(i) + " asks about item " +
+                    std::to_string(i * 7 % 13) + " and nothing else at all");
+  }
+  texts.push_back("我们今天去公园散步然后在湖边吃了午饭");
+  texts.push_back("");
+  std::vector<std::string_view> views(texts.begin(), texts.end());
+  const MinHashParams mp;
+  const ShingleOptions so;
+  std::vector<uint8_t> one(views.size() * mp.num_slots);
+  std::vector<uint8_t> two(one.size());
+  std::vector<uint8_t> seven(one.size());
+  SignTextsCompact(views, so, mp, 1, one);
+  SignTextsCompact(views, so, mp, 2, two);
+  SignTextsCompact(views, so, mp, 7, seven);
+  EXPECT_EQ(one, two);
+  EXPECT_EQ(one, seven);
+  std::vector<uint8_t> single(mp.num_slots);
+  SignTextCompact(views[501], so, mp, single);
+  EXPECT_TRUE(std::equal(single.begin(), single.end(), one.begin() + 501 * mp.num_slots));
 }
 
 }  // namespace
