@@ -30,8 +30,9 @@ std::string_view FieldKindName(FieldKind f);   // "prompt" | "candidates" | "met
 std::string_view ActionName(Action a);         // "flag" | "mask" | "pseudonymise" | "drop"
 std::string_view SeverityName(Severity s);     // "low" | "medium" | "high" | "critical"
 
-// Words looked for (ASCII case-insensitive substring) within `window` bytes
-// on either side of a span.
+// Words looked for within `window` bytes on either side of a span: ASCII
+// case-insensitive, and only where they start a word (the byte before is not
+// an ASCII letter), so "tel" is found in "Tel.:" and "Telefon" but not "hotel".
 struct ContextRule {
   int window = 40;
   std::vector<std::string> boost_words;     // any present: confidence += boost

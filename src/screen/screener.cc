@@ -73,9 +73,16 @@ bool NonAsciiNeighbourBlocks(std::string_view t, size_t b, size_t e) {
   return false;
 }
 
+// A context word counts where it starts a word: the byte before it is not an
+// ASCII letter (so "tel" is found in "Tel.:" and "Telefonnummer" but not in
+// "hotel").
 bool AnyWordIn(const std::string& haystack_lower, const std::vector<std::string>& words) {
   for (const std::string& w : words) {
-    if (haystack_lower.find(w) != std::string::npos) return true;
+    size_t p = 0;
+    while ((p = haystack_lower.find(w, p)) != std::string::npos) {
+      if (p == 0 || !(haystack_lower[p - 1] >= 'a' && haystack_lower[p - 1] <= 'z')) return true;
+      ++p;
+    }
   }
   return false;
 }

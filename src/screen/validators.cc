@@ -543,6 +543,10 @@ bool PhoneNationalValid(std::string_view region, std::string_view value) {
     return d.size() == 10 && d[0] >= '6';
   }
   if (d[0] != '0') return false;  // trunk prefix 0 in GB, DE, FR, JP
+  if (d.size() > 1 && d[1] == '0') return false;  // "00": international access, not a national number
+  if (std::string_view(c->region) == "JP" && d.compare(0, 3, "010") == 0) {
+    return false;  // Japan's international access code (from memory)
+  }
   return NsnLengthOk(*c, d.size() - 1);
 }
 
