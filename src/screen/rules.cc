@@ -164,7 +164,7 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
   opt.set_log_errors(false);
   RE2 re(r->pattern, opt);
   if (!re.ok()) {
-    return Status::Usage(where + "bad pattern: " + re.error() + " (at '" + re.error_arg() + "')");
+    return Status::Usage(where + "bad pattern: " + re.error());
   }
   return Status::Ok();
 }

@@ -161,6 +161,7 @@ bool VBsn(std::string_view t, size_t b, size_t* e) { return NlBsnValid(Span(t, b
 bool VDni(std::string_view t, size_t b, size_t* e) { return EsDniValid(Span(t, b, *e)); }
 bool VNir(std::string_view t, size_t b, size_t* e) { return FrNirValid(Span(t, b, *e)); }
 bool VAadhaar(std::string_view t, size_t b, size_t* e) { return InAadhaarValid(Span(t, b, *e)); }
+bool VCodiceFiscale(std::string_view t, size_t b, size_t* e) { return ItCodiceFiscaleValid(Span(t, b, *e)); }
 
 // IPv4 inside a longer dotted number ("1.2.3.4.5", "v1.2.3.4") is not an address.
 bool VIpv4(std::string_view t, size_t b, size_t* e) {
@@ -240,6 +241,7 @@ constexpr NamedValidator kValidators[] = {
     {"es_dni", VDni},
     {"fr_nir", VNir},
     {"in_aadhaar", VAadhaar},
+    {"it_codice_fiscale", VCodiceFiscale},
     {"ipv4", VIpv4},
     {"ipv6", VIpv6},
     {"mac", VMac},
@@ -407,6 +409,52 @@ bool InAadhaarValid(std::string_view value) {
   if (d[0] == '0' || d[0] == '1') return false;
   if (std::string(d.rbegin(), d.rend()) == d) return false;  // never a palindrome
   return VerhoeffValid(d);
+}
+
+// Italian codice fiscale (personal, 16 characters; DM 23/12/1976 layout, from
+// memory): 6 letters, year (2), month letter, day (+40 for women), place
+// (letter + 3), check letter. Digits of year/day/place may be replaced by
+// L M N P Q R S T U V (omocodia). Check letter: odd positions (1st, 3rd, ...)
+// use the table below, even positions their value, sum mod 26.
+bool ItCodiceFiscaleValid(std::string_view value) {
+  std::string s;
+  for (char c : value) {
+    if (c == ' ' || c == '-') continue;
+    s.push_back(IsLower(c) ? static_cast<char>(c - 'a' + 'A') : c);
+  }
+  if (s.size() != 16) return false;
+  static constexpr std::string_view kOmo = "LMNPQRSTUV";
+  static constexpr std::string_view kMonths = "ABCDEHLMPRST";
+  auto digit = [](char c) -> int {
+    if (IsDigit(c)) return c - '0';
+    size_t k = kOmo.find(c);
+    return k == std::string_view::npos ? -1 : static_cast<int>(k);
+  };
+  for (int i = 0; i < 6; ++i) {
+    if (!IsUpper(s[static_cast<size_t>(i)])) return false;
+  }
+  for (int i : {6, 7, 9, 10, 12, 13, 14}) {
+    if (digit(s[static_cast<size_t>(i)]) < 0) return false;
+  }
+  if (!IsUpper(s[11]) || !IsUpper(s[15]) || kMonths.find(s[8]) == std::string_view::npos) return false;
+  static constexpr int kOdd[26] = {1, 0, 5, 7, 9, 13, 15, 17, 19, 21, 2, 4, 18,
+                                   20, 11, 3, 6, 8, 12, 14, 16, 10, 22, 25, 24, 23};
+  int sum = 0;
+  for (size_t i = 0; i < 15; ++i) {
+    char c = s[i];
+    int v = IsDigit(c) ? c - '0' : c - 'A';
+    sum += (i % 2 == 0) ? kOdd[v] : v;
+  }
+  if (s[15] != static_cast<char>('A' + sum % 26)) return false;
+  // Birth date must exist (years read as 1920-2019, as python3-stdnum does).
+  int year = 1900 + digit(s[6]) * 10 + digit(s[7]);
+  if (year < 1920) year += 100;
+  int month = static_cast<int>(kMonths.find(s[8])) + 1;
+  int day = (digit(s[9]) * 10 + digit(s[10])) % 40;
+  static constexpr int kDays[12] = {31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
+  int max_day = kDays[month - 1];
+  if (month == 2 && ((year % 4 == 0 && year % 100 != 0) || year % 400 == 0)) max_day = 29;
+  return day >= 1 && day <= max_day;
 }
 
 bool Ipv4Valid(std::string_view v) {

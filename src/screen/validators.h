@@ -30,6 +30,7 @@ bool EsDniValid(std::string_view value);               // DNI or NIE, '-' allowe
 bool FrNirValid(std::string_view value);               // 15 chars, spaces allowed, key mod 97
 bool InAadhaarValid(std::string_view value);           // 12 digits, ' '/'-' allowed, Verhoeff
 bool VerhoeffValid(std::string_view digits);           // digits only
+bool ItCodiceFiscaleValid(std::string_view value);     // 16 chars, check letter, birth date exists
 bool Ipv4Valid(std::string_view value);                // dotted quad, no leading zeros
 bool Ipv6Valid(std::string_view value);                // RFC 4291 2.2 text forms, no zone id
 bool EmailValid(std::string_view value);               // lengths and dot/label rules (pattern does shape)

@@ -12,6 +12,7 @@ expected is python3-stdnum's is_valid() verdict:
   es_dni      stdnum.es.dni.is_valid / stdnum.es.nie.is_valid
   fr_nir      stdnum.fr.nir.is_valid
   in_aadhaar  stdnum.in_.aadhaar.is_valid
+  it_cf       stdnum.it.codicefiscale.is_valid (16-character personal codes)
 All values are generated random digits (seeded); none targets a real person.
 Regenerate:  /usr/bin/python3 tests/reference/screen_checksums.py  (from the repo root);
              an optional argument writes to that path instead.
@@ -156,6 +157,25 @@ for _ in range(50):
     h = rng.choice('23456789') + digits(5)
     v = h + h[::-1]
     add('in_aadhaar', v, aadhaar.is_valid(v))
+
+# Italian codice fiscale: structure-following codes, half with the right
+# check letter, days up to 71 (women +40) so some dates do not exist.
+from stdnum.it import codicefiscale
+OMO = 'LMNPQRSTUV'
+
+
+def cf_digit(d):
+    return OMO[int(d)] if rng.random() < 0.1 else d
+
+
+for _ in range(2000):
+    day = rng.randint(0, 31) + (40 if rng.random() < 0.5 else 0)
+    body = (''.join(rng.choice(A) for _ in range(6)) + ''.join(cf_digit(c) for c in digits(2)) +
+            rng.choice('ABCDEHLMPRST') + ''.join(cf_digit(c) for c in '%02d' % day) +
+            rng.choice(A) + ''.join(cf_digit(c) for c in digits(3)))
+    check = codicefiscale.calc_check_digit(body) if rng.random() < 0.6 else rng.choice(A)
+    v = body + check
+    add('it_cf', v, codicefiscale.is_valid(v))
 
 out = sys.argv[1] if len(sys.argv) > 1 else os.path.join(os.path.dirname(os.path.abspath(__file__)), '..', 'data', 'screen', 'checksums.tsv')
 with open(out, 'w') as f:

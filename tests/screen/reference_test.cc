@@ -1,6 +1,7 @@
 // Screen verdicts compared with outside reference libraries on generated
 // fixtures (tests/data/screen/*.tsv, written by tests/reference/screen_*.py|js):
-//   checksums.tsv  python3-stdnum (luhn, iban, us.ssn, nl.bsn, es.dni/nie, fr.nir, in_.aadhaar)
+//   checksums.tsv  python3-stdnum (luhn, iban, us.ssn, nl.bsn, es.dni/nie, fr.nir, in_.aadhaar,
+//                  it.codicefiscale)
 //   phones.tsv     python3-phonenumbers is_possible_number
 //   ip.tsv         Python's ipaddress module
 //   email.tsv      npm validator isEmail (default options)
@@ -53,10 +54,11 @@ TEST(Reference, ChecksumsIdenticalToStdnum) {
     else if (k == "es_dni") ours = EsDniValid(v);
     else if (k == "fr_nir") ours = FrNirValid(v);
     else if (k == "in_aadhaar") ours = InAadhaarValid(v);
+    else if (k == "it_cf") ours = ItCodiceFiscaleValid(v);
     else FAIL() << "unknown kind " << k;
     by_kind[k].Add(ours, row[2] == "1", v);
   }
-  EXPECT_EQ(by_kind.size(), 7u);
+  EXPECT_EQ(by_kind.size(), 8u);
   for (const auto& [k, t] : by_kind) {
     std::printf("%s\n", t.Report(k).c_str());
     EXPECT_EQ(t.agree, t.total) << t.Report(k);
@@ -101,7 +103,9 @@ TEST(Reference, IpAddressesIdenticalToPythonIpaddress) {
       v6.Add(ours, row[2] == "1", row[1]);
       int hex = 0;
       for (char c : row[1]) hex += std::isxdigit(static_cast<unsigned char>(c)) ? 1 : 0;
-      if (hex >= 2) EXPECT_EQ(RuleAcceptsWhole("net.ipv6", row[1]), ours) << row[1];
+      if (hex >= 2) {
+        EXPECT_EQ(RuleAcceptsWhole("net.ipv6", row[1]), ours) << row[1];
+      }
     }
   }
   std::printf("%s\n%s\n", v4.Report("ipv4").c_str(), v6.Report("ipv6").c_str());
