@@ -39,16 +39,20 @@ std::string Value(const std::string& text, const Finding& f) { return text.subst
 TEST(Engine, FindsFictionalSamples) {
   struct Case { std::string text, rule, value; };
   // Reserved/fictional values only: RFC 2606 domains, Ofcom drama ranges [S],
-  // NANP 555-01xx (from memory), RFC 5737 [V] / RFC 3849 [S], published test cards.
+  // NANP 555-01xx (from memory), RFC 5737 [V] / RFC 3849 [S], published test cards,
+  // 123-45-6789 (a common placeholder SSN, common practice).
   const std::vector<Case> cases = {
       {"write to jane.doe@example.com today", "contact.email", "jane.doe@example.com"},
       {"mail müller@beispiel.example bitte", "contact.email", "müller@beispiel.example"},
       {"ring me on +44 7700 900123 tonight", "contact.phone.e164", "+44 7700 900123"},
       {"call 020 7946 0123 after six", "contact.phone.gb", "020 7946 0123"},
       {"phone (201) 555-0123 now", "contact.phone.nanp", "(201) 555-0123"},
-      {"Tél : 01 23 45 67 89", "contact.phone.fr", "01 23 45 67 89"},
-      {"電話03-1234-5678まで", "contact.phone.jp", "03-1234-5678"},
-      {"Handy: 0151 23456789", "contact.phone.de", "0151 23456789"},
+      // ARCEP range for fiction 01 99 00 xx xx (from memory, unverified).
+      {"Tél : 01 99 00 12 34", "contact.phone.fr", "01 99 00 12 34"},
+      // No Japanese fiction range known to us; a 0000 subscriber block (from memory, unverified).
+      {"電話03-0000-1234まで", "contact.phone.jp", "03-0000-1234"},
+      // Bundesnetzagentur range for film/TV 030 23125 xxx (from memory, unverified).
+      {"Rufnummer: 030 23125 456", "contact.phone.de", "030 23125 456"},
       {"card 4111 1111 1111 1111 exp 12/30", "payment.card", "4111 1111 1111 1111"},
       {"IBAN GB82 WEST 1234 5698 7654 32 Bank", "payment.iban", "GB82 WEST 1234 5698 7654 32"},
       {"her SSN is 123-45-6789.", "gov.us_ssn", "123-45-6789"},
