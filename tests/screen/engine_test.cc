@@ -7,6 +7,7 @@
 #include <fstream>
 #include <thread>
 
+#include "screen/actions.h"
 #include "screen/screener.h"
 #include "test_util.h"
 
@@ -274,6 +275,30 @@ TEST(Engine, SharedAcrossThreadsGivesSameFindings) {
   }
   for (auto& t : ts) t.join();
   EXPECT_EQ(ok, std::vector<int>(4, 1));
+}
+
+TEST(Engine, ArbitraryBytesAreSafe) {
+  // Invalid UTF-8, NULs and truncated sequences at the edges must not break
+  // the boundary checks or validators (run under -DPREFSIFT_SANITIZE=ON too).
+  uint64_t x = 0x2545F4914F6CDD1Dull;
+  const std::string seeds[] = {"4111 1111 1111 1111", "jane@example.com", "192.0.2.1", "+44 7700 900123",
+                               "2001:db8::1", "\xC3", "\xE9\x9B", "\xF0\x9F\x98"};
+  for (int round = 0; round < 200; ++round) {
+    std::string t;
+    for (int i = 0; i < 300; ++i) {
+      x ^= x << 13; x ^= x >> 7; x ^= x << 17;  // xorshift64 (Marsaglia 2003)
+      if (x % 17 == 0) t += seeds[(x >> 8) % std::size(seeds)];
+      else t.push_back(static_cast<char>(x >> 24));
+    }
+    auto r = AllPacksScreener().Scan(t, FieldKind::kPrompt);
+    ASSERT_TRUE(r.ok());
+    for (const Finding& f : r.value()) {
+      ASSERT_LT(f.begin, f.end);
+      ASSERT_LE(f.end, t.size());
+    }
+    std::string applied = ApplyActions(t, r.value(), nullptr);
+    EXPECT_GE(applied.size(), 0u);
+  }
 }
 
 double SecondsToScan(const Screener& s, const std::string& text) {
