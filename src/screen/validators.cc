@@ -132,8 +132,35 @@ bool Base64UrlDecode(std::string_view in, std::string* out) {
 // ---- Wrappers with text context. ----
 std::string_view Span(std::string_view t, size_t b, size_t e) { return t.substr(b, e - b); }
 
+// Is [b, e) part of a checksum-valid IBAN that starts at most 40 bytes
+// earlier? Digit rules (card, Aadhaar, BSN) refuse such spans: the IBAN rule
+// reports the whole account number instead of a higher-severity fragment.
+bool InsideValidIban(std::string_view t, size_t b, size_t e) {
+  size_t lo = b > 40 ? b - 40 : 0;
+  for (size_t p = b; p-- > lo;) {
+    char c = t[p];
+    if (!(IsUpper(c) || IsDigit(c) || c == ' ')) break;
+    if (p + 4 > t.size() || !IsUpper(t[p]) || !IsUpper(t[p + 1]) || !IsDigit(t[p + 2]) || !IsDigit(t[p + 3])) {
+      continue;
+    }
+    if (p > 0 && IsAlnum(t[p - 1])) continue;
+    int want = IbanLength(t[p], t[p + 1]);
+    if (want == 0) continue;
+    int n = 0;
+    size_t i = p;
+    for (; i < t.size() && n < want; ++i) {
+      if (IsAlnum(t[i])) ++n;
+      else if (t[i] != ' ') break;
+    }
+    if (n == want && i >= e && IbanValid(Span(t, p, i))) return true;
+  }
+  return false;
+}
+
 bool VEmail(std::string_view t, size_t b, size_t* e) { return EmailValid(Span(t, b, *e)); }
-bool VCard(std::string_view t, size_t b, size_t* e) { return PaymentCardValid(Span(t, b, *e)); }
+bool VCard(std::string_view t, size_t b, size_t* e) {
+  return PaymentCardValid(Span(t, b, *e)) && !InsideValidIban(t, b, *e);
+}
 
 bool VIban(std::string_view t, size_t b, size_t* e) {
   // Walk to the country's length; drop anything the pattern took after it.
@@ -157,10 +184,14 @@ bool VSsn(std::string_view t, size_t b, size_t* e) {
   if (v.size() == 11 && v[3] != v[6]) return false;  // one separator style
   return UsSsnValid(v);
 }
-bool VBsn(std::string_view t, size_t b, size_t* e) { return NlBsnValid(Span(t, b, *e)); }
+bool VBsn(std::string_view t, size_t b, size_t* e) {
+  return NlBsnValid(Span(t, b, *e)) && !InsideValidIban(t, b, *e);
+}
 bool VDni(std::string_view t, size_t b, size_t* e) { return EsDniValid(Span(t, b, *e)); }
 bool VNir(std::string_view t, size_t b, size_t* e) { return FrNirValid(Span(t, b, *e)); }
-bool VAadhaar(std::string_view t, size_t b, size_t* e) { return InAadhaarValid(Span(t, b, *e)); }
+bool VAadhaar(std::string_view t, size_t b, size_t* e) {
+  return InAadhaarValid(Span(t, b, *e)) && !InsideValidIban(t, b, *e);
+}
 bool VCodiceFiscale(std::string_view t, size_t b, size_t* e) { return ItCodiceFiscaleValid(Span(t, b, *e)); }
 
 // IPv4 inside a longer dotted number ("1.2.3.4.5", "v1.2.3.4") is not an address.

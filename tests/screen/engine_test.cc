@@ -142,6 +142,21 @@ TEST(Engine, OverlapOrderSeverityThenLengthThenRuleOrder) {
   EXPECT_EQ(fs[0].rule_id, "secret.github_token");
 }
 
+TEST(Engine, DigitsInsideAnIbanAreReportedAsTheIban) {
+  // A checksum-valid fictional IBAN (computed with python3-stdnum) whose
+  // digits 6580 7302 1578 also pass the Aadhaar Verhoeff check: the whole
+  // IBAN is reported, not a critical fragment that would leave the rest.
+  std::string t = "IBAN DE04 6580 7302 1578 3681 93 please";
+  auto fs = ScanAll(t);
+  ASSERT_EQ(fs.size(), 1u);
+  EXPECT_EQ(fs[0].rule_id, "payment.iban");
+  EXPECT_EQ(Value(t, fs[0]), "DE04 6580 7302 1578 3681 93");
+  // The same digits alone are an Aadhaar-shaped number.
+  fs = ScanAll("aadhaar 6580 7302 1578");
+  ASSERT_EQ(fs.size(), 1u);
+  EXPECT_EQ(fs[0].rule_id, "gov.in_aadhaar");
+}
+
 TEST(Engine, FieldKindsSelectRules) {
   auto pack = ParseRulePack(R"({"rules":[{"id":"t.x","pattern":"zz[0-9]+","fields":["metadata"]}]})", "inline");
   ASSERT_TRUE(pack.ok()) << pack.status().message();
