@@ -160,6 +160,7 @@ int main(int argc, char** argv) {
       {"run", "Run the whole pipeline, usually from a plan file (--plan)", AllStageNames()},
       {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
       {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
+      {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
   };
   std::vector<CommonOptions> options(commands.size());
   std::vector<CLI::App*> subs;

@@ -1,4 +1,5 @@
 #include "stages/exact_dups.h"
+#include "stages/near_dups.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -6,6 +7,7 @@ namespace prefsift {
 const std::vector<StageInfo>& AllStages() {
   static const std::vector<StageInfo> kStages = {
       {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
+      {"near", "near-duplicate prompts (MinHash + LSH clusters), near-identical candidates", &MakeNearDupsStage},
   };
   return kStages;
 }

@@ -1,0 +1,439 @@
+#include "stages/near_dups.h"
+
+#include <nlohmann/json.hpp>
+
+#include <algorithm>
+#include <cmath>
+#include <map>
+#include <span>
+#include <thread>
+
+#include "io/output_dir.h"
+#include "sketch/clusters.h"
+#include "sketch/lsh.h"
+#include "sketch/minhash.h"
+#include "sketch/set_similarity.h"
+#include "sketch/shingles.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+enum class CandidateAction { kOff, kFlag, kReject };
+
+struct NearSettings {
+  double threshold = 0.8;
+  sketch::ShingleMode mode = sketch::ShingleMode::kAuto;
+  int word_n = 5;
+  int char_n = 5;
+  uint32_t slots = 256;
+  sketch::Banding banding{};  // {0, 0}: chosen for slots and threshold
+  bool exact = false;
+  uint32_t max_per_cluster = 0;  // 0 = no cap
+  CandidateAction cand_action = CandidateAction::kFlag;
+  double cand_threshold = 0.9;
+  int cand_n = 3;
+};
+
+// A pair of candidates of one record at or above the candidate threshold.
+struct CandidatePair {
+  uint16_t a = 0, b = 0;
+  float similarity = 0;
+};
+
+struct ClusterOut {
+  size_t id = 0;                   // smallest member record index
+  std::vector<size_t> members;     // record indexes, input order
+  float min_similarity = 0, max_similarity = 0;
+  std::vector<size_t> over_cap;    // rejected by the cap
+};
+
+const char* ModeName(sketch::ShingleMode m) {
+  switch (m) {
+    case sketch::ShingleMode::kAuto: return "auto";
+    case sketch::ShingleMode::kWords: return "words";
+    case sketch::ShingleMode::kChars: return "chars";
+  }
+  return "?";
+}
+
+double Round6(double x) { return std::round(x * 1e6) / 1e6; }
+
+// Similarity of two normalised candidate texts: exact Jaccard of their
+// n-gram sets. The n-gram length is min(n, shorter text's length in units),
+// at least 1, so short answers are compared word by word (or code point by
+// code point) instead of as one whole-text shingle.
+float CandidateSimilarity(std::string_view a, std::string_view b, sketch::ShingleMode forced, int n,
+                          uint64_t seed) {
+  sketch::ShingleOptions so;
+  so.mode = forced;
+  bool chars = sketch::ResolveMode(a, so) == sketch::ShingleMode::kChars ||
+               sketch::ResolveMode(b, so) == sketch::ShingleMode::kChars;
+  size_t units = chars ? std::min(sketch::DecodeUtf8(a).size(), sketch::DecodeUtf8(b).size())
+                       : std::min(sketch::CountWords(a), sketch::CountWords(b));
+  int eff = static_cast<int>(std::max<size_t>(1, std::min<size_t>(static_cast<size_t>(n), units)));
+  std::vector<uint64_t> sa = chars ? sketch::CharNgramHashes(a, eff, seed) : sketch::WordNgramHashes(a, eff, seed);
+  std::vector<uint64_t> sb = chars ? sketch::CharNgramHashes(b, eff, seed) : sketch::WordNgramHashes(b, eff, seed);
+  return static_cast<float>(sketch::ExactJaccard(sa, sb));
+}
+
+class NearDupsStage : public Stage {
+ public:
+  NearDupsStage(const NearSettings& s, const Plan& plan) : s_(s), norm_(plan.normalize), threads_(plan.threads) {
+    shingle_.mode = s.mode;
+    shingle_.word_n = s.word_n;
+    shingle_.char_n = s.char_n;
+    minhash_.num_slots = s.slots;
+  }
+  std::string name() const override { return "near"; }
+
+  void Grow(size_t n) override {
+    signatures_.resize(n * s_.slots);
+    chars_mode_.resize(n);
+    if (s_.exact) sets_.resize(n);
+    if (s_.cand_action != CandidateAction::kOff) cand_pairs_.resize(n);
+  }
+
+  void Observe(size_t i, const Record& rec, const RecordFacts&) override {
+    std::string text = NormalizeForMatch(rec.UserPromptText(), norm_);
+    sketch::ShingleOptions so = shingle_;
+    so.mode = sketch::ResolveMode(text, shingle_);
+    chars_mode_[i] = so.mode == sketch::ShingleMode::kChars;
+    sketch::SignTextCompact(text, so, minhash_, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
+    if (s_.exact) sets_[i] = sketch::Shingles(text, so);
+    if (s_.cand_action == CandidateAction::kOff || rec.candidates.size() < 2) return;
+    std::vector<std::string> cands;
+    cands.reserve(rec.candidates.size());
+    for (const auto& c : rec.candidates) cands.push_back(NormalizeForMatch(c, norm_));
+    for (size_t a = 0; a < cands.size() && a < 65535; ++a) {
+      for (size_t b = a + 1; b < cands.size() && b < 65535; ++b) {
+        float sim = CandidateSimilarity(cands[a], cands[b], s_.mode, s_.cand_n, shingle_.seed);
+        if (sim >= s_.cand_threshold) {
+          cand_pairs_[i].push_back(CandidatePair{static_cast<uint16_t>(a), static_cast<uint16_t>(b), sim});
+        }
+      }
+    }
+  }
+
+  Status Decide(RunState& st) override {
+    const size_t n = st.records.size();
+    records_signed_ = n;
+    st.near_cluster.assign(n, -1);
+    std::vector<size_t> kept;  // records still kept after earlier stages, input order
+    for (size_t i = 0; i < n; ++i) {
+      if (st.IsKept(i)) kept.push_back(i);
+    }
+    compared_ = kept.size();
+    for (size_t i : kept) chars_records_ += chars_mode_[i];
+    const uint32_t K = s_.slots;
+    // 1. Clusters among the kept records.
+    if (kept.size() >= 2) {
+      std::vector<uint8_t> sub(kept.size() * K);
+      for (size_t j = 0; j < kept.size(); ++j) {
+        std::copy_n(signatures_.data() + kept[j] * K, K, sub.data() + j * K);
+      }
+      std::vector<uint8_t>().swap(signatures_);
+      sketch::ClusterOptions opt;
+      opt.threshold = s_.threshold;
+      opt.banding = banding_;
+      unsigned threads = threads_ ? threads_ : std::max(1u, std::thread::hardware_concurrency());
+      opt.threads = threads;
+      Result<sketch::Clustering> r = sketch::Clustering{};
+      if (s_.exact) {
+        std::vector<std::vector<uint64_t>> sets(kept.size());
+        for (size_t j = 0; j < kept.size(); ++j) sets[j] = std::move(sets_[kept[j]]);
+        std::vector<std::vector<uint64_t>>().swap(sets_);
+        r = sketch::ClusterWithExactSets(sub, K, sets, opt);
+      } else {
+        r = sketch::ClusterCompactSignatures(sub, K, opt);
+      }
+      if (!r.ok()) return Status::Internal("near: clustering failed: " + r.status().message());
+      const sketch::Clustering& c = r.value();
+      cstats_ = c.stats;
+      std::vector<int64_t> pos(kept.size(), -1);
+      for (const auto& cs : c.clusters) {
+        pos[cs.id] = static_cast<int64_t>(clusters_.size());
+        ClusterOut co;
+        co.id = kept[cs.id];
+        co.min_similarity = cs.min_similarity;
+        co.max_similarity = cs.max_similarity;
+        co.members.reserve(cs.size);
+        clusters_.push_back(std::move(co));
+      }
+      for (size_t j = 0; j < kept.size(); ++j) {
+        uint32_t root = c.cluster_of[j];
+        if (pos[root] < 0) continue;
+        ClusterOut& co = clusters_[static_cast<size_t>(pos[root])];
+        co.members.push_back(kept[j]);
+        st.near_cluster[kept[j]] = static_cast<int64_t>(co.id);
+      }
+    }
+    for (const auto& co : clusters_) {
+      records_in_clusters_ += co.members.size();
+      largest_ = std::max<uint64_t>(largest_, co.members.size());
+      ++size_histogram_[co.members.size()];
+    }
+    // 2. Near-identical candidates within one comparison.
+    if (s_.cand_action != CandidateAction::kOff) {
+      for (size_t i : kept) {
+        if (cand_pairs_[i].empty()) continue;
+        ++cand_records_;
+        cand_pair_count_ += cand_pairs_[i].size();
+        flagged_.push_back(i);
+        if (s_.cand_action == CandidateAction::kReject) {
+          const CandidatePair& p = cand_pairs_[i].front();
+          if (st.Reject(i, name(), "near_identical_candidates",
+                        "candidates " + std::to_string(p.a) + " and " + std::to_string(p.b) +
+                            " are nearly the same text (similarity " + Json(Round6(p.similarity)).dump() +
+                            "), so the judgment carries little signal",
+                        Json{{"candidates", {p.a, p.b}}, {"similarity", Round6(p.similarity)},
+                             {"threshold", s_.cand_threshold}}
+                            .dump())) {
+            ++cand_rejected_;
+          }
+        }
+      }
+    }
+    // 3. Cap per cluster: the first kept members in input order stay.
+    if (s_.max_per_cluster > 0) {
+      for (auto& co : clusters_) {
+        uint32_t stay = 0;
+        size_t rep = SIZE_MAX;
+        for (size_t m : co.members) {
+          if (!st.IsKept(m)) continue;
+          if (stay < s_.max_per_cluster) {
+            if (rep == SIZE_MAX) rep = m;
+            ++stay;
+            continue;
+          }
+          const std::string& rep_id = st.records[rep].id;
+          if (st.Reject(m, name(), "near_duplicate_over_cap",
+                        "the prompt is a near duplicate of " + rep_id + " and its cluster already keeps " +
+                            std::to_string(s_.max_per_cluster) + " comparison(s) (max_per_cluster)",
+                        Json{{"cluster", co.id}, {"cluster_first", st.records[co.id].id}, {"kept", rep_id},
+                             {"max_per_cluster", s_.max_per_cluster}}
+                            .dump())) {
+            co.over_cap.push_back(m);
+            ++over_cap_;
+          }
+        }
+      }
+    }
+    return Status::Ok();
+  }
+
+  void Report(const RunState&, Json* s) const override {
+    Json settings;
+    settings["threshold"] = s_.threshold;
+    settings["shingle"] = ModeName(s_.mode);
+    settings["word_ngram"] = s_.word_n;
+    settings["char_ngram"] = s_.char_n;
+    settings["slots"] = s_.slots;
+    settings["bands"] = banding_.bands;
+    settings["rows"] = banding_.rows;
+    settings["verify"] = s_.exact ? "exact" : "estimate";
+    settings["max_per_cluster"] = s_.max_per_cluster;
+    settings["candidates"] = Json{{"action", s_.cand_action == CandidateAction::kOff    ? "off"
+                                             : s_.cand_action == CandidateAction::kFlag ? "flag" : "reject"},
+                                  {"threshold", s_.cand_threshold},
+                                  {"ngram", s_.cand_n}};
+    (*s)["settings"] = std::move(settings);
+    // The banding S-curve: P(candidate) = 1 - (1 - s^r)^b (Mining of Massive
+    // Datasets, sec. 3.4.2); with 8-bit slots a row agrees with probability
+    // s + (1 - s)/256.
+    Json curve = Json::array();
+    for (double x : {0.3, 0.5, 0.6, 0.7, 0.75, 0.8, 0.85, 0.9, 0.95}) {
+      double row8 = x + (1 - x) / 256.0;
+      double p8 = 1 - std::pow(1 - std::pow(row8, banding_.rows), banding_.bands);
+      curve.push_back(Json{{"similarity", x},
+                           {"p_candidate", Round6(sketch::CandidateProbability(x, banding_))},
+                           {"p_candidate_8bit", Round6(p8)}});
+    }
+    (*s)["s_curve"] = std::move(curve);
+    (*s)["approx_threshold"] = Round6(sketch::ApproxThreshold(banding_));
+    (*s)["records_signed"] = records_signed_;
+    (*s)["records_compared"] = compared_;
+    (*s)["shingle_modes"] = Json{{"words", compared_ - chars_records_}, {"chars", chars_records_}};
+    (*s)["candidate_pairs"] = cstats_.candidates.unique_pairs;
+    (*s)["verified_pairs"] = cstats_.verified_edges;
+    (*s)["pairs_below_threshold"] = cstats_.rejected_pairs;
+    (*s)["capped_buckets"] = cstats_.candidates.capped_runs;
+    (*s)["clusters"] = clusters_.size();
+    (*s)["records_in_clusters"] = records_in_clusters_;
+    (*s)["largest_cluster"] = largest_;
+    Json hist = Json::object();
+    for (const auto& [size, count] : size_histogram_) hist[std::to_string(size)] = count;
+    (*s)["cluster_sizes"] = std::move(hist);
+    (*s)["over_cap_rejected"] = over_cap_;
+    (*s)["near_identical_candidates"] =
+        Json{{"records", cand_records_}, {"pairs", cand_pair_count_}, {"rejected", cand_rejected_}};
+  }
+
+  Status WriteOutputs(const RunState& st, OutputDir& out) const override {
+    auto f = out.Create("clusters.jsonl");
+    if (!f.ok()) return f.status();
+    for (const auto& co : clusters_) {
+      Json j;
+      j["cluster"] = co.id;
+      j["first"] = st.records[co.id].id;
+      j["size"] = co.members.size();
+      Json ids = Json::array();
+      for (size_t m : co.members) ids.push_back(st.records[m].id);
+      j["members"] = std::move(ids);
+      j["min_similarity"] = Round6(co.min_similarity);
+      j["max_similarity"] = Round6(co.max_similarity);
+      Json over = Json::array();
+      for (size_t m : co.over_cap) over.push_back(st.records[m].id);
+      j["over_cap"] = std::move(over);
+      Status s = f.value()->Append(j.dump() + "\n");
+      if (!s.ok()) return s;
+    }
+    Status s = f.value()->Close();
+    if (!s.ok()) return s;
+    auto g = out.Create("near_identical.jsonl");
+    if (!g.ok()) return g.status();
+    for (size_t i : flagged_) {
+      Json pairs = Json::array();
+      for (const auto& p : cand_pairs_[i]) {
+        pairs.push_back(Json{{"candidates", {p.a, p.b}}, {"similarity", Round6(p.similarity)}});
+      }
+      const Decision& d = st.decisions[st.records[i].entry];
+      Json j;
+      j["id"] = st.records[i].id;
+      j["action"] = d.rejected && d.stage == "near" && d.reason == "near_identical_candidates" ? "rejected" : "flagged";
+      j["cluster"] = st.near_cluster[i] >= 0 ? Json(st.near_cluster[i]) : Json(nullptr);
+      j["pairs"] = std::move(pairs);
+      s = g.value()->Append(j.dump() + "\n");
+      if (!s.ok()) return s;
+    }
+    return g.value()->Close();
+  }
+
+  void SetBanding(sketch::Banding b) { banding_ = b; }
+
+ private:
+  NearSettings s_;
+  NormalizeOptions norm_;
+  unsigned threads_;
+  sketch::ShingleOptions shingle_;
+  sketch::MinHashParams minhash_;
+  sketch::Banding banding_;
+  // Per record (Observe).
+  std::vector<uint8_t> signatures_;                  // K bytes a record
+  std::vector<uint8_t> chars_mode_;                  // 1 = code-point shingles
+  std::vector<std::vector<uint64_t>> sets_;          // "verify": "exact" only
+  std::vector<std::vector<CandidatePair>> cand_pairs_;
+  // Decide.
+  std::vector<ClusterOut> clusters_;
+  std::vector<size_t> flagged_;
+  sketch::ClusterStats cstats_;
+  std::map<size_t, uint64_t> size_histogram_;
+  uint64_t records_signed_ = 0, compared_ = 0, chars_records_ = 0, records_in_clusters_ = 0, largest_ = 0,
+           over_cap_ = 0, cand_records_ = 0, cand_pair_count_ = 0, cand_rejected_ = 0;
+};
+
+constexpr const char* kKnown =
+    "threshold, shingle, word_ngram, char_ngram, slots, bands, rows, verify, max_per_cluster, "
+    "candidates, candidate_threshold, candidate_ngram";
+
+}  // namespace
+
+std::unique_ptr<Stage> MakeNearDupsStage(const Plan& plan, Status* error) {
+  const Json& s = StageSettings(plan, "near");
+  NearSettings ns;
+  auto fail = [&](const std::string& msg) {
+    *error = Status::Usage("stages.near." + msg);
+    return nullptr;
+  };
+  auto number = [&](const Json& v, double lo, double hi, double* out) {
+    if (!v.is_number()) return false;
+    double x = v.get<double>();
+    if (!(x >= lo && x <= hi)) return false;
+    *out = x;
+    return true;
+  };
+  auto integer = [&](const Json& v, int64_t lo, int64_t hi, int64_t* out) {
+    if (!v.is_number_integer()) return false;
+    int64_t x = v.get<int64_t>();
+    if (x < lo || x > hi) return false;
+    *out = x;
+    return true;
+  };
+  bool has_bands = false, has_rows = false;
+  for (auto it = s.begin(); it != s.end(); ++it) {
+    const std::string& k = it.key();
+    const Json& v = it.value();
+    int64_t iv = 0;
+    if (k == "enabled") {
+      continue;
+    } else if (k == "threshold") {
+      if (!number(v, 0.0, 1.0, &ns.threshold) || ns.threshold <= 0) return fail("threshold: must be a number in (0, 1]");
+    } else if (k == "shingle") {
+      std::string m = v.is_string() ? v.get<std::string>() : "";
+      if (m == "auto") ns.mode = sketch::ShingleMode::kAuto;
+      else if (m == "words") ns.mode = sketch::ShingleMode::kWords;
+      else if (m == "chars") ns.mode = sketch::ShingleMode::kChars;
+      else return fail("shingle: must be \"auto\", \"words\" or \"chars\"");
+    } else if (k == "word_ngram") {
+      if (!integer(v, 1, 64, &iv)) return fail("word_ngram: must be an integer from 1 to 64");
+      ns.word_n = static_cast<int>(iv);
+    } else if (k == "char_ngram") {
+      if (!integer(v, 1, 64, &iv)) return fail("char_ngram: must be an integer from 1 to 64");
+      ns.char_n = static_cast<int>(iv);
+    } else if (k == "slots") {
+      if (!integer(v, 8, 4096, &iv)) return fail("slots: must be an integer from 8 to 4096");
+      ns.slots = static_cast<uint32_t>(iv);
+    } else if (k == "bands") {
+      if (!integer(v, 1, 4096, &iv)) return fail("bands: must be an integer from 1 to 4096");
+      ns.banding.bands = static_cast<uint32_t>(iv);
+      has_bands = true;
+    } else if (k == "rows") {
+      if (!integer(v, 1, 4096, &iv)) return fail("rows: must be an integer from 1 to 4096");
+      ns.banding.rows = static_cast<uint32_t>(iv);
+      has_rows = true;
+    } else if (k == "verify") {
+      std::string m = v.is_string() ? v.get<std::string>() : "";
+      if (m == "estimate") ns.exact = false;
+      else if (m == "exact") ns.exact = true;
+      else return fail("verify: must be \"estimate\" or \"exact\"");
+    } else if (k == "max_per_cluster") {
+      if (!integer(v, 0, UINT32_MAX, &iv)) return fail("max_per_cluster: must be a whole number >= 0 (0 = no cap)");
+      ns.max_per_cluster = static_cast<uint32_t>(iv);
+    } else if (k == "candidates") {
+      std::string m = v.is_string() ? v.get<std::string>() : "";
+      if (m == "off") ns.cand_action = CandidateAction::kOff;
+      else if (m == "flag") ns.cand_action = CandidateAction::kFlag;
+      else if (m == "reject") ns.cand_action = CandidateAction::kReject;
+      else return fail("candidates: must be \"flag\", \"reject\" or \"off\"");
+    } else if (k == "candidate_threshold") {
+      if (!number(v, 0.0, 1.0, &ns.cand_threshold) || ns.cand_threshold <= 0) {
+        return fail("candidate_threshold: must be a number in (0, 1]");
+      }
+    } else if (k == "candidate_ngram") {
+      if (!integer(v, 1, 64, &iv)) return fail("candidate_ngram: must be an integer from 1 to 64");
+      ns.cand_n = static_cast<int>(iv);
+    } else {
+      *error = Status::Usage("stages.near: unknown setting \"" + k + "\" (known: " + kKnown + ")");
+      return nullptr;
+    }
+  }
+  if (has_bands != has_rows) return fail("bands/rows: give both or neither");
+  sketch::Banding banding = ns.banding;
+  if (has_bands) {
+    if (static_cast<uint64_t>(banding.bands) * banding.rows > ns.slots) {
+      return fail("bands/rows: bands x rows = " + std::to_string(uint64_t{banding.bands} * banding.rows) +
+                  " exceeds slots = " + std::to_string(ns.slots));
+    }
+  } else {
+    auto chosen = sketch::ChooseBanding(ns.slots, ns.threshold);
+    if (!chosen.ok()) return fail("threshold/slots: no banding reaches P(candidate) >= 0.99 at the threshold: " +
+                                  chosen.status().message());
+    banding = chosen.value();
+  }
+  auto stage = std::make_unique<NearDupsStage>(ns, plan);
+  stage->SetBanding(banding);
+  return stage;
+}
+
+}  // namespace prefsift
