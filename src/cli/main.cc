@@ -161,6 +161,7 @@ int main(int argc, char** argv) {
       {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
       {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
       {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
+      {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"}},
   };
   std::vector<CommonOptions> options(commands.size());
   std::vector<CLI::App*> subs;

@@ -1,3 +1,4 @@
+#include "stages/bias.h"
 #include "stages/exact_dups.h"
 #include "stages/near_dups.h"
 #include "stages/stage.h"
@@ -8,6 +9,7 @@ const std::vector<StageInfo>& AllStages() {
   static const std::vector<StageInfo> kStages = {
       {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
       {"near", "near-duplicate prompts (MinHash + LSH clusters), near-identical candidates", &MakeNearDupsStage},
+      {"bias", "position and length bias statistics, optional rebalancing, surface-feature shortcut audit", &MakeBiasStage},
   };
   return kStages;
 }

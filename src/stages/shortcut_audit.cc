@@ -1,0 +1,196 @@
+#include "stages/shortcut_audit.h"
+
+#include <nlohmann/json.hpp>
+
+#include <cmath>
+#include <set>
+
+#include "stats/choice_model.h"
+
+namespace prefsift::bias {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+const char* OutcomeName(stats::ChoiceFitOutcome o) {
+  switch (o) {
+    case stats::ChoiceFitOutcome::kConverged: return "converged";
+    case stats::ChoiceFitOutcome::kSeparated: return "separated";
+    case stats::ChoiceFitOutcome::kNotIdentified: return "not-identified";
+    case stats::ChoiceFitOutcome::kMaxIterations: return "max-iterations";
+  }
+  return "?";
+}
+
+}  // namespace
+
+std::vector<std::string> AuditFeatureNames(bool with_slot) {
+  std::vector<std::string> n = {"log1p_words", "list_items", "code_block", "heading", "refusal_phrase", "url"};
+  if (with_slot) n.push_back("slot");
+  return n;
+}
+
+AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& records,
+                             const std::vector<std::vector<CandidateSurface>>& surface,
+                             const std::vector<std::vector<uint32_t>>* new_slot_of, uint64_t seed,
+                             const AuditOptions& o) {
+  AuditResult a;
+  bool with_slot = false;
+  for (size_t r : records) {
+    const RecordFacts& f = st.records[r];
+    if (PreferredIndex(f) >= 0 && HasSlots(f)) with_slot = true;
+  }
+  const std::vector<std::string> all_features = AuditFeatureNames(with_slot);
+  const size_t dim = all_features.size();
+  std::vector<std::vector<double>> comparisons;
+  std::vector<uint32_t> chosen;
+  std::vector<uint64_t> group_of;
+  std::vector<char> varies(dim, 0);
+  std::set<uint64_t> groups;
+  double chance = 0;
+  for (size_t r : records) {
+    const RecordFacts& f = st.records[r];
+    const int c = PreferredIndex(f);
+    if (c < 0) continue;
+    const auto& cands = surface[r];
+    const std::vector<uint32_t>* moved =
+        new_slot_of && r < new_slot_of->size() && !(*new_slot_of)[r].empty() ? &(*new_slot_of)[r] : nullptr;
+    std::vector<double> rows;
+    rows.reserve(cands.size() * dim);
+    for (size_t i = 0; i < cands.size(); ++i) {
+      const CandidateSurface& cs = cands[i];
+      rows.push_back(std::log1p(static_cast<double>(cs.words)));
+      rows.push_back(static_cast<double>(cs.list_items));
+      rows.push_back(cs.flags & CandidateSurface::kCodeBlock ? 1.0 : 0.0);
+      rows.push_back(cs.flags & CandidateSurface::kHeading ? 1.0 : 0.0);
+      rows.push_back(cs.flags & CandidateSurface::kRefusal ? 1.0 : 0.0);
+      rows.push_back(cs.flags & CandidateSurface::kUrl ? 1.0 : 0.0);
+      if (with_slot) {
+        // Pairwise layouts have no slot: 0 for both, so they carry no slot signal.
+        rows.push_back(HasSlots(f) ? static_cast<double>(moved ? (*moved)[i] : i) : 0.0);
+      }
+    }
+    for (size_t i = 1; i < cands.size(); ++i) {
+      for (size_t k = 0; k < dim; ++k) varies[k] = varies[k] || rows[i * dim + k] != rows[k];
+    }
+    comparisons.push_back(std::move(rows));
+    chosen.push_back(static_cast<uint32_t>(c));
+    const uint64_t g = f.prompt_hash.hi ^ (f.prompt_hash.lo * 0x9E3779B97F4A7C15ULL);
+    group_of.push_back(g);
+    groups.insert(g);
+    chance += 1.0 / static_cast<double>(cands.size());
+  }
+  // Features that never differ between the candidates of one comparison
+  // carry no information (their weight is not identified): left out, listed.
+  std::vector<size_t> cols;
+  for (size_t k = 0; k < dim; ++k) {
+    if (varies[k]) {
+      cols.push_back(k);
+      a.features.push_back(all_features[k]);
+    } else {
+      a.not_varying.push_back(all_features[k]);
+    }
+  }
+  stats::ChoiceData data;
+  data.dim = static_cast<int>(cols.size());
+  for (size_t i = 0; i < comparisons.size(); ++i) {
+    const size_t b = comparisons[i].size() / dim;
+    std::vector<double> rows;
+    rows.reserve(b * cols.size());
+    for (size_t j = 0; j < b; ++j) {
+      for (size_t k : cols) rows.push_back(comparisons[i][j * dim + k]);
+    }
+    data.Add(rows, chosen[i]);
+  }
+  data.group = std::move(group_of);
+  a.comparisons = data.size();
+  a.prompt_groups = groups.size();
+  a.chance_accuracy = data.size() ? chance / static_cast<double>(data.size()) : 0.0;
+  if (a.comparisons < o.min_records) {
+    a.skipped = "only " + std::to_string(a.comparisons) + " comparisons with a single chosen candidate (minimum " +
+                std::to_string(o.min_records) + ")";
+    return a;
+  }
+  if (cols.empty()) {
+    a.skipped = "no surface feature differs between the candidates of any comparison";
+    return a;
+  }
+  if (a.prompt_groups < static_cast<uint64_t>(o.folds)) {
+    a.skipped = "only " + std::to_string(a.prompt_groups) + " distinct prompts for " + std::to_string(o.folds) +
+                " folds";
+    return a;
+  }
+  stats::ChoiceFitOptions fo;
+  fo.l2 = o.l2;
+  fo.standardize = true;
+  auto cv = stats::CrossValidatedAccuracy(data, fo, o.folds, seed);
+  if (!cv.ok()) {
+    a.skipped = "cross-validation failed: " + cv.status().message();
+    return a;
+  }
+  auto fit = stats::FitChoiceModel(data, fo);
+  if (!fit.ok()) {
+    a.skipped = "fit failed: " + fit.status().message();
+    return a;
+  }
+  a.ran = true;
+  a.heldout_accuracy = cv.value().accuracy;
+  a.fold_accuracy = cv.value().fold_accuracy;
+  a.fold_size = cv.value().fold_size;
+  a.folds_not_converged = cv.value().folds_not_converged;
+  const stats::ChoiceFit& f = fit.value();
+  a.weights = f.weights;
+  a.std_errors = f.std_errors;
+  a.converged = f.converged;
+  a.outcome = OutcomeName(f.outcome);
+  a.message = f.message;
+  a.iterations = f.iterations;
+  a.training_accuracy = stats::ChoiceAccuracy(data, f.weights);
+  a.flagged = a.heldout_accuracy > o.threshold;
+  return a;
+}
+
+void AuditToJson(const AuditResult& a, const AuditOptions& o, Json* out) {
+  Json& j = *out;
+  j["ran"] = a.ran;
+  if (!a.ran) {
+    j["skipped"] = a.skipped;
+    j["heldout_accuracy"] = nullptr;
+    j["flagged"] = false;
+    j["threshold"] = o.threshold;
+    j["comparisons"] = a.comparisons;
+    j["features_not_varying"] = a.not_varying;
+    return;
+  }
+  j["heldout_accuracy"] = a.heldout_accuracy;
+  j["flagged"] = a.flagged;
+  j["threshold"] = o.threshold;
+  j["chance_accuracy"] = a.chance_accuracy;
+  j["comparisons"] = a.comparisons;
+  j["prompt_groups"] = a.prompt_groups;
+  j["folds"] = o.folds;
+  j["fold_accuracy"] = a.fold_accuracy;
+  j["fold_size"] = a.fold_size;
+  j["folds_not_converged"] = a.folds_not_converged;
+  j["l2"] = o.l2;
+  Json fit;
+  fit["converged"] = a.converged;
+  fit["outcome"] = a.outcome;
+  if (!a.message.empty()) fit["message"] = a.message;
+  fit["iterations"] = a.iterations;
+  fit["training_accuracy"] = a.training_accuracy;
+  Json w = Json::array();
+  for (size_t k = 0; k < a.features.size(); ++k) {
+    Json e;
+    e["feature"] = a.features[k];
+    e["weight"] = a.weights[k];
+    if (k < a.std_errors.size()) e["std_error"] = a.std_errors[k];
+    else e["std_error"] = nullptr;
+    w.push_back(std::move(e));
+  }
+  fit["weights"] = std::move(w);
+  fit["features_not_varying"] = a.not_varying;
+  j["fit"] = std::move(fit);
+}
+
+}  // namespace prefsift::bias

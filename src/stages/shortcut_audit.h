@@ -1,0 +1,63 @@
+// Shortcut audit (docs/bias.md section 5): can surface features alone predict
+// the annotators' choices? Fits the conditional-logit choice model
+// (stats/choice_model.h) on per-candidate surface features - log(1 + words),
+// list items, code block, heading, refusal/apology phrase, URL, and the slot
+// for layouts that have one - and reports the k-fold held-out accuracy with
+// folds by prompt (RecordFacts::prompt_hash), the fitted weights with standard
+// errors, and a flag when the accuracy exceeds a threshold.
+//
+// Pure function over the RunState; thread-safe for concurrent readers.
+#pragma once
+
+#include <nlohmann/json_fwd.hpp>
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "stages/bias_common.h"
+#include "stages/run_state.h"
+
+namespace prefsift::bias {
+
+struct AuditOptions {
+  int folds = 5;
+  double threshold = 0.60;     // flagged when held-out accuracy > threshold
+  double l2 = 1.0;             // penalty on the standardised scale
+  uint64_t min_records = 50;   // fewer usable records: the audit is skipped, with a reason
+};
+
+struct AuditResult {
+  bool ran = false;
+  std::string skipped;                 // why it did not run ("" when it ran)
+  uint64_t comparisons = 0;            // records with a single chosen candidate
+  uint64_t prompt_groups = 0;
+  std::vector<std::string> features;     // the columns fitted
+  std::vector<std::string> not_varying;  // left out: never differ within a comparison
+  double heldout_accuracy = 0.0;
+  double chance_accuracy = 0.0;        // mean of 1/B over the comparisons
+  std::vector<double> fold_accuracy;
+  std::vector<size_t> fold_size;
+  int folds_not_converged = 0;
+  double training_accuracy = 0.0;      // of the fit on all comparisons
+  std::vector<double> weights, std_errors;  // raw scale, one per feature
+  bool converged = false;
+  std::string outcome, message;
+  int iterations = 0;
+  bool flagged = false;
+};
+
+// Names of the features, in column order (slot last, when used).
+std::vector<std::string> AuditFeatureNames(bool with_slot);
+
+// `surface[r]` holds record r's candidate facts (file order); `new_slot_of`
+// as in ComputePositionStats (null = file order). REQUIRES: surface sized
+// st.records.size() with entries for every record in `records`.
+AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& records,
+                             const std::vector<std::vector<CandidateSurface>>& surface,
+                             const std::vector<std::vector<uint32_t>>* new_slot_of, uint64_t seed,
+                             const AuditOptions& options);
+
+void AuditToJson(const AuditResult& a, const AuditOptions& options, nlohmann::ordered_json* out);
+
+}  // namespace prefsift::bias
