@@ -3,9 +3,14 @@
 // on the phone-line channel).
 #include <gtest/gtest.h>
 
+#include <unistd.h>
+
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
 #include <set>
+#include <sstream>
+#include <vector>
 
 #include "e2e/e2e_helpers.h"
 
