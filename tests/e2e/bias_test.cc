@@ -35,7 +35,8 @@ TEST(BiasE2E, PlantedPositionBiasFoundAfterCorrection) {
   // Exactly the planted volunteers are significant after Holm over ~40 volunteers.
   EXPECT_EQ(Significant(b["position"]["by_annotator"]), planted);
   for (const auto& g : b["position"]["by_annotator"]["groups"]) {
-    if (planted.count(g["annotator"].get<std::string>())) {
+    // Planted on two-reply comparisons (truth.json "scope"); groups are per (annotator, B).
+    if (planted.count(g["annotator"].get<std::string>()) && g["candidates"] == 2) {
       EXPECT_GT(g["chosen_slot_shares"][0].get<double>(), 0.65) << g.dump();
     }
   }
