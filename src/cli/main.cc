@@ -16,6 +16,7 @@
 #include "io/file_system.h"
 #include "prefsift_version.h"
 #include "stages/pipeline.h"
+#include "stages/split_audit.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -132,6 +133,32 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages) {
   return kExitOk;
 }
 
+// `prefsift audit`: train/held-out leakage check of existing files (docs/leakage.md).
+struct AuditCli {
+  CommonOptions common;
+  std::string train;
+  std::vector<std::string> heldout;
+  bool by_annotator = false, gate = false;
+};
+
+int RunAudit(AuditCli a) {
+  bool flags = !a.common.layout.empty() || !a.common.fields.empty();
+  if (flags) {
+    a.common.inputs = {a.train};
+    a.common.inputs.insert(a.common.inputs.end(), a.heldout.begin(), a.heldout.end());
+  }
+  auto plan = BuildPlan(a.common);
+  auto opts = plan.ok() ? AuditOptionsFromPlan(plan.value(), a.train, a.heldout, flags) : Result<AuditOptions>(plan.status());
+  if (opts.ok()) opts.value().by_annotator = a.by_annotator;
+  auto outcome = opts.ok() ? RunSplitAudit(opts.value(), DefaultFileSystem()) : Result<AuditOutcome>(opts.status());
+  if (!outcome.ok()) {
+    std::fprintf(stderr, "prefsift: %s\n", outcome.status().message().c_str());
+    return ExitFor(outcome.status());
+  }
+  if (!a.common.quiet) std::fprintf(stderr, "%swrote %s\n", outcome.value().table.c_str(), opts.value().out.c_str());
+  return a.gate && outcome.value().leak_found ? kExitGate : kExitOk;
+}
+
 std::vector<std::string> AllStageNames() {
   std::vector<std::string> names;
   for (const auto& s : AllStages()) names.push_back(s.name);
@@ -161,6 +188,7 @@ int main(int argc, char** argv) {
       {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
       {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
       {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
+      {"leakage", "Train/evaluation leakage against the plan's evaluation sets only", {"leakage"}},
       {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"}},
   };
   std::vector<CommonOptions> options(commands.size());
@@ -170,6 +198,17 @@ int main(int argc, char** argv) {
     AddCommon(sub, &options[i]);
     subs.push_back(sub);
   }
+  AuditCli audit;
+  CLI::App* audit_cmd = app.add_subcommand(
+      "audit", "Check existing train / held-out files for leakage across the split (twins and shared groups)");
+  AddCommon(audit_cmd, &audit.common);
+  audit_cmd->remove_option(audit_cmd->get_option("inputs"));
+  audit_cmd->remove_option(audit_cmd->get_option("--strict"));
+  audit_cmd->remove_option(audit_cmd->get_option("--seed"));
+  audit_cmd->add_option("--train", audit.train, "The training file")->required();
+  audit_cmd->add_option("--heldout", audit.heldout, "A held-out (validation or test) file (repeatable)")->required();
+  audit_cmd->add_flag("--by-annotator", audit.by_annotator, "Also report annotators who appear on both sides");
+  audit_cmd->add_flag("--gate", audit.gate, "Exit with code 4 if any leakage is found");
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
 
   try {
@@ -184,6 +223,7 @@ int main(int argc, char** argv) {
     app.exit(e);
     return 2;
   }
+  if (audit_cmd->parsed()) return RunAudit(audit);
   if (layouts->parsed()) {
     for (const auto& name : LayoutPresetNames()) {
       auto l = LayoutFromJson(nlohmann::ordered_json{{"preset", name}}, "preset");

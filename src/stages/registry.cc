@@ -1,5 +1,6 @@
 #include "stages/bias.h"
 #include "stages/exact_dups.h"
+#include "stages/leakage.h"
 #include "stages/near_dups.h"
 #include "stages/stage.h"
 
@@ -9,6 +10,7 @@ const std::vector<StageInfo>& AllStages() {
   static const std::vector<StageInfo> kStages = {
       {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
       {"near", "near-duplicate prompts (MinHash + LSH clusters), near-identical candidates", &MakeNearDupsStage},
+      {"leakage", "train/evaluation leakage: exact, word n-gram and near-duplicate matches of evaluation prompts", &MakeLeakageStage},
       {"bias", "position and length bias statistics, optional rebalancing, surface-feature shortcut audit", &MakeBiasStage},
   };
   return kStages;

@@ -1,0 +1,484 @@
+#include "stages/leak_index.h"
+
+#include <nlohmann/json.hpp>
+
+#include <algorithm>
+#include <cmath>
+
+#include "core/hash.h"
+#include "sketch/lsh.h"
+#include "sketch/minhash.h"
+#include "sketch/set_similarity.h"
+#include "sketch/shingles.h"
+#include "stages/hash_postings.h"
+#include "stages/ngram_overlap.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+constexpr uint64_t kBandSeed = 0x6c65616b62616e64ULL;  // "leakband"
+constexpr const char* kDetectorKeys[kLeakDetectors] = {"exact", "ngram", "near", "answers"};
+
+Status ParseInt(const Json& v, const std::string& w, long lo, long hi, long* out) {
+  if (!v.is_number_integer() || v.get<long>() < lo || v.get<long>() > hi) {
+    return Status::Usage(w + ": must be an integer from " + std::to_string(lo) + " to " + std::to_string(hi));
+  }
+  *out = v.get<long>();
+  return Status::Ok();
+}
+
+Status ParseUnit(const Json& v, const std::string& w, double* out) {
+  if (!v.is_number() || v.get<double>() < 0 || v.get<double>() > 1) {
+    return Status::Usage(w + ": must be a number from 0 to 1 (0 turns this test off)");
+  }
+  *out = v.get<double>();
+  return Status::Ok();
+}
+
+Status ParseBool(const Json& v, const std::string& w, bool* out) {
+  if (!v.is_boolean()) return Status::Usage(w + ": must be true or false");
+  *out = v.get<bool>();
+  return Status::Ok();
+}
+
+Status ParsePolicy(const Json& v, const std::string& w, LeakPolicy* out) {
+  std::string p = v.is_string() ? v.get<std::string>() : "";
+  if (p == "drop") *out = LeakPolicy::kDrop;
+  else if (p == "flag") *out = LeakPolicy::kFlag;
+  else return Status::Usage(w + ": must be \"drop\" or \"flag\"");
+  return Status::Ok();
+}
+
+std::string JoinWords(const std::vector<std::string_view>& words, size_t from, size_t count, size_t max_words) {
+  std::string out;
+  size_t end = std::min(words.size(), from + std::min(count, max_words));
+  for (size_t i = from; i < end; ++i) {
+    if (i > from) out.push_back(' ');
+    out.append(words[i]);
+  }
+  return out;
+}
+
+}  // namespace
+
+const char* LeakDetectorName(LeakDetector d) {
+  switch (d) {
+    case LeakDetector::kExact: return "exact";
+    case LeakDetector::kNgram: return "ngram";
+    case LeakDetector::kNear: return "near";
+    case LeakDetector::kAnswer: return "answer";
+  }
+  return "?";
+}
+
+Result<LeakSettings> ParseLeakSettings(const Json& j, const std::string& base_dir, const std::string& where,
+                                       bool require_eval_sets) {
+  LeakSettings s;
+  if (!j.is_object()) return Status::Usage(where + ": must be an object");
+  bool have_sets = false;
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    const std::string& k = it.key();
+    const Json& v = it.value();
+    std::string w = where + "." + k;
+    Status st;
+    long num = 0;
+    if (k == "enabled") {
+      continue;
+    } else if (k == "eval_sets") {
+      auto sets = ParseEvalSetSpecs(v, base_dir, w);
+      if (!sets.ok()) return sets.status();
+      s.eval_sets = std::move(sets).value();
+      have_sets = true;
+    } else if (k == "examples") {
+      st = ParseInt(v, w, 0, 1000, &num);
+      s.examples = static_cast<uint32_t>(num);
+    } else if (k == "max_span_words") {
+      st = ParseInt(v, w, 1, 200, &num);
+      s.max_span_words = static_cast<uint32_t>(num);
+    } else {
+      int d = -1;
+      for (int i = 0; i < kLeakDetectors; ++i) {
+        if (k == kDetectorKeys[i]) d = i;
+      }
+      if (d < 0) {
+        return Status::Usage(where + ": unknown setting \"" + k +
+                             "\" (known: eval_sets, exact, ngram, near, answers, examples, max_span_words)");
+      }
+      if (v.is_string()) {  // shorthand: "drop", "flag" or "off"
+        if (v.get<std::string>() == "off") {
+          s.enabled[d] = false;
+        } else {
+          s.enabled[d] = true;
+          st = ParsePolicy(v, w, &s.policy[d]);
+          if (!st.ok()) return Status::Usage(w + ": must be \"drop\", \"flag\", \"off\" or an object");
+        }
+        continue;
+      }
+      if (!v.is_object()) return Status::Usage(w + ": must be \"drop\", \"flag\", \"off\" or an object");
+      if (d == static_cast<int>(LeakDetector::kAnswer)) s.enabled[d] = true;  // naming it turns it on
+      for (auto jt = v.begin(); jt != v.end() && st.ok(); ++jt) {
+        const std::string& key = jt.key();
+        const Json& x = jt.value();
+        std::string wk = w + "." + key;
+        if (key == "enabled") st = ParseBool(x, wk, &s.enabled[d]);
+        else if (key == "policy") st = ParsePolicy(x, wk, &s.policy[d]);
+        else if (d == 1 && key == "n") {
+          if (x.is_string() && x.get<std::string>() == "auto") s.ngram_n = 0;
+          else if (!(st = ParseInt(x, wk, 1, 64, &num)).ok()) st = Status::Usage(wk + ": must be 1 to 64 or \"auto\"");
+          else s.ngram_n = static_cast<int>(num);
+        } else if (d == 1 && key == "min_eval_words") {
+          st = ParseInt(x, wk, 1, 64, &num);
+          s.min_eval_words = static_cast<int>(num);
+        } else if (d == 1 && key == "min_shared") {
+          st = ParseInt(x, wk, 1, 1000, &num);
+          s.min_shared = static_cast<uint32_t>(num);
+        } else if (d == 1 && key == "strip_punctuation") {
+          st = ParseBool(x, wk, &s.strip_punctuation);
+        } else if (d == 2 && key == "jaccard") {
+          st = ParseUnit(x, wk, &s.jaccard);
+        } else if (d == 2 && key == "containment") {
+          st = ParseUnit(x, wk, &s.containment);
+        } else if (d == 2 && key == "shingle_words") {
+          st = ParseInt(x, wk, 1, 32, &num);
+          s.shingle_words = static_cast<int>(num);
+        } else if (d == 2 && key == "slots") {
+          st = ParseInt(x, wk, 16, 1024, &num);
+          s.num_slots = static_cast<uint32_t>(num);
+        } else if (d == 2 && key == "min_eval_shingles") {
+          st = ParseInt(x, wk, 1, 1000, &num);
+          s.min_eval_shingles = static_cast<uint32_t>(num);
+        } else {
+          const char* known = d == 1   ? "enabled, policy, n, min_eval_words, min_shared, strip_punctuation"
+                              : d == 2 ? "enabled, policy, jaccard, containment, shingle_words, slots, min_eval_shingles"
+                                       : "enabled, policy";
+          st = Status::Usage(w + ": unknown setting \"" + key + "\" (known: " + known + ")");
+        }
+      }
+    }
+    if (!st.ok()) return st;
+  }
+  if ((require_eval_sets && !have_sets) || (have_sets && s.eval_sets.empty())) {
+    return Status::Usage(where + ".eval_sets: name at least one evaluation set, e.g. "
+                         "[{\"name\": \"heldout\", \"path\": \"eval/heldout.txt\"}]");
+  }
+  if (s.enabled[2] && s.jaccard == 0 && s.containment == 0) {
+    return Status::Usage(where + ".near: \"jaccard\" and \"containment\" are both 0; use \"near\": \"off\" instead");
+  }
+  return s;
+}
+
+void LeakSettingsToJson(const LeakSettings& s, int resolved_n, Json* out) {
+  auto base = [&](int d) {
+    Json j;
+    j["enabled"] = s.enabled[d];
+    j["policy"] = s.policy[d] == LeakPolicy::kDrop ? "drop" : "flag";
+    return j;
+  };
+  Json exact = base(0), ngram = base(1), near = base(2), answers = base(3);
+  ngram["n"] = resolved_n;
+  ngram["n_setting"] = s.ngram_n == 0 ? Json("auto") : Json(s.ngram_n);
+  ngram["min_eval_words"] = s.min_eval_words;
+  ngram["min_shared"] = s.min_shared;
+  ngram["strip_punctuation"] = s.strip_punctuation;
+  near["jaccard"] = s.jaccard;
+  near["containment"] = s.containment;
+  near["shingle_words"] = s.shingle_words;
+  near["slots"] = s.num_slots;
+  near["min_eval_shingles"] = s.min_eval_shingles;
+  (*out)["exact"] = std::move(exact);
+  (*out)["ngram"] = std::move(ngram);
+  (*out)["near"] = std::move(near);
+  (*out)["answers"] = std::move(answers);
+}
+
+struct LeakIndex::Impl {
+  NormalizeOptions gram_norm;
+  bool same_norm = false;
+  int n = 13;
+  // exact
+  std::vector<Hash128> prompt_hash;
+  HashPostings exact;
+  // ngram
+  std::unique_ptr<NgramIndex> ngram;
+  // near
+  sketch::ShingleOptions shingle;
+  sketch::MinHashParams minhash;
+  sketch::Banding banding;
+  std::vector<std::vector<uint64_t>> sets;
+  std::vector<uint8_t> sigs;
+  HashPostings bands, prefixes;
+  // answers
+  std::vector<uint32_t> ref_items;
+  std::vector<Hash128> ref_hash;
+  HashPostings ref_exact;
+  std::unique_ptr<NgramIndex> ref_ngram;
+};
+
+LeakIndex::LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm)
+    : corpus_(corpus), settings_(settings), norm_(norm), impl_(std::make_unique<Impl>()) {}
+LeakIndex::~LeakIndex() = default;
+
+int LeakIndex::ngram_n() const { return impl_->n; }
+uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->indexed_grams() : 0; }
+uint64_t LeakIndex::references() const { return impl_->ref_items.size(); }
+
+Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, const LeakSettings& settings,
+                                                    const NormalizeOptions& norm) {
+  std::unique_ptr<LeakIndex> idx(new LeakIndex(corpus, settings, norm));
+  Impl& m = *idx->impl_;
+  const size_t items = corpus.items.size();
+  m.gram_norm = norm;
+  m.gram_norm.strip_punctuation = settings.strip_punctuation || norm.strip_punctuation;
+  m.same_norm = m.gram_norm.strip_punctuation == norm.strip_punctuation;
+  std::vector<std::string> gram_text(items);
+  std::vector<uint32_t> word_counts(items);
+  for (size_t i = 0; i < items; ++i) {
+    gram_text[i] = NormalizeForMatch(corpus.items[i].text, m.gram_norm);
+    word_counts[i] = static_cast<uint32_t>(sketch::CountWords(gram_text[i]));
+  }
+  m.n = settings.ngram_n == 0 ? AutoNgramLength(word_counts) : settings.ngram_n;
+  if (settings.enabled[0]) {
+    std::vector<std::pair<uint64_t, uint32_t>> e;
+    m.prompt_hash.resize(items);
+    for (uint32_t i = 0; i < items; ++i) {
+      m.prompt_hash[i] = HashBytes(NormalizeForMatch(corpus.items[i].text, norm));
+      e.emplace_back(m.prompt_hash[i].lo, i);
+    }
+    m.exact.Build(std::move(e));
+  }
+  NgramOptions no;
+  no.n = m.n;
+  no.min_eval_words = settings.min_eval_words;
+  no.min_shared = settings.min_shared;
+  if (settings.enabled[1]) m.ngram = std::make_unique<NgramIndex>(gram_text, no);
+  if (settings.enabled[2]) {
+    m.shingle.mode = sketch::ShingleMode::kAuto;
+    m.shingle.word_n = settings.shingle_words;
+    m.minhash.num_slots = settings.num_slots;
+    if (settings.jaccard > 0) {
+      auto b = sketch::ChooseBanding(settings.num_slots, settings.jaccard);
+      if (!b.ok()) return Status::Usage("stages.leakage.near: " + b.status().message());
+      m.banding = b.value();
+    }
+    const uint32_t K = settings.num_slots;
+    m.sets.resize(items);
+    m.sigs.resize(items * K);
+    std::vector<std::pair<uint64_t, uint32_t>> band_entries, prefix_entries;
+    std::vector<uint64_t> keys(m.banding.bands);
+    for (uint32_t i = 0; i < items; ++i) {
+      m.sets[i] = sketch::Shingles(gram_text[i], m.shingle);
+      auto sig = sketch::Sign(m.sets[i], m.minhash);
+      std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
+      sketch::Compact(sig, compact);
+      if (settings.jaccard > 0) {
+        sketch::BandKeys(compact, m.banding, kBandSeed, keys);
+        for (uint64_t k : keys) band_entries.emplace_back(k, i);
+      }
+      const size_t s = m.sets[i].size();
+      if (settings.containment > 0 && s >= settings.min_eval_shingles) {
+        // Prefix filter: containment >= c needs ceil(c*s) shared shingles, so
+        // one of any s - ceil(c*s) + 1 of them; index the smallest hashes.
+        size_t need = static_cast<size_t>(std::ceil(settings.containment * static_cast<double>(s) - 1e-9));
+        need = std::max<size_t>(need, 1);
+        size_t p = s - need + 1;
+        for (size_t q = 0; q < p; ++q) prefix_entries.emplace_back(m.sets[i][q], i);
+      }
+    }
+    m.bands.Build(std::move(band_entries));
+    m.prefixes.Build(std::move(prefix_entries));
+  }
+  if (settings.enabled[3]) {
+    std::vector<std::string> ref_text;
+    std::vector<std::pair<uint64_t, uint32_t>> e;
+    for (uint32_t i = 0; i < items; ++i) {
+      if (corpus.items[i].reference.empty()) continue;
+      uint32_t r = static_cast<uint32_t>(m.ref_items.size());
+      m.ref_items.push_back(i);
+      m.ref_hash.push_back(HashBytes(NormalizeForMatch(corpus.items[i].reference, norm)));
+      e.emplace_back(m.ref_hash.back().lo, r);
+      ref_text.push_back(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
+    }
+    m.ref_exact.Build(std::move(e));
+    m.ref_ngram = std::make_unique<NgramIndex>(ref_text, no);
+  }
+  return idx;
+}
+
+void LeakIndex::CheckPrompt(std::string_view prompt, bool all_items, std::vector<LeakFinding>* out) const {
+  const Impl& m = *impl_;
+  const LeakSettings& s = settings_;
+  std::string exact_text = NormalizeForMatch(prompt, norm_);
+  std::string gram_store;
+  if (!m.same_norm) gram_store = NormalizeForMatch(prompt, m.gram_norm);
+  const std::string& gram_text = m.same_norm ? exact_text : gram_store;
+  if (s.enabled[0]) {
+    Hash128 h = HashBytes(exact_text);
+    for (uint32_t item : m.exact.Find(h.lo)) {
+      if (m.prompt_hash[item] != h) continue;
+      LeakFinding f;
+      f.detector = LeakDetector::kExact;
+      f.item = item;
+      f.measure = "normalised_text";
+      auto words = sketch::Words(exact_text);
+      f.span = JoinWords(words, 0, words.size(), s.max_span_words);
+      out->push_back(std::move(f));
+      if (!all_items) break;
+    }
+  }
+  if (s.enabled[1]) {
+    std::vector<NgramHit> hits;
+    if (all_items) {
+      hits = m.ngram->MatchAll(gram_text);
+    } else {
+      NgramHit h;
+      if (m.ngram->MatchBest(gram_text, &h)) hits.push_back(h);
+    }
+    if (!hits.empty()) {
+      auto words = sketch::Words(gram_text);
+      for (const auto& h : hits) {
+        LeakFinding f;
+        f.detector = LeakDetector::kNgram;
+        f.item = h.item;
+        f.score = static_cast<float>(h.shared);
+        f.shared = h.shared;
+        f.measure = h.short_item ? "whole_item" : "ngram";
+        f.span = JoinWords(words, h.start_word, h.words, s.max_span_words);
+        out->push_back(std::move(f));
+      }
+    }
+  }
+  if (s.enabled[2]) {
+    thread_local std::vector<uint64_t> ordered;
+    ordered.clear();
+    sketch::AppendShingles(gram_text, m.shingle, &ordered);
+    std::vector<uint64_t> set(ordered);
+    std::sort(set.begin(), set.end());
+    set.erase(std::unique(set.begin(), set.end()), set.end());
+    const uint32_t K = s.num_slots;
+    std::vector<uint32_t> cand;
+    std::vector<uint8_t> sig(K);
+    if (s.jaccard > 0) {
+      sketch::Compact(sketch::Sign(set, m.minhash), sig);
+      std::vector<uint64_t> keys(m.banding.bands);
+      sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      for (uint64_t k : keys) {
+        for (uint32_t item : m.bands.Find(k)) cand.push_back(item);
+      }
+    }
+    if (s.containment > 0) {
+      for (uint64_t g : set) {
+        for (uint32_t item : m.prefixes.Find(g)) cand.push_back(item);
+      }
+    }
+    std::sort(cand.begin(), cand.end());
+    cand.erase(std::unique(cand.begin(), cand.end()), cand.end());
+    std::vector<LeakFinding> found;
+    for (uint32_t item : cand) {
+      const auto& e = m.sets[item];
+      double j = 0, c = 0;
+      bool jok = false, cok = false;
+      if (s.jaccard > 0) {
+        j = sketch::EstimateJaccardCompact(sig, std::span<const uint8_t>(m.sigs.data() + size_t(item) * K, K));
+        jok = j >= s.jaccard;
+      }
+      if (s.containment > 0 && e.size() >= s.min_eval_shingles) {
+        size_t need = static_cast<size_t>(std::ceil(s.containment * static_cast<double>(e.size()) - 1e-9));
+        need = std::max<size_t>(need, 1);
+        uint64_t inter = sketch::IntersectionSize(e, set);
+        c = static_cast<double>(inter) / static_cast<double>(e.size());
+        cok = inter >= need;
+      }
+      if (!jok && !cok) continue;
+      LeakFinding f;
+      f.detector = LeakDetector::kNear;
+      f.item = item;
+      f.measure = jok ? "jaccard" : "containment";
+      f.score = static_cast<float>(jok ? j : c);
+      found.push_back(std::move(f));
+    }
+    if (!all_items && found.size() > 1) {
+      size_t best = 0;
+      for (size_t i = 1; i < found.size(); ++i) {
+        if (found[i].score > found[best].score) best = i;
+      }
+      found = {found[best]};
+    }
+    if (!found.empty()) {
+      // Span: the longest run of consecutive training shingles that are in the item's set.
+      auto words = sketch::Words(gram_text);
+      bool chars = sketch::ResolveMode(gram_text, m.shingle) == sketch::ShingleMode::kChars;
+      for (auto& f : found) {
+        const auto& e = m.sets[f.item];
+        size_t best_start = 0, best_len = 0, run = 0;
+        for (size_t p = 0; p < ordered.size(); ++p) {
+          run = std::binary_search(e.begin(), e.end(), ordered[p]) ? run + 1 : 0;
+          if (run > best_len) {
+            best_len = run;
+            best_start = p + 1 - run;
+          }
+        }
+        if (best_len == 0) continue;
+        if (chars) {
+          auto cps = sketch::DecodeUtf8(gram_text);
+          size_t len = std::min<size_t>(best_len + static_cast<size_t>(m.shingle.char_n) - 1, 2 * s.max_span_words);
+          std::string span;
+          for (size_t q = best_start; q < std::min(cps.size(), best_start + len); ++q) {
+            char32_t cp = cps[q];
+            if (cp < 0x80) span.push_back(static_cast<char>(cp));
+            else if (cp < 0x800) { span.push_back(char(0xC0 | (cp >> 6))); span.push_back(char(0x80 | (cp & 0x3F))); }
+            else if (cp < 0x10000) {
+              span.push_back(char(0xE0 | (cp >> 12)));
+              span.push_back(char(0x80 | ((cp >> 6) & 0x3F)));
+              span.push_back(char(0x80 | (cp & 0x3F)));
+            } else {
+              span.push_back(char(0xF0 | (cp >> 18)));
+              span.push_back(char(0x80 | ((cp >> 12) & 0x3F)));
+              span.push_back(char(0x80 | ((cp >> 6) & 0x3F)));
+              span.push_back(char(0x80 | (cp & 0x3F)));
+            }
+          }
+          f.span = std::move(span);
+        } else {
+          f.span = JoinWords(words, best_start, best_len + static_cast<size_t>(m.shingle.word_n) - 1, s.max_span_words);
+        }
+      }
+      for (auto& f : found) out->push_back(std::move(f));
+    }
+  }
+}
+
+void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const {
+  const Impl& m = *impl_;
+  if (!settings_.enabled[3] || m.ref_items.empty()) return;
+  std::string exact_text = NormalizeForMatch(answer, norm_);
+  Hash128 h = HashBytes(exact_text);
+  for (uint32_t r : m.ref_exact.Find(h.lo)) {
+    if (m.ref_hash[r] != h) continue;
+    LeakFinding f;
+    f.detector = LeakDetector::kAnswer;
+    f.item = m.ref_items[r];
+    f.measure = "exact";
+    f.candidate = candidate;
+    auto words = sketch::Words(exact_text);
+    f.span = JoinWords(words, 0, words.size(), settings_.max_span_words);
+    out->push_back(std::move(f));
+    return;
+  }
+  std::string gram_text = m.same_norm ? exact_text : NormalizeForMatch(answer, m.gram_norm);
+  NgramHit hit;
+  if (!m.ref_ngram->MatchBest(gram_text, &hit)) return;
+  LeakFinding f;
+  f.detector = LeakDetector::kAnswer;
+  f.item = m.ref_items[hit.item];
+  f.measure = hit.short_item ? "whole_item" : "ngram";
+  f.score = static_cast<float>(hit.shared);
+  f.shared = hit.shared;
+  f.candidate = candidate;
+  auto words = sketch::Words(gram_text);
+  f.span = JoinWords(words, hit.start_word, hit.words, settings_.max_span_words);
+  out->push_back(std::move(f));
+}
+
+}  // namespace prefsift

@@ -1,0 +1,109 @@
+// LeakIndex: the evaluation sets indexed for the three leakage detectors, and
+// the settings that configure them (plan "stages": {"leakage": {...}}).
+//
+//   exact  the normalised prompt (core/normalize.h, the plan's options) hashes
+//          (XXH3-128) to the same value as an evaluation prompt;
+//   ngram  a shared word n-gram (stages/ngram_overlap.h, Brown et al. 2020),
+//          on text normalised with punctuation removed by default;
+//   near   MinHash Jaccard estimate >= "jaccard", found by LSH banding over
+//          the evaluation signatures (sketch/), or containment of the
+//          evaluation item's shingle set in the training prompt's >=
+//          "containment", found exactly by a prefix filter over the
+//          evaluation shingle sets and verified with sketch::Containment.
+//   answers (optional) a candidate answer equal to, or sharing an n-gram
+//          with, an evaluation set's reference answer.
+// docs/leakage.md gives the method, sources and defaults.
+//
+// Thread-safety: immutable after Build; Check* may run concurrently.
+#pragma once
+
+#include <nlohmann/json_fwd.hpp>
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "core/normalize.h"
+#include "core/status.h"
+#include "stages/eval_index.h"
+
+namespace prefsift {
+
+enum class LeakDetector : uint8_t { kExact = 0, kNgram = 1, kNear = 2, kAnswer = 3 };
+inline constexpr int kLeakDetectors = 4;
+const char* LeakDetectorName(LeakDetector d);  // "exact", "ngram", "near", "answer"
+
+enum class LeakPolicy { kDrop, kFlag };
+
+struct LeakSettings {
+  std::vector<EvalSetSpec> eval_sets;
+  bool enabled[kLeakDetectors] = {true, true, true, false};
+  LeakPolicy policy[kLeakDetectors] = {LeakPolicy::kDrop, LeakPolicy::kDrop, LeakPolicy::kDrop, LeakPolicy::kDrop};
+  // ngram (also used for answers)
+  int ngram_n = 13;            // 0 = "auto" (AutoNgramLength over the evaluation prompts)
+  int min_eval_words = 3;
+  uint32_t min_shared = 1;
+  bool strip_punctuation = true;
+  // near
+  double jaccard = 0.8;        // 0 disables the Jaccard test
+  double containment = 0.8;    // 0 disables the containment test
+  int shingle_words = 5;
+  uint32_t num_slots = 128;
+  uint32_t min_eval_shingles = 4;
+  // report
+  uint32_t examples = 3;       // examples per set and detector in summary.json
+  uint32_t max_span_words = 20;
+};
+
+// Parses a "leakage" settings object. `require_eval_sets`: the stage needs at
+// least one set; the split audit ignores "eval_sets". Usage errors name
+// `where` and the key.
+Result<LeakSettings> ParseLeakSettings(const nlohmann::ordered_json& j, const std::string& base_dir,
+                                       const std::string& where, bool require_eval_sets);
+
+// The settings as JSON, for summary.json.
+void LeakSettingsToJson(const LeakSettings& s, int resolved_n, nlohmann::ordered_json* out);
+
+struct LeakFinding {
+  LeakDetector detector = LeakDetector::kExact;
+  uint32_t item = 0;          // index into EvalCorpus::items
+  float score = 1;            // exact 1; ngram: shared grams; near: the similarity
+  uint32_t shared = 0;        // ngram: distinct shared grams
+  const char* measure = "";   // near: "jaccard" or "containment"; ngram: "ngram" or "whole_item"
+  int candidate = -1;         // answers: candidate index
+  std::string span;           // a few matching words (normalised), at most max_span_words
+};
+
+class LeakIndex {
+ public:
+  // Indexes `corpus` (which must outlive the index). `norm` is the plan's
+  // normalisation, used by the exact detector.
+  static Result<std::unique_ptr<LeakIndex>> Build(const EvalCorpus& corpus, const LeakSettings& settings,
+                                                  const NormalizeOptions& norm);
+  ~LeakIndex();
+
+  // Findings for one training prompt: per enabled detector, the best item, or
+  // with `all_items` every matching item. Appends to *out in detector order.
+  void CheckPrompt(std::string_view prompt, bool all_items, std::vector<LeakFinding>* out) const;
+  // Findings for one candidate answer against the reference answers (exact,
+  // then n-gram); at most one finding.
+  void CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const;
+
+  const EvalCorpus& corpus() const { return corpus_; }
+  const LeakSettings& settings() const { return settings_; }
+  int ngram_n() const;             // the n in use (after "auto")
+  uint64_t ngram_entries() const;
+  uint64_t references() const;     // evaluation items with a reference answer
+
+ private:
+  LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm);
+  struct Impl;
+  const EvalCorpus& corpus_;
+  LeakSettings settings_;
+  NormalizeOptions norm_;
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace prefsift

@@ -1,0 +1,483 @@
+// Tests of the leakage stage and its parts: eval-set loading, the n-gram
+// detector (worked examples, the short-example rule, a differential test
+// against a brute-force reference), the near-duplicate detector (Jaccard and
+// the embedded/containment case), the stage in the pipeline and the split audit.
+//
+// Sources: Brown et al. 2020, "Language Models are Few-Shot Learners",
+// arXiv:2005.14165, appendix C: 13-gram overlap filter [S]; the overlap study's
+// N = 5th-percentile length clamped to [8, 13] and "an example shorter than N
+// must match whole" are (from memory, unverified) -- see docs/leakage.md.
+#include <gtest/gtest.h>
+
+#include <map>
+#include <random>
+#include <set>
+#include <unordered_set>
+
+#include "io/file_system.h"
+#include "run_helpers.h"
+#include "stages/eval_index.h"
+#include "stages/leak_index.h"
+#include "stages/ngram_overlap.h"
+#include "stages/split_audit.h"
+
+namespace prefsift {
+namespace {
+
+using namespace prefsift::testing;  // NOLINT
+using Json = nlohmann::ordered_json;
+
+std::vector<std::string> Split(const std::string& s) {
+  std::vector<std::string> w;
+  std::string cur;
+  for (char c : s) {
+    if (c == ' ') {
+      if (!cur.empty()) w.push_back(cur);
+      cur.clear();
+    } else {
+      cur.push_back(c);
+    }
+  }
+  if (!cur.empty()) w.push_back(cur);
+  return w;
+}
+
+std::string Join(const std::vector<std::string>& w, size_t from, size_t n) {
+  std::string s;
+  for (size_t i = from; i < from + n && i < w.size(); ++i) s += (i > from ? " " : "") + w[i];
+  return s;
+}
+
+// A 20-word evaluation prompt (already normalised).
+const std::string kEval20 =
+    "what is the best way to store saved bean seed over winter so that it still germinates well next spring";
+
+TEST(NgramOverlap, ThirteenGramWorkedExample) {
+  // Brown et al. 2020 App. C [S]: dirty when a 13-gram of words is shared.
+  std::vector<std::string> eval{kEval20};
+  NgramOptions o;  // n = 13
+  NgramIndex idx(eval, o);
+  auto w = Split(kEval20);
+  ASSERT_EQ(w.size(), 20u);
+  // Words 3..15 (13 words) inside other text: dirty, and the span is exactly those words.
+  std::string t13 = "my aunt asked me " + Join(w, 3, 13) + " and i had no idea";
+  NgramHit hit;
+  ASSERT_TRUE(idx.MatchBest(t13, &hit));
+  EXPECT_EQ(hit.item, 0u);
+  EXPECT_EQ(hit.shared, 1u);
+  EXPECT_EQ(hit.words, 13u);
+  EXPECT_EQ(hit.start_word, 4u);
+  EXPECT_FALSE(hit.short_item);
+  // Only 12 consecutive words: clean.
+  std::string t12 = "my aunt asked me " + Join(w, 3, 12) + " and i had no idea";
+  EXPECT_FALSE(idx.MatchBest(t12, &hit));
+  // Two 12-word pieces of the item separated by another word: still clean.
+  EXPECT_FALSE(idx.MatchBest(Join(w, 0, 12) + " banana " + Join(w, 8, 12), &hit));
+  // The whole item: 20 - 13 + 1 = 8 distinct shared 13-grams.
+  ASSERT_TRUE(idx.MatchBest(kEval20, &hit));
+  EXPECT_EQ(hit.shared, 8u);
+}
+
+TEST(NgramOverlap, MinSharedThreshold) {
+  std::vector<std::string> eval{kEval20};
+  NgramOptions o;
+  o.min_shared = 2;
+  NgramIndex idx(eval, o);
+  auto w = Split(kEval20);
+  NgramHit hit;
+  EXPECT_FALSE(idx.MatchBest("x " + Join(w, 0, 13) + " y", &hit));  // one 13-gram
+  EXPECT_TRUE(idx.MatchBest("x " + Join(w, 0, 14) + " y", &hit));   // two 13-grams
+  EXPECT_EQ(hit.shared, 2u);
+}
+
+TEST(NgramOverlap, ShortExampleRule) {
+  // (from memory, unverified) An evaluation item shorter than N words is dirty
+  // only when the whole item appears, contiguously and in order.
+  std::vector<std::string> eval{"how do i save tomato seed", "hello there", kEval20};
+  NgramOptions o;  // n = 13, min_eval_words = 3 (our choice)
+  NgramIndex idx(eval, o);
+  EXPECT_EQ(idx.short_items(), 1u);
+  EXPECT_EQ(idx.skipped_items(), 1u);  // "hello there": 2 words < min_eval_words
+  NgramHit hit;
+  ASSERT_TRUE(idx.MatchBest("please tell me how do i save tomato seed at home", &hit));
+  EXPECT_EQ(hit.item, 0u);
+  EXPECT_TRUE(hit.short_item);
+  EXPECT_EQ(hit.start_word, 3u);
+  EXPECT_EQ(hit.words, 6u);
+  EXPECT_FALSE(idx.MatchBest("how do i save seed from a tomato", &hit));   // all words, not contiguous
+  EXPECT_FALSE(idx.MatchBest("how do i save tomato", &hit));               // part of the item
+  EXPECT_TRUE(idx.MatchBest("how do i save tomato seed", &hit));           // the item itself
+  EXPECT_FALSE(idx.MatchBest("hello there friend", &hit));                 // skipped item
+  NgramOptions all = o;
+  all.min_eval_words = 1;  // the rule as written, without our lower bound
+  NgramIndex idx1(eval, all);
+  EXPECT_TRUE(idx1.MatchBest("hello there friend", &hit));
+}
+
+TEST(NgramOverlap, AutoLength) {
+  // methods.md sec. 4 (from memory, unverified): 5th percentile 6 -> N = 8; 20 -> N = 13.
+  std::vector<uint32_t> a(100, 30);
+  for (int i = 0; i < 5; ++i) a[i] = 6;
+  EXPECT_EQ(AutoNgramLength(a), 8);
+  std::vector<uint32_t> b(100, 40);
+  for (int i = 0; i < 5; ++i) b[i] = 20;
+  EXPECT_EQ(AutoNgramLength(b), 13);
+  std::vector<uint32_t> c(100, 10);
+  EXPECT_EQ(AutoNgramLength(c), 10);
+  EXPECT_EQ(AutoNgramLength({}), 13);
+}
+
+// Differential test: NgramIndex against a brute-force reference that compares
+// every training prompt with every evaluation prompt by exact intersection of
+// their n-gram sets (as word strings, no hashing), with the short-example rule.
+TEST(NgramOverlap, MatchesBruteForceReference) {
+  std::mt19937_64 rng(20260401);
+  std::vector<std::string> vocab;
+  for (int i = 0; i < 40; ++i) vocab.push_back("w" + std::to_string(i));
+  auto word = [&] { return vocab[rng() % vocab.size()]; };
+  std::vector<std::vector<std::string>> eval(300);
+  for (auto& e : eval) {
+    size_t len = 1 + rng() % 14;  // 1..14 words: long and short items
+    for (size_t i = 0; i < len; ++i) e.push_back(word());
+  }
+  std::vector<std::vector<std::string>> train(3000);
+  for (auto& t : train) {
+    size_t pieces = 1 + rng() % 4;
+    for (size_t p = 0; p < pieces; ++p) {
+      for (size_t i = rng() % 4; i > 0; --i) t.push_back(word());
+      const auto& e = eval[rng() % eval.size()];  // a fragment of an evaluation item, 1..8 words
+      size_t len = std::min<size_t>(e.size(), 1 + rng() % 8);
+      size_t from = rng() % (e.size() - len + 1);
+      t.insert(t.end(), e.begin() + from, e.begin() + from + len);
+    }
+  }
+  for (int n : {5, 8}) {
+    for (uint32_t min_shared : {1u, 2u}) {
+      NgramOptions o;
+      o.n = n;
+      o.min_eval_words = 2;
+      o.min_shared = min_shared;
+      std::vector<std::string> eval_text;
+      for (auto& e : eval) eval_text.push_back(Join(e, 0, e.size()));
+      NgramIndex idx(eval_text, o);
+      auto grams = [](const std::vector<std::string>& w, size_t k) {
+        std::set<std::string> g;
+        for (size_t i = 0; i + k <= w.size(); ++i) g.insert(Join(w, i, k));
+        return g;
+      };
+      std::vector<std::set<std::string>> eval_grams;
+      for (auto& e : eval) eval_grams.push_back(e.size() >= size_t(n) ? grams(e, n) : std::set<std::string>{});
+      uint64_t dirty_pairs = 0, short_pairs = 0;
+      for (const auto& t : train) {
+        std::set<std::string> tg = grams(t, n);
+        std::unordered_set<std::string> tt(tg.begin(), tg.end());
+        std::string tjoined = " " + Join(t, 0, t.size()) + " ";
+        std::vector<uint32_t> want;
+        for (uint32_t i = 0; i < eval.size(); ++i) {
+          const auto& e = eval[i];
+          if (e.size() < size_t(o.min_eval_words)) continue;
+          if (e.size() < size_t(n)) {
+            if (tjoined.find(" " + Join(e, 0, e.size()) + " ") != std::string::npos) {
+              want.push_back(i);
+              ++short_pairs;
+            }
+            continue;
+          }
+          uint32_t shared = 0;
+          for (const auto& g : eval_grams[i]) shared += tt.count(g);
+          if (shared >= min_shared) want.push_back(i);
+        }
+        std::vector<uint32_t> got;
+        for (const auto& h : idx.MatchAll(Join(t, 0, t.size()))) got.push_back(h.item);
+        ASSERT_EQ(got, want) << "n=" << n << " training prompt: " << Join(t, 0, t.size());
+        dirty_pairs += want.size();
+      }
+      // The generator must produce both kinds of verdict in quantity.
+      EXPECT_GT(dirty_pairs, 1000u) << "n=" << n;
+      EXPECT_GT(short_pairs, 500u) << "n=" << n;
+    }
+  }
+}
+
+struct Fixture {
+  EvalCorpus corpus;
+  std::unique_ptr<LeakIndex> index;
+};
+
+Fixture MakeIndex(const std::vector<std::string>& prompts, LeakSettings s, std::vector<std::string> refs = {}) {
+  Fixture f;
+  f.corpus.sets.push_back(EvalSetInfo{});
+  f.corpus.sets[0].spec.name = "t";
+  for (size_t i = 0; i < prompts.size(); ++i) {
+    EvalItem it;
+    it.id = std::to_string(i + 1);
+    it.text = prompts[i];
+    if (i < refs.size()) it.reference = refs[i];
+    f.corpus.items.push_back(it);
+  }
+  auto idx = LeakIndex::Build(f.corpus, s, NormalizeOptions{});
+  EXPECT_TRUE(idx.ok()) << idx.status().message();
+  f.index = std::move(idx).value();
+  return f;
+}
+
+std::string Words(int n, int offset) {
+  // n distinct made-up words (no repeats, so every shingle is distinct).
+  std::string s;
+  for (int i = 0; i < n; ++i) s += (i ? " " : "") + std::string("word") + std::to_string(offset + i);
+  return s;
+}
+
+TEST(LeakIndex, ExactAfterNormalisation) {
+  LeakSettings s;
+  s.enabled[1] = s.enabled[2] = false;
+  auto f = MakeIndex({"What is the best compost for seedlings?"}, s);
+  std::vector<LeakFinding> out;
+  f.index->CheckPrompt("  WHAT is the   best compost for seedlings?\n", false, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].detector, LeakDetector::kExact);
+  out.clear();
+  f.index->CheckPrompt("What is the best compost for seedlings", false, &out);  // punctuation differs
+  EXPECT_TRUE(out.empty());
+}
+
+TEST(LeakIndex, NgramIgnoresPunctuationAndCase) {
+  LeakSettings s;
+  s.enabled[0] = s.enabled[2] = false;
+  auto f = MakeIndex({kEval20}, s);
+  std::vector<LeakFinding> out;
+  f.index->CheckPrompt("Q: What is the BEST way to store saved bean-seed, over winter... so that it still?", false, &out);
+  // "bean-seed" loses its hyphen ("beanseed"), so the 13 words up to "bean" plus ... must still give one 13-gram:
+  // "what is the best way to store saved beanseed over winter so that" differs; check the plain case instead.
+  out.clear();
+  f.index->CheckPrompt("Q: What is the BEST way to store saved bean seed, over winter... so that it still?", false, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].detector, LeakDetector::kNgram);
+  EXPECT_EQ(std::string(out[0].span), "what is the best way to store saved bean seed over winter so");
+}
+
+TEST(LeakIndex, NearJaccardAndEmbeddedContainment) {
+  LeakSettings s;
+  s.enabled[0] = s.enabled[1] = false;  // near only
+  const std::string eval = Words(80, 0);
+  auto f = MakeIndex({eval, Words(30, 1000)}, s);
+  // One word replaced in an 80-word item: 5-gram Jaccard (76-5)/(76+5) = 0.877 >= 0.8.
+  std::string edited = eval;
+  edited.replace(edited.find("word40 "), 7, "other ");
+  std::vector<LeakFinding> out;
+  f.index->CheckPrompt(edited, false, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].item, 0u);
+  EXPECT_STREQ(out[0].measure, "jaccard");
+  EXPECT_NEAR(out[0].score, 0.877, 0.12);  // MinHash estimate, K = 128
+  EXPECT_EQ(out[0].span, Join(Split(eval), 0, 20));  // the longest shared run, capped at 20 words
+  // Embedded: the 30-word item inside 200 words of other text. Jaccard 26/(26+196+...) is small,
+  // containment of the item's shingles is 1.
+  std::string embedded = Words(100, 5000) + " " + Words(30, 1000) + " " + Words(100, 7000);
+  out.clear();
+  f.index->CheckPrompt(embedded, false, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].item, 1u);
+  EXPECT_STREQ(out[0].measure, "containment");
+  EXPECT_FLOAT_EQ(out[0].score, 1.0f);
+  // Half of the item embedded: containment 11/26 < 0.8, clean.
+  out.clear();
+  f.index->CheckPrompt(Words(100, 5000) + " " + Words(15, 1000), false, &out);
+  EXPECT_TRUE(out.empty());
+}
+
+TEST(LeakIndex, ContainmentPrefixFilterIsExact) {
+  // Every eval item whose shingles are >= 80% contained must be found (the
+  // prefix filter may not lose any): sweep the contained share.
+  LeakSettings s;
+  s.enabled[0] = s.enabled[1] = false;
+  s.jaccard = 0;  // containment only
+  auto f = MakeIndex({Words(44, 0)}, s);  // 40 shingles
+  for (int keep = 20; keep <= 44; ++keep) {
+    std::string t = Words(50, 9000) + " " + Words(keep, 0);
+    std::vector<LeakFinding> out;
+    f.index->CheckPrompt(t, false, &out);
+    int shingles = keep - 4;  // shared 5-grams
+    bool want = shingles >= 32;   // ceil(0.8 * 40)
+    EXPECT_EQ(!out.empty(), want) << "keep " << keep;
+  }
+}
+
+TEST(LeakIndex, ReferenceAnswers) {
+  LeakSettings s;
+  s.enabled[3] = true;
+  auto f = MakeIndex({"how deep should i sow broad beans"}, s, {kEval20});
+  std::vector<LeakFinding> out;
+  f.index->CheckAnswer(kEval20 + " thanks", 1, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].detector, LeakDetector::kAnswer);
+  EXPECT_EQ(out[0].candidate, 1);
+  EXPECT_STREQ(out[0].measure, "ngram");
+  out.clear();
+  f.index->CheckAnswer(kEval20, 0, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_STREQ(out[0].measure, "exact");
+}
+
+TEST(EvalSets, FormatsAndErrors) {
+  std::string txt = WriteFile("leak_eval.txt", "first prompt here\n\nthird line prompt\n");
+  std::string jl = WriteFile("leak_eval.jsonl",
+                             R"({"q":{"text":"a question"},"ans":"an answer","qid":"e-1"})" "\n"
+                             R"({"q":{"text":"another question"},"qid":7})" "\n");
+  auto specs = ParseEvalSetSpecs(
+      Json::parse(R"([{"name":"a","path":")" + txt + R"("},
+                      {"name":"b","path":")" + jl + R"(","text":"/q/text","reference":"/ans","id":"/qid"}])"),
+      "", "stages.leakage.eval_sets");
+  ASSERT_TRUE(specs.ok()) << specs.status().message();
+  auto c = LoadEvalSets(specs.value(), DefaultFileSystem(), InputLimits{});
+  ASSERT_TRUE(c.ok()) << c.status().message();
+  ASSERT_EQ(c.value().items.size(), 4u);
+  EXPECT_EQ(c.value().items[1].id, "3");  // text: the line number, blank lines counted
+  EXPECT_EQ(c.value().items[2].id, "e-1");
+  EXPECT_EQ(c.value().items[2].reference, "an answer");
+  EXPECT_EQ(c.value().items[3].id, "7");
+  EXPECT_EQ(c.value().sets[1].with_reference, 1u);
+  // Errors.
+  auto bad = ParseEvalSetSpecs(Json::parse(R"([{"name":"a","path":"x.jsonl"}])"), "", "w");
+  EXPECT_FALSE(bad.ok());
+  EXPECT_NE(bad.status().message().find("w[0].format"), std::string::npos);
+  auto unknown = ParseEvalSetSpecs(Json::parse(R"([{"name":"a","path":"x.txt","colour":"red"}])"), "", "w");
+  EXPECT_NE(unknown.status().message().find("colour"), std::string::npos);
+  auto missing = ParseEvalSetSpecs(Json::parse(R"([{"name":"gone","path":"/nonexistent/eval.txt"}])"), "", "w");
+  ASSERT_TRUE(missing.ok());
+  auto load = LoadEvalSets(missing.value(), DefaultFileSystem(), InputLimits{});
+  ASSERT_FALSE(load.ok());
+  EXPECT_EQ(load.status().code(), StatusCode::kInput);
+  EXPECT_NE(load.status().message().find("/nonexistent/eval.txt"), std::string::npos);
+}
+
+Result<RunOutcome> RunLeakage(Plan plan) {
+  PipelineOptions o;
+  o.stages = {"leakage"};
+  o.table = false;
+  return RunPipeline(plan, o, DefaultFileSystem(), stderr);
+}
+
+std::string Rec(const std::string& id, const std::string& prompt, const std::string& a = "yes", const std::string& b = "no") {
+  return Json{{"id", id}, {"prompt", prompt}, {"candidates", {a, b}}, {"choice", 0}}.dump() + "\n";
+}
+
+TEST(LeakageStage, DropFlagAndReport) {
+  std::string eval = WriteFile("leak_stage_eval.txt", kEval20 + "\n" + Words(30, 1000) + "\n");
+  std::string in = WriteFile("leak_stage_in.jsonl",
+                             Rec("verbatim", "What is the best way to store saved bean seed over winter so that it "
+                                             "still germinates well next spring") +
+                                 Rec("embedded", Words(100, 5000) + " " + Words(30, 1000)) +
+                                 Rec("clean", "How deep should I sow broad beans in a cold clay soil?"));
+  std::string out = TempPath("leak_stage_out");
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
+  plan.stages["leakage"] =
+      Json{{"eval_sets", {{{"name", "held"}, {"path", eval}}}}, {"ngram", "flag"}, {"near", "flag"}};
+  auto r = RunLeakage(plan);
+  ASSERT_TRUE(r.ok()) << r.status().message();
+  std::map<std::string, Json> rejects;
+  for (const auto& j : ReadJsonl(out + "/rejects.jsonl")) rejects[j["id"].get<std::string>()] = j;
+  ASSERT_EQ(rejects.size(), 1u);
+  EXPECT_EQ(rejects["verbatim"]["reason"], "eval_leak_exact");
+  EXPECT_EQ(rejects["verbatim"]["detail"]["eval_set"], "held");
+  EXPECT_EQ(rejects["verbatim"]["detail"]["eval_item"], "1");
+  auto report = ReadJsonl(out + "/leakage.jsonl");
+  ASSERT_EQ(report.size(), 2u);
+  EXPECT_EQ(report[0]["id"], "verbatim");
+  EXPECT_EQ(report[0]["action"], "dropped");
+  EXPECT_EQ(report[1]["id"], "embedded");
+  EXPECT_EQ(report[1]["action"], "flagged");   // n-gram and near fire, both with policy "flag"
+  bool has_near = false;
+  for (const auto& m : report[1]["matches"]) has_near = has_near || m["detector"] == "near";
+  EXPECT_TRUE(has_near);
+  auto summary = Json::parse(ReadFile(out + "/summary.json"));
+  const Json& sec = summary["stages"]["leakage"];
+  EXPECT_EQ(sec["contaminated_records"], 2);
+  EXPECT_EQ(sec["by_set"]["held"]["exact"]["records"], 1);
+  EXPECT_EQ(sec["by_set"]["held"]["exact"]["examples"][0]["id"], "verbatim");
+}
+
+TEST(LeakageStage, NgramDropWhenNearFlags) {
+  // The embedded record also shares 13-grams: with ngram "drop" it is rejected as eval_leak_ngram.
+  std::string eval = WriteFile("leak_stage_eval2.txt", Words(30, 1000) + "\n");
+  std::string in = WriteFile("leak_stage_in2.jsonl", Rec("embedded", Words(100, 5000) + " " + Words(30, 1000)));
+  std::string out = TempPath("leak_stage_out2");
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
+  plan.stages["leakage"] = Json{{"eval_sets", {{{"name", "held"}, {"path", eval}}}}, {"near", "flag"}};
+  ASSERT_TRUE(RunLeakage(plan).ok());
+  auto rejects = ReadJsonl(out + "/rejects.jsonl");
+  ASSERT_EQ(rejects.size(), 1u);
+  EXPECT_EQ(rejects[0]["reason"], "eval_leak_ngram");
+}
+
+TEST(LeakageStage, SettingsErrors) {
+  std::string in = WriteFile("leak_stage_in3.jsonl", Rec("a", "hello"));
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("leak_stage_out3"));
+  plan.stages["leakage"] = Json{{"eval_sets", {{{"name", "x"}, {"path", "/nonexistent/e.txt"}}}}};
+  auto r = RunLeakage(plan);
+  ASSERT_FALSE(r.ok());
+  EXPECT_EQ(r.status().code(), StatusCode::kInput);
+  EXPECT_NE(r.status().message().find("/nonexistent/e.txt"), std::string::npos);
+  plan.stages["leakage"] = Json{{"eval_sets", Json::array()}, {"ngram", {{"size", 3}}}};
+  r = RunLeakage(plan);
+  ASSERT_FALSE(r.ok());
+  EXPECT_EQ(r.status().code(), StatusCode::kUsage);
+  plan.stages["leakage"] = Json{{"eval_sets", {{{"name", "x"}, {"path", "/e.txt"}}}}, {"ngram", {{"size", 3}}}};
+  r = RunLeakage(plan);
+  ASSERT_FALSE(r.ok());
+  EXPECT_NE(r.status().message().find("\"size\""), std::string::npos);
+  // Without eval sets the stage does nothing and says so.
+  plan.stages = Json::object();
+  r = RunLeakage(plan);
+  ASSERT_TRUE(r.ok()) << r.status().message();
+}
+
+TEST(SplitAudit, TwoHandMadeFiles) {
+  auto pw = [](const std::string& id, const std::string& prompt, const std::string& thread, const std::string& who) {
+    return Json{{"id", id}, {"prompt", prompt}, {"chosen", "good answer"}, {"rejected", "bad answer"},
+                {"thread", thread}, {"annotator", who}}.dump() + "\n";
+  };
+  std::string train = WriteFile("audit_train.jsonl",
+                                pw("t1", kEval20, "th-1", "ann-a") + pw("t2", Words(80, 0), "th-2", "ann-b") +
+                                    pw("t3", "how deep should i sow broad beans in cold clay", "th-3", "ann-c"));
+  std::string edited = Words(80, 0);
+  edited.replace(edited.find("word40 "), 7, "other ");
+  std::string held = WriteFile("audit_held.jsonl",
+                               pw("h1", "  What is the best way to store saved bean seed over winter so that it still "
+                                        "germinates well next spring", "th-9", "ann-a") +
+                                   pw("h2", edited, "th-8", "ann-z") + pw("h3", "where is the library", "th-3", "ann-y"));
+  AuditOptions o;
+  auto layout = LayoutFromJson(Json{{"preset", "pairwise"}, {"thread", "/thread"}, {"annotator", "/annotator"}}, "t");
+  ASSERT_TRUE(layout.ok()) << layout.status().message();
+  o.train_path = train;
+  o.heldout_paths = {held};
+  o.train_layout = layout.value();
+  o.heldout_layouts = {layout.value()};
+  o.by_annotator = true;
+  o.out = TempPath("audit_out");
+  o.overwrite = true;
+  auto r = RunSplitAudit(o, DefaultFileSystem());
+  ASSERT_TRUE(r.ok()) << r.status().message();
+  EXPECT_EQ(r.value().train_records, 3u);
+  EXPECT_EQ(r.value().heldout_with_twin, 2u);
+  EXPECT_EQ(r.value().by_detector[0], 1u);  // h1 is t1 after normalisation
+  EXPECT_EQ(r.value().shared_groups, 2u);   // thread th-3, annotator ann-a
+  EXPECT_TRUE(r.value().leak_found);
+  std::map<std::string, Json> twins;
+  std::set<std::string> groups;
+  for (const auto& j : ReadJsonl(o.out + "/audit.jsonl")) {
+    if (j["kind"] == "twin") twins[j["heldout_id"].get<std::string>()] = j;
+    else groups.insert(j["group_kind"].get<std::string>() + ":" + j["value"].get<std::string>());
+  }
+  ASSERT_EQ(twins.size(), 2u);
+  EXPECT_EQ(twins["h1"]["listed"][0]["train_id"], "t1");
+  EXPECT_EQ(twins["h2"]["listed"][0]["train_id"], "t2");
+  EXPECT_EQ(twins["h2"]["listed"][0]["detector"], "ngram");
+  EXPECT_EQ(groups, (std::set<std::string>{"annotator:ann-a", "thread:th-3"}));
+  auto summary = Json::parse(ReadFile(o.out + "/audit.json"));
+  EXPECT_EQ(summary["heldout_with_train_twin"], 2);
+  EXPECT_NE(r.value().table.find("LEAKAGE FOUND"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace prefsift
