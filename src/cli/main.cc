@@ -189,6 +189,7 @@ int main(int argc, char** argv) {
       {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
       {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
       {"leakage", "Train/evaluation leakage against the plan's evaluation sets only", {"leakage"}},
+      {"screen", "Personal-data screen only: find, mask, pseudonymise or drop (rule packs in rules/)", {"screen"}},
       {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"}},
   };
   std::vector<CommonOptions> options(commands.size());

@@ -18,6 +18,12 @@ struct Turn {
   std::string text;
 };
 
+// One string value found under the layout's metadata pointer.
+struct MetadataString {
+  std::string pointer;  // RFC 6901 JSON Pointer from the record's root, e.g. "/extra/contact"
+  std::string text;
+};
+
 struct Record {
   std::string id;
   bool prompt_is_chat = false;
@@ -29,6 +35,9 @@ struct Record {
   std::vector<int> ranks;                 // dense ranks, size B, 1 = best
   int chosen = -1;                        // the single best candidate, -1 when the top is tied
   std::optional<std::string> annotator, thread, source, timestamp, group;
+  // Every string value under the layout's metadata pointer (depth-first, file
+  // order), for stages that scan metadata text; empty without a metadata pointer.
+  std::vector<MetadataString> metadata;
 
   // The text used to match prompts: the plain prompt, or the user turns of a
   // chat joined by '\n' (all turns when there is no user turn).

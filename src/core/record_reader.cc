@@ -65,6 +65,42 @@ std::string Join(const std::string& base, const JsonPointer& rel) {
   return base + rel.text;
 }
 
+// RFC 6901 section 3: '~' -> "~0", '/' -> "~1".
+std::string EscapeToken(std::string_view key) {
+  std::string out;
+  for (char c : key) {
+    if (c == '~') out += "~0";
+    else if (c == '/') out += "~1";
+    else out.push_back(c);
+  }
+  return out;
+}
+
+// Collects every string value under `e` with its pointer (depth-first, file order).
+void CollectStrings(element e, const std::string& path, std::vector<MetadataString>* out) {
+  switch (e.type()) {
+    case element_type::STRING:
+      out->push_back({path, std::string(e.get_string().value_unsafe())});
+      break;
+    case element_type::ARRAY: {
+      size_t i = 0;
+      simdjson::dom::array arr = e.get_array().value_unsafe();  // bound first: no range-for over a temporary
+      for (element x : arr) CollectStrings(x, path + "/" + std::to_string(i++), out);
+      break;
+    }
+    case element_type::OBJECT:
+    {
+      simdjson::dom::object obj = e.get_object().value_unsafe();
+      for (auto field : obj) {
+        CollectStrings(field.value, path + "/" + EscapeToken(field.key), out);
+      }
+      break;
+    }
+    default:
+      break;
+  }
+}
+
 }  // namespace
 
 struct RecordReader::Impl {
@@ -362,6 +398,12 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
   if (!optional_scalar(L.source, L.has_source, &r.source)) return false;
   if (!optional_scalar(L.timestamp, L.has_timestamp, &r.timestamp)) return false;
   if (!optional_scalar(L.group, L.has_group, &r.group)) return false;
+  if (L.has_metadata) {
+    element e;
+    bool present = false;
+    if (!get(root, "", L.metadata, false, &e, &present)) return false;
+    if (present) CollectStrings(e, L.metadata.text, &r.metadata);
+  }
   *rec = std::move(r);
   return true;
 }

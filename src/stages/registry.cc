@@ -2,6 +2,7 @@
 #include "stages/exact_dups.h"
 #include "stages/leakage.h"
 #include "stages/near_dups.h"
+#include "stages/personal_data.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -11,6 +12,7 @@ const std::vector<StageInfo>& AllStages() {
       {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
       {"near", "near-duplicate prompts (MinHash + LSH clusters), near-identical candidates", &MakeNearDupsStage},
       {"leakage", "train/evaluation leakage: exact, word n-gram and near-duplicate matches of evaluation prompts", &MakeLeakageStage},
+      {"screen", "personal data and secrets (RE2 rule packs): flag, mask, pseudonymise or drop", &MakePersonalDataStage},
       {"bias", "position and length bias statistics, optional rebalancing, surface-feature shortcut audit", &MakeBiasStage},
   };
   return kStages;

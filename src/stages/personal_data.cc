@@ -1,0 +1,592 @@
+#include "stages/personal_data.h"
+
+#include <nlohmann/json.hpp>
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <atomic>
+#include <cmath>
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <mutex>
+#include <set>
+#include <sstream>
+
+#include "core/hash.h"
+#include "core/sha256.h"
+#include "io/output_dir.h"
+#include "screen/actions.h"
+#include "screen/rules.h"
+#include "screen/screener.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+namespace fs = std::filesystem;
+using screen::Action;
+using screen::FieldKind;
+
+constexpr const char* kStage = "screen";
+constexpr const char* kFindingsFile = "personal_data_findings.jsonl";
+
+// Where in a record a scanned string is.
+enum class Part : uint8_t { kPrompt = 0, kTurn = 1, kCandidate = 2, kMetadata = 3 };
+
+FieldKind KindOf(Part p) {
+  switch (p) {
+    case Part::kPrompt:
+    case Part::kTurn: return FieldKind::kPrompt;
+    case Part::kCandidate: return FieldKind::kCandidate;
+    case Part::kMetadata: return FieldKind::kMetadata;
+  }
+  return FieldKind::kPrompt;
+}
+
+// One finding as kept after Observe: the place and the span, never the text.
+struct Hit {
+  Part part = Part::kPrompt;
+  uint32_t index = 0;         // turn or candidate index; metadata: index of the string
+  uint32_t rule = 0;          // index into the rule list
+  uint32_t begin = 0, end = 0;
+  Action action = Action::kFlag;
+  float confidence = 0;
+  uint64_t text_hash = 0;     // XXH3 of the scanned string, checked again in Rewrite
+  std::string meta_pointer;   // metadata only: the pointer from the record's root
+  std::string preview;        // masked form (screen::MaskedPreview), never the value
+};
+
+struct RecordHits {
+  std::vector<Hit> hits;
+  bool drop = false;       // a finding with action drop
+  bool rewrite = false;    // a finding with action mask or pseudonymise, or drop
+};
+
+const char* const kCautions[] = {
+    "The screen is an aid, not a guarantee and not legal advice: rule packs find values with a recognisable shape "
+    "(e-mail addresses, phone numbers, card numbers, IBANs, national identifiers, network addresses, secrets) and "
+    "miss what does not have one.",
+    "Names, postal addresses and free-text health, religious or other sensitive details are not reliably found by "
+    "patterns; review samples by hand before release.",
+    "Which data may be kept, masked, pseudonymised or must be removed is decided by the data-protection law that "
+    "applies to the dataset and by the organisation's privacy officer, not by this tool.",
+    "Pseudonyms are keyed (HMAC-SHA256): whoever holds the key can test guesses against them; keep the key secret "
+    "and separate from the data."};
+
+std::string ReadWhole(const std::string& path, bool* ok) {
+  std::ifstream in(path, std::ios::binary);
+  *ok = static_cast<bool>(in);
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  return buf.str();
+}
+
+std::string Resolve(const std::string& base_dir, const std::string& p) {
+  if (p.empty() || base_dir.empty() || fs::path(p).is_absolute()) return p;
+  return (fs::path(base_dir) / p).string();
+}
+
+bool HasJsonFile(const fs::path& dir) {
+  std::error_code ec;
+  if (!fs::is_directory(dir, ec)) return false;
+  for (const auto& e : fs::directory_iterator(dir, ec)) {
+    if (e.path().extension() == ".json") return true;
+  }
+  return false;
+}
+
+// The pointer of a prompt/turn/candidate string in a record of this layout.
+std::string PointerOf(const Layout& L, const Hit& h) {
+  switch (h.part) {
+    case Part::kPrompt: return L.prompt.text;
+    case Part::kTurn: return L.prompt.text + "/" + std::to_string(h.index) + L.turn_text.text;
+    case Part::kCandidate:
+      if (L.judgment == JudgmentShape::kPairwise) return h.index == 0 ? L.chosen.text : L.rejected.text;
+      return L.candidates.text + "/" + std::to_string(h.index) + L.candidate_text.text;
+    case Part::kMetadata: return h.meta_pointer;
+  }
+  return "";
+}
+
+struct Settings {
+  std::vector<std::string> pack_paths;
+  std::vector<std::string> pack_labels;  // file names, for the summary
+  std::vector<std::string> pack_digests;
+  bool fields[screen::kFieldKindCount] = {true, true, true};
+  std::string default_action;           // "" = each rule's own
+  std::map<std::string, std::string> overrides;
+  std::string key_source;               // "key_file", "key_env" or ""
+  double min_confidence = 0.0;
+};
+
+class PersonalDataStage : public Stage {
+ public:
+  PersonalDataStage(Settings settings, screen::RuleSet rules, screen::Screener screener,
+                    std::unique_ptr<screen::PseudonymKey> key)
+      : settings_(std::move(settings)), rules_(std::move(rules)), screener_(std::move(screener)),
+        key_(std::move(key)) {
+    for (uint32_t i = 0; i < rules_.rules.size(); ++i) rule_index_[rules_.rules[i].id] = i;
+  }
+
+  std::string name() const override { return kStage; }
+
+  void Grow(size_t n) override {
+    if (per_record_.size() < n) per_record_.resize(n);
+  }
+
+  void Observe(size_t record, const Record& rec, const RecordFacts&) override {
+    RecordHits& out = per_record_[record];
+    auto scan = [&](std::string_view text, Part part, uint32_t index, const std::string* meta_pointer) -> bool {
+      FieldKind kind = KindOf(part);
+      if (!settings_.fields[static_cast<int>(kind)]) return true;
+      texts_.fetch_add(1, std::memory_order_relaxed);
+      auto found = screener_.Scan(text, kind);
+      if (!found.ok()) {
+        NoteError(record, found.status());
+        return false;
+      }
+      if (found.value().empty()) return true;
+      uint64_t h = HashBytes(text).lo;
+      for (const auto& f : found.value()) {
+        Hit hit;
+        hit.part = part;
+        hit.index = index;
+        auto it = rule_index_.find(f.rule_id);
+        hit.rule = it == rule_index_.end() ? 0 : it->second;
+        hit.begin = static_cast<uint32_t>(f.begin);
+        hit.end = static_cast<uint32_t>(f.end);
+        hit.action = f.action;
+        hit.confidence = static_cast<float>(f.confidence);
+        hit.text_hash = h;
+        if (meta_pointer) hit.meta_pointer = *meta_pointer;
+        hit.preview = f.preview;
+        if (f.action == Action::kDrop) out.drop = true;
+        if (f.action == Action::kMask || f.action == Action::kPseudonymise) out.rewrite = true;
+        out.hits.push_back(std::move(hit));
+      }
+      return true;
+    };
+    if (rec.prompt_is_chat) {
+      for (uint32_t t = 0; t < rec.turns.size(); ++t) {
+        if (!scan(rec.turns[t].text, Part::kTurn, t, nullptr)) return;
+      }
+    } else if (!scan(rec.prompt, Part::kPrompt, 0, nullptr)) {
+      return;
+    }
+    for (uint32_t c = 0; c < rec.candidates.size(); ++c) {
+      if (!scan(rec.candidates[c], Part::kCandidate, c, nullptr)) return;
+    }
+    for (uint32_t m = 0; m < rec.metadata.size(); ++m) {
+      if (!scan(rec.metadata[m].text, Part::kMetadata, m, &rec.metadata[m].pointer)) return;
+    }
+    if (out.drop) out.rewrite = true;
+  }
+
+  Status Decide(RunState& st) override {
+    {
+      std::lock_guard<std::mutex> lock(error_mu_);
+      if (error_record_ != SIZE_MAX) {
+        const Entry& e = st.entries[st.records[error_record_].entry];
+        return Status::Internal("the personal-data screen could not scan record " + st.records[error_record_].id +
+                                " (" + st.plan().inputs[e.input].name + " line " + std::to_string(e.line) +
+                                "): " + error_.message() + "; no output was written, because an unscreened "
+                                "record must not pass as clean");
+      }
+    }
+    for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
+      const RecordHits& r = per_record_[i];
+      if (r.hits.empty()) continue;
+      ++records_with_findings_;
+      if (r.rewrite) ++records_rewritten_;
+      for (const Hit& h : r.hits) {
+        ++by_rule_[h.rule];
+        ++by_field_[static_cast<int>(KindOf(h.part))];
+        ++by_action_[static_cast<int>(h.action)];
+      }
+      if (!r.drop) continue;
+      std::set<std::string> ids;
+      const Hit* first = nullptr;
+      for (const Hit& h : r.hits) {
+        if (h.action != Action::kDrop) continue;
+        ids.insert(rules_.rules[h.rule].id);
+        if (!first) first = &h;
+      }
+      std::string list;
+      for (const auto& id : ids) list += (list.empty() ? "" : ", ") + id;
+      const Layout& L = st.plan().inputs[st.entries[st.records[i].entry].input].layout;
+      Json detail{{"rules", std::vector<std::string>(ids.begin(), ids.end())}, {"findings", r.hits.size()}};
+      if (st.Reject(i, kStage, "personal_data",
+                    "the record contains personal data that the screen is set to drop (" + list +
+                        "); see " + kFindingsFile,
+                    detail.dump(), PointerOf(L, *first))) {
+        ++dropped_;
+      }
+    }
+    return Status::Ok();
+  }
+
+  void Report(const RunState& st, Json* s) const override {
+    Json packs = Json::array();
+    for (size_t i = 0; i < settings_.pack_labels.size(); ++i) {
+      size_t n = 0;
+      for (const auto& r : rules_.rules) n += r.source_file == settings_.pack_paths[i];
+      packs.push_back(Json{{"file", settings_.pack_labels[i]}, {"sha256", settings_.pack_digests[i]}, {"rules", n}});
+    }
+    (*s)["packs"] = std::move(packs);
+    Json fields = Json::array();
+    for (int k = 0; k < screen::kFieldKindCount; ++k) {
+      if (settings_.fields[k]) fields.push_back(std::string(screen::FieldKindName(static_cast<FieldKind>(k))));
+    }
+    (*s)["fields"] = std::move(fields);
+    (*s)["default_action"] = settings_.default_action.empty() ? "per rule" : settings_.default_action;
+    Json overrides = Json::object();
+    for (const auto& [id, a] : settings_.overrides) overrides[id] = a;
+    (*s)["action_overrides"] = std::move(overrides);
+    (*s)["pseudonym_key"] = settings_.key_source.empty() ? "none" : "from " + settings_.key_source + " (never written)";
+    (*s)["min_confidence"] = settings_.min_confidence;
+    (*s)["records_screened"] = std::min(per_record_.size(), st.records.size());
+    (*s)["texts_screened"] = texts_.load();
+    (*s)["records_with_findings"] = records_with_findings_;
+    (*s)["records_rewritten"] = records_rewritten_;
+    (*s)["records_dropped"] = dropped_;
+    uint64_t total = 0;
+    for (const auto& [r, n] : by_rule_) total += n;
+    (*s)["findings"] = total;
+    Json rules = Json::object();
+    for (uint32_t r = 0; r < rules_.rules.size(); ++r) {
+      auto it = by_rule_.find(r);
+      rules[rules_.rules[r].id] = Json{{"action", std::string(screen::ActionName(rules_.rules[r].action))},
+                                       {"findings", it == by_rule_.end() ? 0 : it->second}};
+    }
+    (*s)["by_rule"] = std::move(rules);
+    Json f = Json::object();
+    for (int k = 0; k < screen::kFieldKindCount; ++k) {
+      f[std::string(screen::FieldKindName(static_cast<FieldKind>(k)))] = by_field_[k];
+    }
+    (*s)["by_field"] = std::move(f);
+    Json a = Json::object();
+    for (int k = 0; k < 4; ++k) a[std::string(screen::ActionName(static_cast<Action>(k)))] = by_action_[k];
+    (*s)["by_action"] = std::move(a);
+    (*s)["findings_file"] = kFindingsFile;
+    Json cautions = Json::array();
+    for (const char* c : kCautions) cautions.push_back(c);
+    (*s)["cautions"] = std::move(cautions);
+  }
+
+  Status WriteOutputs(const RunState& st, OutputDir& out) const override {
+    auto f = out.Create(kFindingsFile);
+    if (!f.ok()) return f.status();
+    for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
+      const RecordHits& r = per_record_[i];
+      if (r.hits.empty()) continue;
+      const RecordFacts& rf = st.records[i];
+      const Entry& e = st.entries[rf.entry];
+      const Decision& d = st.decisions[rf.entry];
+      const Layout& L = st.plan().inputs[e.input].layout;
+      for (const Hit& h : r.hits) {
+        Json j;
+        j["id"] = rf.id;
+        j["input"] = st.plan().inputs[e.input].name;
+        j["line"] = e.line;
+        j["field"] = std::string(screen::FieldKindName(KindOf(h.part)));
+        if (h.part == Part::kCandidate) j["candidate"] = h.index;
+        if (h.part == Part::kTurn) j["turn"] = h.index;
+        j["pointer"] = PointerOf(L, h);
+        j["rule"] = rules_.rules[h.rule].id;
+        j["begin"] = h.begin;
+        j["end"] = h.end;
+        j["action"] = std::string(screen::ActionName(h.action));
+        j["applied"] = r.drop ? "masked (record dropped)"
+                       : h.action == Action::kFlag ? "none"
+                       : h.action == Action::kMask ? "masked" : "pseudonymised";
+        j["confidence"] = std::round(static_cast<double>(h.confidence) * 1000.0) / 1000.0;
+        j["preview"] = h.preview;
+        j["kept"] = !d.rejected;
+        Status s = f.value()->Append(j.dump() + "\n");
+        if (!s.ok()) return s;
+      }
+    }
+    return f.value()->Close();
+  }
+
+  bool Rewrites(size_t record) const override {
+    return record < per_record_.size() && per_record_[record].rewrite;
+  }
+
+  Status Rewrite(size_t record, const InputSpec& input, Json* doc) const override {
+    const RecordHits& r = per_record_[record];
+    const Layout& L = input.layout;
+    size_t i = 0;
+    while (i < r.hits.size()) {
+      // Hits of one string are consecutive (scan order).
+      size_t j = i;
+      std::string ptr = PointerOf(L, r.hits[i]);
+      std::vector<screen::Finding> findings;
+      while (j < r.hits.size() && PointerOf(L, r.hits[j]) == ptr && r.hits[j].part == r.hits[i].part &&
+             r.hits[j].index == r.hits[i].index) {
+        const Hit& h = r.hits[j];
+        screen::Finding f;
+        f.rule_id = rules_.rules[h.rule].id;
+        f.field = KindOf(h.part);
+        f.begin = h.begin;
+        f.end = h.end;
+        // A dropped record's copy in rejects.jsonl is masked everywhere.
+        f.action = r.drop ? Action::kMask : h.action;
+        findings.push_back(std::move(f));
+        ++j;
+      }
+      try {
+        Json::json_pointer jp(ptr);
+        Json& v = doc->at(jp);
+        if (!v.is_string()) return Status::Internal("screen: the value at " + ptr + " is no longer a string");
+        std::string& text = v.get_ref<std::string&>();
+        if (HashBytes(text).lo != r.hits[i].text_hash) {
+          return Status::Internal("screen: the text at " + ptr + " changed between the two passes");
+        }
+        text = screen::ApplyActions(text, findings, key_.get());
+      } catch (const std::exception&) {
+        return Status::Internal("screen: cannot find the value at " + ptr + " when rewriting the record");
+      }
+      i = j;
+    }
+    return Status::Ok();
+  }
+
+ private:
+  void NoteError(size_t record, const Status& s) {
+    std::lock_guard<std::mutex> lock(error_mu_);
+    if (record < error_record_) {
+      error_record_ = record;
+      error_ = s;
+    }
+  }
+
+  Settings settings_;
+  screen::RuleSet rules_;
+  screen::Screener screener_;
+  std::unique_ptr<screen::PseudonymKey> key_;
+  std::map<std::string, uint32_t> rule_index_;
+  std::vector<RecordHits> per_record_;
+  std::atomic<uint64_t> texts_{0};
+  std::mutex error_mu_;
+  size_t error_record_ = SIZE_MAX;
+  Status error_;
+  uint64_t records_with_findings_ = 0, records_rewritten_ = 0, dropped_ = 0;
+  std::map<uint32_t, uint64_t> by_rule_;
+  uint64_t by_field_[screen::kFieldKindCount] = {0, 0, 0};
+  uint64_t by_action_[4] = {0, 0, 0, 0};
+};
+
+bool ParseAction(const Json& v, Action* a) {
+  if (!v.is_string()) return false;
+  std::string s = v.get<std::string>();
+  for (int k = 0; k < 4; ++k) {
+    if (s == screen::ActionName(static_cast<Action>(k))) {
+      *a = static_cast<Action>(k);
+      return true;
+    }
+  }
+  return false;
+}
+
+}  // namespace
+
+std::string DefaultRulesDir() {
+  if (const char* env = std::getenv("PREFSIFT_RULES_DIR"); env && *env) return env;
+  std::error_code ec;
+  fs::path exe = fs::read_symlink("/proc/self/exe", ec);
+  if (ec) return "";
+  fs::path d = exe.parent_path();
+  for (int up = 0; up <= 4 && !d.empty(); ++up) {
+    for (const fs::path& cand : {d / "share" / "prefsift" / "rules", d / "rules"}) {
+      if (HasJsonFile(cand)) return cand.string();
+    }
+    if (d == d.parent_path()) break;
+    d = d.parent_path();
+  }
+  return "";
+}
+
+std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
+  const Json& s = StageSettings(plan, kStage);
+  auto usage = [&](const std::string& m) {
+    *error = Status::Usage(m);
+    return nullptr;
+  };
+  std::string base_dir = plan.plan_path.empty() ? "" : fs::path(plan.plan_path).parent_path().string();
+  Settings set;
+  std::vector<std::string> packs;
+  bool packs_given = false;
+  std::string rules_dir, key_file, key_env;
+  Action default_action = Action::kFlag;
+  bool has_default = false;
+  std::map<std::string, Action> overrides;
+  if (!s.is_object()) return usage("stages.screen: must be an object");
+  for (auto it = s.begin(); it != s.end(); ++it) {
+    const std::string& k = it.key();
+    const Json& v = it.value();
+    if (k == "enabled") continue;
+    if (k == "packs") {
+      if (!v.is_array()) return usage("stages.screen.packs: must be an array of pack names or paths");
+      for (const auto& p : v) {
+        if (!p.is_string() || p.get<std::string>().empty()) {
+          return usage("stages.screen.packs: every entry must be a non-empty string (a pack name or a path)");
+        }
+        packs.push_back(p.get<std::string>());
+      }
+      packs_given = true;
+    } else if (k == "rules_dir") {
+      if (!v.is_string() || v.get<std::string>().empty()) return usage("stages.screen.rules_dir: must be a folder path");
+      rules_dir = Resolve(base_dir, v.get<std::string>());
+    } else if (k == "action") {
+      if (!ParseAction(v, &default_action)) {
+        return usage("stages.screen.action: must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
+      }
+      has_default = true;
+      set.default_action = v.get<std::string>();
+    } else if (k == "actions") {
+      if (!v.is_object()) return usage("stages.screen.actions: must be an object {\"<rule id>\": \"<action>\"}");
+      for (auto a = v.begin(); a != v.end(); ++a) {
+        Action act;
+        if (!ParseAction(a.value(), &act)) {
+          return usage("stages.screen.actions." + a.key() + ": must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
+        }
+        overrides[a.key()] = act;
+        set.overrides[a.key()] = a.value().get<std::string>();
+      }
+    } else if (k == "key_file") {
+      if (!v.is_string() || v.get<std::string>().empty()) return usage("stages.screen.key_file: must be a file path");
+      key_file = Resolve(base_dir, v.get<std::string>());
+    } else if (k == "key_env") {
+      if (!v.is_string() || v.get<std::string>().empty()) {
+        return usage("stages.screen.key_env: must be the name of an environment variable");
+      }
+      key_env = v.get<std::string>();
+    } else if (k == "fields") {
+      if (!v.is_array() || v.empty()) {
+        return usage("stages.screen.fields: must be a non-empty array of \"prompt\", \"candidates\", \"metadata\"");
+      }
+      std::fill(std::begin(set.fields), std::end(set.fields), false);
+      for (const auto& f : v) {
+        bool ok = false;
+        for (int q = 0; q < screen::kFieldKindCount; ++q) {
+          if (f.is_string() && f.get<std::string>() == screen::FieldKindName(static_cast<FieldKind>(q))) {
+            set.fields[q] = ok = true;
+          }
+        }
+        if (!ok) return usage("stages.screen.fields: unknown field " + f.dump() + " (prompt, candidates, metadata)");
+      }
+    } else if (k == "min_confidence") {
+      if (!v.is_number() || v.get<double>() < 0 || v.get<double>() > 1) {
+        return usage("stages.screen.min_confidence: must be a number in [0, 1]");
+      }
+      set.min_confidence = v.get<double>();
+    } else {
+      return usage("stages.screen: unknown setting \"" + k +
+                   "\" (known: packs, rules_dir, action, actions, key_file, key_env, fields, min_confidence)");
+    }
+  }
+  if (!key_file.empty() && !key_env.empty()) {
+    return usage("stages.screen: set either \"key_file\" or \"key_env\", not both");
+  }
+  if (rules_dir.empty()) rules_dir = DefaultRulesDir();
+  // Packs: names resolve in rules_dir; paths relative to the plan's folder.
+  if (!packs_given) {
+    if (rules_dir.empty()) {
+      return usage("stages.screen: no rules folder found; set \"rules_dir\" in the plan or the environment variable "
+                   "PREFSIFT_RULES_DIR (docs/personal-data.md, \"Pipeline stage\")");
+    }
+    std::error_code ec;
+    std::vector<std::string> files;
+    for (const auto& e : fs::directory_iterator(rules_dir, ec)) {
+      if (e.path().extension() == ".json") files.push_back(e.path().string());
+    }
+    if (ec) return usage("stages.screen.rules_dir: cannot read the folder " + rules_dir);
+    std::sort(files.begin(), files.end());
+    if (files.empty()) return usage("stages.screen.rules_dir: no .json rule packs in " + rules_dir);
+    packs = files;
+  }
+  for (auto& p : packs) {
+    bool is_name = p.find('/') == std::string::npos && !(p.size() >= 5 && p.compare(p.size() - 5, 5, ".json") == 0);
+    if (is_name) {
+      if (rules_dir.empty()) {
+        return usage("stages.screen.packs: pack \"" + p + "\" is a name but no rules folder was found; set "
+                     "\"rules_dir\" or PREFSIFT_RULES_DIR");
+      }
+      p = rules_dir + "/" + p + ".json";
+    } else {
+      p = Resolve(base_dir, p);
+    }
+  }
+  auto loaded = screen::LoadRulePacks(packs, rules_dir);
+  if (!loaded.ok()) {
+    *error = loaded.status().code() == StatusCode::kUsage ? loaded.status()
+                                                          : Status::Usage(loaded.status().message());
+    return nullptr;
+  }
+  screen::RuleSet rules = std::move(loaded).value();
+  for (const auto& p : packs) {
+    bool ok = false;
+    std::string bytes = ReadWhole(p, &ok);
+    set.pack_paths.push_back(p);
+    set.pack_labels.push_back(fs::path(p).filename().string());
+    set.pack_digests.push_back(Sha256Hex(bytes));
+  }
+  // Actions in effect: the plan's default, then per-rule overrides.
+  std::vector<std::string> pseudo_rules;
+  for (auto& r : rules.rules) {
+    if (has_default) r.action = default_action;
+  }
+  for (const auto& [id, act] : overrides) {
+    auto it = std::find_if(rules.rules.begin(), rules.rules.end(), [&](const screen::Rule& r) { return r.id == id; });
+    if (it == rules.rules.end()) {
+      return usage("stages.screen.actions: no rule \"" + id + "\" in the loaded packs");
+    }
+    it->action = act;
+  }
+  for (const auto& r : rules.rules) {
+    if (r.action == Action::kPseudonymise) pseudo_rules.push_back(r.id);
+  }
+  // The key: read only when given; required when any rule pseudonymises.
+  std::unique_ptr<screen::PseudonymKey> key;
+  std::string key_bytes;
+  if (!key_file.empty()) {
+    bool ok = false;
+    key_bytes = ReadWhole(key_file, &ok);
+    if (!ok) return usage("stages.screen.key_file: cannot read " + key_file);
+    while (!key_bytes.empty() && (key_bytes.back() == '\n' || key_bytes.back() == '\r')) key_bytes.pop_back();
+    set.key_source = "key_file";
+  } else if (!key_env.empty()) {
+    const char* v = std::getenv(key_env.c_str());
+    if (!v || !*v) return usage("stages.screen.key_env: the environment variable " + key_env + " is not set or empty");
+    key_bytes = v;
+    set.key_source = "key_env";
+  }
+  if (!set.key_source.empty()) {
+    auto k = screen::PseudonymKey::FromBytes(key_bytes);
+    std::fill(key_bytes.begin(), key_bytes.end(), '\0');
+    if (!k.ok()) return usage("stages.screen." + set.key_source + ": the pseudonym key must be at least 16 bytes");
+    key = std::make_unique<screen::PseudonymKey>(std::move(k).value());
+  } else if (!pseudo_rules.empty()) {
+    std::string list;
+    for (size_t i = 0; i < pseudo_rules.size() && i < 5; ++i) list += (i ? ", " : "") + pseudo_rules[i];
+    if (pseudo_rules.size() > 5) list += ", ...";
+    return usage("stages.screen: the action pseudonymise (rules " + list +
+                 ") needs a secret key: set \"key_file\" (a file holding the key) or \"key_env\" (the name of an "
+                 "environment variable holding it)");
+  }
+  screen::ScreenerOptions opts;
+  opts.min_confidence = set.min_confidence;
+  auto built = screen::Screener::Build(rules, opts);
+  if (!built.ok()) {
+    *error = built.status();
+    return nullptr;
+  }
+  return std::make_unique<PersonalDataStage>(std::move(set), std::move(rules), std::move(built).value(),
+                                             std::move(key));
+}
+
+}  // namespace prefsift
