@@ -191,6 +191,7 @@ int main(int argc, char** argv) {
       {"leakage", "Train/evaluation leakage against the plan's evaluation sets only", {"leakage"}},
       {"screen", "Personal-data screen only: find, mask, pseudonymise or drop (rule packs in rules/)", {"screen"}},
       {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"}},
+      {"split", "Group-aware stable splits only (records tied by prompt, near-duplicate cluster, thread)", {"split"}},
   };
   std::vector<CommonOptions> options(commands.size());
   std::vector<CLI::App*> subs;

@@ -12,6 +12,7 @@
 #include "core/record_reader.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
+#include "report/finish.h"
 #include "report/summary.h"
 #include "stages/facts.h"
 #include "stages/stage.h"
@@ -318,6 +319,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     for (const auto& info : AllStages()) known = known || it.key() == info.name;
     if (!known) return Status::Usage("plan: unknown stage \"" + it.key() + "\" under \"stages\"");
   }
+  if (Status fs_ok = ValidateFinishPlan(plan); !fs_ok.ok()) return fs_ok;
   auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
   if (!out.ok()) return out.status();
 
@@ -364,10 +366,14 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   std::vector<const Stage*> stage_ptrs;
   for (auto& stage : stages) stage_ptrs.push_back(stage.get());
   Json summary = BuildSummary(plan, st, stage_ptrs, written);
+  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed);  // gate and provenance
+  if (!s.ok()) return s;
+  outcome.gate_failed = st.gate_failed;
   auto sf = out.value()->Create("summary.json");
   if (!sf.ok()) return sf.status();
   s = sf.value()->Append(summary.dump(2) + "\n");
   if (s.ok()) s = sf.value()->Close();
+  if (s.ok()) s = WriteDocuments(plan, fs, *out.value(), summary);  // datasheet.md/json, report.html
   if (!s.ok()) return s;
   s = out.value()->Commit();
   if (!s.ok()) return s;

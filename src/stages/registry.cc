@@ -3,6 +3,7 @@
 #include "stages/leakage.h"
 #include "stages/near_dups.h"
 #include "stages/personal_data.h"
+#include "stages/splits.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -14,6 +15,7 @@ const std::vector<StageInfo>& AllStages() {
       {"leakage", "train/evaluation leakage: exact, word n-gram and near-duplicate matches of evaluation prompts", &MakeLeakageStage},
       {"screen", "personal data and secrets (RE2 rule packs): flag, mask, pseudonymise or drop", &MakePersonalDataStage},
       {"bias", "position and length bias statistics, optional rebalancing, surface-feature shortcut audit", &MakeBiasStage},
+      {"split", "group-aware stable train/valid/test splits (groups tied by prompt, near-duplicate cluster, thread)", &MakeSplitStage},
   };
   return kStages;
 }

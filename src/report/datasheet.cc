@@ -1,0 +1,338 @@
+// The datasheet; see datasheet.h and docs/datasheet.md.
+#include "report/datasheet.h"
+
+#include <nlohmann/json.hpp>
+
+#include <cmath>
+#include <cstdio>
+
+namespace prefsift {
+
+using Json = nlohmann::ordered_json;
+
+const char* const kPersonalDataCaution =
+    "The personal-data screen is an aid, not a guarantee and not legal advice. It finds patterned data (e-mail "
+    "addresses, phone numbers, card and account numbers, identifiers with checksums, network addresses, keys). It does "
+    "not reliably find names, postal addresses, or free-text mentions of health, religion, politics or other special "
+    "categories. Whether this dataset may be used, shared or kept is for the applicable law and your privacy officer "
+    "to decide.";
+
+namespace {
+
+struct Question {
+  const char* key;
+  const char* question;
+};
+
+struct Section {
+  const char* key;
+  const char* title;
+  std::vector<Question> questions;
+};
+
+// The seven sections of Datasheets for Datasets (Gebru et al. 2018; CACM 2021)
+// [V]; the questions are our own short wording of each section's themes.
+const std::vector<Section>& Sections() {
+  static const std::vector<Section> k = {
+      {"motivation", "Motivation",
+       {{"purpose", "For what purpose was the dataset created?"},
+        {"creators", "Who created it, and on behalf of which entity?"},
+        {"funding", "Who funded its creation?"}}},
+      {"composition", "Composition",
+       {{"instances", "What do the instances represent?"},
+        {"sampling", "Is it a sample of a larger set? How was the sample drawn?"},
+        {"confidential_data", "Does it hold confidential, sensitive or identifying data?"}}},
+      {"collection", "Collection process",
+       {{"how", "How was the data acquired?"},
+        {"who", "Who collected and labelled it, and how were they paid?"},
+        {"timeframe", "Over what timeframe was it collected?"},
+        {"ethical_review", "Was there an ethical review?"},
+        {"consent", "Did the people concerned consent, and how?"}}},
+      {"preprocessing", "Preprocessing, cleaning and labelling",
+       {{"raw_data_kept", "Was the raw data kept besides the cleaned data? Where?"},
+        {"other_steps", "What other preprocessing happened outside this run?"}}},
+      {"uses", "Uses",
+       {{"used_for", "Has the dataset been used already? For what?"},
+        {"other_tasks", "What other tasks could it be used for?"},
+        {"future_use_risks", "Is there anything about its making that could affect future uses?"},
+        {"avoid", "Are there tasks it should not be used for?"}}},
+      {"distribution", "Distribution",
+       {{"to_whom", "Will it be given to third parties?"},
+        {"how", "How will it be distributed?"},
+        {"when", "When?"},
+        {"licence", "Under which licence or terms of use?"}}},
+      {"maintenance", "Maintenance",
+       {{"maintainer", "Who maintains it?"},
+        {"contact", "How can the maintainer be reached?"},
+        {"errata", "Is there an erratum?"},
+        {"updates", "Will it be updated, how often and by whom?"},
+        {"retention", "Are there limits on how long the data may be kept?"},
+        {"old_versions", "Will older versions stay available?"},
+        {"contributions", "Can others extend or contribute to it?"}}},
+  };
+  return k;
+}
+
+const Json* Find(const Json& j, std::initializer_list<const char*> path) {
+  const Json* cur = &j;
+  for (const char* k : path) {
+    if (!cur->is_object() || !cur->contains(k)) return nullptr;
+    cur = &(*cur)[k];
+  }
+  return cur;
+}
+
+
+std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.dump(); }
+
+// Run facts for the composition section.
+Json CompositionFacts(const Json& s) {
+  Json f = Json::array();
+  auto add = [&](const std::string& what, const Json& value) { f.push_back(Json{{"fact", what}, {"value", value}}); };
+  if (const Json* l = Find(s, {"ledger"})) {
+    add("records read (non-blank input lines)", (*l)["records_in"]);
+    add("records kept", (*l)["kept"]);
+    add("records rejected", (*l)["rejected"]);
+  }
+  if (const Json* ins = Find(s, {"inputs"}); ins && ins->is_array()) {
+    for (const auto& in : *ins) {
+      add("input " + Str(in["name"]) + ": records read / kept", Json::array({in["records_in"], in["kept"]}));
+    }
+  }
+  const Json* c = Find(s, {"stages", "split", "composition"});
+  if (!c) {
+    add("composition of kept records", "not available: the split stage did not run");
+    return f;
+  }
+  add("candidates per record (B: records)", (*c)["candidates_per_record"]);
+  add("judgment shapes", (*c)["judgment_shapes"]);
+  add("chosen slot by number of candidates (counts per slot)", (*c)["chosen_slot_by_candidates"]);
+  add("records whose top rank is tied", (*c)["records_with_tied_top"]);
+  add("prompt length in code points", (*c)["prompt_chars"]);
+  add("chosen answer length in code points", (*c)["chosen_chars"]);
+  add("other answers' length in code points", (*c)["rejected_chars"]);
+  add("sources (records)", (*c)["sources"]);
+  add("annotators", (*c)["annotators"]);
+  add("records with a thread id", (*c)["records_with_thread"]);
+  add("prompt script (crude detection; records)", (*c)["prompt_script"]["records"]);
+  if (const Json* sp = Find(s, {"stages", "split", "splits"})) {
+    Json t = Json::object();
+    for (const auto& e : *sp) t[Str(e["name"])] = e["records"];
+    add("recommended splits (records; group-aware, see Preprocessing)", t);
+  }
+  if (const Json* sc = Find(s, {"stages", "screen"})) {
+    add("personal-data findings (all records, before actions)", (*sc)["findings"]);
+    add("records with personal-data findings", (*sc)["records_with_findings"]);
+    add("personal-data findings by action", (*sc)["by_action"]);
+  } else {
+    add("personal-data screen", "not run");
+  }
+  if (const Json* lk = Find(s, {"stages", "leakage"})) {
+    add("records matching an evaluation set", (*lk)["contaminated_records"]);
+  }
+  if (const Json* nr = Find(s, {"stages", "near"})) {
+    add("near-duplicate prompt clusters / records in them", Json::array({(*nr)["clusters"], (*nr)["records_in_clusters"]}));
+  }
+  return f;
+}
+
+Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
+  Json stages = Json::array();
+  const Json* ran = Find(s, {"stages"});
+  if (ran && ran->is_object()) {
+    for (auto it = ran->begin(); it != ran->end(); ++it) {
+      Json e;
+      e["stage"] = it.key();
+      e["settings_in_plan"] = plan_stages.contains(it.key()) ? plan_stages[it.key()] : Json::object();
+      if (it.value().contains("settings")) e["settings_used"] = it.value()["settings"];
+      uint64_t rejected = 0;
+      Json reasons = Json::object();
+      if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+        for (const auto& r : *rb) {
+          if (r["stage"] == it.key()) {
+            rejected = r["rejected"].get<uint64_t>();
+            reasons = r["by_reason"];
+          }
+        }
+      }
+      e["rejected"] = rejected;
+      e["rejected_by_reason"] = reasons;
+      e["details"] = "summary.json stages." + it.key();
+      stages.push_back(std::move(e));
+    }
+  }
+  // Ingest rejects are not a stage section.
+  if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+    for (const auto& r : *rb) {
+      if (r["stage"] == "ingest") {
+        stages.insert(stages.begin(), Json{{"stage", "ingest"}, {"settings_in_plan", Json::object()},
+                                           {"rejected", r["rejected"]}, {"rejected_by_reason", r["by_reason"]},
+                                           {"details", "summary.json inputs[].rejected_by_reason"}});
+      }
+    }
+  }
+  Json f;
+  f["stages"] = std::move(stages);
+  if (const Json* sp = Find(s, {"stages", "split"})) {
+    f["splits"] = Json{{"tie_by", (*sp)["tie_by"]}, {"assignment", (*sp)["assignment"]}, {"splits", (*sp)["splits"]},
+                       {"checks", (*sp)["checks"]}};
+  } else {
+    f["splits"] = "the split stage did not run: no recommended splits";
+  }
+  if (const Json* st = Find(s, {"settings"})) f["normalisation"] = (*st)["normalize"];
+  f["software"] = "prefsift (see Provenance for version, revision and digests)";
+  return f;
+}
+
+}  // namespace
+
+Status ValidateProvenance(const Json& p) {
+  if (!p.is_object()) return Status::Usage("plan: \"provenance\" must be an object (docs/datasheet.md)");
+  for (auto it = p.begin(); it != p.end(); ++it) {
+    if (it.key() == "$comment") continue;
+    if (it.key() == "dataset_name") {
+      if (!it.value().is_string()) return Status::Usage("provenance.dataset_name: must be a string");
+      continue;
+    }
+    const Section* sec = nullptr;
+    for (const auto& s : Sections()) {
+      if (it.key() == s.key) sec = &s;
+    }
+    if (!sec) {
+      return Status::Usage("provenance." + it.key() +
+                           ": unknown key (known: dataset_name, motivation, composition, collection, preprocessing, "
+                           "uses, distribution, maintenance)");
+    }
+    if (!it.value().is_object()) return Status::Usage("provenance." + it.key() + ": must be an object of answers");
+    for (auto q = it.value().begin(); q != it.value().end(); ++q) {
+      bool known = false;
+      std::string names;
+      for (const auto& qq : sec->questions) {
+        known = known || q.key() == qq.key;
+        names += std::string(names.empty() ? "" : ", ") + qq.key;
+      }
+      if (!known) return Status::Usage("provenance." + it.key() + "." + q.key() + ": unknown key (known: " + names + ")");
+      if (!q.value().is_string()) return Status::Usage("provenance." + it.key() + "." + q.key() + ": must be a string");
+    }
+  }
+  return Status::Ok();
+}
+
+Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json& summary,
+                    const std::string& summary_sha256) {
+  Json d;
+  d["dataset_name"] = provenance.contains("dataset_name") ? provenance["dataset_name"] : Json("not provided");
+  d["about"] = "Datasheet organised by the seven sections of Datasheets for Datasets (Gebru et al., arXiv:1803.09010; "
+               "Communications of the ACM 64(12), 2021). Answers marked \"from the plan\" were written by the dataset's "
+               "owners in the plan's provenance object; \"from the run\" facts were measured by prefsift.";
+  d["gate"] = summary.contains("gate") ? summary["gate"] : Json("not evaluated");
+  d["personal_data_caution"] = kPersonalDataCaution;
+  Json sections = Json::array();
+  int number = 0;
+  for (const auto& sec : Sections()) {
+    Json js;
+    js["number"] = ++number;
+    js["key"] = sec.key;
+    js["title"] = sec.title;
+    Json answers = Json::array();
+    for (const auto& q : sec.questions) {
+      const Json* a = Find(provenance, {sec.key, q.key});
+      answers.push_back(Json{{"key", q.key},
+                             {"question", q.question},
+                             {"answer", a ? *a : Json("not provided")},
+                             {"from", a ? "the plan" : "not provided"}});
+    }
+    js["answers"] = std::move(answers);
+    if (std::string(sec.key) == "composition") js["from_the_run"] = CompositionFacts(summary);
+    if (std::string(sec.key) == "preprocessing") js["from_the_run"] = PreprocessingFacts(plan_stages, summary);
+    sections.push_back(std::move(js));
+  }
+  d["sections"] = std::move(sections);
+  Json prov = summary.contains("provenance") ? summary["provenance"] : Json::object();
+  prov["summary_json_sha256"] = summary_sha256;
+  d["provenance"] = std::move(prov);
+  return d;
+}
+
+namespace {
+
+std::string Cell(const Json& v) {
+  std::string s = v.is_string() ? v.get<std::string>() : v.dump();
+  std::string out;
+  for (char c : s) {
+    if (c == '|') out += "\\|";
+    else if (c == '\n') out += ' ';
+    else out += c;
+  }
+  return out;
+}
+
+}  // namespace
+
+std::string DatasheetMarkdown(const Json& d) {
+  std::string m;
+  m += "# Datasheet: " + Cell(d["dataset_name"]) + "\n\n";
+  m += Cell(d["about"]) + "\n\n";
+  const Json& p = d["provenance"];
+  if (p.contains("tool")) {
+    m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + ") at " +
+         Cell(p["time"]["utc"]) + " (" + Cell(p["time"]["source"]) + ").\n\n";
+  }
+  const Json& g = d["gate"];
+  if (g.is_object()) {
+    m += "**Gate verdict: " + Cell(g["verdict"]) + "** (" + Cell(g["passed"]) + " passed, " + Cell(g["failed"]) +
+         " failed, " + Cell(g["not_evaluated"]) + " not evaluated).\n\n";
+    if (!g["checks"].empty()) {
+      m += "| check | scope | value | threshold | verdict |\n|---|---|---|---|---|\n";
+      for (const auto& c : g["checks"]) {
+        m += "| " + Cell(c["check"]) + " | " + (c.contains("scope") ? Cell(c["scope"]) : "") + " | " +
+             (c["value"].is_null() ? Cell(c.value("reason", "")) : Cell(c["value"])) + " | " + Cell(c["threshold"]) +
+             " | " + Cell(c["verdict"]) + " |\n";
+      }
+      m += "\n";
+    }
+  }
+  m += "> **Personal data.** " + Cell(d["personal_data_caution"]) + "\n\n";
+  for (const auto& sec : d["sections"]) {
+    m += "## " + Cell(sec["number"]) + ". " + Cell(sec["title"]) + "\n\n";
+    for (const auto& a : sec["answers"]) {
+      m += "- **" + Cell(a["question"]) + "** " + (a["from"] == "the plan" ? Cell(a["answer"]) : "_not provided_") + "\n";
+    }
+    m += "\n";
+    if (sec.contains("from_the_run")) {
+      const Json& f = sec["from_the_run"];
+      m += "From the run:\n\n";
+      if (f.is_array()) {
+        m += "| fact | value |\n|---|---|\n";
+        for (const auto& e : f) m += "| " + Cell(e["fact"]) + " | " + Cell(e["value"]) + " |\n";
+      } else {
+        m += "| stage | settings in the plan | rejected | by reason |\n|---|---|---|---|\n";
+        for (const auto& e : f["stages"]) {
+          m += "| " + Cell(e["stage"]) + " | " + Cell(e["settings_in_plan"]) + " | " + Cell(e["rejected"]) + " | " +
+               Cell(e["rejected_by_reason"]) + " |\n";
+        }
+        m += "\nSplits: " + Cell(f["splits"]) + "\n";
+        if (f.contains("normalisation")) m += "\nText normalisation: " + Cell(f["normalisation"]) + "\n";
+      }
+      m += "\n";
+    }
+  }
+  m += "## Provenance\n\n";
+  m += "| item | value |\n|---|---|\n";
+  for (const char* k : {"plan_sha256", "seed", "summary_json_sha256"}) {
+    if (p.contains(k)) m += std::string("| ") + k + " | " + Cell(p[k]) + " |\n";
+  }
+  if (p.contains("rule_packs")) m += "| rule packs | " + Cell(p["rule_packs"]) + " |\n";
+  m += "\n| file | bytes | SHA-256 |\n|---|---|---|\n";
+  if (p.contains("inputs")) {
+    for (const auto& f : p["inputs"]) m += "| input: " + Cell(f["path"]) + " | " + Cell(f["bytes"]) + " | " + Cell(f["sha256"]) + " |\n";
+  }
+  if (p.contains("outputs")) {
+    for (const auto& f : p["outputs"]) m += "| output: " + Cell(f["file"]) + " | " + Cell(f["bytes"]) + " | " + Cell(f["sha256"]) + " |\n";
+  }
+  if (p.contains("summary_json_sha256")) m += "| output: summary.json | | " + Cell(p["summary_json_sha256"]) + " |\n";
+  m += "\n";
+  return m;
+}
+
+}  // namespace prefsift

@@ -1,0 +1,33 @@
+// The end of a run, after summary.json is built: the gate, provenance
+// (SHA-256 of every input and output file, tool version, plan digest, seed,
+// time), then the datasheet (datasheet.md, datasheet.json) and the HTML report
+// (report.html). docs/gate.md, docs/datasheet.md, docs/report.md.
+//
+// Time: SOURCE_DATE_EPOCH (seconds since 1970, UTC) when set, so reruns are
+// byte-identical; else the clock at the end of the run.
+// Thread-safety: one run owns these calls.
+#pragma once
+
+#include <nlohmann/json_fwd.hpp>
+
+#include "core/plan.h"
+#include "core/status.h"
+#include "io/file_system.h"
+#include "io/output_dir.h"
+
+namespace prefsift {
+
+// Usage errors for the plan's "gate" and "provenance" objects, before any work.
+Status ValidateFinishPlan(const Plan& plan);
+
+// Adds "gate" and "provenance" to the summary; *gate_failed is set when a gate
+// check fails. Hashes every input file and every file already in `out`.
+// REQUIRES: every output file except summary.json is written and closed.
+Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
+                     bool* gate_failed);
+
+// Writes datasheet.md, datasheet.json and report.html from the finished
+// summary (hashing summary.json, which must be written and closed).
+Status WriteDocuments(const Plan& plan, FileSystem* fs, OutputDir& out, const nlohmann::ordered_json& summary);
+
+}  // namespace prefsift

@@ -1,0 +1,208 @@
+// The gate; see gate.h and docs/gate.md.
+#include "report/gate.h"
+
+#include <nlohmann/json.hpp>
+
+#include <cmath>
+#include <limits>
+
+namespace prefsift {
+
+using Json = nlohmann::ordered_json;
+
+namespace {
+
+struct CheckSpec {
+  const char* key;
+  bool at_most;  // value <= threshold passes (else value >= threshold)
+  const char* what;
+};
+
+const CheckSpec kChecks[] = {
+    {"min_kept_share", false, "share of input records kept"},
+    {"max_label_conflict_rate", true, "share of parsed records in label conflicts (stage exact)"},
+    {"max_leakage_rate", true, "share of records leaking an evaluation set and still kept (stage leakage)"},
+    {"max_personal_data_findings", true, "personal-data findings left in kept records with no action (stage screen)"},
+    {"min_position_p_adjusted", false, "smallest adjusted p of the chosen-slot tests (stage bias)"},
+    {"max_shortcut_accuracy", true, "held-out accuracy of the surface-feature shortcut audit (stage bias)"},
+    {"require_split_checks", false, "split checks passed (stage split)"},
+};
+
+const Json* Find(const Json& j, std::initializer_list<const char*> path) {
+  const Json* cur = &j;
+  for (const char* k : path) {
+    if (!cur->is_object() || !cur->contains(k)) return nullptr;
+    cur = &(*cur)[k];
+  }
+  return cur;
+}
+
+bool StageRan(const Json& summary, const char* stage) { return Find(summary, {"stages", stage}) != nullptr; }
+
+double Num(const Json* j) {
+  return j && j->is_number() ? j->get<double>() : std::numeric_limits<double>::quiet_NaN();
+}
+
+Json Verdict(const std::string& key, const std::string& scope, const std::string& what, double value,
+             const Json& threshold, bool at_most, const std::string& why_not) {
+  Json c;
+  c["check"] = key;
+  if (!scope.empty()) c["scope"] = scope;
+  c["measures"] = what;
+  c["threshold"] = threshold;
+  if (!why_not.empty() || std::isnan(value)) {
+    c["value"] = nullptr;
+    c["verdict"] = "not evaluated";
+    c["reason"] = why_not.empty() ? "no figure in summary.json" : why_not;
+    return c;
+  }
+  c["value"] = std::round(value * 1e6) / 1e6;
+  double t = threshold.is_boolean() ? 1.0 : threshold.get<double>();
+  bool pass = at_most ? value <= t : value >= t;
+  c["verdict"] = pass ? "pass" : "fail";
+  return c;
+}
+
+}  // namespace
+
+Status ValidateGate(const Json& gate) {
+  if (!gate.is_object()) return Status::Usage("plan: \"gate\" must be an object (docs/gate.md)");
+  for (auto it = gate.begin(); it != gate.end(); ++it) {
+    const std::string& k = it.key();
+    if (k == "$comment") continue;
+    const CheckSpec* spec = nullptr;
+    for (const auto& c : kChecks) {
+      if (k == c.key) spec = &c;
+    }
+    if (!spec) {
+      std::string known;
+      for (const auto& c : kChecks) known += std::string(known.empty() ? "" : ", ") + c.key;
+      return Status::Usage("gate." + k + ": unknown check (known: " + known + ")");
+    }
+    const Json& v = it.value();
+    if (k == "require_split_checks") {
+      if (!v.is_boolean()) return Status::Usage("gate.require_split_checks: must be true or false");
+    } else if (k == "max_leakage_rate" && v.is_object()) {
+      for (auto s = v.begin(); s != v.end(); ++s) {
+        if (!s.value().is_number() || s.value().get<double>() < 0) {
+          return Status::Usage("gate.max_leakage_rate." + s.key() + ": must be a number >= 0");
+        }
+      }
+    } else if (!v.is_number() || v.get<double>() < 0) {
+      return Status::Usage("gate." + k + ": must be a number >= 0" +
+                           (k == "max_leakage_rate" ? std::string(" or an object of evaluation set name to rate") : ""));
+    } else if ((k.find("share") != std::string::npos || k.find("rate") != std::string::npos ||
+                k.find("accuracy") != std::string::npos || k.find("_p_") != std::string::npos) &&
+               v.get<double>() > 1) {
+      return Status::Usage("gate." + k + ": must be between 0 and 1");
+    }
+  }
+  return Status::Ok();
+}
+
+Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extras, bool* failed) {
+  Json checks = Json::array();
+  for (const auto& spec : kChecks) {
+    if (!gate.contains(spec.key)) continue;
+    const Json& thr = gate[spec.key];
+    const std::string key = spec.key;
+    if (key == "min_kept_share") {
+      double in = Num(Find(summary, {"ledger", "records_in"})), kept = Num(Find(summary, {"ledger", "kept"}));
+      checks.push_back(Verdict(key, "", spec.what, in > 0 ? kept / in : std::nan(""), thr, spec.at_most,
+                               in > 0 ? "" : "no input records"));
+    } else if (key == "max_label_conflict_rate") {
+      if (!StageRan(summary, "exact")) {
+        checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most, "stage exact did not run"));
+        continue;
+      }
+      double parsed = 0;
+      if (const Json* ins = Find(summary, {"inputs"}); ins && ins->is_array()) {
+        for (const auto& in : *ins) parsed += Num(Find(in, {"parsed"}));
+      }
+      double conf = Num(Find(summary, {"stages", "exact", "label_conflicts", "records"}));
+      checks.push_back(Verdict(key, "", spec.what, parsed > 0 ? conf / parsed : std::nan(""), thr, spec.at_most,
+                               parsed > 0 ? "" : "no parsed records"));
+    } else if (key == "max_leakage_rate") {
+      const Json* by_set = Find(summary, {"stages", "leakage", "by_set"});
+      if (!by_set || !by_set->is_object() || by_set->empty()) {
+        checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most,
+                                 StageRan(summary, "leakage") ? "no evaluation sets" : "stage leakage did not run"));
+        continue;
+      }
+      // All contaminated records dropped -> nothing leaks into the output.
+      const Json* flagged = Find(summary, {"stages", "leakage", "flagged"});
+      bool all_dropped = flagged && flagged->is_number() && flagged->get<double>() == 0;
+      for (auto it = by_set->begin(); it != by_set->end(); ++it) {
+        double rate = 0;
+        for (auto d = it.value().begin(); d != it.value().end(); ++d) rate = std::max(rate, Num(Find(d.value(), {"rate"})));
+        Json t = thr;
+        if (thr.is_object()) {
+          if (thr.contains(it.key())) t = thr[it.key()];
+          else if (thr.contains("*")) t = thr["*"];
+          else continue;
+        }
+        checks.push_back(Verdict(key, it.key(), spec.what, all_dropped ? 0.0 : rate, t, spec.at_most, ""));
+      }
+    } else if (key == "max_personal_data_findings") {
+      checks.push_back(Verdict(key, "", spec.what, static_cast<double>(extras.remaining_personal_data), thr,
+                               spec.at_most,
+                               !StageRan(summary, "screen")           ? "stage screen did not run"
+                               : extras.remaining_personal_data < 0 ? "findings file not readable"
+                                                                    : ""));
+    } else if (key == "min_position_p_adjusted") {
+      const Json* pos = Find(summary, {"stages", "bias", "position"});
+      if (!pos) {
+        checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most, "stage bias did not run"));
+        continue;
+      }
+      double minp = std::numeric_limits<double>::infinity();
+      std::string scope = "chosen-slot tests by number of candidates";
+      const Json* after = Find(*pos, {"rebalance", "after"});
+      const Json* en = Find(*pos, {"rebalance", "enabled"});
+      if (en && en->is_boolean() && en->get<bool>() && after && after->is_array() && !after->empty()) {
+        scope = "after position rebalancing (unadjusted p)";
+        for (const auto& t : *after) {
+          double p = Num(Find(t, {"p"}));
+          if (p == p) minp = std::min(minp, p);
+        }
+      } else if (const Json* tests = Find(*pos, {"by_candidates"}); tests && tests->is_array()) {
+        for (const auto& t : *tests) {
+          double p = Num(Find(t, {"p_adjusted"}));
+          if (p == p) minp = std::min(minp, p);
+        }
+      }
+      checks.push_back(Verdict(key, scope, spec.what, std::isinf(minp) ? std::nan("") : minp, thr, spec.at_most,
+                               std::isinf(minp) ? "no position test had data" : ""));
+    } else if (key == "max_shortcut_accuracy") {
+      const Json* acc = Find(summary, {"stages", "bias", "shortcut_audit", "heldout_accuracy"});
+      checks.push_back(Verdict(key, "", spec.what, Num(acc), thr, spec.at_most,
+                               !StageRan(summary, "bias")    ? "stage bias did not run"
+                               : !acc || !acc->is_number() ? "the audit did not run (too few comparisons?)"
+                                                           : ""));
+    } else if (key == "require_split_checks") {
+      if (!thr.get<bool>()) continue;
+      const Json* passed = Find(summary, {"stages", "split", "checks", "passed"});
+      checks.push_back(Verdict(key, "", spec.what, passed && passed->is_boolean() ? (passed->get<bool>() ? 1.0 : 0.0) : 0,
+                               thr, spec.at_most, passed ? "" : "stage split did not run"));
+    }
+  }
+  uint64_t pass = 0, fail = 0, not_eval = 0;
+  for (const auto& c : checks) {
+    const std::string v = c["verdict"].get<std::string>();
+    if (v == "pass") ++pass;
+    else if (v == "fail") ++fail;
+    else ++not_eval;
+  }
+  *failed = fail > 0;
+  Json g;
+  g["verdict"] = fail ? "fail" : not_eval ? "incomplete" : pass ? "pass" : "no checks";
+  g["passed"] = pass;
+  g["failed"] = fail;
+  g["not_evaluated"] = not_eval;
+  g["note"] = checks.empty() ? "the plan sets no gate checks"
+                             : "a check whose stage did not run is \"not evaluated\", which is not a pass";
+  g["checks"] = std::move(checks);
+  return g;
+}
+
+}  // namespace prefsift

@@ -1,0 +1,36 @@
+// The gate: pass/fail thresholds from the plan's "gate" object, evaluated on
+// summary.json after every stage has decided (docs/gate.md).
+//
+// Each check gives a value, its threshold and a verdict: "pass", "fail" or
+// "not evaluated" (its stage did not run or gave no figure; not a pass).
+// The overall verdict is "fail" when any check fails, else "incomplete" when
+// a check was not evaluated, else "pass" ("no checks" for an empty gate).
+// Only "fail" fails the run (exit code 4).
+// Thread-safety: pure functions.
+#pragma once
+
+#include <nlohmann/json_fwd.hpp>
+
+#include <string>
+#include <vector>
+
+#include "core/status.h"
+
+namespace prefsift {
+
+// Checks the gate object's keys and value types (usage errors name the key).
+Status ValidateGate(const nlohmann::ordered_json& gate);
+
+// Counts the plan cannot read from summary.json alone (read from files).
+struct GateExtras {
+  // Personal-data findings left in kept records with no action applied;
+  // -1 when unknown (the screen stage did not run).
+  long long remaining_personal_data = -1;
+};
+
+// Evaluates the gate; returns the "gate" section. `*failed` is set when any
+// check fails. REQUIRES: ValidateGate(gate).ok().
+nlohmann::ordered_json EvaluateGate(const nlohmann::ordered_json& gate, const nlohmann::ordered_json& summary,
+                                    const GateExtras& extras, bool* failed);
+
+}  // namespace prefsift

@@ -1,0 +1,114 @@
+// End-to-end: splits, datasheet, report and gate on the demo
+// (samples/demo-plan.json), a byte-identical rerun, and the report in headless
+// Chromium (skipped when /usr/bin/chromium is absent).
+#include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
+
+#include <filesystem>
+#include <map>
+#include <set>
+
+#include "e2e/e2e_helpers.h"
+
+namespace prefsift::e2e {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+TEST(SplitsReport, DemoWritesSplitsDatasheetReportAndGate) {
+  const std::string& out = DemoOutput();
+  for (const char* f : {"train.comparisons.jsonl", "valid.comparisons.jsonl", "test.comparisons.jsonl",
+                        "datasheet.md", "datasheet.json", "report.html", "assignments.jsonl"}) {
+    EXPECT_TRUE(std::filesystem::exists(out + "/" + f)) << f;
+  }
+  const Json& s = DemoSummary();
+  ASSERT_TRUE(s.contains("gate"));
+  EXPECT_TRUE(s["gate"]["verdict"] == "pass" || s["gate"]["verdict"] == "fail");
+  EXPECT_GE(s["gate"]["checks"].size(), 7u);
+  EXPECT_EQ(s["stages"]["split"]["checks"]["groups_spanning_splits"], 0);
+  EXPECT_EQ(s["stages"]["split"]["checks"]["passed"], true);
+  Json ds = Json::parse(ReadFile(out + "/datasheet.json"));
+  ASSERT_EQ(ds["sections"].size(), 7u);  // Gebru et al. 2018/2021 [V]
+  EXPECT_EQ(ds["gate"], s["gate"]);
+}
+
+// Every thread of comparisons.jsonl (samples/truth.json "groups.threads")
+// lands in one split.
+TEST(SplitsReport, DemoThreadsAreNeverSplitApart) {
+  std::map<std::string, std::string> split_of;
+  for (const auto& j : ReadJsonl(DemoOutput() + "/assignments.jsonl")) split_of[j["id"]] = j["split"];
+  std::map<std::string, std::set<std::string>> by_thread;
+  for (const auto& j : ReadJsonl(SourceDir() + "/samples/comparisons.jsonl")) {
+    if (!j.is_object() || !j.contains("uid") || !j.contains("thread") || !j["thread"].is_string()) continue;
+    auto it = split_of.find(j["uid"]);
+    if (it != split_of.end()) by_thread[j["thread"]].insert(it->second);
+  }
+  EXPECT_GT(by_thread.size(), 900u);  // truth: 1039 threads
+  for (const auto& [t, splits] : by_thread) EXPECT_EQ(splits.size(), 1u) << t;
+}
+
+// A rerun with the same inputs, plan and SOURCE_DATE_EPOCH but another
+// --threads value gives byte-identical files.
+TEST(SplitsReport, RerunIsByteIdentical) {
+  const std::string& first = DemoOutput();
+  std::string second = first + "-rerun";
+  std::string log;
+  int rc = Shell(std::string("SOURCE_DATE_EPOCH=1775000000 ") + PREFSIFT_BINARY + " run -q --threads 1 --plan " +
+                     SourceDir() + "/samples/demo-plan.json --out " + second + " --overwrite",
+                 &log);
+  ASSERT_TRUE(rc == 0 || rc == 4) << log;
+  size_t n = 0;
+  for (const auto& e : std::filesystem::directory_iterator(first)) {
+    std::string name = e.path().filename().string();
+    EXPECT_TRUE(ReadFile(e.path().string()) == ReadFile(second + "/" + name)) << name << " differs";
+    ++n;
+  }
+  size_t m = 0;
+  for ([[maybe_unused]] const auto& e : std::filesystem::directory_iterator(second)) ++m;
+  EXPECT_EQ(n, m);
+  std::filesystem::remove_all(second);
+}
+
+// The report in a real browser: no console errors, every chart with data has
+// data marks (the page's own self-check), and a screenshot for people.
+TEST(SplitsReport, ReportRendersInHeadlessChromium) {
+  if (!std::filesystem::exists("/usr/bin/chromium")) {
+    GTEST_SKIP() << "/usr/bin/chromium is absent (scripts/install-deps.sh installs Debian's chromium)";
+  }
+  std::string profile = ::testing::TempDir() + "prefsift-chromium-" + std::to_string(::getpid());
+  std::filesystem::remove_all(profile);
+  std::filesystem::create_directories(profile);
+  const std::string flags =
+      " --headless --no-sandbox --disable-gpu --disable-quic --no-first-run --disable-background-networking"
+      " --disable-component-update --disable-sync --user-data-dir=" + profile;
+  const std::string url = "file://" + std::filesystem::absolute(DemoOutput() + "/report.html").string();
+  std::string dom;
+  int rc = Shell("timeout 90 /usr/bin/chromium" + flags + " --enable-logging=stderr --v=0 --dump-dom " + url, &dom);
+  ASSERT_EQ(rc, 0) << dom.substr(0, 2000);
+  // Console errors and uncaught exceptions are logged as CONSOLE lines.
+  EXPECT_EQ(dom.find("Uncaught"), std::string::npos) << dom.substr(0, 2000);
+  size_t pos = 0;
+  while ((pos = dom.find(":CONSOLE(", pos)) != std::string::npos) {
+    size_t line_start = dom.rfind('\n', pos);
+    std::string line = dom.substr(line_start == std::string::npos ? 0 : line_start, pos - line_start + 80);
+    EXPECT_EQ(line.find("ERROR"), std::string::npos) << line;
+    ++pos;
+  }
+  EXPECT_NE(dom.find("data-verdict=\"ok\""), std::string::npos) << "the page's chart self-check did not pass";
+  for (const char* chart : {"ledger", "splits", "chosen-slot", "lengths", "clusters", "personal-data", "leakage"}) {
+    std::string tag = std::string("data-chart=\"") + chart + "\" data-state=\"data\" data-marks=\"";
+    size_t at = dom.find(tag);
+    ASSERT_NE(at, std::string::npos) << chart << " has no data";
+    EXPECT_NE(dom[at + tag.size()], '0') << chart << " has no data marks";
+  }
+  std::string shot = ::testing::TempDir() + "prefsift-report.png";
+  std::string log;
+  rc = Shell("timeout 90 /usr/bin/chromium" + flags + " --window-size=1100,3900 --screenshot=" + shot + " " + url, &log);
+  EXPECT_EQ(rc, 0) << log;
+  EXPECT_TRUE(std::filesystem::exists(shot));
+  std::printf("screenshot: %s\n", shot.c_str());
+  std::filesystem::remove_all(profile);
+}
+
+}  // namespace
+}  // namespace prefsift::e2e

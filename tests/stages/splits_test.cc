@@ -1,0 +1,365 @@
+// Split stage, gate and documents: group integrity, stability when data is
+// added, realised fractions, gate verdicts, byte-identical reruns.
+#include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
+
+#include <cmath>
+#include <cstdlib>
+#include <filesystem>
+#include <map>
+#include <set>
+
+#include "report/datasheet.h"
+#include "report/gate.h"
+#include "run_helpers.h"
+#include "stages/splits.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+using testing::PlanFor;
+using testing::ReadFile;
+using testing::ReadJsonl;
+using testing::TempPath;
+using testing::WriteFile;
+
+const Json kLayout = Json{{"id", "/id"}, {"prompt", "/q"}, {"candidates", "/a"}, {"choice", "/pick"},
+                          {"thread", "/thread"}, {"source", "/src"}, {"annotator", "/who"}};
+
+std::string Line(const std::string& id, const std::string& q, const std::string& thread, int pick = 0,
+                 const std::string& src = "web") {
+  Json j{{"id", id}, {"q", q}, {"a", {"answer one for " + q, "answer two for " + q}}, {"pick", pick},
+         {"src", src}, {"who", "w" + std::to_string(id.size() % 3)}};
+  if (!thread.empty()) j["thread"] = thread;
+  return j.dump() + "\n";
+}
+
+// n records: prompt k is "question number k about topic ...", thread every 3 records.
+std::string Corpus(int from, int to, bool threads = true) {
+  std::string s;
+  for (int k = from; k < to; ++k) {
+    s += Line("r" + std::to_string(k), "question number " + std::to_string(k) + " about seeds and soil",
+              threads ? "t" + std::to_string(k / 3) : "", k % 2);
+  }
+  return s;
+}
+
+struct RunResult {
+  Json summary;
+  std::map<std::string, std::string> split_of;  // id -> split
+  std::map<std::string, std::string> group_of;  // id -> group key
+  int rc_gate = 0;
+};
+
+RunResult RunSplit(const std::string& name, const std::string& data, Json split_settings = Json::object(),
+              std::vector<std::string> stages = {"split"}, Json gate = Json::object()) {
+  std::string in = WriteFile(name + ".jsonl", data);
+  Plan plan = PlanFor({in}, kLayout, TempPath(name + "-out"));
+  if (!split_settings.empty()) plan.stages["split"] = split_settings;
+  plan.gate = gate;
+  PipelineOptions opts;
+  opts.stages = stages;
+  opts.table = false;
+  auto r = RunPipeline(plan, opts, DefaultFileSystem(), stderr);
+  EXPECT_TRUE(r.ok()) << r.status().message();
+  RunResult out;
+  if (!r.ok()) return out;
+  out.rc_gate = r.value().gate_failed;
+  out.summary = Json::parse(ReadFile(plan.output + "/summary.json"));
+  for (const auto& j : ReadJsonl(plan.output + "/assignments.jsonl")) {
+    out.split_of[j["id"]] = j["split"];
+    out.group_of[j["id"]] = j["group"];
+  }
+  return out;
+}
+
+TEST(Splits, NoGroupSpansTwoSplitsAndFilesMatchAssignments) {
+  RunResult r = RunSplit("span", Corpus(0, 600));
+  const Json& sp = r.summary["stages"]["split"];
+  EXPECT_EQ(sp["checks"]["groups_spanning_splits"], 0);
+  EXPECT_EQ(sp["checks"]["prompts_split_apart"], 0);
+  // Independent check from the per-record assignments: one split per group and per thread.
+  std::map<std::string, std::set<std::string>> by_group, by_thread;
+  for (const auto& [id, split] : r.split_of) {
+    by_group[r.group_of[id]].insert(split);
+    by_thread["t" + std::to_string(std::stoi(id.substr(1)) / 3)].insert(split);
+  }
+  for (const auto& [g, s] : by_group) EXPECT_EQ(s.size(), 1u) << g;
+  for (const auto& [t, s] : by_thread) EXPECT_EQ(s.size(), 1u) << t;
+  EXPECT_EQ(by_thread.size(), 200u);
+  // The split files hold exactly the assigned records.
+  std::string out = TempPath("span-out");
+  size_t total = 0;
+  for (const char* name : {"train", "valid", "test"}) {
+    for (const auto& j : ReadJsonl(out + "/" + name + ".jsonl")) {
+      EXPECT_EQ(r.split_of[j["id"]], name);
+      ++total;
+    }
+  }
+  EXPECT_EQ(total, 600u);
+}
+
+TEST(Splits, SamePromptStaysTogetherEvenWithoutThreads) {
+  std::string data;
+  for (int k = 0; k < 200; ++k) {
+    // Each prompt appears twice, with different candidates (not exact duplicates).
+    std::string q = "shared prompt " + std::to_string(k % 100);
+    data += Line("p" + std::to_string(k), q, "", k % 2);
+  }
+  RunResult r = RunSplit("prompt", data, Json{{"tie_by", {"prompt"}}});
+  for (int k = 0; k < 100; ++k) {
+    EXPECT_EQ(r.split_of["p" + std::to_string(k)], r.split_of["p" + std::to_string(k + 100)]);
+  }
+  EXPECT_EQ(r.summary["stages"]["split"]["groups"]["count"], 100);
+}
+
+// Stability: adding records keeps existing records' splits unless their group
+// gained a member with a smaller key (then the whole group moves together).
+TEST(Splits, AddingRecordsKeepsExistingSplits) {
+  RunResult before = RunSplit("stable-a", Corpus(0, 900));
+  // Extra data: 300 new records in new threads, plus 30 records that join
+  // existing threads (t0..t29), interleaved at the front to change input order.
+  std::string extra;
+  for (int k = 0; k < 30; ++k) extra += Line("j" + std::to_string(k), "late follow-up " + std::to_string(k), "t" + std::to_string(k));
+  RunResult after = RunSplit("stable-b", extra + Corpus(900, 1200) + Corpus(0, 900),
+                        Json{{"previous", TempPath("stable-a-out") + "/assignments.jsonl"}});
+  std::set<std::string> joined_threads;
+  for (int k = 0; k < 30; ++k) joined_threads.insert("t" + std::to_string(k));
+  int moved = 0, moved_unexplained = 0;
+  for (const auto& [id, split] : before.split_of) {
+    ASSERT_TRUE(after.split_of.count(id)) << id;
+    if (after.split_of[id] == split) continue;
+    ++moved;
+    std::string thread = "t" + std::to_string(std::stoi(id.substr(1)) / 3);
+    if (!joined_threads.count(thread)) ++moved_unexplained;
+  }
+  EXPECT_EQ(moved_unexplained, 0) << "records moved although their group did not change";
+  // Groups that did not gain members keep their key too.
+  for (const auto& [id, g] : before.group_of) {
+    std::string thread = "t" + std::to_string(std::stoi(id.substr(1)) / 3);
+    if (!joined_threads.count(thread)) EXPECT_EQ(after.group_of[id], g) << id;
+  }
+  // The stage reports the moves against the previous assignments.
+  const Json& prev = after.summary["stages"]["split"]["previous"];
+  EXPECT_EQ(prev["moved"], moved);
+  EXPECT_EQ(prev["unchanged"], 900 - moved);
+  EXPECT_EQ(prev["new"], 330);
+  EXPECT_EQ(prev["no_longer_kept"], 0);
+  std::printf("stability: %d of 900 existing records moved (their thread gained a record)\n", moved);
+}
+
+// Realised fractions: 3000 singleton groups; each share should fall within
+// 3 sd of its ratio, sd = sqrt(p(1-p)/n) for n independent groups (the
+// binomial proportion's standard deviation, common practice).
+TEST(Splits, RealisedFractionsWithinBinomialTolerance) {
+  RunResult r = RunSplit("fractions", Corpus(0, 3000, false), Json{{"tie_by", {"prompt"}}});
+  const Json& sp = r.summary["stages"]["split"];
+  ASSERT_EQ(sp["splits"].size(), 3u);
+  for (const auto& e : sp["splits"]) {
+    double p = e["ratio"].get<double>();
+    double sd = std::sqrt(p * (1 - p) / 3000.0);
+    EXPECT_NEAR(e["sd"].get<double>(), sd, 1e-6);
+    EXPECT_LE(std::fabs(e["share"].get<double>() - p), 3 * sd) << e.dump();
+  }
+  EXPECT_EQ(sp["checks"]["fractions_within_tolerance"], true);
+  EXPECT_EQ(sp["checks"]["passed"], true);
+}
+
+TEST(Splits, StratifiedBySourceGivesNearExactFractionsPerSource) {
+  std::string data;
+  for (int k = 0; k < 1000; ++k) {
+    data += Line("s" + std::to_string(k), "stratified question " + std::to_string(k), "", 0, k % 4 ? "web" : "kiosk");
+  }
+  RunResult r = RunSplit("strat", data,
+                    Json{{"tie_by", {"prompt"}}, {"stratify_by", "source"}, {"splits", {{"a", 0.5}, {"b", 0.3}, {"c", 0.2}}}});
+  std::map<std::string, std::map<std::string, int>> counts;
+  for (const auto& [id, split] : r.split_of) counts[std::stoi(id.substr(1)) % 4 ? "web" : "kiosk"][split]++;
+  EXPECT_NEAR(counts["kiosk"]["a"], 125, 1);
+  EXPECT_NEAR(counts["kiosk"]["b"], 75, 1);
+  EXPECT_NEAR(counts["web"]["a"], 375, 1);
+  EXPECT_NEAR(counts["web"]["c"], 150, 1);
+}
+
+TEST(Splits, SettingsErrorsNameTheKey) {
+  Plan plan;
+  Status err;
+  plan.stages["split"] = Json{{"splits", {{"train", 0.5}, {"test", 0.4}}}};
+  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_NE(err.message().find("add up to 1"), std::string::npos);
+  plan.stages["split"] = Json{{"tie_by", {"colour"}}};
+  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_NE(err.message().find("tie_by"), std::string::npos);
+  plan.stages["split"] = Json{{"ratio", 1}};
+  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_NE(err.message().find("ratio"), std::string::npos);
+}
+
+TEST(Splits, SplitPositionIsUniformAndSaltDependent) {
+  // A crude uniformity check over 10000 keys: each decile within 5 sd of 1000
+  // (binomial sd = sqrt(10000 * 0.1 * 0.9) = 30; common practice).
+  int deciles[10] = {};
+  int same = 0;
+  for (uint64_t k = 0; k < 10000; ++k) {
+    Hash128 key{k * 0x9E3779B97F4A7C15ULL, k};
+    double u = SplitPosition("salt", key);
+    ASSERT_GE(u, 0.0);
+    ASSERT_LT(u, 1.0);
+    ++deciles[static_cast<int>(u * 10)];
+    same += SplitPosition("other", key) == u;
+  }
+  for (int d : deciles) EXPECT_NEAR(d, 1000, 150);
+  EXPECT_LT(same, 5);
+}
+
+// Script detection by Unicode block (ranges from the Unicode Blocks.txt, from memory).
+TEST(Splits, DominantScript) {
+  EXPECT_EQ(DominantScript("How do I save tomato seed?"), "Latin");
+  EXPECT_EQ(DominantScript("Как сохранить семена томатов?"), "Cyrillic");
+  EXPECT_EQ(DominantScript("トマトの種の保存方法"), "Kana");
+  EXPECT_EQ(DominantScript("番茄种子怎么保存"), "Han");
+  EXPECT_EQ(DominantScript("كيف أحفظ البذور"), "Arabic");
+  EXPECT_EQ(DominantScript("12345 !!"), "none");
+}
+
+// ----- the gate -----
+
+Json SummaryWith(bool with_bias) {
+  Json s;
+  s["ledger"] = Json{{"records_in", 100}, {"kept", 80}, {"rejected", 20}};
+  s["inputs"] = Json::array({Json{{"parsed", 100}}});
+  s["stages"]["exact"] = Json{{"label_conflicts", {{"comparisons", 2}, {"records", 5}}}};
+  if (with_bias) {
+    s["stages"]["bias"]["position"]["by_candidates"] =
+        Json::array({Json{{"p_adjusted", 0.2}}, Json{{"p_adjusted", 0.004}}});
+    s["stages"]["bias"]["shortcut_audit"]["heldout_accuracy"] = 0.55;
+  }
+  return s;
+}
+
+TEST(Gate, Verdicts) {
+  bool failed = false;
+  // All pass.
+  Json g = EvaluateGate(Json{{"min_kept_share", 0.8}, {"max_label_conflict_rate", 0.05}}, SummaryWith(false), {}, &failed);
+  EXPECT_FALSE(failed);
+  EXPECT_EQ(g["verdict"], "pass");  // 0.8 >= 0.8 and 0.05 <= 0.05: thresholds are inclusive
+  // Position: the smallest adjusted p (0.004) against 0.01 fails.
+  g = EvaluateGate(Json{{"min_position_p_adjusted", 0.01}, {"max_shortcut_accuracy", 0.6}}, SummaryWith(true), {}, &failed);
+  EXPECT_TRUE(failed);
+  EXPECT_EQ(g["checks"][0]["value"], 0.004);
+  EXPECT_EQ(g["checks"][0]["verdict"], "fail");
+  EXPECT_EQ(g["checks"][1]["verdict"], "pass");
+  // Stages that did not run: not evaluated, not a pass, not a failure.
+  g = EvaluateGate(Json{{"max_shortcut_accuracy", 0.6}, {"max_leakage_rate", 0.01}, {"max_personal_data_findings", 0},
+                        {"require_split_checks", true}},
+                   SummaryWith(false), {}, &failed);
+  EXPECT_FALSE(failed);
+  EXPECT_EQ(g["verdict"], "incomplete");
+  EXPECT_EQ(g["not_evaluated"], 4);
+  for (const auto& c : g["checks"]) EXPECT_EQ(c["verdict"], "not evaluated") << c.dump();
+  // Remaining personal data from the findings file.
+  Json s = SummaryWith(false);
+  s["stages"]["screen"] = Json::object();
+  GateExtras ex;
+  ex.remaining_personal_data = 2;
+  g = EvaluateGate(Json{{"max_personal_data_findings", 1}}, s, ex, &failed);
+  EXPECT_TRUE(failed);
+  EXPECT_EQ(g["checks"][0]["value"], 2);
+  // An empty gate.
+  g = EvaluateGate(Json::object(), s, ex, &failed);
+  EXPECT_FALSE(failed);
+  EXPECT_EQ(g["verdict"], "no checks");
+}
+
+TEST(Gate, LeakagePerSetWithDefault) {
+  Json s = SummaryWith(false);
+  s["stages"]["leakage"] = Json{{"flagged", 3},
+                                {"by_set", {{"a", {{"exact", {{"rate", 0.01}}}, {"ngram", {{"rate", 0.03}}}}},
+                                            {"b", {{"exact", {{"rate", 0.0}}}}}}}};
+  bool failed = false;
+  Json g = EvaluateGate(Json{{"max_leakage_rate", {{"a", 0.02}, {"*", 0.0}}}}, s, {}, &failed);
+  EXPECT_TRUE(failed);
+  ASSERT_EQ(g["checks"].size(), 2u);
+  EXPECT_EQ(g["checks"][0]["scope"], "a");
+  EXPECT_EQ(g["checks"][0]["value"], 0.03);
+  EXPECT_EQ(g["checks"][0]["verdict"], "fail");
+  EXPECT_EQ(g["checks"][1]["verdict"], "pass");
+  // Everything found was dropped: nothing leaks into the output.
+  s["stages"]["leakage"]["flagged"] = 0;
+  g = EvaluateGate(Json{{"max_leakage_rate", 0.0}}, s, {}, &failed);
+  EXPECT_FALSE(failed);
+}
+
+TEST(Gate, ValidationNamesTheKey) {
+  EXPECT_NE(ValidateGate(Json{{"max_typos", 1}}).message().find("gate.max_typos"), std::string::npos);
+  EXPECT_NE(ValidateGate(Json{{"min_kept_share", 1.5}}).message().find("between 0 and 1"), std::string::npos);
+  EXPECT_NE(ValidateGate(Json{{"require_split_checks", 1}}).message().find("true or false"), std::string::npos);
+  EXPECT_NE(ValidateProvenance(Json{{"motivation", {{"why", "x"}}}}).message().find("provenance.motivation.why"),
+            std::string::npos);
+}
+
+TEST(Gate, FailingGateSetsTheOutcome) {
+  RunResult r = RunSplit("gatefail", Corpus(0, 60), Json::object(), {"split"}, Json{{"min_kept_share", 1.0}, {"require_split_checks", true}});
+  EXPECT_EQ(r.rc_gate, 0);
+  EXPECT_EQ(r.summary["gate"]["verdict"], "pass");
+  // Reject some lines (broken JSON) so the kept share drops below 1.
+  RunResult f = RunSplit("gatefail2", Corpus(0, 60) + "{broken\n", Json::object(), {"split"}, Json{{"min_kept_share", 1.0}});
+  EXPECT_EQ(f.rc_gate, 1);
+  EXPECT_EQ(f.summary["gate"]["verdict"], "fail");
+}
+
+// ----- documents and determinism -----
+
+std::map<std::string, std::string> Folder(const std::string& dir) {
+  std::map<std::string, std::string> files;
+  for (const auto& e : std::filesystem::directory_iterator(dir)) files[e.path().filename().string()] = ReadFile(e.path().string());
+  return files;
+}
+
+TEST(Documents, DatasheetHasSevenSectionsAndRerunsAreByteIdentical) {
+  ::setenv("SOURCE_DATE_EPOCH", "1775000000", 1);
+  std::string in = WriteFile("det.jsonl", Corpus(0, 400));
+  std::map<std::string, std::string> first;
+  for (unsigned threads : {1u, 2u, 4u}) {
+    Plan plan = PlanFor({in}, kLayout, TempPath("det-out-" + std::to_string(threads)));
+    plan.threads = threads;
+    plan.gate = Json{{"min_kept_share", 0.5}};
+    plan.provenance = Json{{"dataset_name", "test set"}, {"motivation", {{"purpose", "testing"}}}};
+    PipelineOptions opts;
+    opts.stages = {"exact", "split"};
+    opts.table = false;
+    auto r = RunPipeline(plan, opts, DefaultFileSystem(), stderr);
+    ASSERT_TRUE(r.ok()) << r.status().message();
+    auto files = Folder(plan.output);
+    if (first.empty()) {
+      first = files;
+      for (const char* name : {"datasheet.md", "datasheet.json", "report.html", "summary.json", "train.jsonl",
+                               "valid.jsonl", "test.jsonl", "assignments.jsonl"}) {
+        EXPECT_TRUE(files.count(name)) << name;
+      }
+      Json ds = Json::parse(files["datasheet.json"]);
+      ASSERT_EQ(ds["sections"].size(), 7u);
+      std::vector<std::string> titles;
+      for (const auto& s : ds["sections"]) titles.push_back(s["title"]);
+      // Gebru et al. 2018/2021, the seven sections [V] (methods.md section 7).
+      EXPECT_EQ(titles, (std::vector<std::string>{"Motivation", "Composition", "Collection process",
+                                                  "Preprocessing, cleaning and labelling", "Uses", "Distribution",
+                                                  "Maintenance"}));
+      EXPECT_EQ(ds["sections"][0]["answers"][0]["answer"], "testing");
+      EXPECT_EQ(ds["sections"][0]["answers"][1]["answer"], "not provided");
+      EXPECT_EQ(ds["provenance"]["time"]["utc"], "2026-03-31T23:33:20Z");
+      EXPECT_EQ(ds["provenance"]["inputs"][0]["sha256"].get<std::string>().size(), 64u);
+      std::string md = files["datasheet.md"];
+      EXPECT_NE(md.find("## 7. Maintenance"), std::string::npos);
+      EXPECT_NE(md.find("not legal advice"), std::string::npos);
+      EXPECT_NE(md.find("_not provided_"), std::string::npos);
+      continue;
+    }
+    ASSERT_EQ(files.size(), first.size());
+    for (const auto& [name, bytes] : first) EXPECT_TRUE(files[name] == bytes) << name << " differs with --threads " << threads;
+  }
+  ::unsetenv("SOURCE_DATE_EPOCH");
+}
+
+}  // namespace
+}  // namespace prefsift
