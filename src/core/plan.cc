@@ -1,10 +1,14 @@
 #include "core/plan.h"
 
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
 #include <set>
 #include <sstream>
+#include <utility>
+#include <vector>
 
+#include "core/limits.h"
 #include "core/sha256.h"
 
 namespace prefsift {
@@ -28,7 +32,24 @@ std::string Stem(const std::string& path) {
   return name;
 }
 
-Status ReadLimits(const Json& j, const std::string& where, InputLimits* lim) {
+// Nesting depth of a JSON value, without recursion.
+size_t Depth(const Json& root) {
+  size_t max_depth = 0;
+  std::vector<std::pair<const Json*, size_t>> stack = {{&root, 1}};
+  while (!stack.empty()) {
+    auto [v, d] = stack.back();
+    stack.pop_back();
+    if (!v->is_structured()) continue;
+    max_depth = std::max(max_depth, d);
+    if (d > kMaxPlanDepth) break;
+    for (const auto& child : *v) stack.push_back({&child, d + 1});
+  }
+  return max_depth;
+}
+
+}  // namespace
+
+Status LimitsFromJson(const Json& j, const std::string& where, InputLimits* lim) {
   if (!j.is_object()) return Status::Usage(where + ": must be an object");
   for (auto it = j.begin(); it != j.end(); ++it) {
     size_t* target = nullptr;
@@ -43,10 +64,11 @@ Status ReadLimits(const Json& j, const std::string& where, InputLimits* lim) {
     *target = it.value().get<size_t>();
   }
   if (lim->max_candidates < 2) return Status::Usage(where + ".max_candidates: must be at least 2");
+  if (lim->max_depth > kMaxDepthCeiling) {
+    return Status::Usage(where + ".max_depth: at most " + std::to_string(kMaxDepthCeiling));
+  }
   return Status::Ok();
 }
-
-}  // namespace
 
 Status AddInput(Plan* plan, const std::string& path, const Json& layout_spec, const std::string& where) {
   auto layout = LayoutFromJson(layout_spec, where + ".layout");
@@ -65,8 +87,11 @@ Status AddInput(Plan* plan, const std::string& path, const Json& layout_spec, co
 
 Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std::string& where) {
   if (!j.is_object()) return Status::Usage(where + ": a plan is a JSON object");
+  if (Depth(j) > kMaxPlanDepth) {
+    return Status::Usage(where + ": the plan is nested deeper than " + std::to_string(kMaxPlanDepth) + " levels");
+  }
   static const std::set<std::string> kKeys = {"inputs", "layouts", "output", "overwrite", "strict", "seed", "threads",
-                                              "limits", "normalize", "stages", "provenance", "gate", "$comment"};
+                                              "limits", "normalize", "stages", "provenance", "gate", "store", "$comment"};
   for (auto it = j.begin(); it != j.end(); ++it) {
     if (!kKeys.count(it.key())) return Status::Usage(where + ": unknown key \"" + it.key() + "\"");
   }
@@ -126,7 +151,7 @@ Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std:
     plan.threads = j["threads"].get<unsigned>();
   }
   if (j.contains("limits")) {
-    if (Status s = ReadLimits(j["limits"], where + ".limits", &plan.limits); !s.ok()) return s;
+    if (Status s = LimitsFromJson(j["limits"], where + ".limits", &plan.limits); !s.ok()) return s;
   }
   if (j.contains("normalize")) {
     const Json& n = j["normalize"];
@@ -164,6 +189,10 @@ Result<Plan> LoadPlanFile(const std::string& path) {
     }
     return Status::Usage(path + ":" + std::to_string(line) + ":" + std::to_string(col) +
                          ": the plan is not valid JSON (" + e.what() + ")");
+  } catch (const nlohmann::json::exception& e) {
+    // Not a syntax error but still unreadable, e.g. a number too large for a
+    // double (out_of_range.406).
+    return Status::Usage(path + ": the plan is not valid JSON (" + e.what() + ")");
   }
   std::string base = std::filesystem::path(path).parent_path().string();
   auto plan = PlanFromJson(j, base, path);

@@ -207,6 +207,9 @@ Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_n
   } catch (const json::parse_error& e) {
     return Status::Usage(source_name + ":" + std::to_string(LineOfOffset(text, e.byte > 0 ? e.byte - 1 : 0)) +
                          ": not valid JSON: " + e.what());
+  } catch (const json::exception& e) {
+    // E.g. a number too large for a double (out_of_range.406): not a syntax error, still unreadable.
+    return Status::Usage(source_name + ": not valid JSON: " + e.what());
   }
   if (!doc.is_object() || !doc.contains("rules") || !doc.at("rules").is_array()) {
     return Status::Usage(source_name + ": a rule pack must be an object with a 'rules' array");

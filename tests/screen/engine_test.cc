@@ -251,6 +251,12 @@ TEST(Engine, BadRuleFileNamesFileLineRuleAndRe2Message) {
   auto j = ParseRulePack("{\n  \"rules\": [\n    {\"id\": \"t.x\" \"pattern\": \"a\"}\n  ]\n}\n", "syntax.json");
   ASSERT_FALSE(j.ok());
   EXPECT_EQ(j.status().message().rfind("syntax.json:3:", 0), 0u) << j.status().message();
+  // A number too large for a double is an error value, not an exception
+  // (nlohmann throws out_of_range.406 for it, not parse_error; docs/hardening.md).
+  auto big = ParseRulePack(R"({"rules":[{"id":"t.b","pattern":"a","confidence":1e400}]})", "big.json");
+  ASSERT_FALSE(big.ok());
+  EXPECT_EQ(big.status().code(), StatusCode::kUsage);
+  EXPECT_EQ(big.status().message().rfind("big.json: not valid JSON", 0), 0u) << big.status().message();
   // Unknown validator and unknown pack name are errors too.
   auto v = ParseRulePack(R"({"rules":[{"id":"t.v","pattern":"a","validator":"nope"}]})", "inline");
   ASSERT_FALSE(v.ok());
