@@ -18,6 +18,9 @@
 #include "stages/pipeline.h"
 #include "stages/split_audit.h"
 #include "stages/stage.h"
+#ifdef PREFSIFT_HAVE_STORE
+#include "cli/store_commands.h"  // growing stores (docs/store.md)
+#endif
 
 namespace prefsift {
 namespace {
@@ -212,6 +215,9 @@ int main(int argc, char** argv) {
   audit_cmd->add_flag("--by-annotator", audit.by_annotator, "Also report annotators who appear on both sides");
   audit_cmd->add_flag("--gate", audit.gate, "Exit with code 4 if any leakage is found");
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
+#ifdef PREFSIFT_HAVE_STORE
+  auto store_commands = AddStoreCommands(&app);
+#endif
 
   try {
     app.parse(argc, argv);
@@ -235,6 +241,9 @@ int main(int argc, char** argv) {
     }
     return 0;
   }
+#ifdef PREFSIFT_HAVE_STORE
+  if (int rc = store_commands->RunIfParsed(); rc >= 0) return rc;
+#endif
   for (size_t i = 0; i < commands.size(); ++i) {
     if (subs[i]->parsed()) return RunWith(options[i], commands[i].stages);
   }

@@ -55,19 +55,7 @@ class ExactDupsStage : public Stage {
     std::vector<Hash128> judgment(n);
     for (size_t i = 0; i < n; ++i) {
       if (!st.IsKept(i)) continue;
-      const RecordFacts& f = st.records[i];
-      std::vector<size_t> order(f.cand_hashes.size());
-      std::iota(order.begin(), order.end(), 0);
-      std::stable_sort(order.begin(), order.end(),
-                       [&](size_t a, size_t b) { return f.cand_hashes[a] < f.cand_hashes[b]; });
-      std::vector<Hash128> key_parts{f.prompt_hash};
-      std::vector<Hash128> judg;
-      for (size_t k : order) {
-        key_parts.push_back(f.cand_hashes[k]);
-        judg.push_back(Hash128{0, static_cast<uint64_t>(f.ranks[k])});
-      }
-      Hash128 key = HashOfHashes(key_parts.data(), key_parts.size());
-      judgment[i] = HashOfHashes(judg.data(), judg.size());
+      Hash128 key = ComparisonKeyOf(st.records[i], &judgment[i]);
       auto [it, fresh] = group_of.try_emplace(key, groups.size());
       if (fresh) groups.emplace_back();
       groups[it->second].push_back(i);
@@ -194,6 +182,21 @@ class ExactDupsStage : public Stage {
 };
 
 }  // namespace
+
+Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment) {
+  std::vector<size_t> order(f.cand_hashes.size());
+  std::iota(order.begin(), order.end(), 0);
+  std::stable_sort(order.begin(), order.end(),
+                   [&](size_t a, size_t b) { return f.cand_hashes[a] < f.cand_hashes[b]; });
+  std::vector<Hash128> key_parts{f.prompt_hash};
+  std::vector<Hash128> judg;
+  for (size_t k : order) {
+    key_parts.push_back(f.cand_hashes[k]);
+    judg.push_back(Hash128{0, static_cast<uint64_t>(f.ranks[k])});
+  }
+  *judgment = HashOfHashes(judg.data(), judg.size());
+  return HashOfHashes(key_parts.data(), key_parts.size());
+}
 
 std::unique_ptr<Stage> MakeExactDupsStage(const Plan& plan, Status* error) {
   const Json& s = StageSettings(plan, "exact");

@@ -21,4 +21,9 @@ namespace prefsift {
 
 std::unique_ptr<Stage> MakeExactDupsStage(const Plan& plan, Status* error);
 
+// The comparison key of a record (prompt hash + sorted candidate hashes) and,
+// in *judgment, the hash of its ranks read in that order. Shared with the
+// store (src/store) so both match records the same way.
+Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment);
+
 }  // namespace prefsift

@@ -120,6 +120,13 @@ class NearDupsStage : public Stage {
     const size_t n = st.records.size();
     records_signed_ = n;
     st.near_cluster.assign(n, -1);
+    if (st.near_share) {  // store support (src/store, docs/store.md): matching against stored signatures
+      st.near_signatures = signatures_;
+      st.near_slots = s_.slots;
+      st.near_bands = banding_.bands;
+      st.near_rows = banding_.rows;
+      st.near_threshold = s_.exact ? -1.0 : s_.threshold;  // -1: "verify": "exact", which a store refuses
+    }
     std::vector<size_t> kept;  // records still kept after earlier stages, input order
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(i);

@@ -330,9 +330,12 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   progress.Done();
   if (!s.ok()) return s;
   for (auto& stage : stages) {
-    s = stage->Decide(st);
+    if (options.companion) s = options.companion->Between(stage->name(), st);  // store support (docs/store.md)
+    if (s.ok()) s = stage->Decide(st);
     if (!s.ok()) return s;
   }
+  if (options.companion) s = options.companion->Decide(st);
+  if (!s.ok()) return s;
   std::map<std::string, uint64_t> written;
   s = Apply(plan, st, stages, fs, *out.value(), &written);
   if (!s.ok()) return s;
@@ -340,6 +343,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     s = stage->WriteOutputs(st, *out.value());
     if (!s.ok()) return s;
   }
+  if (options.companion) s = options.companion->WriteOutputs(st, *out.value());
+  if (!s.ok()) return s;
   RunOutcome outcome;
   for (size_t i = 0; i < st.entries.size(); ++i) {
     InputStats& is = st.inputs[st.entries[i].input];
@@ -365,6 +370,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   }
   std::vector<const Stage*> stage_ptrs;
   for (auto& stage : stages) stage_ptrs.push_back(stage.get());
+  if (options.companion) stage_ptrs.push_back(options.companion);
   Json summary = BuildSummary(plan, st, stage_ptrs, written);
   s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed);  // gate and provenance
   if (!s.ok()) return s;

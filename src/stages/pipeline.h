@@ -13,10 +13,13 @@
 
 namespace prefsift {
 
+class RunCompanion;
+
 struct PipelineOptions {
   std::vector<std::string> stages;  // stage names to run, in any order; run in pipeline order
   bool progress = false;            // a progress line on `log` (use when it is a terminal)
   bool table = true;                // the ledger table on `log` at the end
+  RunCompanion* companion = nullptr;  // optional (src/store): see RunCompanion in stages/stage.h
 };
 
 struct RunOutcome {

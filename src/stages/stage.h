@@ -39,6 +39,15 @@ class Stage {
   }
 };
 
+// A companion to the stages for one run (the store, src/store; docs/store.md):
+// Between(next, st) runs before each stage's Decide with that stage's name,
+// then Decide once after the last stage; it reports and writes outputs like a
+// stage (summary section under its name). Not in the registry.
+class RunCompanion : public Stage {
+ public:
+  virtual Status Between(const std::string& next_stage, RunState& state) = 0;
+};
+
 struct StageInfo {
   const char* name;
   const char* summary;  // one line for --help

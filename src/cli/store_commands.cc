@@ -1,0 +1,183 @@
+// Subcommands for growing stores; see store_commands.h.
+#include "cli/store_commands.h"
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include <unistd.h>
+
+#include <cstdio>
+
+#include "core/plan.h"
+#include "io/file_system.h"
+#include "io/output_dir.h"
+#include "store/add_batch.h"
+#include "store/history.h"
+#include "store/shards.h"
+
+namespace prefsift {
+namespace {
+
+int ExitOf(const Status& s) {
+  switch (s.code()) {
+    case StatusCode::kOk: return 0;
+    case StatusCode::kUsage: return 2;
+    case StatusCode::kInput:
+    case StatusCode::kLimit: return 3;
+    default: return 1;
+  }
+}
+
+int Fail(const Status& s) {
+  std::fprintf(stderr, "prefsift: %s\n", s.message().c_str());
+  return ExitOf(s);
+}
+
+std::string Stem(const std::string& path) {
+  std::string name = path.substr(path.find_last_of('/') + 1);
+  for (const char* ext : {".gz", ".zst", ".jsonl", ".json"}) {
+    size_t n = std::string(ext).size();
+    if (name.size() > n && name.compare(name.size() - n, n, ext) == 0) name.resize(name.size() - n);
+  }
+  return name;
+}
+
+struct BatchArgs {
+  std::string plan_path, out, store;
+  std::vector<std::string> inputs;
+  bool overwrite = false, quiet = false;
+  unsigned threads = 0;
+};
+
+void AddBatchArgs(CLI::App* cmd, BatchArgs* a, bool store) {
+  cmd->add_option("inputs", a->inputs,
+                  "The batch's JSONL files; each takes the layout of the plan's first input (default: the plan's inputs)");
+  cmd->add_option("-p,--plan", a->plan_path, "Plan file (layouts and stage settings)")->required();
+  cmd->add_option("-o,--out", a->out, "Output folder for this batch (must not exist unless --overwrite)");
+  cmd->add_flag("--overwrite", a->overwrite, "Replace an existing output folder (atomically, at the end)");
+  cmd->add_option("--threads", a->threads, "Worker threads (default: all cores); results do not depend on it");
+  cmd->add_flag("-q,--quiet", a->quiet, "No ledger table or progress on stderr");
+  if (store) cmd->add_option("--store", a->store, "The store file (SQLite; created when missing; default: the plan's \"store\")");
+}
+
+Result<Plan> BatchPlan(const BatchArgs& a) {
+  auto loaded = LoadPlanFile(a.plan_path);
+  if (!loaded.ok()) return loaded.status();
+  Plan plan = std::move(loaded).value();
+  if (!a.inputs.empty()) {
+    if (plan.inputs.empty()) return Status::Usage("inputs on the command line take the layout of the plan's first input; the plan has none");
+    InputSpec model = plan.inputs[0];
+    for (const auto& in : plan.inputs) {
+      if (in.layout_key != model.layout_key) {
+        return Status::Usage("the plan's inputs use different layouts; name the batch's files in a plan instead");
+      }
+    }
+    plan.inputs.clear();
+    for (const auto& path : a.inputs) {
+      InputSpec spec = model;
+      spec.path = path;
+      spec.name = Stem(path);
+      plan.inputs.push_back(spec);
+    }
+  }
+  if (!a.out.empty()) plan.output = a.out;
+  if (a.overwrite) plan.overwrite = true;
+  if (a.threads) plan.threads = a.threads;
+  return plan;
+}
+
+class Commands : public StoreCommands {
+ public:
+  explicit Commands(CLI::App* app) {
+    add_ = app->add_subcommand("add", "Add a batch to a growing store: dedup against it, inherit stored splits (docs/store.md)");
+    AddBatchArgs(add_, &add_args_, true);
+    add_->add_option("--wait", wait_s_, "Seconds to wait while another run writes the store (default 30), then exit 3");
+    history_ = app->add_subcommand("history", "List a store's batches with their digests and counts");
+    history_->add_option("--store", store_, "The store file")->required();
+    summary_ = app->add_subcommand("store-summary", "Cumulative summary JSON of a whole store (all batches)");
+    summary_->add_option("--store", store_, "The store file")->required();
+    summary_->add_option("-o,--out", summary_out_, "Write the JSON here (atomically) instead of stdout");
+    sign_ = app->add_subcommand("shard-sign", "Near-duplicate signatures and band keys of one shard (for `merge`)");
+    AddBatchArgs(sign_, &sign_args_, false);
+    merge_ = app->add_subcommand("merge", "Cluster near-duplicates over several shards' signatures.jsonl files");
+    merge_->add_option("files", merge_files_, "signatures.jsonl files from `shard-sign`, in shard order")->required();
+    merge_->add_option("-o,--out", merge_out_, "Output folder (clusters.jsonl, merge.json)")->required();
+    merge_->add_flag("--overwrite", merge_overwrite_, "Replace an existing output folder");
+    merge_->add_option("--threads", merge_threads_, "Worker threads; results do not depend on it");
+  }
+
+  int RunIfParsed() override {
+    if (add_->parsed()) return Add();
+    if (history_->parsed()) {
+      auto t = store::HistoryTable(store_);
+      if (!t.ok()) return Fail(t.status());
+      std::fputs(t.value().c_str(), stdout);
+      return 0;
+    }
+    if (summary_->parsed()) {
+      nlohmann::ordered_json j;
+      Status s = store::CumulativeSummary(store_, &j);
+      if (!s.ok()) return Fail(s);
+      std::string text = j.dump(2) + "\n";
+      if (summary_out_.empty()) {
+        std::fputs(text.c_str(), stdout);
+        return 0;
+      }
+      s = WriteFileAtomically(DefaultFileSystem(), summary_out_, text);
+      return s.ok() ? 0 : Fail(s);
+    }
+    if (sign_->parsed()) {
+      auto plan = BatchPlan(sign_args_);
+      if (!plan.ok()) return Fail(plan.status());
+      Status s = store::ShardSign(plan.value(), DefaultFileSystem(), stderr, !sign_args_.quiet);
+      if (!s.ok()) return Fail(s);
+      if (!sign_args_.quiet) std::fprintf(stderr, "wrote %s/signatures.jsonl\n", plan.value().output.c_str());
+      return 0;
+    }
+    if (merge_->parsed()) {
+      auto r = store::MergeShards(merge_files_, merge_out_, merge_overwrite_, merge_threads_, DefaultFileSystem());
+      if (!r.ok()) return Fail(r.status());
+      std::fprintf(stderr, "%llu records, %llu clusters; wrote %s\n", static_cast<unsigned long long>(r.value().records),
+                   static_cast<unsigned long long>(r.value().clusters), merge_out_.c_str());
+      return 0;
+    }
+    return -1;
+  }
+
+ private:
+  int Add() {
+    auto plan = BatchPlan(add_args_);
+    if (!plan.ok()) return Fail(plan.status());
+    store::AddOptions o;
+    o.store_path = add_args_.store;
+    o.wait_ms = static_cast<int>(wait_s_ * 1000);
+    o.progress = !add_args_.quiet && ::isatty(2);
+    o.table = !add_args_.quiet;
+    auto r = store::AddBatch(plan.value(), o, DefaultFileSystem(), stderr);
+    if (!r.ok()) return Fail(r.status());
+    if (r.value().already_added) {
+      std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
+                   static_cast<long long>(r.value().batch));
+      return 0;
+    }
+    if (!add_args_.quiet) {
+      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(r.value().batch),
+                   plan.value().output.c_str());
+    }
+    return r.value().gate_failed ? 4 : 0;
+  }
+
+  CLI::App *add_, *history_, *summary_, *sign_, *merge_;
+  BatchArgs add_args_, sign_args_;
+  double wait_s_ = 30;
+  std::string store_, summary_out_, merge_out_;
+  std::vector<std::string> merge_files_;
+  bool merge_overwrite_ = false;
+  unsigned merge_threads_ = 0;
+};
+
+}  // namespace
+
+std::unique_ptr<StoreCommands> AddStoreCommands(CLI::App* app) { return std::make_unique<Commands>(app); }
+
+}  // namespace prefsift

@@ -1,0 +1,59 @@
+// Incremental runs: one batch added to a growing store (docs/store.md).
+//
+// AddBatch runs the whole pipeline over the batch with a store companion
+// (stages/stage.h RunCompanion) that, between the stages:
+//   after exact   rejects records whose comparison key is already stored
+//                 (store_duplicate, or store_label_conflict when the stored
+//                 judgment differs);
+//   after near    matches the batch's signatures against the stored band keys
+//                 (same banding and verification as the near stage), so batch
+//                 records join stored clusters and bridged clusters merge;
+//   before split  ties batch records to stored groups (prompt, near cluster,
+//                 thread, annotator, group key as the plan's tie_by says);
+//                 a record inherits its stored group's split, a component tying
+//                 groups in different splits is rejected (store_group_conflict);
+//   at the end    writes the batch's facts into the store.
+// The whole batch is one transaction (BEGIN IMMEDIATE before reading the
+// store, COMMIT after the output folder is in place).
+//
+// Thread-safety: one call at a time per process; processes serialise on the
+// store's write lock.
+#pragma once
+
+#include <cstdio>
+#include <string>
+
+#include "core/plan.h"
+#include "core/status.h"
+#include "io/file_system.h"
+
+namespace prefsift::store {
+
+struct AddOptions {
+  std::string store_path;      // "" = the plan's "store"
+  int wait_ms = 30000;         // busy timeout for a store another run is writing
+  bool progress = false;
+  bool table = true;
+};
+
+struct AddOutcome {
+  bool already_added = false;  // the same inputs and plan were added before: nothing done
+  int64_t batch = 0;
+  uint64_t entries = 0, kept = 0, rejected = 0;
+  bool gate_failed = false;
+};
+
+// Adds the plan's inputs as one batch. The plan must run the exact and split
+// stages; "verify": "exact" (near) and "stratify_by": "source" (split) are
+// refused. REQUIRES: plan.output set.
+Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log);
+
+// The "store" value of a plan file, resolved against the plan's folder ("" when absent).
+Result<std::string> StorePathFromPlan(const Plan& plan);
+
+// Test hook: when the environment variable PREFSIFT_TEST_KILL_AT equals
+// `phase`, the process raises SIGKILL here. Phases: after-begin, mid-write,
+// before-commit, after-commit (docs/store.md, "Crash safety").
+void MaybeKill(const char* phase);
+
+}  // namespace prefsift::store

@@ -1,0 +1,382 @@
+// Growing stores (docs/store.md), end to end through the prefsift binary:
+// batches vs one full run, crash safety at named kill points, a busy store,
+// history and the cumulative summary, shard signing + merge vs the near stage.
+//
+// Outside references: SHA-256 of the inputs recomputed with Python's hashlib
+// (FIPS 180-4) [V]; the store file checked with SQLite's own
+// PRAGMA integrity_check and read back with Python's sqlite3 module [V].
+#include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
+#include <sqlite3.h>
+
+#include <sys/wait.h>
+
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <set>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "store/history.h"
+
+namespace prefsift::store {
+namespace {
+
+namespace fs = std::filesystem;
+using Json = nlohmann::ordered_json;
+
+struct Ran {
+  int exit = -1;     // exit code, or -1 when killed
+  int signal = 0;    // the signal that ended it
+  std::string err;   // stderr
+};
+
+std::string Slurp(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  return ss.str();
+}
+
+Ran RunBin(const std::string& args, const std::string& env = "") {
+  std::string err = ::testing::TempDir() + "store_test_stderr.txt";
+  std::string cmd = "env SOURCE_DATE_EPOCH=1767225600 " + env + " " + PREFSIFT_BIN + " " + args + " 2>" + err + " >/dev/null";
+  int st = std::system(cmd.c_str());
+  Ran r;
+  if (WIFEXITED(st)) r.exit = WEXITSTATUS(st);
+  if (WIFSIGNALED(st)) r.signal = WTERMSIG(st);
+  // std::system runs a shell; a child killed by a signal shows as 128+n.
+  if (r.exit > 128) {
+    r.signal = r.exit - 128;
+    r.exit = -1;
+  }
+  r.err = Slurp(err);
+  return r;
+}
+
+std::string Capture(const std::string& cmd) {
+  std::string out;
+  FILE* p = popen(cmd.c_str(), "r");
+  if (!p) return out;
+  char buf[4096];
+  size_t n;
+  while ((n = fread(buf, 1, sizeof buf, p)) > 0) out.append(buf, n);
+  pclose(p);
+  return out;
+}
+
+// A fresh folder with the comparisons sample cut into three batches by line
+// ranges (1-1000, 1001-2000, 2001-3000) and a plan with its layout.
+class StoreTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = ::testing::TempDir() + "store_" + ::testing::UnitTest::GetInstance()->current_test_info()->name();
+    fs::remove_all(dir_);
+    fs::create_directories(dir_);
+    std::ifstream in(std::string(PREFSIFT_SAMPLES) + "/comparisons.jsonl");
+    std::string line;
+    std::vector<std::string> lines;
+    while (std::getline(in, line)) lines.push_back(line);
+    ASSERT_EQ(lines.size(), 3000u);
+    for (int b = 0; b < 3; ++b) {
+      std::ofstream out(Part(b));
+      for (int k = b * 1000; k < (b + 1) * 1000; ++k) out << lines[static_cast<size_t>(k)] << "\n";
+    }
+    Json plan = {
+        {"inputs", Json::array({Json{{"path", "part1.jsonl"},
+                                     {"layout", {{"id", "/uid"}, {"prompt", "/ask"}, {"candidates", "/replies"},
+                                                 {"candidate_text", "/text"}, {"choice", "/pick"},
+                                                 {"annotator", "/volunteer"}, {"thread", "/thread"},
+                                                 {"source", "/channel"}}}}})},
+        {"stages", {{"exact", {{"conflicts", "keep-majority"}}},
+                    {"near", {{"threshold", 0.8}}},
+                    {"screen", {{"action", "flag"}}},
+                    {"split", {{"tie_by", {"prompt", "near", "thread"}}}}}}};
+    std::ofstream(dir_ + "/plan.json") << plan.dump(2);
+    Json full = plan;
+    full["inputs"] = Json::array();
+    for (int b = 0; b < 3; ++b) {
+      Json in = plan["inputs"][0];
+      in["path"] = "part" + std::to_string(b + 1) + ".jsonl";
+      full["inputs"].push_back(in);
+    }
+    std::ofstream(dir_ + "/full-plan.json") << full.dump(2);
+  }
+  std::string Part(int b) const { return dir_ + "/part" + std::to_string(b + 1) + ".jsonl"; }
+  std::string Store() const { return dir_ + "/store.db"; }
+  Ran Add(int b, const std::string& env = "", const std::string& extra = "") {
+    return RunBin("add -q --threads 2 --store " + Store() + " --plan " + dir_ + "/plan.json --out " + dir_ + "/out" +
+                   std::to_string(b + 1) + " " + Part(b) + " " + extra,
+               env);
+  }
+  std::string Digest() {
+    auto d = StoreContentDigest(Store());
+    EXPECT_TRUE(d.ok()) << d.status().message();
+    return d.ok() ? d.value() : "";
+  }
+  std::string dir_;
+};
+
+// id -> split name, from the kept files of an output folder.
+std::map<std::string, std::string> KeptSplits(const std::string& out) {
+  std::map<std::string, std::string> m;
+  for (const char* split : {"train", "valid", "test"}) {
+    std::ifstream in(out + "/" + split + ".jsonl");
+    std::string line;
+    while (std::getline(in, line)) {
+      Json j = Json::parse(line, nullptr, false);
+      if (j.is_object() && j.contains("uid") && j["uid"].is_string()) m[j["uid"].get<std::string>()] = split;
+    }
+  }
+  return m;
+}
+
+std::map<std::string, Json> Rejects(const std::string& out) {
+  std::map<std::string, Json> m;
+  std::ifstream in(out + "/rejects.jsonl");
+  std::string line;
+  while (std::getline(in, line)) {
+    if (line.empty()) continue;
+    Json j = Json::parse(line, nullptr, false);
+    if (j.is_object() && j["id"].is_string()) m[j["id"].get<std::string>()] = j;
+  }
+  return m;
+}
+
+std::string IntegrityCheck(const std::string& path) {
+  sqlite3* db = nullptr;
+  std::string out;
+  if (sqlite3_open_v2(path.c_str(), &db, SQLITE_OPEN_READONLY, nullptr) == SQLITE_OK) {
+    sqlite3_exec(
+        db, "PRAGMA integrity_check",
+        [](void* o, int, char** v, char**) {
+          *static_cast<std::string*>(o) += v[0] ? v[0] : "";
+          return 0;
+        },
+        &out, nullptr);
+  }
+  sqlite3_close(db);
+  return out;
+}
+
+TEST_F(StoreTest, BatchesMatchOneFullRunExceptDocumentedRules) {
+  for (int b = 0; b < 3; ++b) {
+    Ran r = Add(b);
+    ASSERT_EQ(r.exit, 0) << r.err;
+  }
+  Ran full = RunBin("run -q --threads 2 --plan " + dir_ + "/full-plan.json --out " + dir_ + "/full");
+  ASSERT_EQ(full.exit, 0) << full.err;
+  std::map<std::string, std::string> inc;
+  std::map<std::string, Json> inc_rejects;
+  std::map<std::string, int> batch_of;
+  for (int b = 0; b < 3; ++b) {
+    for (auto& [id, s] : KeptSplits(dir_ + "/out" + std::to_string(b + 1))) inc[id] = s;
+    for (auto& [id, j] : Rejects(dir_ + "/out" + std::to_string(b + 1))) inc_rejects[id] = j;
+  }
+  for (int b = 0; b < 3; ++b) {
+    std::ifstream in(Part(b));
+    std::string line;
+    while (std::getline(in, line)) {
+      Json j = Json::parse(line, nullptr, false);  // the sample plants malformed lines
+      if (j.is_object() && j.contains("uid") && j["uid"].is_string()) batch_of[j["uid"].get<std::string>()] = b;
+    }
+  }
+  std::map<std::string, std::string> all = KeptSplits(dir_ + "/full");
+  std::map<std::string, Json> full_rejects = Rejects(dir_ + "/full");
+  // Full run groups (assignments.jsonl): which batches each group spans.
+  std::map<std::string, std::string> group_of;
+  std::map<std::string, std::set<int>> group_batches;
+  {
+    std::ifstream in(dir_ + "/full/assignments.jsonl");
+    std::string line;
+    while (std::getline(in, line)) {
+      Json j = Json::parse(line);
+      group_of[j["id"]] = j["group"];
+      group_batches[j["group"]].insert(batch_of[j["id"]]);
+    }
+  }
+  // Records in a label conflict in the full run or in any batch (conflicts.jsonl).
+  std::set<std::string> in_conflict;
+  for (std::string out : {std::string("/full"), std::string("/out1"), std::string("/out2"), std::string("/out3")}) {
+    std::ifstream in(dir_ + out + "/conflicts.jsonl");
+    std::string line;
+    while (std::getline(in, line)) {
+      Json j = Json::parse(line);
+      for (const auto& m : j["members"]) in_conflict.insert(m["id"].get<std::string>());
+    }
+  }
+  ASSERT_GT(all.size(), 2000u);
+  // Kept sets: any difference is a record the documented store rules decide
+  // differently: a label conflict across batches (the stored judgment stays)
+  // or a record held back for tying stored groups in different splits.
+  size_t differ = 0;
+  std::set<std::string> ids;
+  for (auto& [id, s] : all) ids.insert(id);
+  for (auto& [id, s] : inc) ids.insert(id);
+  for (const auto& id : ids) {
+    bool a = all.count(id), b = inc.count(id);
+    if (a == b) continue;
+    ++differ;
+    std::string inc_reason = inc_rejects.count(id) ? inc_rejects[id]["reason"].get<std::string>() : "";
+    std::string full_reason = full_rejects.count(id) ? full_rejects[id]["reason"].get<std::string>() : "";
+    bool explained = inc_reason == "store_label_conflict" || inc_reason == "store_group_conflict" ||
+                     in_conflict.count(id);
+    EXPECT_TRUE(explained) << id << " kept in " << (a ? "full" : "batches") << " only; batch reason " << inc_reason
+                           << ", full reason " << full_reason;
+  }
+  // Splits: equal for every record kept in both, except in groups that span
+  // batches (a stored group keeps its split; the full run keys the whole group).
+  size_t same = 0, moved_spanning = 0;
+  for (const auto& [id, s] : all) {
+    if (!inc.count(id)) continue;
+    if (inc[id] == s) {
+      ++same;
+      continue;
+    }
+    ASSERT_TRUE(group_of.count(id)) << id;
+    EXPECT_GT(group_batches[group_of[id]].size(), 1u) << id << " moved split in a group inside one batch";
+    ++moved_spanning;
+  }
+  std::printf("[store] kept full %zu, batches %zu, differ %zu; same split %zu, moved (groups spanning batches) %zu\n",
+              all.size(), inc.size(), differ, same, moved_spanning);
+  EXPECT_LT(differ, all.size() / 50);
+  EXPECT_GT(same, all.size() * 9 / 10);
+  // Within each batch, records were checked against the store: no kept
+  // record of a later batch repeats a stored comparison (store_duplicate rejects exist).
+  size_t store_dups = 0;
+  for (auto& [id, j] : inc_rejects) store_dups += j["reason"] == "store_duplicate";
+  EXPECT_GT(store_dups, 0u);
+}
+
+TEST_F(StoreTest, HistorySummaryAndDigestsAgreeWithPython) {
+  ASSERT_EQ(Add(0).exit, 0);
+  ASSERT_EQ(Add(1).exit, 0);
+  std::string hist = Capture(std::string(PREFSIFT_BIN) + " history --store " + Store());
+  EXPECT_NE(hist.find("    1  2026-01-01T00:00:00Z"), std::string::npos) << hist;  // SOURCE_DATE_EPOCH honoured
+  EXPECT_NE(hist.find("    2  "), std::string::npos) << hist;
+  Json sum = Json::parse(Capture(std::string(PREFSIFT_BIN) + " store-summary --store " + Store()));
+  ASSERT_EQ(sum["batches"].size(), 2u);
+  // Input digests against Python's hashlib (FIPS 180-4 SHA-256) [V].
+  for (int b = 0; b < 2; ++b) {
+    std::string py = Capture(std::string(PREFSIFT_REF_PYTHON) +
+                             " -c \"import hashlib,sys;print(hashlib.sha256(open(sys.argv[1],'rb').read()).hexdigest())\" " +
+                             Part(b));
+    EXPECT_EQ(sum["batches"][b]["inputs"][0]["sha256"].get<std::string>() + "\n", py);
+  }
+  // Kept per split, read independently with Python's sqlite3 module [V],
+  // equals the kept lines the two batches wrote.
+  std::string py = Capture(std::string(PREFSIFT_REF_PYTHON) +
+                           " -c \"import sqlite3,sys;c=sqlite3.connect(sys.argv[1]);"
+                           "print(' '.join('%s=%d'%r for r in c.execute('SELECT split,COUNT(*) FROM records WHERE kept=1 GROUP BY split ORDER BY split')))\" " +
+                           Store());
+  std::map<std::string, int> counts;
+  for (int b = 0; b < 2; ++b) {
+    for (auto& [id, s] : KeptSplits(dir_ + "/out" + std::to_string(b + 1))) ++counts[s];
+  }
+  std::string expect;
+  for (auto& [s, n] : counts) expect += (expect.empty() ? "" : " ") + s + "=" + std::to_string(n);
+  EXPECT_EQ(py, expect + "\n");
+  uint64_t kept = 0;
+  for (const auto& s : sum["splits"]) kept += s["records"].get<uint64_t>();
+  EXPECT_EQ(kept, sum["totals"]["kept"].get<uint64_t>());
+  EXPECT_EQ(IntegrityCheck(Store()), "ok");
+}
+
+TEST_F(StoreTest, SameBatchTwiceIsANoOpAndOtherSettingsAreRefused) {
+  ASSERT_EQ(Add(0).exit, 0);
+  std::string before = Digest();
+  Ran again = Add(0, "", "--overwrite");
+  EXPECT_EQ(again.exit, 0) << again.err;
+  EXPECT_NE(again.err.find("already added as batch 1"), std::string::npos) << again.err;
+  EXPECT_EQ(Digest(), before);
+  // A plan with another near threshold: refused, store untouched.
+  std::string p = Slurp(dir_ + "/plan.json");
+  p.replace(p.find("0.8"), 3, "0.7");
+  std::ofstream(dir_ + "/plan.json") << p;
+  Ran other = Add(1);
+  EXPECT_EQ(other.exit, 2) << other.err;
+  EXPECT_NE(other.err.find("a store keeps one configuration"), std::string::npos) << other.err;
+  EXPECT_EQ(Digest(), before);
+}
+
+// SIGKILL at each named point of a batch: the store is exactly as before or
+// exactly as after it, and a rerun of the batch succeeds.
+TEST_F(StoreTest, KilledBatchLeavesStoreBeforeOrAfter) {
+  // The "after" state: a clean second batch on a copy.
+  ASSERT_EQ(Add(0).exit, 0);
+  fs::copy_file(Store(), dir_ + "/store0.db");
+  std::string before = Digest();
+  ASSERT_EQ(Add(1).exit, 0);
+  std::string after = Digest();
+  ASSERT_NE(before, after);
+  for (const char* phase : {"after-begin", "mid-write", "before-commit", "after-commit"}) {
+    SCOPED_TRACE(phase);
+    fs::remove(Store());
+    fs::remove(Store() + "-wal");
+    fs::remove(Store() + "-shm");
+    fs::copy_file(dir_ + "/store0.db", Store());
+    fs::remove_all(dir_ + "/out2");
+    Ran killed = Add(1, std::string("PREFSIFT_TEST_KILL_AT=") + phase);
+    EXPECT_EQ(killed.signal, 9) << "exit " << killed.exit << ": " << killed.err;
+    EXPECT_EQ(IntegrityCheck(Store()), "ok");
+    std::string now = Digest();
+    bool after_phase = std::string(phase) == "after-commit";
+    EXPECT_EQ(now, after_phase ? after : before);
+    Ran rerun = Add(1, "", "--overwrite");
+    EXPECT_EQ(rerun.exit, 0) << rerun.err;
+    EXPECT_EQ(Digest(), after);
+  }
+}
+
+TEST_F(StoreTest, SecondWriterWaitsThenFailsClearly) {
+  ASSERT_EQ(Add(0).exit, 0);
+  std::string before = Digest();
+  sqlite3* db = nullptr;
+  ASSERT_EQ(sqlite3_open(Store().c_str(), &db), SQLITE_OK);
+  ASSERT_EQ(sqlite3_exec(db, "BEGIN IMMEDIATE", nullptr, nullptr, nullptr), SQLITE_OK);
+  Ran busy = Add(1, "", "--wait 0.3");
+  EXPECT_EQ(busy.exit, 3) << busy.err;
+  EXPECT_NE(busy.err.find(Store()), std::string::npos) << busy.err;
+  EXPECT_NE(busy.err.find("busy"), std::string::npos) << busy.err;
+  sqlite3_exec(db, "ROLLBACK", nullptr, nullptr, nullptr);
+  sqlite3_close(db);
+  EXPECT_FALSE(fs::exists(dir_ + "/out2"));
+  EXPECT_EQ(Digest(), before);
+  Ran ok = Add(1);
+  EXPECT_EQ(ok.exit, 0) << ok.err;
+}
+
+// shard-sign over the three parts + merge gives the near stage's clusters over
+// their union (same banding and verification).
+TEST_F(StoreTest, ShardSignAndMergeEqualTheNearStage) {
+  std::string files;
+  for (int b = 0; b < 3; ++b) {
+    std::string out = dir_ + "/sig" + std::to_string(b + 1);
+    Ran r = RunBin("shard-sign -q --plan " + dir_ + "/plan.json --out " + out + " " + Part(b));
+    ASSERT_EQ(r.exit, 0) << r.err;
+    files += " " + out + "/signatures.jsonl";
+  }
+  Ran m = RunBin("merge" + files + " --out " + dir_ + "/merged");
+  ASSERT_EQ(m.exit, 0) << m.err;
+  Ran n = RunBin("near -q --plan " + dir_ + "/full-plan.json --out " + dir_ + "/near");
+  ASSERT_EQ(n.exit, 0) << n.err;
+  auto members = [](const std::string& path) {
+    std::set<std::vector<std::string>> out;
+    std::ifstream in(path);
+    std::string line;
+    while (std::getline(in, line)) {
+      if (line.empty()) continue;
+      out.insert(Json::parse(line)["members"].get<std::vector<std::string>>());
+    }
+    return out;
+  };
+  auto a = members(dir_ + "/merged/clusters.jsonl"), b = members(dir_ + "/near/clusters.jsonl");
+  EXPECT_GT(a.size(), 10u);
+  EXPECT_EQ(a, b);
+}
+
+}  // namespace
+}  // namespace prefsift::store
