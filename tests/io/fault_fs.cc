@@ -40,6 +40,9 @@ class FaultReadable : public ReadableFile {
 }  // namespace
 
 Result<std::unique_ptr<ReadableFile>> FaultFileSystem::OpenRead(const std::string& path) {
+  if (!fail_open_path.empty() && path == fail_open_path) {
+    return Status::Input("cannot open " + path + ": Permission denied (injected)");
+  }
   auto f = base_->OpenRead(path);
   if (!f.ok()) return f.status();
   return std::unique_ptr<ReadableFile>(new FaultReadable(std::move(f).value(), this));

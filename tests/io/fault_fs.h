@@ -14,6 +14,9 @@ class FaultFileSystem : public FileSystem {
   long long fail_writes_after = -1;
   // Reads fail after this many bytes in total; -1 = never.
   long long fail_reads_after = -1;
+  // Opening this path for reading fails as a file without read permission
+  // would (chmod 000 does not stop root, so tests run as root use this).
+  std::string fail_open_path;
 
   Result<std::unique_ptr<ReadableFile>> OpenRead(const std::string& path) override;
   Result<std::unique_ptr<WritableFile>> OpenWrite(const std::string& path) override;
