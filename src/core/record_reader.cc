@@ -141,6 +141,12 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
       return fail("json_too_deep", "", "JSON nesting is deeper than the limit of " + std::to_string(lim.max_depth) +
                                            " levels (limits.max_depth)");
     }
+    if (err == simdjson::STRING_ERROR) {
+      // simdjson refuses escaped lone surrogates ("\ud800" without its low
+      // half, a lone "\udc00"): RFC 8259 section 8.2 leaves them undefined.
+      return fail("not_json", "", "the line is not a JSON value: a string has a bad escape (e.g. a lone surrogate "
+                                  "such as \\ud800 without its pair) or an unescaped control character");
+    }
     return fail("not_json", "", std::string("the line is not a JSON value: ") + simdjson::error_message(err));
   }
   if (root.type() != element_type::OBJECT) {
