@@ -11,7 +11,9 @@
 
 #include <cstdio>
 #include <iostream>
+#include <tuple>
 
+#include "core/limits.h"
 #include "core/plan.h"
 #include "io/file_system.h"
 #include "prefsift_version.h"
@@ -53,6 +55,8 @@ struct CommonOptions {
   unsigned threads = 0;
   bool quiet = false;
   long long seed = -1;
+  // Input limits (docs/hardening.md); 0 = the plan's value or the default.
+  size_t max_line_bytes = 0, max_depth = 0, max_candidates = 0, max_text_bytes = 0;
 };
 
 void AddCommon(CLI::App* cmd, CommonOptions* o) {
@@ -68,6 +72,12 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_option("--threads", o->threads, "Worker threads (default: all cores); results do not depend on it");
   cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
   cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
+  // Input limits override the plan's limits.* (a record over one is rejected with its reason).
+  CLI::Option_group* lim = cmd->add_option_group("Limits", "Input limits (plan: limits.*); over a limit = reject");
+  lim->add_option("--max-line-bytes", o->max_line_bytes, "Longest input line in bytes (default 64 MiB)");
+  lim->add_option("--max-depth", o->max_depth, "Deepest JSON nesting (default 128, at most 1024)");
+  lim->add_option("--max-candidates", o->max_candidates, "Most candidates per record (default 256)");
+  lim->add_option("--max-text-bytes", o->max_text_bytes, "Longest prompt, turn or candidate text in bytes (default 4 MiB)");
 }
 
 Result<Plan> BuildPlan(const CommonOptions& o) {
@@ -108,6 +118,14 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
   if (o.strict) plan.strict = true;
   if (o.threads) plan.threads = o.threads;
   if (o.seed >= 0) plan.seed = static_cast<uint64_t>(o.seed);
+  for (auto [flag, key, v] : {std::tuple{"--max-line-bytes", "max_line_bytes", o.max_line_bytes},
+                              std::tuple{"--max-depth", "max_depth", o.max_depth},
+                              std::tuple{"--max-candidates", "max_candidates", o.max_candidates},
+                              std::tuple{"--max-text-bytes", "max_text_bytes", o.max_text_bytes}}) {
+    if (v == 0) continue;
+    Status s = LimitsFromJson(Json{{key, v}}, "limits", &plan.limits);
+    if (!s.ok()) return Status::Usage(std::string(flag) + ": " + s.message());
+  }
   return plan;
 }
 

@@ -1,0 +1,123 @@
+// The prefsift binary on malformed inputs and bad limits: exit codes
+// (0 ok, 2 usage, 3 input, 5 --strict with rejects; docs/cli.md), messages
+// that name the file or the flag, and the limit flags (docs/hardening.md).
+#include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <string>
+
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+struct CliRun {
+  int code;
+  std::string err;
+};
+
+std::string Tmp(const std::string& name) { return ::testing::TempDir() + "cli_" + name; }
+
+std::string Slurp(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  return ss.str();
+}
+
+// Runs `prefsift ARGS` with stderr captured; stdout discarded.
+CliRun Prefsift(const std::string& args) {
+  std::string err = Tmp("stderr.txt");
+  std::string cmd = std::string(PREFSIFT_BINARY) + " " + args + " >/dev/null 2>" + err;
+  int st = std::system(cmd.c_str());
+  return {WIFEXITED(st) ? WEXITSTATUS(st) : -1, Slurp(err)};
+}
+
+std::string Corpus(const std::string& f) { return std::string(PREFSIFT_SOURCE_DIR) + "/tests/data/malformed/" + f; }
+
+TEST(Cli, DirectoryGivenAsInputIsAnInputError) {
+  std::string dir = Tmp("dir_input.jsonl");
+  std::filesystem::create_directories(dir);
+  CliRun r = Prefsift("check " + dir + " --layout choice -q --overwrite -o " + Tmp("o1"));
+  EXPECT_EQ(r.code, 3) << r.err;
+  EXPECT_NE(r.err.find(dir), std::string::npos) << r.err;
+  EXPECT_NE(r.err.find("directory"), std::string::npos) << r.err;
+  EXPECT_FALSE(std::filesystem::exists(Tmp("o1")));
+}
+
+TEST(Cli, MissingInputIsAnInputError) {
+  CliRun r = Prefsift("check /nonexistent/x.jsonl --layout choice -q -o " + Tmp("o2"));
+  EXPECT_EQ(r.code, 3) << r.err;
+  EXPECT_NE(r.err.find("/nonexistent/x.jsonl"), std::string::npos) << r.err;
+}
+
+TEST(Cli, UnreadableInputIsAnInputError) {
+  std::string f = Tmp("unreadable.jsonl");
+  std::ofstream(f) << R"({"id":"a","prompt":"p","candidates":["a","b"],"choice":0})" "\n";
+  ::chmod(f.c_str(), 0);
+  if (::access(f.c_str(), R_OK) == 0) {
+    ::chmod(f.c_str(), 0644);
+    GTEST_SKIP() << "running as root: chmod 000 does not stop reads; "
+                    "tests/stages/malformed_corpus_test.cc covers this with a fault-injecting FileSystem";
+  }
+  CliRun r = Prefsift("check " + f + " --layout choice -q --overwrite -o " + Tmp("o3"));
+  ::chmod(f.c_str(), 0644);
+  EXPECT_EQ(r.code, 3) << r.err;
+  EXPECT_NE(r.err.find(f), std::string::npos) << r.err;
+}
+
+TEST(Cli, UsageErrors) {
+  EXPECT_EQ(Prefsift("check --no-such-flag").code, 2);
+  CliRun deep = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q -o " + Tmp("o4") + " --max-depth 5000");
+  EXPECT_EQ(deep.code, 2);
+  EXPECT_NE(deep.err.find("--max-depth"), std::string::npos) << deep.err;
+  CliRun few = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q -o " + Tmp("o4") + " --max-candidates 1");
+  EXPECT_EQ(few.code, 2);
+  EXPECT_NE(few.err.find("--max-candidates"), std::string::npos) << few.err;
+  std::string plan = Tmp("bad_plan.json");
+  std::ofstream(plan) << R"({"limits": {"max_depth": 1e400}})";
+  CliRun p = Prefsift("check --plan " + plan + " -q");
+  EXPECT_EQ(p.code, 2) << p.err;
+  EXPECT_NE(p.err.find(plan), std::string::npos) << p.err;
+}
+
+TEST(Cli, MalformedRecordsAreRejectsNotErrors) {
+  std::string out = Tmp("o5");
+  CliRun r = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --layout choice -q --overwrite -o " + out);
+  EXPECT_EQ(r.code, 0) << r.err;
+  CliRun s = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --layout choice -q --overwrite --strict -o " + out);
+  EXPECT_EQ(s.code, 5) << s.err;
+}
+
+TEST(Cli, LimitFlagsApplyAndAreNamedInRejects) {
+  std::string out = Tmp("o6");
+  CliRun r = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-line-bytes 40 -o " + out);
+  ASSERT_EQ(r.code, 0) << r.err;
+  std::ifstream in(out + "/rejects.jsonl");
+  std::string line;
+  int n = 0;
+  while (std::getline(in, line)) {
+    Json j = Json::parse(line);
+    EXPECT_EQ(j["reason"], "line_too_long");
+    EXPECT_NE(j["message"].get<std::string>().find("limits.max_line_bytes = 40"), std::string::npos) << line;
+    ++n;
+  }
+  EXPECT_EQ(n, 2);
+  CliRun c = Prefsift("check " + Corpus("ranking_gaps.jsonl") + " --layout ranked -q --overwrite --max-candidates 2 -o " + out);
+  ASSERT_EQ(c.code, 0) << c.err;
+  EXPECT_NE(Slurp(out + "/rejects.jsonl").find("too_many_candidates"), std::string::npos);
+  CliRun t = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-text-bytes 2 -o " + out);
+  ASSERT_EQ(t.code, 0) << t.err;
+  EXPECT_NE(Slurp(out + "/rejects.jsonl").find("limits.max_text_bytes = 2"), std::string::npos);
+  CliRun d = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-depth 1 -o " + out);
+  ASSERT_EQ(d.code, 0) << d.err;
+  EXPECT_NE(Slurp(out + "/rejects.jsonl").find("json_too_deep"), std::string::npos);
+}
+
+}  // namespace
