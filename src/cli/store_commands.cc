@@ -66,12 +66,7 @@ Result<Plan> BatchPlan(const BatchArgs& a) {
   Plan plan = std::move(loaded).value();
   if (!a.inputs.empty()) {
     if (plan.inputs.empty()) return Status::Usage("inputs on the command line take the layout of the plan's first input; the plan has none");
-    InputSpec model = plan.inputs[0];
-    for (const auto& in : plan.inputs) {
-      if (in.layout_key != model.layout_key) {
-        return Status::Usage("the plan's inputs use different layouts; name the batch's files in a plan instead");
-      }
-    }
+    InputSpec model = plan.inputs[0];  // the first input's layout (docs/store.md)
     plan.inputs.clear();
     for (const auto& path : a.inputs) {
       InputSpec spec = model;
@@ -160,11 +155,16 @@ class Commands : public StoreCommands {
                    static_cast<long long>(r.value().batch));
       return 0;
     }
+    if (r.value().gate_failed) {
+      std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
+                   plan.value().output.c_str());
+      return 4;
+    }
     if (!add_args_.quiet) {
       std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(r.value().batch),
                    plan.value().output.c_str());
     }
-    return r.value().gate_failed ? 4 : 0;
+    return 0;
   }
 
   CLI::App *add_, *history_, *summary_, *sign_, *merge_;

@@ -863,6 +863,14 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   // output folder is committed inside RunPipeline, the store right after.
   auto run = RunPipeline(plan, popts, fs, log);
   if (!run.ok()) return run.status();
+  if (run.value().gate_failed) {
+    // A batch that fails the gate is written out for review but not added.
+    outcome.gate_failed = true;
+    outcome.entries = run.value().entries;
+    outcome.kept = run.value().kept;
+    outcome.rejected = run.value().rejected;
+    return outcome;  // the guard rolls the transaction back
+  }
   // Count parsed records from the outputs' ledger: the next batch's numbers start after them.
   Json counts = companion.Counts();
   auto ib = store.Prepare(
