@@ -5,6 +5,7 @@
 #include <nlohmann/json.hpp>
 
 #include <filesystem>
+#include <fstream>
 #include <map>
 #include <set>
 
@@ -38,7 +39,10 @@ TEST(SplitsReport, DemoThreadsAreNeverSplitApart) {
   std::map<std::string, std::string> split_of;
   for (const auto& j : ReadJsonl(DemoOutput() + "/assignments.jsonl")) split_of[j["id"]] = j["split"];
   std::map<std::string, std::set<std::string>> by_thread;
-  for (const auto& j : ReadJsonl(SourceDir() + "/samples/comparisons.jsonl")) {
+  std::ifstream in(SourceDir() + "/samples/comparisons.jsonl");
+  std::string line;
+  while (std::getline(in, line)) {
+    Json j = Json::parse(line, nullptr, false);  // the samples plant malformed lines
     if (!j.is_object() || !j.contains("uid") || !j.contains("thread") || !j["thread"].is_string()) continue;
     auto it = split_of.find(j["uid"]);
     if (it != split_of.end()) by_thread[j["thread"]].insert(it->second);
