@@ -205,7 +205,7 @@ std::string SlotChart(const Json& s) {
     series.push_back(std::move(se));
   }
   return Figure("chosen-slot", title, "data", Grouped(cats, series, true, "share of records"),
-                "Kept records with a single best answer; without position bias each slot holds about 1/B.");
+                "Kept records with a single best answer (pairwise chosen/rejected layouts have no slot and are left out); without position bias each slot holds about 1/B.");
 }
 
 std::string LengthChart(const Json& s) {

@@ -425,7 +425,7 @@ class SplitStage : public Stage {
     c["records"] = kept_;
     std::map<size_t, uint64_t> cands;
     std::map<size_t, std::vector<uint64_t>> slots;
-    uint64_t top_tied = 0;
+    uint64_t top_tied = 0, pairwise = 0;
     std::map<std::string, uint64_t> sources, annotators, shapes;
     uint64_t with_annotator = 0, with_thread = 0;
     uint64_t scripts[kScriptCount] = {};
@@ -436,7 +436,9 @@ class SplitStage : public Stage {
       const RecordFacts& f = st.records[i];
       size_t b = f.ranks.size();
       ++cands[b];
-      if (f.chosen >= 0) {
+      if (f.shape == JudgmentShape::kPairwise) {
+        ++pairwise;  // chosen/rejected fields: no slot order to speak of
+      } else if (f.chosen >= 0) {
         auto& v = slots[b];
         v.resize(b, 0);
         ++v[static_cast<size_t>(f.chosen)];
@@ -465,6 +467,7 @@ class SplitStage : public Stage {
     for (const auto& [b, v] : slots) js[std::to_string(b)] = v;
     c["chosen_slot_by_candidates"] = std::move(js);
     c["records_with_tied_top"] = top_tied;
+    c["pairwise_records_without_slot"] = pairwise;
     Json jsh = Json::object();
     for (const auto& [k, v] : shapes) jsh[k] = v;
     c["judgment_shapes"] = std::move(jsh);
