@@ -86,17 +86,22 @@ const Json* Find(const Json& j, std::initializer_list<const char*> path) {
 std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.dump(); }
 
 // Run facts for the composition section.
+// A member of a summary section, or null when the section lacks it (a stage
+// that did not run fully, e.g. leakage without evaluation sets, reports fewer
+// keys; const operator[] on a missing key is undefined behaviour).
+Json At(const Json& j, const char* key) { return j.is_object() && j.contains(key) ? j[key] : Json(nullptr); }
+
 Json CompositionFacts(const Json& s) {
   Json f = Json::array();
   auto add = [&](const std::string& what, const Json& value) { f.push_back(Json{{"fact", what}, {"value", value}}); };
   if (const Json* l = Find(s, {"ledger"})) {
-    add("records read (non-blank input lines)", (*l)["records_in"]);
-    add("records kept", (*l)["kept"]);
-    add("records rejected", (*l)["rejected"]);
+    add("records read (non-blank input lines)", At(*l, "records_in"));
+    add("records kept", At(*l, "kept"));
+    add("records rejected", At(*l, "rejected"));
   }
   if (const Json* ins = Find(s, {"inputs"}); ins && ins->is_array()) {
     for (const auto& in : *ins) {
-      add("input " + Str(in["name"]) + ": records read / kept", Json::array({in["records_in"], in["kept"]}));
+      add("input " + Str(in["name"]) + ": records read / kept", Json::array({At(in, "records_in"), At(in, "kept")}));
     }
   }
   const Json* c = Find(s, {"stages", "split", "composition"});
@@ -104,34 +109,34 @@ Json CompositionFacts(const Json& s) {
     add("composition of kept records", "not available: the split stage did not run");
     return f;
   }
-  add("candidates per record (B: records)", (*c)["candidates_per_record"]);
-  add("judgment shapes", (*c)["judgment_shapes"]);
-  add("chosen slot by number of candidates (counts per slot)", (*c)["chosen_slot_by_candidates"]);
-  add("records whose top rank is tied", (*c)["records_with_tied_top"]);
-  add("prompt length in code points", (*c)["prompt_chars"]);
-  add("chosen answer length in code points", (*c)["chosen_chars"]);
-  add("other answers' length in code points", (*c)["rejected_chars"]);
-  add("sources (records)", (*c)["sources"]);
-  add("annotators", (*c)["annotators"]);
-  add("records with a thread id", (*c)["records_with_thread"]);
-  add("prompt script (crude detection; records)", (*c)["prompt_script"]["records"]);
+  add("candidates per record (B: records)", At(*c, "candidates_per_record"));
+  add("judgment shapes", At(*c, "judgment_shapes"));
+  add("chosen slot by number of candidates (counts per slot)", At(*c, "chosen_slot_by_candidates"));
+  add("records whose top rank is tied", At(*c, "records_with_tied_top"));
+  add("prompt length in code points", At(*c, "prompt_chars"));
+  add("chosen answer length in code points", At(*c, "chosen_chars"));
+  add("other answers' length in code points", At(*c, "rejected_chars"));
+  add("sources (records)", At(*c, "sources"));
+  add("annotators", At(*c, "annotators"));
+  add("records with a thread id", At(*c, "records_with_thread"));
+  add("prompt script (crude detection; records)", At(*c, "prompt_script")["records"]);
   if (const Json* sp = Find(s, {"stages", "split", "splits"})) {
     Json t = Json::object();
     for (const auto& e : *sp) t[Str(e["name"])] = e["records"];
     add("recommended splits (records; group-aware, see Preprocessing)", t);
   }
   if (const Json* sc = Find(s, {"stages", "screen"})) {
-    add("personal-data findings (all records, before actions)", (*sc)["findings"]);
-    add("records with personal-data findings", (*sc)["records_with_findings"]);
-    add("personal-data findings by action", (*sc)["by_action"]);
+    add("personal-data findings (all records, before actions)", At(*sc, "findings"));
+    add("records with personal-data findings", At(*sc, "records_with_findings"));
+    add("personal-data findings by action", At(*sc, "by_action"));
   } else {
     add("personal-data screen", "not run");
   }
   if (const Json* lk = Find(s, {"stages", "leakage"})) {
-    add("records matching an evaluation set", (*lk)["contaminated_records"]);
+    add("records matching an evaluation set", At(*lk, "contaminated_records"));
   }
   if (const Json* nr = Find(s, {"stages", "near"})) {
-    add("near-duplicate prompt clusters / records in them", Json::array({(*nr)["clusters"], (*nr)["records_in_clusters"]}));
+    add("near-duplicate prompt clusters / records in them", Json::array({At(*nr, "clusters"), At(*nr, "records_in_clusters")}));
   }
   return f;
 }
