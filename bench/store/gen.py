@@ -2,7 +2,7 @@
 """Synthetic preference records for bench/store/store_bench.sh (deterministic).
 
 usage: gen.py START COUNT SEED > file.jsonl
-Prompts are random word strings (with about 5% near-copies of earlier prompts
+Prompts are random word strings (annotators, sources and threads given) (with about 5% near-copies of earlier prompts
 in the same file), two candidates, a choice, a thread id. No personal data.
 """
 import json
@@ -27,4 +27,4 @@ for k in range(start, start + count):
         recent.pop(0)
     cands = [" ".join(rng.choice(words) for _ in range(rng.randint(8, 30))) for _ in range(2)]
     print(json.dumps({"id": "r%08d" % k, "prompt": prompt, "cands": cands, "pick": rng.randint(0, 1),
-                      "thread": "t%07d" % (k // 3)}))
+                      "thread": "t%07d" % (k // 3), "annotator": "a%02d" % (k % 40), "source": "s%d" % (k % 3)}))

@@ -13,7 +13,8 @@ work=$(mktemp -d /tmp/prefsift-store-bench.XXXXXX)
 trap 'rm -rf "$work"' EXIT
 cat > "$work/plan.json" <<'PLAN'
 {"inputs": [{"path": "b0.jsonl", "layout": {"id": "/id", "prompt": "/prompt", "candidates": "/cands",
-                                              "choice": "/pick", "thread": "/thread"}}]}
+                                              "choice": "/pick", "thread": "/thread",
+                                              "annotator": "/annotator", "source": "/source"}}]}
 PLAN
 now() { date +%s.%N; }
 i=0; start=0; t0=$(now)
@@ -33,7 +34,8 @@ k=0; while [ $k -lt $i ]; do files="$files $work/b$k.jsonl"; k=$((k + 1)); done
 /usr/bin/python3 - "$work" $files "$work/new.jsonl" <<'PY'
 import json, sys
 work, files = sys.argv[1], sys.argv[2:]
-layout = {"id": "/id", "prompt": "/prompt", "candidates": "/cands", "choice": "/pick", "thread": "/thread"}
+layout = {"id": "/id", "prompt": "/prompt", "candidates": "/cands", "choice": "/pick", "thread": "/thread",
+          "annotator": "/annotator", "source": "/source"}
 json.dump({"inputs": [{"path": f, "layout": layout} for f in files]}, open(work + "/full.json", "w"))
 PY
 t4=$(now)

@@ -302,7 +302,7 @@ class StoreCompanion : public RunCompanion {
     std::vector<std::pair<uint32_t, int64_t>> edges;  // batch record, stored cluster id
     band_keys_.assign(n * banding_.bands, 0);
     for (size_t i = 0; i < n; ++i) {
-      if (!st.IsKept(i) || !stored_ok_[i]) continue;
+      if (!stored_ok_[i]) continue;  // every record the near stage clustered (kept after exact)
       std::span<const uint8_t> sig(st.near_signatures.data() + i * K, K);
       std::span<uint64_t> keys(band_keys_.data() + i * banding_.bands, banding_.bands);
       sketch::BandKeys(sig, banding_, seed, keys);
@@ -341,7 +341,7 @@ class StoreCompanion : public RunCompanion {
     }
     sketch::UnionFind uf(next);
     for (size_t i = 0; i < n; ++i) {
-      if (st.IsKept(i) && stored_ok_[i] && st.near_cluster.size() == n && st.near_cluster[i] >= 0) {
+      if (stored_ok_[i] && st.near_cluster.size() == n && st.near_cluster[i] >= 0) {
         uf.Union(static_cast<uint32_t>(i), static_cast<uint32_t>(st.near_cluster[i]));
       }
     }
@@ -361,7 +361,7 @@ class StoreCompanion : public RunCompanion {
     }
     std::vector<std::vector<size_t>> members(comp_clusters_.size());
     for (size_t i = 0; i < n; ++i) {
-      if (!st.IsKept(i) || !stored_ok_[i]) continue;
+      if (!stored_ok_[i]) continue;
       auto it = comp_index.find(uf.Find(static_cast<uint32_t>(i)));
       if (it == comp_index.end()) {
         if (st.near_cluster.size() == n && st.near_cluster[i] >= 0) cluster_[i] = Seq(static_cast<size_t>(st.near_cluster[i]));
