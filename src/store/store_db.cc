@@ -74,7 +74,10 @@ Result<std::unique_ptr<StoreDb>> StoreDb::Open(const std::string& path, int busy
   sqlite3_busy_timeout(db, busy_timeout_ms);
   // WAL: readers (history) never block the writer; synchronous=FULL: a
   // committed batch survives a crash of the machine, not only of the process.
-  for (const char* p : {"PRAGMA journal_mode=WAL", "PRAGMA synchronous=FULL", "PRAGMA foreign_keys=OFF"}) {
+  // cache_size: 128 MiB of page cache, so band-key look-ups and inserts in a
+  // store of a million records mostly stay in memory (the default is 2 MiB).
+  for (const char* p : {"PRAGMA journal_mode=WAL", "PRAGMA synchronous=FULL", "PRAGMA foreign_keys=OFF",
+                        "PRAGMA cache_size=-131072", "PRAGMA temp_store=MEMORY"}) {
     Status s = out->Exec(p);
     if (!s.ok()) return s;
   }
