@@ -80,21 +80,51 @@ std::string FoldSpaceAndPunct(std::string_view s, bool strip_punct) {
   return out;
 }
 
+// Byte classes of ASCII for FoldAscii, taken from the same predicates as
+// FoldSpaceAndPunct so the two paths cannot disagree.
+struct AsciiClasses {
+  bool space[128];
+  bool punct[128];
+  AsciiClasses() {
+    for (int c = 0; c < 128; ++c) {
+      space[c] = IsSpaceCodepoint(c);
+      punct[c] = IsPunctCodepoint(c);
+    }
+  }
+};
+
+// FoldSpaceAndPunct(lowercase(text)) for ASCII text, in one pass.
+std::string FoldAscii(std::string_view text, bool strip_punct) {
+  static const AsciiClasses k;
+  std::string out(text.size(), '\0');
+  char* o = out.data();
+  char* const begin = o;
+  bool pending_space = false;
+  for (char ch : text) {
+    auto c = static_cast<unsigned char>(ch);
+    if (k.space[c]) {
+      pending_space = o != begin;
+    } else if (strip_punct && k.punct[c]) {
+      // dropped
+    } else {
+      if (pending_space) *o++ = ' ';
+      pending_space = false;
+      *o++ = (c >= 'A' && c <= 'Z') ? static_cast<char>(c - 'A' + 'a') : ch;
+    }
+  }
+  out.resize(static_cast<size_t>(o - begin));
+  return out;
+}
+
 }  // namespace
 
 std::string NormalizeForMatch(std::string_view text, const NormalizeOptions& options) {
-  std::string folded;
-  if (IsAscii(text)) {
-    // Exact: NFKC leaves ASCII unchanged, ASCII has no default-ignorables, and
-    // full case folding of ASCII is ASCII lowercase.
-    folded.assign(text);
-    for (char& c : folded) {
-      if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
-    }
-  } else {
-    folded = MapWith(text, UTF8PROC_STABLE | UTF8PROC_COMPOSE | UTF8PROC_COMPAT | UTF8PROC_CASEFOLD |
-                               UTF8PROC_IGNORE);
-  }
+  // ASCII is exact in one pass: NFKC leaves ASCII unchanged, ASCII has no
+  // default-ignorables, full case folding of ASCII is ASCII lowercase, and
+  // lowercasing never changes whether a byte is space or punctuation.
+  if (IsAscii(text)) return FoldAscii(text, options.strip_punctuation);
+  std::string folded = MapWith(text, UTF8PROC_STABLE | UTF8PROC_COMPOSE | UTF8PROC_COMPAT | UTF8PROC_CASEFOLD |
+                                         UTF8PROC_IGNORE);
   return FoldSpaceAndPunct(folded, options.strip_punctuation);
 }
 

@@ -194,14 +194,15 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   j["input"] = plan.inputs[e.input].name;
   j["file"] = plan.inputs[e.input].path;
   j["line"] = e.line;
-  j["id"] = e.record >= 0 ? Json(st.records[e.record].id) : d.id.empty() ? Json(nullptr) : Json(d.id);
+  const RejectText& t = st.RejectTextOf(d);
+  j["id"] = e.record >= 0 ? Json(st.records[e.record].id) : t.id.empty() ? Json(nullptr) : Json(t.id);
   j["stage"] = d.stage;
   j["reason"] = d.reason;
-  if (!d.field.empty()) j["field"] = d.field;
-  j["message"] = d.message;
+  if (!t.field.empty()) j["field"] = t.field;
+  j["message"] = t.message;
   std::string head = j.dump();
   head.pop_back();  // reopen the object to append raw JSON without re-serialising it
-  if (!d.detail.empty()) head += ",\"detail\":" + d.detail;
+  if (!t.detail.empty()) head += ",\"detail\":" + t.detail;
   if (d.reason == "line_too_long") {
     head += ",\"record_omitted\":\"longer than the line limit; see file and line\"";
   } else if (e.record >= 0 || (d.reason != "not_json" && d.reason != "invalid_utf8" && d.reason != "json_too_deep")) {

@@ -19,9 +19,8 @@ bool RunState::Reject(size_t record, const std::string& stage, const std::string
   d.rejected = true;
   d.stage = stage;
   d.reason = reason;
-  d.message = std::move(message);
-  d.detail = std::move(detail);
-  d.field = std::move(field);
+  d.text = static_cast<uint32_t>(reject_texts.size());
+  reject_texts.push_back(RejectText{std::move(field), std::move(message), std::move(detail), ""});
   Count(stage, reason);
   return true;
 }
@@ -29,13 +28,17 @@ bool RunState::Reject(size_t record, const std::string& stage, const std::string
 void RunState::RejectEntry(size_t entry, const std::string& stage, const std::string& reason, std::string field,
                            std::string message, std::string id) {
   Decision& d = decisions[entry];
-  d.id = std::move(id);
   d.rejected = true;
   d.stage = stage;
   d.reason = reason;
-  d.field = std::move(field);
-  d.message = std::move(message);
+  d.text = static_cast<uint32_t>(reject_texts.size());
+  reject_texts.push_back(RejectText{std::move(field), std::move(message), "", std::move(id)});
   Count(stage, reason);
+}
+
+const RejectText& RunState::RejectTextOf(const Decision& d) const {
+  static const RejectText kNone;
+  return d.text < reject_texts.size() ? reject_texts[d.text] : kNone;
 }
 
 }  // namespace prefsift

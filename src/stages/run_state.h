@@ -24,15 +24,21 @@ struct Entry {
   int64_t record = -1;    // index into RunState::records, -1 when the line did not parse
 };
 
-struct Decision {
-  bool rejected = false;
-  std::string stage;      // the stage that rejected it
-  std::string reason;     // reason code (docs/reasons.md)
+// The texts of a reject, kept apart from Decision (RunState::RejectTextOf) so
+// that a kept entry costs no string storage (docs/performance.md).
+struct RejectText {
   std::string field;      // JSON Pointer at fault, when there is one
   std::string message;    // a sentence for people
   std::string detail;     // a compact JSON object with specifics, or ""
-  uint32_t split = 0;     // index into RunState::split_names when kept
   std::string id;         // for entries that never became records: the id if it was readable
+};
+
+struct Decision {
+  bool rejected = false;
+  uint32_t split = 0;     // index into RunState::split_names when kept
+  uint32_t text = UINT32_MAX;  // index into RunState::reject_texts when rejected
+  std::string stage;      // the stage that rejected it
+  std::string reason;     // reason code (docs/reasons.md)
 };
 
 // Small, fixed facts about one parsed record; the text itself is not kept.
@@ -80,6 +86,11 @@ class RunState {
   // prior_split: per record, the split index it inherits from a store (-1 =
   // none); filled before split decides, split gives the record's group that split.
   std::vector<int32_t> prior_split;
+
+  std::vector<RejectText> reject_texts;  // one per rejected entry (Decision::text)
+
+  // The texts of a rejected entry's decision (empty texts for a kept one).
+  const RejectText& RejectTextOf(const Decision& d) const;
 
   bool IsKept(size_t record) const { return !decisions[records[record].entry].rejected; }
   Decision& DecisionOf(size_t record) { return decisions[records[record].entry]; }

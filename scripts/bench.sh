@@ -1,0 +1,114 @@
+#!/usr/bin/env bash
+# Whole-pipeline benchmark (docs/performance.md). Generates synthetic preference
+# datasets (bench/pipeline/make_prefs.cc), runs every stage alone and the whole
+# pipeline on each, and prints records/s, MB/s of input, peak RSS and RSS per
+# record, beside the machine's ceiling on the same file (bench/pipeline/ceiling.cc:
+# read + simdjson parse + XXH3_128bits, one thread).
+#
+#   scripts/bench.sh [SIZES...]          default: 10000 100000 1000000
+#   env: BUILD=build-perf  DATA=/tmp/prefsift-bench  THREADS=(all cores)
+#        PREFSIFT=path/to/prefsift (default $BUILD/src/cli/prefsift)
+#        STAGES="exact near leakage screen bias split"  (subset for quick runs)
+#
+# Data and outputs go under $DATA (never into the repository). Peak RSS comes
+# from /usr/bin/time -v ("Maximum resident set size"). "B/rec" is
+# (peak RSS - peak RSS of the same command on a 100-record file) / records:
+# an upper bound on the index memory per record (it also counts allocator slack
+# and per-chunk buffers).
+set -euo pipefail
+ROOT=$(cd "$(dirname "$0")/.." && pwd)
+BUILD=${BUILD:-$ROOT/build-perf}
+DATA=${DATA:-/tmp/prefsift-bench}
+THREADS=${THREADS:-$(nproc)}
+STAGES=${STAGES-"exact near leakage screen bias split"}  # STAGES="" runs the whole pipeline only
+SIZES=("$@")
+[ ${#SIZES[@]} -eq 0 ] && SIZES=(10000 100000 1000000)
+
+if [ ! -x "$BUILD/src/cli/prefsift" ] || [ ! -x "$BUILD/bench/pipeline/ceiling" ]; then
+  cmake -S "$ROOT" -B "$BUILD" -G Ninja >/dev/null
+  cmake --build "$BUILD" --target prefsift make_prefs ceiling -j"$(nproc)"
+fi
+PREFSIFT=${PREFSIFT:-$BUILD/src/cli/prefsift}
+mkdir -p "$DATA"
+
+# The plan for one size: every stage on, near-duplicate and leakage defaults,
+# the evaluation set made with the data, personal data masked.
+write_plan() {  # N
+  local n=$1
+  cat >"$DATA/plan-$n.json" <<JSON
+{
+  "inputs": [{"path": "$DATA/prefs-$n.jsonl", "name": "prefs",
+              "layout": {"preset": "choice", "annotator": "/annotator", "source": "/source", "thread": "/thread"}}],
+  "seed": 1,
+  "stages": {
+    "exact": {},
+    "near": {},
+    "leakage": {"eval_sets": [{"name": "eval", "path": "$DATA/eval-$n.jsonl", "text": "/question", "id": "/qid"}]},
+    "screen": {"action": "mask", "rules_dir": "$ROOT/rules"},
+    "bias": {},
+    "split": {"splits": {"train": 0.9, "test": 0.1}}
+  }
+}
+JSON
+}
+
+# Runs one command under /usr/bin/time; prints "seconds peak_kb".
+timed() {
+  local log=$DATA/time.log
+  /usr/bin/time -v "$@" >"$DATA/cmd.out" 2>"$log" || {
+    local rc=$?
+    # Exit 4 (gate) and 5 (strict) still mean a complete run.
+    if [ $rc -ne 4 ] && [ $rc -ne 5 ]; then cat "$log" "$DATA/cmd.out" >&2; return $rc; fi
+  }
+  local wall kb
+  wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {print $2}' "$log")
+  kb=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$log")
+  # h:mm:ss or m:ss.ss -> seconds
+  echo "$(echo "$wall" | awk -F: '{s=0; for (i=1;i<=NF;i++) s=s*60+$i; print s}') $kb"
+}
+
+run_cmd() {  # N STAGE -> the prefsift command line
+  local n=$1 stage=$2
+  local out=$DATA/out-$n-$stage
+  if [ "$stage" = run ]; then
+    echo "$PREFSIFT run --plan $DATA/plan-$n.json --out $out --overwrite --threads $THREADS -q"
+  else
+    local cmd=$stage
+    [ "$stage" = exact ] && cmd=dedup  # the exact stage's own subcommand
+    echo "$PREFSIFT $cmd --plan $DATA/plan-$n.json --out $out --overwrite --threads $THREADS -q"
+  fi
+}
+
+# Baseline RSS per command on a tiny file.
+"$BUILD/bench/pipeline/make_prefs" 100 "$DATA" >/dev/null
+write_plan 100
+declare -A BASE
+for stage in $STAGES run; do
+  read -r _ kb < <(timed $(run_cmd 100 "$stage"))
+  BASE[$stage]=$kb
+done
+
+echo "machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), load average $(cut -d' ' -f1-3 /proc/loadavg), threads $THREADS"
+for n in "${SIZES[@]}"; do
+  f=$DATA/prefs-$n.jsonl
+  if [ ! -s "$f" ]; then  # generate under a temporary name so an interrupted run leaves no partial file
+    mkdir -p "$DATA/gen" && "$BUILD/bench/pipeline/make_prefs" "$n" "$DATA/gen" >/dev/null
+    mv "$DATA/gen/eval-$n.jsonl" "$DATA/eval-$n.jsonl" && mv "$DATA/gen/prefs-$n.jsonl" "$f"
+  fi
+  write_plan "$n"
+  bytes=$(stat -c %s "$f")
+  echo
+  echo "== $n records, $((bytes / 1000000)) MB ($f)"
+  ceil=$("$BUILD/bench/pipeline/ceiling" "$f" 2>/dev/null)
+  echo "$ceil" | tail -n 4 | sed 's/^/  ceiling: /'
+  ceil_s=$(echo "$ceil" | awk '$1=="ceiling" {print $2}')
+  printf '  %-8s %9s %11s %9s %10s %8s %9s\n' stage seconds records/s MB/s peakRSS_MB B/rec "ceiling%"
+  for stage in $STAGES run; do
+    read -r s kb < <(timed $(run_cmd "$n" "$stage"))
+    awk -v st="$stage" -v s="$s" -v kb="$kb" -v base="${BASE[$stage]}" -v n="$n" -v b="$bytes" -v c="$ceil_s" \
+      'BEGIN { if (s <= 0) s = 0.01;
+               printf "  %-8s %9.2f %11.0f %9.1f %10.1f %8.0f %8.1f%%\n", st, s, n / s, b / 1e6 / s, kb / 1024,
+                      (kb - base) * 1024 / n, 100 * c / s }'
+    rm -rf "$DATA/out-$n-$stage"
+  done
+done
