@@ -265,7 +265,13 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
       if (rewrite) {
         // A stage changes this record (e.g. masks personal data); kept or
         // rejected, only the changed form is written.
-        Json doc = Json::parse(line);
+        // simdjson accepted this line in pass 1; parse without exceptions so a
+        // disagreement between the two parsers is an error value, never an abort.
+        Json doc = Json::parse(line, nullptr, /*allow_exceptions=*/false);
+        if (doc.is_discarded()) {
+          return Status::Internal(plan.inputs[in].path + ":" + std::to_string(no) +
+                                  ": the record parsed in pass 1 but not when rewriting it; nothing was written");
+        }
         for (auto& stage : stages) {
           if (!stage->Rewrites(static_cast<size_t>(e.record))) continue;
           Status rs = stage->Rewrite(static_cast<size_t>(e.record), plan.inputs[in], &doc);
