@@ -71,8 +71,11 @@ Json RunTime() {
     }
   }
   if (source.empty()) {
-    t = std::time(nullptr);
-    source = "clock at the end of the run";
+    // No clock time by default: the same inputs, plan and seed must give
+    // byte-identical outputs. SOURCE_DATE_EPOCH stamps a run time on request.
+    return Json{{"utc", "time not recorded"},
+                {"source", "set SOURCE_DATE_EPOCH (seconds since 1970, UTC) to record one; without it reruns stay "
+                           "byte-identical"}};
   }
   std::tm tm{};
   gmtime_r(&t, &tm);

@@ -4,7 +4,7 @@
 // (report.html). docs/gate.md, docs/datasheet.md, docs/report.md.
 //
 // Time: SOURCE_DATE_EPOCH (seconds since 1970, UTC) when set, so reruns are
-// byte-identical; else the clock at the end of the run.
+// byte-identical; when unset no time is recorded (the outputs stay identical).
 // Thread-safety: one run owns these calls.
 #pragma once
 
