@@ -98,6 +98,20 @@ void PrintLedgerTable(const Json& s, std::FILE* out) {
       }
     }
   }
+  // The gate's verdict and every check that did not pass, so exit code 4 explains itself.
+  if (s.contains("gate") && s["gate"].is_object() && s["gate"].contains("verdict")) {
+    const Json& g = s["gate"];
+    std::fprintf(out, "gate: %s\n", g["verdict"].is_string() ? g["verdict"].get<std::string>().c_str() : "?");
+    if (g.contains("checks") && g["checks"].is_array()) {
+      for (const auto& c : g["checks"]) {
+        std::string verdict = c.value("verdict", "");
+        if (verdict == "pass") continue;
+        std::fprintf(out, "  %-28s %-14s value %s, threshold %s\n", c.value("check", "?").c_str(), verdict.c_str(),
+                     c.contains("value") ? c["value"].dump().c_str() : "null",
+                     c.contains("threshold") ? c["threshold"].dump().c_str() : "null");
+      }
+    }
+  }
 }
 
 }  // namespace prefsift
