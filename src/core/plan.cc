@@ -16,10 +16,7 @@ namespace {
 
 using Json = nlohmann::ordered_json;
 
-std::string Resolve(const std::string& base, const std::string& p) {
-  if (p.empty() || p[0] == '/' || base.empty()) return p;
-  return (std::filesystem::path(base) / p).lexically_normal().string();
-}
+std::string Resolve(const std::string& base, const std::string& p) { return ResolvePlanPath(base, p); }
 
 std::string Stem(const std::string& path) {
   std::string name = std::filesystem::path(path).filename().string();
@@ -200,6 +197,11 @@ Result<Plan> LoadPlanFile(const std::string& path) {
   plan.value().plan_path = path;
   plan.value().plan_digest = Sha256Hex(text);
   return plan;
+}
+
+std::string ResolvePlanPath(const std::string& base, const std::string& p) {
+  if (p.empty() || p[0] == '/' || base.empty()) return p;
+  return (std::filesystem::path(base) / p).lexically_normal().string();
 }
 
 const Json& StageSettings(const Plan& plan, const std::string& stage) {

@@ -50,6 +50,10 @@ Result<Plan> PlanFromJson(const nlohmann::ordered_json& j, const std::string& ba
 Status AddInput(Plan* plan, const std::string& path, const nlohmann::ordered_json& layout_spec,
                 const std::string& where);
 
+// A path from a plan file, resolved against the plan's folder (absolute paths
+// and an empty base are returned as given).
+std::string ResolvePlanPath(const std::string& base_dir, const std::string& path);
+
 // The settings object of one stage ({} when absent).
 const nlohmann::ordered_json& StageSettings(const Plan& plan, const std::string& stage);
 

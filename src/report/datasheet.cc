@@ -1,6 +1,8 @@
 // The datasheet; see datasheet.h and docs/datasheet.md.
 #include "report/datasheet.h"
 
+#include "report/json_find.h"
+
 #include <nlohmann/json.hpp>
 
 #include <cmath>
@@ -73,14 +75,7 @@ const std::vector<Section>& Sections() {
   return k;
 }
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) {
-  const Json* cur = &j;
-  for (const char* k : path) {
-    if (!cur->is_object() || !cur->contains(k)) return nullptr;
-    cur = &(*cur)[k];
-  }
-  return cur;
-}
+const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
 
 std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.dump(); }

@@ -1,6 +1,8 @@
 // The gate; see gate.h and docs/gate.md.
 #include "report/gate.h"
 
+#include "report/json_find.h"
+
 #include <nlohmann/json.hpp>
 
 #include <cmath>
@@ -28,14 +30,7 @@ const CheckSpec kChecks[] = {
     {"require_split_checks", false, "split checks passed (stage split)"},
 };
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) {
-  const Json* cur = &j;
-  for (const char* k : path) {
-    if (!cur->is_object() || !cur->contains(k)) return nullptr;
-    cur = &(*cur)[k];
-  }
-  return cur;
-}
+const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
 bool StageRan(const Json& summary, const char* stage) { return Find(summary, {"stages", stage}) != nullptr; }
 

@@ -1,6 +1,8 @@
 // report.html; see html_report.h and docs/report.md.
 #include "report/html_report.h"
 
+#include "report/json_find.h"
+
 #include <nlohmann/json.hpp>
 
 #include <algorithm>
@@ -17,14 +19,7 @@ using Json = nlohmann::ordered_json;
 
 namespace {
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) {
-  const Json* cur = &j;
-  for (const char* k : path) {
-    if (!cur->is_object() || !cur->contains(k)) return nullptr;
-    cur = &(*cur)[k];
-  }
-  return cur;
-}
+const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
 std::string Esc(const std::string& s) {
   std::string o;

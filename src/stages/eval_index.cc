@@ -7,6 +7,7 @@
 
 #include "core/json_pointer.h"
 #include "core/normalize.h"
+#include "core/plan.h"
 #include "core/record.h"
 #include "io/file_system.h"
 #include "io/line_reader.h"
@@ -16,10 +17,7 @@ namespace {
 
 using Json = nlohmann::ordered_json;
 
-std::string Resolve(const std::string& base, const std::string& p) {
-  if (p.empty() || p[0] == '/' || base.empty()) return p;
-  return (std::filesystem::path(base) / p).lexically_normal().string();
-}
+std::string Resolve(const std::string& base, const std::string& p) { return ResolvePlanPath(base, p); }
 
 bool EndsWith(const std::string& s, const std::string& e) {
   return s.size() >= e.size() && s.compare(s.size() - e.size(), e.size(), e) == 0;
