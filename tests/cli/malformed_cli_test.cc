@@ -22,7 +22,10 @@ struct CliRun {
   std::string err;
 };
 
-std::string Tmp(const std::string& name) { return ::testing::TempDir() + "cli_" + name; }
+// Per-process names: ctest runs tests in parallel processes that share TempDir().
+std::string Tmp(const std::string& name) {
+  return ::testing::TempDir() + "cli_" + std::to_string(::getpid()) + "_" + name;
+}
 
 std::string Slurp(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
