@@ -49,20 +49,32 @@ const Json* At(const Json& doc, const JsonPointer& p) {
   return cur;
 }
 
+// The next non-blank line of an evaluation file: false at its end. Errors name
+// the file and line.
+Result<bool> NextLine(const EvalSetSpec& spec, LineReader& reader, std::string_view* line, uint64_t* no) {
+  for (;;) {
+    auto next = reader.Read(line, no);
+    if (!next.ok()) return Status::Input("evaluation set " + spec.name + ": " + next.status().message());
+    if (next.value() == LineReader::Next::kEnd) return false;
+    if (next.value() == LineReader::Next::kTooLong) {
+      return Status::Input(spec.path + ":" + std::to_string(*no) + ": line longer than the line limit");
+    }
+    if (!IsBlank(*line)) return true;
+  }
+}
+
 Status ReadJsonl(const EvalSetSpec& spec, uint32_t set, LineReader& reader, EvalCorpus* out) {
   auto text_ptr = ParseJsonPointer(spec.text_pointer, "text");
   auto ref_ptr = ParseJsonPointer(spec.reference_pointer, "reference");
   auto id_ptr = ParseJsonPointer(spec.id_pointer, "id");
   std::set<std::string> seen;
+  std::string_view line;
+  uint64_t no = 0;
   for (;;) {
-    std::string_view line;
-    uint64_t no = 0;
-    auto next = reader.Read(&line, &no);
-    if (!next.ok()) return Status::Input("evaluation set " + spec.name + ": " + next.status().message());
-    if (next.value() == LineReader::Next::kEnd) break;
+    auto more = NextLine(spec, reader, &line, &no);
+    if (!more.ok()) return more.status();
+    if (!more.value()) break;
     std::string where = spec.path + ":" + std::to_string(no);
-    if (next.value() == LineReader::Next::kTooLong) return Status::Input(where + ": line longer than the line limit");
-    if (IsBlank(line)) continue;
     Json doc = Json::parse(line, nullptr, false);
     if (doc.is_discarded()) return Status::Input(where + ": not valid JSON (evaluation set " + spec.name + ")");
     const Json* t = At(doc, text_ptr.value());
@@ -96,17 +108,12 @@ Status ReadJsonl(const EvalSetSpec& spec, uint32_t set, LineReader& reader, Eval
 }
 
 Status ReadText(const EvalSetSpec& spec, uint32_t set, LineReader& reader, EvalCorpus* out) {
+  std::string_view line;
+  uint64_t no = 0;
   for (;;) {
-    std::string_view line;
-    uint64_t no = 0;
-    auto next = reader.Read(&line, &no);
-    if (!next.ok()) return Status::Input("evaluation set " + spec.name + ": " + next.status().message());
-    if (next.value() == LineReader::Next::kEnd) break;
-    if (next.value() == LineReader::Next::kTooLong) {
-      return Status::Input(spec.path + ":" + std::to_string(no) + ": line longer than the line limit");
-    }
-    if (IsBlank(line)) continue;
-    if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
+    auto more = NextLine(spec, reader, &line, &no);
+    if (!more.ok()) return more.status();
+    if (!more.value()) break;
     if (!IsValidUtf8(line)) return Status::Input(spec.path + ":" + std::to_string(no) + ": not valid UTF-8");
     EvalItem item;
     item.set = set;
@@ -122,15 +129,13 @@ Status ReadPreference(const EvalSetSpec& spec, uint32_t set, LineReader& reader,
                       EvalCorpus* out) {
   RecordReader parser(spec.layout, limits);
   std::set<std::string> seen;
+  std::string_view line;
+  uint64_t no = 0;
   for (;;) {
-    std::string_view line;
-    uint64_t no = 0;
-    auto next = reader.Read(&line, &no);
-    if (!next.ok()) return Status::Input("evaluation set " + spec.name + ": " + next.status().message());
-    if (next.value() == LineReader::Next::kEnd) break;
+    auto more = NextLine(spec, reader, &line, &no);
+    if (!more.ok()) return more.status();
+    if (!more.value()) break;
     std::string where = spec.path + ":" + std::to_string(no);
-    if (next.value() == LineReader::Next::kTooLong) return Status::Input(where + ": line longer than the line limit");
-    if (IsBlank(line)) continue;
     Record rec;
     RejectReason why;
     if (!parser.Read(line, spec.name + ":" + std::to_string(no), &rec, &why)) {
