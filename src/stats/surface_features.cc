@@ -1,7 +1,9 @@
 // Surface text features; see surface_features.h. Pure, thread-safe.
 #include "stats/surface_features.h"
 
+#include <array>
 #include <cstddef>
+#include <cstdint>
 #include <string>
 
 namespace prefsift::stats {
@@ -91,33 +93,82 @@ bool IsFence(std::string_view line) {
   return (c == '`' || c == '~') && line[i + 1] == c && line[i + 2] == c;
 }
 
-std::string FoldForMatching(std::string_view text) {
-  std::string out;
-  out.reserve(text.size());
-  for (size_t i = 0; i < text.size(); ++i) {
-    // U+2019 RIGHT SINGLE QUOTATION MARK = E2 80 99.
-    if (i + 2 < text.size() && static_cast<unsigned char>(text[i]) == 0xE2 &&
-        static_cast<unsigned char>(text[i + 1]) == 0x80 &&
-        static_cast<unsigned char>(text[i + 2]) == 0x99) {
-      out.push_back('\'');
-      i += 2;
+// Matching against the text as if it were lower-cased (ASCII) with U+2019
+// folded to "'", without building that folded copy: every phrase and marker
+// is ASCII, so a match starts at an ASCII byte, and a "'" in a phrase matches
+// either "'" or the three bytes of U+2019 (E2 80 99).
+//
+// Length of the match of `phrase` at text[pos], or 0.
+size_t MatchFolded(std::string_view text, size_t pos, const char* phrase) {
+  size_t i = pos;
+  for (const char* p = phrase; *p; ++p) {
+    if (i >= text.size()) return 0;
+    if (*p == '\'' && i + 2 < text.size() && static_cast<unsigned char>(text[i]) == 0xE2 &&
+        static_cast<unsigned char>(text[i + 1]) == 0x80 && static_cast<unsigned char>(text[i + 2]) == 0x99) {
+      i += 3;
       continue;
     }
-    out.push_back(Lower(text[i]));
+    if (Lower(text[i]) != *p) return 0;
+    ++i;
   }
-  return out;
+  return i - pos;
 }
 
-bool HasUrl(const std::string& folded) {
-  if (folded.find("http://") != std::string::npos) return true;
-  if (folded.find("https://") != std::string::npos) return true;
-  for (size_t pos = folded.find("www."); pos != std::string::npos;
-       pos = folded.find("www.", pos + 1)) {
-    const bool word_start = pos == 0 || !IsAlnum(folded[pos - 1]);
-    const bool followed = pos + 4 < folded.size() && IsAlnum(folded[pos + 4]);
-    if (word_start && followed) return true;
+// The character before text[pos] in the folded text is alphanumeric.
+bool AlnumBefore(std::string_view text, size_t pos) { return pos > 0 && IsAlnum(text[pos - 1]); }
+
+// The byte pairs a refusal phrase or URL marker can start with, in any ASCII
+// case: "i " "i'" "i" + E2 (U+2019), "my", "as", "ht", "ww". A bitmap over all
+// 65,536 pairs, so the scan below costs one load and one bit test per byte.
+class StartPairs {
+ public:
+  StartPairs() {
+    auto both = [](char c) { return std::string{c, static_cast<char>(c - 'a' + 'A')}; };
+    auto add = [&](const std::string& firsts, const std::string& seconds) {
+      for (char a : firsts)
+        for (char b : seconds) {
+          unsigned key = static_cast<unsigned char>(a) | (static_cast<unsigned>(static_cast<unsigned char>(b)) << 8);
+          bits_[key >> 6] |= uint64_t{1} << (key & 63);
+        }
+    };
+    add(both('i'), std::string(" '") + '\xE2');
+    add(both('m'), both('y'));
+    add(both('a'), both('s'));
+    add(both('h'), both('t'));
+    add(both('w'), both('w'));
   }
-  return false;
+  bool Has(unsigned char a, unsigned char b) const {
+    unsigned key = a | (static_cast<unsigned>(b) << 8);
+    return (bits_[key >> 6] >> (key & 63)) & 1;
+  }
+
+ private:
+  uint64_t bits_[1024] = {};
+};
+
+// Refusal phrases and URLs in one pass over the text.
+void ScanPhrases(std::string_view text, SurfaceFeatures* f) {
+  static const StartPairs kStarts;
+  const auto* p = reinterpret_cast<const unsigned char*>(text.data());
+  for (size_t pos = 0; pos + 1 < text.size() && !(f->has_refusal && f->has_url); ++pos) {
+    if (!kStarts.Has(p[pos], p[pos + 1])) continue;
+    const char c = Lower(text[pos]);
+    if (c == 'h') {
+      if (!f->has_url && (MatchFolded(text, pos, "http://") || MatchFolded(text, pos, "https://"))) f->has_url = true;
+    } else if (c == 'w') {
+      if (!f->has_url && !AlnumBefore(text, pos) && MatchFolded(text, pos, "www.") && pos + 4 < text.size() &&
+          IsAlnum(text[pos + 4])) {
+        f->has_url = true;
+      }
+    } else if (!f->has_refusal) {  // 'i', 'm' or 'a'
+      for (const char* phrase : kRefusalPhrases) {
+        if (phrase[0] == c && MatchFolded(text, pos, phrase)) {
+          f->has_refusal = true;
+          break;
+        }
+      }
+    }
+  }
 }
 
 }  // namespace
@@ -126,17 +177,23 @@ std::span<const char* const> RefusalPhrases() { return kRefusalPhrases; }
 
 SurfaceFeatures ComputeSurfaceFeatures(std::string_view text) {
   SurfaceFeatures f;
-  bool in_word = false;
+  // Branch-free: a table lookup per byte.
+  static const auto kSpaceByte = [] {
+    std::array<uint8_t, 256> t{};
+    for (int c = 0; c < 256; ++c) t[static_cast<size_t>(c)] = IsSpace(static_cast<char>(c)) ? 1 : 0;
+    return t;
+  }();
+  uint64_t code_points = 0, words = 0;
+  unsigned in_word = 0;
   for (char c : text) {
     const unsigned char u = static_cast<unsigned char>(c);
-    if ((u & 0xC0) != 0x80) ++f.code_points;
-    if (IsSpace(c)) {
-      in_word = false;
-    } else if (!in_word) {
-      in_word = true;
-      ++f.words;
-    }
+    code_points += (u & 0xC0) != 0x80;
+    const unsigned word_byte = kSpaceByte[u] ^ 1u;
+    words += word_byte & (in_word ^ 1u);
+    in_word = word_byte;
   }
+  f.code_points = code_points;
+  f.words = words;
   // Line scan.
   bool previous_blank = true;  // the start of text counts as after a blank line
   bool in_list = false;        // the last non-blank line was a list item or its continuation
@@ -166,14 +223,7 @@ SurfaceFeatures ComputeSurfaceFeatures(std::string_view text) {
     if (end == text.size()) break;
     start = end + 1;
   }
-  const std::string folded = FoldForMatching(text);
-  for (const char* phrase : kRefusalPhrases) {
-    if (folded.find(phrase) != std::string::npos) {
-      f.has_refusal = true;
-      break;
-    }
-  }
-  f.has_url = HasUrl(folded);
+  ScanPhrases(text, &f);
   return f;
 }
 

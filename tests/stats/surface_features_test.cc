@@ -3,6 +3,7 @@
 // heading and code-block shapes follow CommonMark 0.30 in spirit, from memory).
 #include "stats/surface_features.h"
 
+#include <cctype>
 #include <string>
 
 #include <gtest/gtest.h>
@@ -52,6 +53,23 @@ TEST(SurfaceFeatures, Refusals) {
   EXPECT_TRUE(ComputeSurfaceFeatures("I apologize for the confusion.").has_refusal);
   EXPECT_FALSE(ComputeSurfaceFeatures("Sure! Here is the answer.").has_refusal);
   EXPECT_FALSE(RefusalPhrases().empty());
+}
+
+// Every listed phrase is found wherever it stands, in upper case, and with
+// U+2019 for "'" (the one-pass scan checks a phrase's second byte first, so a
+// phrase added to the list with another second byte would fail here).
+TEST(SurfaceFeatures, EveryRefusalPhraseIsFound) {
+  for (const char* phrase : RefusalPhrases()) {
+    std::string p(phrase);
+    EXPECT_TRUE(ComputeSurfaceFeatures("Well. " + p + " now").has_refusal) << p;
+    std::string upper = p;
+    for (char& c : upper) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+    EXPECT_TRUE(ComputeSurfaceFeatures(upper).has_refusal) << upper;
+    std::string curly;
+    for (char c : p) curly += c == '\'' ? std::string("\xE2\x80\x99") : std::string(1, c);
+    EXPECT_TRUE(ComputeSurfaceFeatures("x" + curly).has_refusal) << p;
+    EXPECT_FALSE(ComputeSurfaceFeatures(p.substr(0, p.size() - 1)).has_refusal) << p;
+  }
 }
 
 TEST(SurfaceFeatures, Urls) {
