@@ -34,7 +34,7 @@ class BiasStage : public Stage {
 
   void Grow(size_t n) override { surface_.resize(n); }
 
-  void Observe(size_t r, const Record& rec, const RecordFacts&) override {
+  void Observe(size_t r, const Record& rec, const RecordFacts&, const MatchText&) override {
     auto& out = surface_[r];
     out.resize(rec.candidates.size());
     for (size_t i = 0; i < rec.candidates.size(); ++i) {

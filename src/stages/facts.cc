@@ -1,6 +1,21 @@
 #include "stages/facts.h"
 
+#include <array>
+
 namespace prefsift {
+namespace {
+
+// Byte classes for the counters: white space (ASCII) and UTF-8 continuation bytes.
+constexpr uint8_t kSpace = 1, kCont = 2;
+constexpr std::array<uint8_t, 256> MakeClasses() {
+  std::array<uint8_t, 256> t{};
+  for (int c : {' ', '\t', '\n', '\r', '\v', '\f'}) t[static_cast<size_t>(c)] = kSpace;
+  for (int c = 0x80; c < 0xC0; ++c) t[static_cast<size_t>(c)] = kCont;
+  return t;
+}
+constexpr std::array<uint8_t, 256> kClass = MakeClasses();
+
+}  // namespace
 
 uint32_t CountCodePoints(std::string_view s) {
   uint32_t n = 0;
@@ -11,30 +26,39 @@ uint32_t CountCodePoints(std::string_view s) {
 uint32_t CountWords(std::string_view s) {
   uint32_t n = 0;
   bool in_word = false;
-  for (size_t i = 0; i < s.size(); ++i) {
-    unsigned char c = static_cast<unsigned char>(s[i]);
-    bool space = c == ' ' || c == '\t' || c == '\n' || c == '\r' || c == '\v' || c == '\f';
-    if (c == 0xE3 && i + 2 < s.size() && static_cast<unsigned char>(s[i + 1]) == 0x80 &&
-        static_cast<unsigned char>(s[i + 2]) == 0x80) {  // U+3000 ideographic space
+  const auto* p = reinterpret_cast<const unsigned char*>(s.data());
+  const size_t size = s.size();
+  for (size_t i = 0; i < size; ++i) {
+    const unsigned char c = p[i];
+    bool space = kClass[c] == kSpace;
+    if (c == 0xE3 && i + 2 < size && p[i + 1] == 0x80 && p[i + 2] == 0x80) {  // U+3000 ideographic space
       space = true;
       i += 2;
     }
-    if (!space && !in_word) ++n;
+    n += !space && !in_word;
     in_word = !space;
   }
   return n;
 }
 
-RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm) {
+RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm, MatchText* text) {
   RecordFacts f;
   f.id = rec.id;
-  f.prompt_hash = HashBytes(NormalizeForMatch(rec.prompt, norm));
+  text->prompt = NormalizeForMatch(rec.prompt, norm);
+  text->chat = rec.prompt_is_chat;
+  text->user_turns = rec.prompt_is_chat ? NormalizeForMatch(rec.UserPromptText(), norm) : std::string();
+  f.prompt_hash = HashBytes(text->prompt);
   f.prompt_chars = CountCodePoints(rec.prompt);
-  f.cand_hashes.reserve(rec.candidates.size());
-  for (const auto& c : rec.candidates) {
-    f.cand_hashes.push_back(HashBytes(NormalizeForMatch(c, norm)));
-    f.cand_chars.push_back(CountCodePoints(c));
-    f.cand_words.push_back(CountWords(c));
+  const size_t b = rec.candidates.size();
+  text->candidates.resize(b);
+  f.cand_hashes.reserve(b);
+  f.cand_chars.reserve(b);
+  f.cand_words.reserve(b);
+  for (size_t i = 0; i < b; ++i) {
+    text->candidates[i] = NormalizeForMatch(rec.candidates[i], norm);
+    f.cand_hashes.push_back(HashBytes(text->candidates[i]));
+    f.cand_chars.push_back(CountCodePoints(rec.candidates[i]));
+    f.cand_words.push_back(CountWords(rec.candidates[i]));
   }
   f.ranks = rec.ranks;
   f.chosen = rec.chosen;

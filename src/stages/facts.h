@@ -1,6 +1,11 @@
 // Common facts of a record (hashes of normalised text, lengths, judgment),
-// computed once in pass 1 for every stage to read.
+// computed once in pass 1 for every stage to read, and the normalised texts
+// the facts were computed from, shown to the stages' Observe and then dropped.
 #pragma once
+
+#include <string>
+#include <string_view>
+#include <vector>
 
 #include "core/normalize.h"
 #include "core/record.h"
@@ -8,11 +13,25 @@
 
 namespace prefsift {
 
+// The texts of one record after NormalizeForMatch with the plan's options.
+// Made once per record, so no stage normalises the same text again.
+struct MatchText {
+  std::string prompt;                   // the whole prompt (chat: every turn, as Record::prompt), hashed for exact dedup
+  std::string user_turns;               // chat only: Record::UserPromptText() normalised
+  bool chat = false;
+  std::vector<std::string> candidates;  // file order
+
+  // The text prompts are matched on (near-duplicates, leakage): the plain
+  // prompt, or a chat's user turns.
+  std::string_view user_prompt() const { return chat ? std::string_view(user_turns) : std::string_view(prompt); }
+};
+
 // Number of Unicode code points in valid UTF-8.
 uint32_t CountCodePoints(std::string_view s);
 // Number of whitespace-separated words (ASCII white space and U+3000 are separators).
 uint32_t CountWords(std::string_view s);
 
-RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm);
+// Facts of `rec`; fills *text with its normalised texts (buffers are reused).
+RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm, MatchText* text);
 
 }  // namespace prefsift

@@ -307,12 +307,21 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
 }
 
 void LeakIndex::CheckPrompt(std::string_view prompt, bool all_items, std::vector<LeakFinding>* out) const {
+  CheckPrompt(prompt, NormalizeForMatch(prompt, norm_), all_items, out);
+}
+
+void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const {
+  if (!settings_.enabled[3] || impl_->ref_items.empty()) return;
+  CheckAnswer(answer, NormalizeForMatch(answer, norm_), candidate, out);
+}
+
+void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text, bool all_items,
+                            std::vector<LeakFinding>* out) const {
   const Impl& m = *impl_;
   const LeakSettings& s = settings_;
-  std::string exact_text = NormalizeForMatch(prompt, norm_);
   std::string gram_store;
   if (!m.same_norm) gram_store = NormalizeForMatch(prompt, m.gram_norm);
-  const std::string& gram_text = m.same_norm ? exact_text : gram_store;
+  const std::string_view gram_text = m.same_norm ? exact_text : std::string_view(gram_store);
   if (s.enabled[0]) {
     Hash128 h = HashBytes(exact_text);
     for (uint32_t item : m.exact.Find(h.lo)) {
@@ -449,10 +458,10 @@ void LeakIndex::CheckPrompt(std::string_view prompt, bool all_items, std::vector
   }
 }
 
-void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const {
+void LeakIndex::CheckAnswer(std::string_view answer, std::string_view exact_text, int candidate,
+                            std::vector<LeakFinding>* out) const {
   const Impl& m = *impl_;
   if (!settings_.enabled[3] || m.ref_items.empty()) return;
-  std::string exact_text = NormalizeForMatch(answer, norm_);
   Hash128 h = HashBytes(exact_text);
   for (uint32_t r : m.ref_exact.Find(h.lo)) {
     if (m.ref_hash[r] != h) continue;
@@ -466,7 +475,9 @@ void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<
     out->push_back(std::move(f));
     return;
   }
-  std::string gram_text = m.same_norm ? exact_text : NormalizeForMatch(answer, m.gram_norm);
+  std::string gram_store;
+  if (!m.same_norm) gram_store = NormalizeForMatch(answer, m.gram_norm);
+  const std::string_view gram_text = m.same_norm ? exact_text : std::string_view(gram_store);
   NgramHit hit;
   if (!m.ref_ngram->MatchBest(gram_text, &hit)) return;
   LeakFinding f;

@@ -90,6 +90,12 @@ class LeakIndex {
   // Findings for one candidate answer against the reference answers (exact,
   // then n-gram); at most one finding.
   void CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const;
+  // The same, when the caller already has NormalizeForMatch(text, norm) with
+  // the `norm` given to Build (the pipeline's MatchText), so it is not made again.
+  void CheckPrompt(std::string_view prompt, std::string_view normalized, bool all_items,
+                   std::vector<LeakFinding>* out) const;
+  void CheckAnswer(std::string_view answer, std::string_view normalized, int candidate,
+                   std::vector<LeakFinding>* out) const;
 
   const EvalCorpus& corpus() const { return corpus_; }
   const LeakSettings& settings() const { return settings_; }

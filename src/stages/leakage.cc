@@ -7,6 +7,7 @@
 
 #include "io/file_system.h"
 #include "io/output_dir.h"
+#include "stages/facts.h"
 #include "stages/leak_index.h"
 
 namespace prefsift {
@@ -34,12 +35,16 @@ class LeakageStage : public Stage {
     if (findings_.size() < n) findings_.resize(n);
   }
 
-  void Observe(size_t record, const Record& rec, const RecordFacts&) override {
+  void Observe(size_t record, const Record& rec, const RecordFacts&, const MatchText& text) override {
     std::vector<LeakFinding> f;
-    index_->CheckPrompt(rec.UserPromptText(), false, &f);
-    for (size_t c = 0; c < rec.candidates.size(); ++c) {
+    if (rec.prompt_is_chat) {
+      index_->CheckPrompt(rec.UserPromptText(), text.user_prompt(), false, &f);
+    } else {
+      index_->CheckPrompt(rec.prompt, text.user_prompt(), false, &f);
+    }
+    for (size_t c = 0; c < rec.candidates.size() && c < text.candidates.size(); ++c) {
       size_t before = f.size();
-      index_->CheckAnswer(rec.candidates[c], static_cast<int>(c), &f);
+      index_->CheckAnswer(rec.candidates[c], text.candidates[c], static_cast<int>(c), &f);
       if (f.size() > before) break;  // one answer finding a record is enough
     }
     findings_[record] = std::move(f);

@@ -9,6 +9,7 @@
 #include <thread>
 
 #include "io/output_dir.h"
+#include "stages/facts.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
@@ -63,24 +64,67 @@ double Round6(double x) { return std::round(x * 1e6) / 1e6; }
 // Similarity of two normalised candidate texts: exact Jaccard of their
 // n-gram sets. The n-gram length is min(n, shorter text's length in units),
 // at least 1, so short answers are compared word by word (or code point by
-// code point) instead of as one whole-text shingle.
-float CandidateSimilarity(std::string_view a, std::string_view b, sketch::ShingleMode forced, int n,
-                          uint64_t seed) {
-  sketch::ShingleOptions so;
-  so.mode = forced;
-  bool chars = sketch::ResolveMode(a, so) == sketch::ShingleMode::kChars ||
-               sketch::ResolveMode(b, so) == sketch::ShingleMode::kChars;
-  size_t units = chars ? std::min(sketch::DecodeUtf8(a).size(), sketch::DecodeUtf8(b).size())
-                       : std::min(sketch::CountWords(a), sketch::CountWords(b));
-  int eff = static_cast<int>(std::max<size_t>(1, std::min<size_t>(static_cast<size_t>(n), units)));
-  std::vector<uint64_t> sa = chars ? sketch::CharNgramHashes(a, eff, seed) : sketch::WordNgramHashes(a, eff, seed);
-  std::vector<uint64_t> sb = chars ? sketch::CharNgramHashes(b, eff, seed) : sketch::WordNgramHashes(b, eff, seed);
-  return static_cast<float>(sketch::ExactJaccard(sa, sb));
-}
+// code point) instead of as one whole-text shingle. Character n-grams when
+// either text resolves to character mode.
+//
+// CandidateSets computes this for every pair of one record's candidates,
+// shingling each candidate once per mode (not once per pair): a pair whose
+// n-gram length is the full n reuses the candidates' cached sets; a pair with
+// a shorter text builds its sets for that pair alone.
+class CandidateSets {
+ public:
+  CandidateSets(const std::vector<std::string>& texts, sketch::ShingleMode forced, int n, uint64_t seed)
+      : texts_(texts), n_(n), seed_(seed), per_(texts.size()) {
+    sketch::ShingleOptions so;
+    so.mode = forced;
+    for (size_t i = 0; i < texts.size(); ++i) {
+      per_[i].chars_mode = sketch::ResolveMode(texts[i], so) == sketch::ShingleMode::kChars;
+    }
+  }
+
+  float Similarity(size_t a, size_t b) {
+    const bool chars = per_[a].chars_mode || per_[b].chars_mode;
+    const size_t units = std::min(Units(a, chars), Units(b, chars));
+    const int eff = static_cast<int>(std::max<size_t>(1, std::min<size_t>(static_cast<size_t>(n_), units)));
+    if (eff != n_) {
+      std::vector<uint64_t> sa = Build(a, chars, eff), sb = Build(b, chars, eff);
+      return static_cast<float>(sketch::ExactJaccard(sa, sb));
+    }
+    return static_cast<float>(sketch::ExactJaccard(Set(a, chars), Set(b, chars)));
+  }
+
+ private:
+  struct PerText {
+    bool chars_mode = false;
+    size_t units[2] = {SIZE_MAX, SIZE_MAX};  // words, code points (SIZE_MAX = not counted yet)
+    bool built[2] = {false, false};
+    std::vector<uint64_t> set[2];            // n-gram sets at the full n
+  };
+  size_t Units(size_t i, bool chars) {
+    size_t& u = per_[i].units[chars];
+    if (u == SIZE_MAX) u = chars ? sketch::DecodeUtf8(texts_[i]).size() : sketch::CountWords(texts_[i]);
+    return u;
+  }
+  std::vector<uint64_t> Build(size_t i, bool chars, int n) const {
+    return chars ? sketch::CharNgramHashes(texts_[i], n, seed_) : sketch::WordNgramHashes(texts_[i], n, seed_);
+  }
+  const std::vector<uint64_t>& Set(size_t i, bool chars) {
+    PerText& p = per_[i];
+    if (!p.built[chars]) {
+      p.set[chars] = Build(i, chars, n_);
+      p.built[chars] = true;
+    }
+    return p.set[chars];
+  }
+  const std::vector<std::string>& texts_;
+  int n_;
+  uint64_t seed_;
+  std::vector<PerText> per_;
+};
 
 class NearDupsStage : public Stage {
  public:
-  NearDupsStage(const NearSettings& s, const Plan& plan) : s_(s), norm_(plan.normalize), threads_(plan.threads) {
+  NearDupsStage(const NearSettings& s, const Plan& plan) : s_(s), threads_(plan.threads) {
     shingle_.mode = s.mode;
     shingle_.word_n = s.word_n;
     shingle_.char_n = s.char_n;
@@ -95,22 +139,21 @@ class NearDupsStage : public Stage {
     if (s_.cand_action != CandidateAction::kOff) cand_pairs_.resize(n);
   }
 
-  void Observe(size_t i, const Record& rec, const RecordFacts&) override {
-    std::string text = NormalizeForMatch(rec.UserPromptText(), norm_);
+  void Observe(size_t i, const Record& rec, const RecordFacts&, const MatchText& text) override {
+    std::string_view prompt = text.user_prompt();
     sketch::ShingleOptions so = shingle_;
-    so.mode = sketch::ResolveMode(text, shingle_);
+    so.mode = sketch::ResolveMode(prompt, shingle_);
     chars_mode_[i] = so.mode == sketch::ShingleMode::kChars;
-    sketch::SignTextCompact(text, so, minhash_, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
-    if (s_.exact) sets_[i] = sketch::Shingles(text, so);
+    sketch::SignTextCompact(prompt, so, minhash_, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
+    if (s_.exact) sets_[i] = sketch::Shingles(prompt, so);
     if (s_.cand_action == CandidateAction::kOff || rec.candidates.size() < 2) return;
-    std::vector<std::string> cands;
-    cands.reserve(rec.candidates.size());
-    for (const auto& c : rec.candidates) cands.push_back(NormalizeForMatch(c, norm_));
-    for (size_t a = 0; a < cands.size() && a < 65535; ++a) {
-      for (size_t b = a + 1; b < cands.size() && b < 65535; ++b) {
-        float sim = CandidateSimilarity(cands[a], cands[b], s_.mode, s_.cand_n, shingle_.seed);
+    CandidateSets sets(text.candidates, s_.mode, s_.cand_n, shingle_.seed);
+    const size_t b = std::min<size_t>(text.candidates.size(), 65535);
+    for (size_t a = 0; a < b; ++a) {
+      for (size_t c = a + 1; c < b; ++c) {
+        float sim = sets.Similarity(a, c);
         if (sim >= s_.cand_threshold) {
-          cand_pairs_[i].push_back(CandidatePair{static_cast<uint16_t>(a), static_cast<uint16_t>(b), sim});
+          cand_pairs_[i].push_back(CandidatePair{static_cast<uint16_t>(a), static_cast<uint16_t>(c), sim});
         }
       }
     }
@@ -321,7 +364,6 @@ class NearDupsStage : public Stage {
 
  private:
   NearSettings s_;
-  NormalizeOptions norm_;
   unsigned threads_;
   sketch::ShingleOptions shingle_;
   sketch::MinHashParams minhash_;

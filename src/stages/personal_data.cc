@@ -137,7 +137,7 @@ class PersonalDataStage : public Stage {
     if (per_record_.size() < n) per_record_.resize(n);
   }
 
-  void Observe(size_t record, const Record& rec, const RecordFacts&) override {
+  void Observe(size_t record, const Record& rec, const RecordFacts&, const MatchText&) override {
     RecordHits& out = per_record_[record];
     auto scan = [&](std::string_view text, Part part, uint32_t index, const std::string* meta_pointer) -> bool {
       FieldKind kind = KindOf(part);

@@ -6,10 +6,12 @@
 
 #include <algorithm>
 #include <chrono>
+#include <future>
 #include <optional>
 #include <thread>
 
 #include "core/record_reader.h"
+#include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "report/finish.h"
@@ -61,6 +63,7 @@ struct Parsed {
   bool ok = false;
   Record rec;
   RecordFacts facts;
+  MatchText text;
   RejectReason why;
 };
 
@@ -89,65 +92,87 @@ class Progress {
   bool shown_ = false;
 };
 
-// Runs fn(i) for i in [0, n) on up to `threads` threads. fn must be safe for distinct i.
-template <typename Fn>
-void ParallelFor(size_t n, unsigned threads, Fn fn) {
-  if (threads <= 1 || n < 64) {
-    for (size_t i = 0; i < n; ++i) fn(i, 0u);
-    return;
+// One chunk of lines as read from an input: the texts are copies (the line
+// reader's views are transient), so the next chunk can be read while this one
+// is parsed.
+struct RawChunk {
+  std::vector<std::string> texts;  // empty for a line longer than the limit
+  std::vector<uint64_t> line_numbers;
+  std::vector<uint8_t> too_long;
+  uint64_t lines = 0, blank_lines = 0;  // every line read, blank ones included
+  uint64_t bytes_read = 0;              // the reader's position after the chunk
+  bool eof = false;
+  Status status = Status::Ok();
+};
+
+RawChunk ReadChunk(LineReader& reader) {
+  RawChunk c;
+  while (c.texts.size() < kChunkLines) {
+    std::string_view line;
+    uint64_t no = 0;
+    auto next = reader.Read(&line, &no);
+    if (!next.ok()) {
+      c.status = next.status();
+      break;
+    }
+    if (next.value() == LineReader::Next::kEnd) {
+      c.eof = true;
+      break;
+    }
+    ++c.lines;
+    if (next.value() == LineReader::Next::kLine && IsBlank(line)) {
+      ++c.blank_lines;
+      continue;
+    }
+    const bool too_long = next.value() == LineReader::Next::kTooLong;
+    c.texts.emplace_back(too_long ? std::string_view() : line);
+    c.line_numbers.push_back(no);
+    c.too_long.push_back(too_long);
   }
-  std::vector<std::thread> pool;
-  for (unsigned t = 0; t < threads; ++t) {
-    pool.emplace_back([&, t] {
-      for (size_t i = t; i < n; i += threads) fn(i, t);
-    });
-  }
-  for (auto& th : pool) th.join();
+  c.bytes_read = reader.bytes_read();
+  return c;
 }
 
 Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-               unsigned threads, Progress& progress) {
+               ThreadPool& pool, Progress& progress) {
   st.inputs.resize(plan.inputs.size());
+  std::vector<Parsed> chunk;  // reused from chunk to chunk (buffers keep their capacity)
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
     const InputSpec& spec = plan.inputs[in];
     InputStats& stats = st.inputs[in];
     auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes);
     if (!opened.ok()) return opened.status();
-    auto& reader = opened.value();
-    stats.compression = CompressionName(reader->compression());
+    LineReader& reader = *opened.value();
+    stats.compression = CompressionName(reader.compression());
     std::vector<std::unique_ptr<RecordReader>> parsers;
-    for (unsigned t = 0; t < std::max(1u, threads); ++t) {
+    for (unsigned t = 0; t < pool.size(); ++t) {
       parsers.push_back(std::make_unique<RecordReader>(spec.layout, plan.limits));
     }
-    bool eof = false;
-    while (!eof) {
-      // Read a chunk of lines (text copied; the reader's view is transient).
-      std::vector<std::string> texts;
-      std::vector<Parsed> chunk;
-      while (chunk.size() < kChunkLines) {
-        std::string_view line;
-        uint64_t no = 0;
-        auto next = reader->Read(&line, &no);
-        if (!next.ok()) return next.status();
-        if (next.value() == LineReader::Next::kEnd) { eof = true; break; }
-        ++stats.lines;
-        if (next.value() == LineReader::Next::kLine && IsBlank(line)) { ++stats.blank_lines; continue; }
-        Parsed p;
-        p.line = no;
-        p.too_long = next.value() == LineReader::Next::kTooLong;
-        texts.emplace_back(p.too_long ? std::string_view() : line);
-        chunk.push_back(std::move(p));
-      }
-      ParallelFor(chunk.size(), threads, [&](size_t i, unsigned t) {
+    // The next chunk is read on its own thread while the current one is parsed
+    // and observed; chunks are still handled strictly in input order. Every
+    // path out of the loop waits for that read first (the future's destructor).
+    std::future<RawChunk> ahead = std::async(std::launch::async, ReadChunk, std::ref(reader));
+    for (;;) {
+      RawChunk raw = ahead.get();
+      if (!raw.status.ok()) return raw.status;
+      const bool eof = raw.eof;
+      if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader));
+      stats.lines += raw.lines;
+      stats.blank_lines += raw.blank_lines;
+      const size_t n = raw.texts.size();
+      chunk.resize(n);
+      pool.ParallelFor(n, [&](size_t i, unsigned t) {
         Parsed& p = chunk[i];
+        p.line = raw.line_numbers[i];
+        p.too_long = raw.too_long[i] != 0;
+        p.ok = false;
         if (p.too_long) return;
-        p.ok = parsers[t]->Read(texts[i], spec.name + ":" + std::to_string(p.line), &p.rec, &p.why);
-        if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize);
+        p.ok = parsers[t]->Read(raw.texts[i], spec.name + ":" + std::to_string(p.line), &p.rec, &p.why);
+        if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text);
       });
       // Number entries and records in input order.
-      size_t first_record = st.records.size();
-      std::vector<size_t> rec_of(chunk.size(), SIZE_MAX);
-      for (size_t i = 0; i < chunk.size(); ++i) {
+      std::vector<size_t> rec_of(n, SIZE_MAX);
+      for (size_t i = 0; i < n; ++i) {
         Parsed& p = chunk[i];
         Entry e;
         e.input = in;
@@ -171,12 +196,12 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         }
       }
       for (auto& s : stages) s->Grow(st.records.size());
-      ParallelFor(chunk.size(), threads, [&](size_t i, unsigned) {
+      pool.ParallelFor(n, [&](size_t i, unsigned) {
         if (rec_of[i] == SIZE_MAX) return;
-        for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]]);
+        for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
       });
-      (void)first_record;
-      progress.Tick("reading " + spec.name, stats.lines, reader->bytes_read());
+      progress.Tick("reading " + spec.name, stats.lines, raw.bytes_read);
+      if (eof) break;
     }
   }
   return Status::Ok();
@@ -330,10 +355,10 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
   if (!out.ok()) return out.status();
 
-  unsigned threads = plan.threads ? plan.threads : std::max(1u, std::thread::hardware_concurrency());
+  ThreadPool pool(plan.threads);  // 0: one per hardware thread
   RunState st(plan);
   Progress progress(options.progress, log);
-  Status s = Observe(plan, st, stages, fs, threads, progress);
+  Status s = Observe(plan, st, stages, fs, pool, progress);
   progress.Done();
   if (!s.ok()) return s;
   for (auto& stage : stages) {

@@ -123,7 +123,7 @@ class SplitStage : public Stage {
   void Grow(size_t n) override {
     if (script_.size() < n) script_.resize(n, kNone);
   }
-  void Observe(size_t i, const Record& rec, const RecordFacts&) override {
+  void Observe(size_t i, const Record& rec, const RecordFacts&, const MatchText&) override {
     script_[i] = DominantScriptOf(rec.UserPromptText());
   }
 

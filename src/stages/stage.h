@@ -23,13 +23,16 @@
 namespace prefsift {
 
 class OutputDir;
+struct MatchText;
 
 class Stage {
  public:
   virtual ~Stage() = default;
   virtual std::string name() const = 0;
   virtual void Grow(size_t /*records*/) {}
-  virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/) {}
+  // `text` holds the record's normalised texts (facts.h), valid during the call only.
+  virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/,
+                       const MatchText& /*text*/) {}
   virtual Status Decide(RunState& state) = 0;
   virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
   virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }

@@ -1,0 +1,70 @@
+#include "core/thread_pool.h"
+
+#include <algorithm>
+
+namespace prefsift {
+namespace {
+constexpr size_t kBatch = 16;  // indexes taken at a time: few atomics, still balanced
+}  // namespace
+
+ThreadPool::ThreadPool(unsigned threads)
+    : size_(threads ? threads : std::max(1u, std::thread::hardware_concurrency())) {
+  for (unsigned w = 1; w < size_; ++w) threads_.emplace_back([this, w] { Run(w); });
+}
+
+ThreadPool::~ThreadPool() {
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    stop_ = true;
+  }
+  start_.notify_all();
+  for (auto& t : threads_) t.join();
+}
+
+void ThreadPool::Drain(unsigned worker) {
+  for (;;) {
+    size_t begin = next_.fetch_add(kBatch, std::memory_order_relaxed);
+    if (begin >= n_) return;
+    size_t end = std::min(n_, begin + kBatch);
+    for (size_t i = begin; i < end; ++i) (*fn_)(i, worker);
+  }
+}
+
+void ThreadPool::Run(unsigned worker) {
+  uint64_t seen = 0;
+  for (;;) {
+    {
+      std::unique_lock<std::mutex> lock(mu_);
+      start_.wait(lock, [&] { return stop_ || generation_ != seen; });
+      if (stop_) return;
+      seen = generation_;
+    }
+    Drain(worker);
+    {
+      std::lock_guard<std::mutex> lock(mu_);
+      if (--busy_ == 0) done_.notify_one();
+    }
+  }
+}
+
+void ThreadPool::ParallelFor(size_t n, const std::function<void(size_t, unsigned)>& fn) {
+  if (size_ == 1 || n <= kBatch) {
+    for (size_t i = 0; i < n; ++i) fn(i, 0);
+    return;
+  }
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    fn_ = &fn;
+    n_ = n;
+    next_.store(0, std::memory_order_relaxed);
+    busy_ = size_ - 1;
+    ++generation_;
+  }
+  start_.notify_all();
+  Drain(0);
+  std::unique_lock<std::mutex> lock(mu_);
+  done_.wait(lock, [&] { return busy_ == 0; });
+  fn_ = nullptr;
+}
+
+}  // namespace prefsift
