@@ -54,6 +54,7 @@ struct CommonOptions {
   bool strict = false;
   unsigned threads = 0;
   bool quiet = false;
+  bool timings = false;
   long long seed = -1;
   // Input limits (docs/hardening.md); 0 = the plan's value or the default.
   size_t max_line_bytes = 0, max_depth = 0, max_candidates = 0, max_text_bytes = 0;
@@ -72,6 +73,7 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_option("--threads", o->threads, "Worker threads (default: all cores); results do not depend on it");
   cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
   cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
+  cmd->add_flag("--timings", o->timings, "Print the wall time of each phase and stage on stderr (not in any output file)");
   // Input limits override the plan's limits.* (a record over one is rejected with its reason).
   CLI::Option_group* lim = cmd->add_option_group("Limits", "Input limits (plan: limits.*); over a limit = reject");
   lim->add_option("--max-line-bytes", o->max_line_bytes, "Longest input line in bytes (default 64 MiB)");
@@ -139,6 +141,7 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages) {
   opts.stages = stages;
   opts.progress = !o.quiet && ::isatty(2);
   opts.table = !o.quiet;
+  opts.timings = o.timings;
   auto outcome = RunPipeline(plan.value(), opts, DefaultFileSystem(), stderr);
   if (!outcome.ok()) {
     std::fprintf(stderr, "prefsift: %s\n", outcome.status().message().c_str());

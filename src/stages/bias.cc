@@ -32,6 +32,7 @@ class BiasStage : public Stage {
   BiasStage(BiasSettings s, uint64_t seed) : s_(std::move(s)), seed_(seed) {}
   std::string name() const override { return "bias"; }
 
+  void Reserve(size_t n) override { surface_.reserve(n); }
   void Grow(size_t n) override { surface_.resize(n); }
 
   void Observe(size_t r, const Record& rec, const RecordFacts&, const MatchText&) override {

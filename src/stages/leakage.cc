@@ -31,6 +31,7 @@ class LeakageStage : public Stage {
       : corpus_(std::move(corpus)), index_(std::move(index)) {}
   std::string name() const override { return "leakage"; }
 
+  void Reserve(size_t n) override { findings_.reserve(n); }
   void Grow(size_t n) override {
     if (findings_.size() < n) findings_.resize(n);
   }
@@ -100,10 +101,10 @@ class LeakageStage : public Stage {
           action = "dropped";
           ++dropped_;
         } else {
-          action = "rejected earlier by " + st.DecisionOf(r).stage;
+          action = "rejected earlier by " + std::string(st.DecisionOf(r).stage);
         }
       } else if (!st.IsKept(r)) {
-        action = "rejected earlier by " + st.DecisionOf(r).stage;
+        action = "rejected earlier by " + std::string(st.DecisionOf(r).stage);
       } else {
         ++flagged_;
       }

@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
 #include <map>
 #include <span>
 #include <thread>
@@ -84,7 +85,7 @@ class CandidateSets {
 
   float Similarity(size_t a, size_t b) {
     const bool chars = per_[a].chars_mode || per_[b].chars_mode;
-    const size_t units = std::min(Units(a, chars), Units(b, chars));
+    const size_t units = std::min(Units(a, chars), Units(b, chars));  // counted up to n only
     const int eff = static_cast<int>(std::max<size_t>(1, std::min<size_t>(static_cast<size_t>(n_), units)));
     if (eff != n_) {
       std::vector<uint64_t> sa = Build(a, chars, eff), sb = Build(b, chars, eff);
@@ -100,10 +101,29 @@ class CandidateSets {
     bool built[2] = {false, false};
     std::vector<uint64_t> set[2];            // n-gram sets at the full n
   };
+  // The text's length in units (words or code points), or n when it is longer:
+  // only min(n, length) matters, so counting stops at n.
   size_t Units(size_t i, bool chars) {
     size_t& u = per_[i].units[chars];
-    if (u == SIZE_MAX) u = chars ? sketch::DecodeUtf8(texts_[i]).size() : sketch::CountWords(texts_[i]);
+    if (u == SIZE_MAX) u = CountUpTo(texts_[i], chars, static_cast<size_t>(n_));
     return u;
+  }
+  static size_t CountUpTo(std::string_view text, bool chars, size_t limit) {
+    size_t count = 0;
+    bool in_word = false;
+    for (char ch : text) {
+      if (count >= limit) break;
+      const auto c = static_cast<unsigned char>(ch);
+      if (chars) {
+        count += (c & 0xC0) != 0x80;  // a code point starts (DecodeUtf8 counts each malformed byte; ingest
+                                      // validated the UTF-8, so the two agree)
+      } else {
+        const bool space = c == ' ' || c == '\t' || c == '\n' || c == '\r' || c == '\v' || c == '\f';
+        count += !space && !in_word;
+        in_word = !space;
+      }
+    }
+    return count;
   }
   std::vector<uint64_t> Build(size_t i, bool chars, int n) const {
     return chars ? sketch::CharNgramHashes(texts_[i], n, seed_) : sketch::WordNgramHashes(texts_[i], n, seed_);
@@ -132,6 +152,11 @@ class NearDupsStage : public Stage {
   }
   std::string name() const override { return "near"; }
 
+  void Reserve(size_t n) override {
+    signatures_.reserve(n * s_.slots);
+    chars_mode_.reserve(n);
+    if (s_.cand_action != CandidateAction::kOff) cand_pairs_.reserve(n);
+  }
   void Grow(size_t n) override {
     signatures_.resize(n * s_.slots);
     chars_mode_.resize(n);
@@ -179,11 +204,15 @@ class NearDupsStage : public Stage {
     const uint32_t K = s_.slots;
     // 1. Clusters among the kept records.
     if (kept.size() >= 2) {
-      std::vector<uint8_t> sub(kept.size() * K);
+      // The kept records' signatures, moved to the front in place (kept[j] >= j,
+      // so no row is overwritten before it is moved): no second copy of the
+      // signature table (256 bytes a record by default).
+      std::vector<uint8_t> sub = std::move(signatures_);
       for (size_t j = 0; j < kept.size(); ++j) {
-        std::copy_n(signatures_.data() + kept[j] * K, K, sub.data() + j * K);
+        if (kept[j] != j) std::memmove(sub.data() + j * K, sub.data() + kept[j] * K, K);
       }
-      std::vector<uint8_t>().swap(signatures_);
+      sub.resize(kept.size() * K);
+      signatures_.clear();
       sketch::ClusterOptions opt;
       opt.threshold = s_.threshold;
       opt.banding = banding_;

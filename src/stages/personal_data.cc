@@ -133,6 +133,7 @@ class PersonalDataStage : public Stage {
 
   std::string name() const override { return kStage; }
 
+  void Reserve(size_t n) override { per_record_.reserve(n); }
   void Grow(size_t n) override {
     if (per_record_.size() < n) per_record_.resize(n);
   }

@@ -17,8 +17,8 @@ bool RunState::Reject(size_t record, const std::string& stage, const std::string
   Decision& d = DecisionOf(record);
   if (d.rejected) return false;
   d.rejected = true;
-  d.stage = stage;
-  d.reason = reason;
+  d.stage = Intern(stage);
+  d.reason = Intern(reason);
   d.text = static_cast<uint32_t>(reject_texts.size());
   reject_texts.push_back(RejectText{std::move(field), std::move(message), std::move(detail), ""});
   Count(stage, reason);
@@ -29,8 +29,8 @@ void RunState::RejectEntry(size_t entry, const std::string& stage, const std::st
                            std::string message, std::string id) {
   Decision& d = decisions[entry];
   d.rejected = true;
-  d.stage = stage;
-  d.reason = reason;
+  d.stage = Intern(stage);
+  d.reason = Intern(reason);
   d.text = static_cast<uint32_t>(reject_texts.size());
   reject_texts.push_back(RejectText{std::move(field), std::move(message), "", std::move(id)});
   Count(stage, reason);

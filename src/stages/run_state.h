@@ -10,7 +10,9 @@
 
 #include <cstdint>
 #include <map>
+#include <set>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "core/hash.h"
@@ -33,12 +35,14 @@ struct RejectText {
   std::string id;         // for entries that never became records: the id if it was readable
 };
 
+// 48 bytes: one per input line, so kept small (docs/performance.md). stage and
+// reason view strings interned in RunState (stable for the run's life).
 struct Decision {
   bool rejected = false;
   uint32_t split = 0;     // index into RunState::split_names when kept
   uint32_t text = UINT32_MAX;  // index into RunState::reject_texts when rejected
-  std::string stage;      // the stage that rejected it
-  std::string reason;     // reason code (docs/reasons.md)
+  std::string_view stage;      // the stage that rejected it ("" when kept)
+  std::string_view reason;     // reason code (docs/reasons.md)
 };
 
 // Small, fixed facts about one parsed record; the text itself is not kept.
@@ -110,7 +114,9 @@ class RunState {
 
  private:
   void Count(const std::string& stage, const std::string& reason);
+  std::string_view Intern(const std::string& s) { return *names_.insert(s).first; }
   const Plan& plan_;
+  std::set<std::string, std::less<>> names_;  // stage and reason names (node-based: views stay valid)
   std::vector<std::pair<std::string, std::map<std::string, uint64_t>>> by_stage_;
 };
 

@@ -120,6 +120,7 @@ class SplitStage : public Stage {
   explicit SplitStage(Settings s) : s_(std::move(s)) {}
   std::string name() const override { return "split"; }
 
+  void Reserve(size_t n) override { script_.reserve(n); }
   void Grow(size_t n) override {
     if (script_.size() < n) script_.resize(n, kNone);
   }

@@ -30,6 +30,10 @@ class Stage {
   virtual ~Stage() = default;
   virtual std::string name() const = 0;
   virtual void Grow(size_t /*records*/) {}
+  // A hint, once, early in pass 1: about this many records are expected (from
+  // the input size), so per-record storage can be reserved instead of grown by
+  // doubling (which holds two copies at once). Never required for correctness.
+  virtual void Reserve(size_t /*records*/) {}
   // `text` holds the record's normalised texts (facts.h), valid during the call only.
   virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/,
                        const MatchText& /*text*/) {}

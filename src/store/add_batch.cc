@@ -547,7 +547,7 @@ class StoreCompanion : public RunCompanion {
     records_ = n;
     for (size_t e = 0; e < st.decisions.size(); ++e) {
       const Decision& d = st.decisions[e];
-      if (d.rejected) ++rejected_by_reason_[d.stage + "/" + d.reason];
+      if (d.rejected) ++rejected_by_reason_[std::string(d.stage) + "/" + std::string(d.reason)];
     }
     // The split stage's hook gives inheriting groups their stored split; if
     // the hook were missing, the decision is corrected here and counted.
