@@ -6,13 +6,14 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
-#include <fstream>
 #include <map>
 #include <set>
 #include <tuple>
 #include <unordered_set>
 #include <unordered_map>
 
+#include "io/file_system.h"
+#include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "sketch/union_find.h"
 
@@ -383,18 +384,27 @@ class SplitStage : public Stage {
 
  private:
   Status ComparePrevious(const RunState& st) {
-    std::ifstream in(s_.previous);
-    if (!in) return Status::Input("stages.split.previous: cannot read " + s_.previous);
+    // The shared reading path: plain, gzip or zstd, the plan's line limit.
+    auto opened = LineReader::Open(DefaultFileSystem(), s_.previous, st.plan().limits.max_line_bytes);
+    if (!opened.ok()) {
+      return Status::Input("stages.split.previous: cannot read " + s_.previous + ": " + opened.status().message());
+    }
     std::unordered_map<std::string, std::string> before;
-    std::string line;
+    std::string_view line;
     uint64_t no = 0;
-    while (std::getline(in, line)) {
-      ++no;
+    for (;;) {
+      auto next = opened.value()->Read(&line, &no);
+      if (!next.ok()) return Status::Input("stages.split.previous: " + s_.previous + ": " + next.status().message());
+      if (next.value() == LineReader::Next::kEnd) break;
+      if (next.value() == LineReader::Next::kTooLong) {
+        return Status::Input("stages.split.previous: " + s_.previous + ":" + std::to_string(no) +
+                             ": line longer than the line limit");
+      }
       if (line.empty()) continue;
       Json j = Json::parse(line, nullptr, false);
       if (!j.is_object() || !j.contains("id") || !j["id"].is_string() || !j.contains("split") || !j["split"].is_string()) {
-        return Status::Input("stages.split.previous: " + s_.previous + " line " + std::to_string(no) +
-                             " is not an assignment line ({\"id\":..., \"split\":...})");
+        return Status::Input("stages.split.previous: " + s_.previous + ":" + std::to_string(no) +
+                             ": not an assignment line ({\"id\":..., \"split\":...})");
       }
       before[j["id"].get<std::string>()] = j["split"].get<std::string>();
     }

@@ -4,9 +4,10 @@
 #include <nlohmann/json.hpp>
 
 #include <cmath>
-#include <fstream>
 #include <span>
 
+#include "core/record_reader.h"
+#include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
@@ -112,17 +113,36 @@ Result<MergeOutcome> MergeShards(const std::vector<std::string>& files, const st
   std::vector<std::string> ids;
   uint32_t K = 0;
   for (const auto& path : files) {
-    std::ifstream in(path);
-    if (!in) return Status::Input("merge: cannot read " + path);
-    std::string line;
+    // The shared reading path: plain, gzip or zstd, with the default line limit.
+    auto opened = LineReader::Open(fs, path, InputLimits{}.max_line_bytes);
+    if (!opened.ok()) return Status::Input("merge: cannot read " + path + ": " + opened.status().message());
+    LineReader& in = *opened.value();
+    std::string_view line;
     uint64_t no = 0;
-    while (std::getline(in, line)) {
-      ++no;
+    bool header = true;
+    for (;;) {
+      auto next = in.Read(&line, &no);
+      if (!next.ok()) return Status::Input("merge: " + path + ": " + next.status().message());
+      if (next.value() == LineReader::Next::kEnd) break;
+      if (next.value() == LineReader::Next::kTooLong) {
+        return Status::Input("merge: " + path + ":" + std::to_string(no) + ": line longer than the line limit");
+      }
       if (line.empty()) continue;
       Json j = Json::parse(line, nullptr, false);
-      if (no == 1) {
+      if (header) {
+        header = false;
         if (!j.is_object() || !j.contains("prefsift_signatures")) {
-          return Status::Input("merge: " + path + " is not a signatures file (no header line)");
+          return Status::Input("merge: " + path + ":" + std::to_string(no) +
+                               ": not a signatures file (the first line is not its header)");
+        }
+        for (const char* k : {"slots", "bands", "rows"}) {
+          if (!j.contains(k) || !j[k].is_number_unsigned() || j[k].get<uint64_t>() == 0) {
+            return Status::Input("merge: " + path + ":" + std::to_string(no) + ": header field \"" + k +
+                                 "\" must be a positive integer");
+          }
+        }
+        if (!j.contains("threshold") || !j["threshold"].is_number()) {
+          return Status::Input("merge: " + path + ":" + std::to_string(no) + ": header field \"threshold\" must be a number");
         }
         Json h = j;
         if (head0.is_null()) {
@@ -136,7 +156,8 @@ Result<MergeOutcome> MergeShards(const std::vector<std::string>& files, const st
       std::vector<uint8_t> sig;
       if (!j.is_object() || !j.contains("signature") || !j["signature"].is_string() ||
           !FromHex(j["signature"].get<std::string>(), &sig) || sig.size() != K) {
-        return Status::Input("merge: " + path + " line " + std::to_string(no) + " is not a signature line");
+        return Status::Input("merge: " + path + ":" + std::to_string(no) +
+                             ": not a signature line (field \"signature\": " + std::to_string(K) + " bytes in hex)");
       }
       sigs.insert(sigs.end(), sig.begin(), sig.end());
       ids.push_back(j.value("id", std::string()));

@@ -4,6 +4,7 @@
 #include <nlohmann/json.hpp>
 
 #include <cmath>
+#include <cstdio>
 #include <cstdlib>
 #include <filesystem>
 #include <map>
@@ -147,6 +148,28 @@ TEST(Splits, AddingRecordsKeepsExistingSplits) {
   EXPECT_EQ(prev["new"], 330);
   EXPECT_EQ(prev["no_longer_kept"], 0);
   std::printf("stability: %d of 900 existing records moved (their thread gained a record)\n", moved);
+}
+
+// stages.split.previous is read through the shared line reader: a gzip file
+// (RFC 1952, recognised by its magic bytes) works, and a bad line is named
+// by file and line.
+TEST(Splits, PreviousAssignmentsCompressedAndBadLineNamed) {
+  RunResult first = RunSplit("prevgz-a", Corpus(0, 300));
+  std::string prev = TempPath("prevgz-a-out") + "/assignments.jsonl";
+  std::remove((prev + ".gz").c_str());
+  ASSERT_EQ(std::system(("gzip -k " + prev).c_str()), 0);
+  RunResult again = RunSplit("prevgz-b", Corpus(0, 300), Json{{"previous", prev + ".gz"}});
+  EXPECT_EQ(again.summary["stages"]["split"]["previous"]["unchanged"], first.split_of.size());
+  std::string bad = WriteFile("prevgz-bad.jsonl", "{\"id\": \"a\", \"split\": \"train\"}\n{\"id\": 7}\n");
+  std::string in = WriteFile("prevgz-c.jsonl", Corpus(0, 30));
+  Plan plan = PlanFor({in}, kLayout, TempPath("prevgz-c-out"));
+  plan.stages["split"] = Json{{"previous", bad}};
+  PipelineOptions opts;
+  opts.stages = {"split"};
+  opts.table = false;
+  auto r = RunPipeline(plan, opts, DefaultFileSystem(), stderr);
+  ASSERT_FALSE(r.ok());
+  EXPECT_NE(r.status().message().find(bad + ":2:"), std::string::npos) << r.status().message();
 }
 
 // Realised fractions: 3000 singleton groups; each share should fall within
