@@ -142,16 +142,21 @@ Result<std::string> FileSha256(const std::string& path) {
   return h.HexDigest();
 }
 
+const char* PolicyName(ConflictPolicy p) { return p == ConflictPolicy::kJoinFirst ? "join-first" : "reject"; }
+
 struct Conflict {
-  std::vector<std::string> ids;  // batch records rejected
+  std::vector<std::string> ids;  // batch records rejected (reject) or joined to the first group (join-first)
   Json groups;                   // [{group, split}]
   std::string via;               // "near cluster merge" or "ties"
+  Json resolution;               // {"policy", "action", ...}
+
+  Json ToJson() const { return Json{{"records", ids}, {"groups", groups}, {"via", via}, {"resolution", resolution}}; }
 };
 
 class StoreCompanion : public RunCompanion {
  public:
-  StoreCompanion(StoreDb* db, const Plan& plan, SplitView view, int64_t batch, int64_t first_seq)
-      : db_(db), plan_(plan), view_(std::move(view)), batch_(batch), first_seq_(first_seq) {
+  StoreCompanion(StoreDb* db, const Plan& plan, SplitView view, ConflictPolicy policy, int64_t batch, int64_t first_seq)
+      : db_(db), plan_(plan), view_(std::move(view)), policy_(policy), batch_(batch), first_seq_(first_seq) {
     for (const auto& info : AllStages()) order_.push_back(info.name);
   }
   std::string name() const override { return "store"; }
@@ -200,12 +205,11 @@ class StoreCompanion : public RunCompanion {
                           {"stored_groups_merged", groups_merged_},
                           {"split_overridden_after_split_stage", hook_missing_}};
     Json conflicts = Json::array();
-    for (size_t k = 0; k < conflicts_.size() && k < 50; ++k) {
-      conflicts.push_back(Json{{"records", conflicts_[k].ids}, {"groups", conflicts_[k].groups}, {"via", conflicts_[k].via}});
-    }
-    (*s)["group_conflicts"] = Json{{"policy", "reject"},
+    for (size_t k = 0; k < conflicts_.size() && k < 50; ++k) conflicts.push_back(conflicts_[k].ToJson());
+    (*s)["group_conflicts"] = Json{{"policy", PolicyName(policy_)},
                                    {"components", conflicts_.size()},
                                    {"records_rejected", conflict_records_},
+                                   {"records_joined_first", joined_.size()},
                                    {"first", std::move(conflicts)},
                                    {"file", "store_conflicts.jsonl"}};
     (*s)["records_stored"] = stored_;
@@ -216,7 +220,7 @@ class StoreCompanion : public RunCompanion {
     auto f = out.Create("store_conflicts.jsonl");
     if (!f.ok()) return f.status();
     for (const auto& c : conflicts_) {
-      Status s = f.value()->Append(Json{{"records", c.ids}, {"groups", c.groups}, {"via", c.via}}.dump() + "\n");
+      Status s = f.value()->Append(c.ToJson().dump() + "\n");
       if (!s.ok()) return s;
     }
     return f.value()->Close();
@@ -396,7 +400,23 @@ class StoreCompanion : public RunCompanion {
         Conflict cf;
         cf.via = "near-duplicate prompts joining stored clusters " + Json(list).dump();
         cf.groups = GroupsJson(groups);
-        for (size_t i : members[c]) RejectConflict(st, i, cf);
+        if (policy_ == ConflictPolicy::kJoinFirst) {
+          // The records join the first stored cluster (smallest id: the
+          // earliest accepted record); the other clusters stay apart. Their
+          // group is settled before the split stage (GroupCheck).
+          cf.resolution = Json{{"policy", "join-first"},
+                               {"action", "joined the first stored cluster; the other clusters were not merged"},
+                               {"cluster", list.front()}};
+          for (size_t i : members[c]) {
+            if (st.IsKept(i)) cf.ids.push_back(st.records[i].id);
+          }
+          for (size_t i : members[c]) {
+            if (st.IsKept(i)) joined_.insert(i);
+          }
+        } else {
+          cf.resolution = Json{{"policy", "reject"}, {"action", "rejected (store_group_conflict)"}};
+          for (size_t i : members[c]) RejectConflict(st, i, cf);
+        }
         conflicts_.push_back(std::move(cf));
         comp_clusters_[c].resize(1);  // nothing merges
         continue;
@@ -437,9 +457,13 @@ class StoreCompanion : public RunCompanion {
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
     }
-    auto qt = db_->Prepare("SELECT t.grp, g.split, g.gkey FROM ties t JOIN groups g ON g.grp = t.grp WHERE t.kind = ? AND t.tkey = ?");
+    auto qt = db_->Prepare(
+        "SELECT t.grp, g.split, g.gkey, g.first_batch FROM ties t JOIN groups g ON g.grp = t.grp WHERE t.kind = ? AND t.tkey = ?");
     if (!qt.ok()) return qt.status();
-    struct StoredGroup { std::string split, key; };
+    struct StoredGroup {
+      std::string split, key;
+      int64_t first_batch = 0;
+    };
     std::map<int64_t, StoredGroup> info;
     std::vector<std::pair<uint32_t, int64_t>> edges;  // batch record, stored group
     auto lookup = [&](uint32_t i, int kind, const std::string& tkey) -> Status {
@@ -447,7 +471,7 @@ class StoreCompanion : public RunCompanion {
       Status err;
       if (qt.value()->Step(&err)) {
         int64_t g = qt.value()->Int(0);
-        info.emplace(g, StoredGroup{qt.value()->Text(1), std::string(qt.value()->Blob(2))});
+        info.emplace(g, StoredGroup{qt.value()->Text(1), std::string(qt.value()->Blob(2)), qt.value()->Int(3)});
         edges.emplace_back(i, g);
       }
       qt.value()->Reset();
@@ -505,7 +529,7 @@ class StoreCompanion : public RunCompanion {
         for (uint32_t i : list) new_group_of_[i] = k;
         continue;
       }
-      const auto& gl = it->second;  // ascending group ids
+      std::vector<int64_t> gl = it->second;  // ascending group ids
       std::set<std::string> splits;
       for (int64_t g : gl) splits.insert(info[g].split);
       if (splits.size() > 1) {
@@ -514,9 +538,35 @@ class StoreCompanion : public RunCompanion {
         Conflict cf;
         cf.via = "ties (" + TieList() + ")";
         cf.groups = GroupsJson(gs);
-        for (uint32_t i : list) RejectConflict(st, i, cf);
+        if (policy_ != ConflictPolicy::kJoinFirst) {
+          cf.resolution = Json{{"policy", "reject"}, {"action", "rejected (store_group_conflict)"}};
+          for (uint32_t i : list) RejectConflict(st, i, cf);
+          conflicts_.push_back(std::move(cf));
+          continue;
+        }
+        // join-first: the group accepted first (earliest batch, then the
+        // smaller group id) takes the records; stored groups of its split
+        // merge with it as usual, groups of other splits stay where they are.
+        int64_t first = gl.front();
+        for (int64_t g : gl) {
+          if (info[g].first_batch < info[first].first_batch) first = g;
+        }
+        const std::string split = info[first].split;
+        std::vector<int64_t> same;
+        same.push_back(first);
+        for (int64_t g : gl) {
+          if (g != first && info[g].split == split) same.push_back(g);
+        }
+        gl = same;
+        cf.resolution = Json{{"policy", "join-first"},
+                             {"action", "joined the group accepted first; nothing stored moved"},
+                             {"group", Hex16(info[first].key)},
+                             {"split", split},
+                             {"first_batch", info[first].first_batch}};
+        for (uint32_t i : list) cf.ids.push_back(st.records[i].id);
+        joined_.insert(list.begin(), list.end());
         conflicts_.push_back(std::move(cf));
-        continue;
+        splits = {split};
       }
       auto pos = std::find(view_.names.begin(), view_.names.end(), *splits.begin());
       if (pos == view_.names.end()) {
@@ -723,8 +773,10 @@ class StoreCompanion : public RunCompanion {
     (void)st;
     Json by_reason = Json::object();
     for (const auto& [k, v] : rejected_by_reason_) by_reason[k] = v;
-    return Json{{"rejected_by_reason", by_reason}, {"kept_by_split", kept_by_split_},{"store_duplicates", dup_}, {"store_label_conflicts", label_conflict_},
-                {"store_group_conflicts", conflict_records_}, {"records_inheriting_a_split", inherited_},
+    return Json{{"rejected_by_reason", by_reason}, {"kept_by_split", kept_by_split_}, {"store_duplicates", dup_},
+                {"store_label_conflicts", label_conflict_}, {"group_conflict_policy", PolicyName(policy_)},
+                {"store_group_conflicts", conflict_records_}, {"group_conflict_components", conflicts_.size()},
+                {"records_joined_first", joined_.size()}, {"records_inheriting_a_split", inherited_},
                 {"new_groups", new_groups_}, {"stored_clusters_merged", clusters_merged_},
                 {"stored_groups_merged", groups_merged_}};
   }
@@ -733,6 +785,7 @@ class StoreCompanion : public RunCompanion {
   StoreDb* db_;
   const Plan& plan_;
   SplitView view_;
+  ConflictPolicy policy_;
   int64_t batch_, first_seq_;
   std::vector<std::string> order_;
   bool exact_done_ = false, near_done_ = false, group_done_ = false;
@@ -753,6 +806,7 @@ class StoreCompanion : public RunCompanion {
   uint64_t dup_ = 0, label_conflict_ = 0, near_matched_ = 0, clusters_merged_ = 0, candidates_checked_ = 0,
            inherited_ = 0, in_new_groups_ = 0, new_groups_ = 0, groups_merged_ = 0, hook_missing_ = 0,
            conflict_records_ = 0, stored_ = 0, records_ = 0;
+  std::set<size_t> joined_;  // batch records placed by join-first
   std::map<std::string, uint64_t> rejected_by_reason_;
   Json kept_by_split_ = Json::object();
 };
@@ -764,30 +818,55 @@ void MaybeKill(const char* phase) {
   if (at && std::string(at) == phase) ::raise(SIGKILL);
 }
 
-Result<std::string> StorePathFromPlan(const Plan& plan) {
-  if (plan.plan_path.empty()) return std::string();
+Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan) {
+  StoreSettings out;
+  if (plan.plan_path.empty()) return out;
   std::ifstream in(plan.plan_path, std::ios::binary);
   std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
   Json j = Json::parse(text, nullptr, false, /*ignore_comments=*/true);
-  if (!j.is_object() || !j.contains("store")) return std::string();
-  if (!j["store"].is_string() || j["store"].get<std::string>().empty()) {
-    return Status::Usage(plan.plan_path + ": \"store\" must be the path of the store file");
+  if (!j.is_object() || !j.contains("store")) return out;
+  const Json& st = j["store"];
+  const std::string where = plan.plan_path + ": store";
+  std::string p;
+  if (st.is_string()) {
+    p = st.get<std::string>();
+    if (p.empty()) return Status::Usage(where + ": must be the path of the store file");
+  } else if (st.is_object()) {
+    for (auto it = st.begin(); it != st.end(); ++it) {
+      const std::string& k = it.key();
+      if (k == "$comment") continue;
+      if (k == "path") {
+        if (!it.value().is_string() || it.value().get<std::string>().empty()) {
+          return Status::Usage(where + ".path: must be the path of the store file");
+        }
+        p = it.value().get<std::string>();
+      } else if (k == "group_conflicts") {
+        std::string v = it.value().is_string() ? it.value().get<std::string>() : "";
+        if (v == "reject") out.group_conflicts = ConflictPolicy::kReject;
+        else if (v == "join-first") out.group_conflicts = ConflictPolicy::kJoinFirst;
+        else {
+          return Status::Usage(where + ".group_conflicts: " + it.value().dump() +
+                               " is not a policy (known: \"reject\", \"join-first\"; docs/store.md)");
+        }
+      } else {
+        return Status::Usage(where + "." + k + ": unknown key (known: path, group_conflicts)");
+      }
+    }
+  } else {
+    return Status::Usage(where + ": must be the store file's path or an object {\"path\", \"group_conflicts\"}");
   }
-  std::string p = j["store"].get<std::string>();
-  if (p[0] != '/') {
+  if (!p.empty() && p[0] != '/') {
     auto slash = plan.plan_path.rfind('/');
     if (slash != std::string::npos) p = plan.plan_path.substr(0, slash + 1) + p;
   }
-  return p;
+  out.path = p;
+  return out;
 }
 
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log) {
-  std::string path = options.store_path;
-  if (path.empty()) {
-    auto p = StorePathFromPlan(plan);
-    if (!p.ok()) return p.status();
-    path = p.value();
-  }
+  auto settings = StoreSettingsFromPlan(plan);
+  if (!settings.ok()) return settings.status();
+  std::string path = options.store_path.empty() ? settings.value().path : options.store_path;
   if (path.empty()) return Status::Usage("no store: pass --store FILE or set \"store\" in the plan");
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
   auto view = ReadSplitView(plan);
@@ -857,7 +936,7 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
     }
     if (!err.ok()) return err;
   }
-  StoreCompanion companion(&store, plan, view.value(), batch, first_seq);
+  StoreCompanion companion(&store, plan, view.value(), settings.value().group_conflicts, batch, first_seq);
   PipelineOptions popts;
   for (const auto& info : AllStages()) popts.stages.push_back(info.name);
   popts.progress = options.progress;

@@ -10,8 +10,10 @@
 //                 records join stored clusters and bridged clusters merge;
 //   before split  ties batch records to stored groups (prompt, near cluster,
 //                 thread, annotator, group key as the plan's tie_by says);
-//                 a record inherits its stored group's split, a component tying
-//                 groups in different splits is rejected (store_group_conflict);
+//                 a record inherits its stored group's split; a component tying
+//                 groups in different splits is rejected (store_group_conflict)
+//                 or, with the policy join-first, joins the group accepted
+//                 first (nothing stored moves);
 //   at the end    writes the batch's facts into the store.
 // The whole batch is one transaction (BEGIN IMMEDIATE before reading the
 // store, COMMIT after the output folder is in place).
@@ -28,6 +30,19 @@
 #include "io/file_system.h"
 
 namespace prefsift::store {
+
+// What happens to batch records that tie stored groups sitting in different
+// splits (plan: "store": {"group_conflicts": ...}; docs/store.md).
+enum class ConflictPolicy {
+  kReject,     // rejected with store_group_conflict (the default)
+  kJoinFirst,  // joins the group accepted first and takes its split
+};
+
+// The plan's "store" value: a path string, or {"path", "group_conflicts"}.
+struct StoreSettings {
+  std::string path;  // resolved against the plan's folder; "" when absent
+  ConflictPolicy group_conflicts = ConflictPolicy::kReject;
+};
 
 struct AddOptions {
   std::string store_path;      // "" = the plan's "store"
@@ -48,8 +63,8 @@ struct AddOutcome {
 // refused. REQUIRES: plan.output set.
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log);
 
-// The "store" value of a plan file, resolved against the plan's folder ("" when absent).
-Result<std::string> StorePathFromPlan(const Plan& plan);
+// The "store" value of a plan file (usage errors name the key).
+Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan);
 
 // Test hook: when the environment variable PREFSIFT_TEST_KILL_AT equals
 // `phase`, the process raises SIGKILL here. Phases: after-begin, mid-write,
