@@ -14,6 +14,7 @@
 #include "store/add_batch.h"
 #include "store/history.h"
 #include "store/shards.h"
+#include "store/store_report.h"
 
 namespace prefsift {
 namespace {
@@ -92,6 +93,13 @@ class Commands : public StoreCommands {
     summary_ = app->add_subcommand("store-summary", "Cumulative summary JSON of a whole store (all batches)");
     summary_->add_option("--store", store_, "The store file")->required();
     summary_->add_option("-o,--out", summary_out_, "Write the JSON here (atomically) instead of stdout");
+    report_ = app->add_subcommand("store-report",
+                                  "Datasheet and HTML report of a whole store (all batches) into a new folder");
+    report_->add_option("--store", report_store_, "The store file (default: the plan's \"store\")");
+    report_->add_option("-o,--out", report_out_,
+                        "Output folder: store-summary.json, datasheet.md, datasheet.json, report.html")->required();
+    report_->add_option("-p,--plan", report_plan_, "A plan whose \"provenance\" answers the datasheet's questions");
+    report_->add_flag("--overwrite", report_overwrite_, "Replace an existing output folder (atomically, at the end)");
     sign_ = app->add_subcommand("shard-sign", "Near-duplicate signatures and band keys of one shard (for `merge`)");
     AddBatchArgs(sign_, &sign_args_, false);
     merge_ = app->add_subcommand("merge", "Cluster near-duplicates over several shards' signatures.jsonl files");
@@ -121,6 +129,7 @@ class Commands : public StoreCommands {
       s = WriteFileAtomically(DefaultFileSystem(), summary_out_, text);
       return s.ok() ? 0 : Fail(s);
     }
+    if (report_->parsed()) return Report();
     if (sign_->parsed()) {
       auto plan = BatchPlan(sign_args_);
       if (!plan.ok()) return Fail(plan.status());
@@ -140,6 +149,30 @@ class Commands : public StoreCommands {
   }
 
  private:
+  int Report() {
+    store::StoreReportOptions o;
+    o.store_path = report_store_;
+    o.out_dir = report_out_;
+    o.overwrite = report_overwrite_;
+    Plan plan;
+    if (!report_plan_.empty()) {
+      auto loaded = LoadPlanFile(report_plan_);
+      if (!loaded.ok()) return Fail(loaded.status());
+      plan = std::move(loaded).value();
+      o.plan = &plan;
+      if (o.store_path.empty()) {
+        auto st = store::StoreSettingsFromPlan(plan);
+        if (!st.ok()) return Fail(st.status());
+        o.store_path = st.value().path;
+      }
+    }
+    if (o.store_path.empty()) return Fail(Status::Usage("store-report: pass --store FILE (or a plan with \"store\")"));
+    Status s = store::WriteStoreReport(o, DefaultFileSystem());
+    if (!s.ok()) return Fail(s);
+    std::fprintf(stderr, "wrote %s (datasheet.md, datasheet.json, report.html, store-summary.json)\n", report_out_.c_str());
+    return 0;
+  }
+
   int Add() {
     auto plan = BatchPlan(add_args_);
     if (!plan.ok()) return Fail(plan.status());
@@ -167,10 +200,11 @@ class Commands : public StoreCommands {
     return 0;
   }
 
-  CLI::App *add_, *history_, *summary_, *sign_, *merge_;
+  CLI::App *add_, *history_, *summary_, *report_, *sign_, *merge_;
   BatchArgs add_args_, sign_args_;
   double wait_s_ = 30;
-  std::string store_, summary_out_, merge_out_;
+  std::string store_, summary_out_, merge_out_, report_store_, report_out_, report_plan_;
+  bool report_overwrite_ = false;
   std::vector<std::string> merge_files_;
   bool merge_overwrite_ = false;
   unsigned merge_threads_ = 0;

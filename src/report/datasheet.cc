@@ -99,11 +99,20 @@ Json CompositionFacts(const Json& s) {
       add("input " + Str(in["name"]) + ": records read / kept", Json::array({At(in, "records_in"), At(in, "kept")}));
     }
   }
+  const Json* whole = Find(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
+  if (whole) {
+    add("batches in the store", At(*whole, "batch_count"));
+    add("store counts, summed over batches", At(*whole, "store_counts"));
+  }
   const Json* c = Find(s, {"stages", "split", "composition"});
-  if (!c) {
+  if (!c && !whole) {
     add("composition of kept records", "not available: the split stage did not run");
     return f;
   }
+  if (!c) {
+    add("composition of kept records (candidates, judgments, lengths, sources, annotators)",
+        "per batch only: see each batch's datasheet (the store keeps hashes, not text)");
+  } else {
   add("candidates per record (B: records)", At(*c, "candidates_per_record"));
   add("judgment shapes", At(*c, "judgment_shapes"));
   add("chosen slot by number of candidates (counts per slot)", At(*c, "chosen_slot_by_candidates"));
@@ -115,6 +124,7 @@ Json CompositionFacts(const Json& s) {
   add("annotators", At(*c, "annotators"));
   add("records with a thread id", At(*c, "records_with_thread"));
   add("prompt script (crude detection; records)", At(*c, "prompt_script")["records"]);
+  }
   if (const Json* sp = Find(s, {"stages", "split", "splits"})) {
     Json t = Json::object();
     for (const auto& e : *sp) t[Str(e["name"])] = e["records"];
@@ -124,12 +134,16 @@ Json CompositionFacts(const Json& s) {
     add("personal-data findings (all records, before actions)", At(*sc, "findings"));
     add("records with personal-data findings", At(*sc, "records_with_findings"));
     add("personal-data findings by action", At(*sc, "by_action"));
+  } else if (whole) {
+    add("personal-data findings", "per batch only: see each batch's summary.json stages.screen (the store keeps no "
+                                  "text, so this summary cannot echo personal data)");
   } else {
     add("personal-data screen", "not run");
   }
   if (const Json* lk = Find(s, {"stages", "leakage"})) {
     add("records matching an evaluation set", At(*lk, "contaminated_records"));
   }
+  if (whole) add("evaluation sets", At(*whole, "evaluation_sets"));
   if (const Json* nr = Find(s, {"stages", "near"})) {
     add("near-duplicate prompt clusters / records in them", Json::array({At(*nr, "clusters"), At(*nr, "records_in_clusters")}));
   }
@@ -157,7 +171,8 @@ Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
       }
       e["rejected"] = rejected;
       e["rejected_by_reason"] = reasons;
-      e["details"] = "summary.json stages." + it.key();
+      e["details"] = std::string(Find(s, {"whole_store"}) ? "each batch's summary.json stages." : "summary.json stages.") +
+                     it.key();
       stages.push_back(std::move(e));
     }
   }
@@ -225,6 +240,7 @@ Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json&
   d["about"] = "Datasheet organised by the seven sections of Datasheets for Datasets (Gebru et al., arXiv:1803.09010; "
                "Communications of the ACM 64(12), 2021). Answers marked \"from the plan\" were written by the dataset's "
                "owners in the plan's provenance object; \"from the run\" facts were measured by prefsift.";
+  if (const Json* w = Find(summary, {"whole_store"})) d["scope"] = At(*w, "scope");
   d["gate"] = summary.contains("gate") ? summary["gate"] : Json("not evaluated");
   d["personal_data_caution"] = kPersonalDataCaution;
   Json sections = Json::array();
@@ -273,16 +289,19 @@ std::string DatasheetMarkdown(const Json& d) {
   std::string m;
   m += "# Datasheet: " + Cell(d["dataset_name"]) + "\n\n";
   m += Cell(d["about"]) + "\n\n";
+  if (d.contains("scope")) m += "**Scope:** " + Cell(d["scope"]) + "\n\n";
   const Json& p = d["provenance"];
   if (p.contains("tool")) {
     m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + ") at " +
          Cell(p["time"]["utc"]) + " (" + Cell(p["time"]["source"]) + ").\n\n";
   }
   const Json& g = d["gate"];
-  if (g.is_object()) {
+  if (g.is_object() && g.contains("note")) {
+    m += "**Gate verdict: " + Cell(g["verdict"]) + "** (" + Cell(g["note"]) + ")\n\n";
+  } else if (g.is_object()) {
     m += "**Gate verdict: " + Cell(g["verdict"]) + "** (" + Cell(g["passed"]) + " passed, " + Cell(g["failed"]) +
          " failed, " + Cell(g["not_evaluated"]) + " not evaluated).\n\n";
-    if (!g["checks"].empty()) {
+    if (g.contains("checks") && !g["checks"].empty()) {
       m += "| check | scope | value | threshold | verdict |\n|---|---|---|---|---|\n";
       for (const auto& c : g["checks"]) {
         m += "| " + Cell(c["check"]) + " | " + (c.contains("scope") ? Cell(c["scope"]) : "") + " | " +
@@ -319,7 +338,7 @@ std::string DatasheetMarkdown(const Json& d) {
   }
   m += "## Provenance\n\n";
   m += "| item | value |\n|---|---|\n";
-  for (const char* k : {"plan_sha256", "seed", "summary_json_sha256"}) {
+  for (const char* k : {"store", "store_content_sha256", "plan_sha256", "seed", "summary_json_sha256"}) {
     if (p.contains(k)) m += std::string("| ") + k + " | " + Cell(p[k]) + " |\n";
   }
   if (p.contains("rule_packs")) m += "| rule packs | " + Cell(p["rule_packs"]) + " |\n";
@@ -330,8 +349,23 @@ std::string DatasheetMarkdown(const Json& d) {
   if (p.contains("outputs")) {
     for (const auto& f : p["outputs"]) m += "| output: " + Cell(f["file"]) + " | " + Cell(f["bytes"]) + " | " + Cell(f["sha256"]) + " |\n";
   }
-  if (p.contains("summary_json_sha256")) m += "| output: summary.json | | " + Cell(p["summary_json_sha256"]) + " |\n";
+  if (p.contains("summary_json_sha256")) {
+    m += "| output: " + (p.contains("summary_file") ? Cell(p["summary_file"]) : std::string("summary.json")) + " | | " +
+         Cell(p["summary_json_sha256"]) + " |\n";
+  }
   m += "\n";
+  if (p.contains("batches")) {
+    // A whole store: one row per batch with its digests (docs/store.md).
+    m += "| batch | added at | plan SHA-256 | input (SHA-256) | evaluation sets (SHA-256) |\n|---|---|---|---|---|\n";
+    for (const auto& b : p["batches"]) {
+      std::string ins, evs;
+      for (const auto& in : At(b, "inputs")) ins += (ins.empty() ? "" : "; ") + Cell(At(in, "name")) + " " + Cell(At(in, "sha256"));
+      for (const auto& ev : At(b, "eval_sets")) evs += (evs.empty() ? "" : "; ") + Cell(At(ev, "name")) + " " + Cell(At(ev, "sha256"));
+      m += "| " + Cell(At(b, "batch")) + " | " + Cell(At(b, "added_at")) + " | " + Cell(At(b, "plan_sha256")) + " | " + ins +
+           " | " + (evs.empty() ? "none" : evs) + " |\n";
+    }
+    m += "\n";
+  }
   return m;
 }
 

@@ -124,6 +124,10 @@ Status WriteText(OutputDir& out, const std::string& name, const std::string& tex
 
 }  // namespace
 
+Json ProvenanceTime() { return RunTime(); }
+
+Json ToolInfo() { return Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}}; }
+
 Status ValidateFinishPlan(const Plan& plan) {
   Status s = ValidateGate(plan.gate);
   if (!s.ok()) return s;
@@ -138,7 +142,7 @@ Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Jso
   *gate_failed = failed;
 
   Json p;
-  p["tool"] = Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}};
+  p["tool"] = ToolInfo();
   p["plan_sha256"] = plan.plan_digest.empty() ? Json("no plan file (command line only)") : Json(plan.plan_digest);
   p["seed"] = plan.seed;
   p["time"] = RunTime();

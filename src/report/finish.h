@@ -26,6 +26,13 @@ Status ValidateFinishPlan(const Plan& plan);
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
                      bool* gate_failed);
 
+// The provenance time: SOURCE_DATE_EPOCH as UTC text when set, otherwise
+// "time not recorded" (so outputs stay byte-identical). {"utc", "source"}.
+nlohmann::ordered_json ProvenanceTime();
+
+// This build of prefsift: {"name", "version", "revision"}.
+nlohmann::ordered_json ToolInfo();
+
 // Writes datasheet.md, datasheet.json and report.html from the finished
 // summary (hashing summary.json, which must be written and closed).
 Status WriteDocuments(const Plan& plan, FileSystem* fs, OutputDir& out, const nlohmann::ordered_json& summary);

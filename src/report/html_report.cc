@@ -299,7 +299,9 @@ std::string GateBanner(const Json& s) {
   std::string verdict = g ? Str((*g)["verdict"]) : "not evaluated";
   std::string cls = verdict == "pass" ? "pass" : verdict == "fail" ? "fail" : "other";
   std::string o = "<section class=\"gate " + cls + "\" id=\"gate\"><h2>Gate: " + Esc(verdict) + "</h2>";
-  if (!g || (*g)["checks"].empty()) {
+  if (g && g->contains("note")) {
+    o += "<p>" + Esc(Str((*g)["note"])) + "</p>";
+  } else if (!g || (*g)["checks"].empty()) {
     o += "<p>The plan sets no gate checks.</p>";
   } else {
     o += "<table><thead><tr><th>check</th><th>scope</th><th>value</th><th>threshold</th><th>verdict</th></tr></thead><tbody>";
@@ -315,6 +317,53 @@ std::string GateBanner(const Json& s) {
     o += "</tbody></table>";
   }
   return o + "</section>\n";
+}
+
+// A whole store (docs/store.md): one row per batch with counts and digests.
+std::string BatchTable(const Json& whole) {
+  const Json* bs = Find(whole, {"batches"});
+  std::string o = "<h2>Batches</h2>";
+  if (!bs || bs->empty()) return o + "<p class=\"missing\">no batches</p>\n";
+  o += "<table class=\"batches\"><thead><tr><th>batch</th><th>added at</th><th>records</th><th>kept</th><th>rejected</th>"
+       "<th>group conflicts</th><th>digests (SHA-256)</th></tr></thead><tbody>";
+  auto num = [](const Json& b, const char* k) {
+    return b.contains(k) && b[k].is_number() ? Fmt(b[k].get<double>()) : std::string("?");
+  };
+  for (const auto& b : *bs) {
+    std::string conflicts = num(b, "group_conflict_components") + " (" + Esc(b.contains("group_conflict_policy")
+                                                                                ? Str(b["group_conflict_policy"]) : "reject") +
+                            ": " + num(b, "store_group_conflicts") + " rejected, " + num(b, "records_joined_first") +
+                            " joined)";
+    std::string digests = "plan <code>" + Esc(b.contains("plan_sha256") ? Str(b["plan_sha256"]) : "") + "</code>";
+    if (b.contains("inputs") && b["inputs"].is_array()) {
+      for (const auto& in : b["inputs"]) {
+        digests += "<br>" + Esc(in.contains("name") ? Str(in["name"]) : "?") + " <code>" +
+                   Esc(in.contains("sha256") ? Str(in["sha256"]) : "") + "</code>";
+      }
+    }
+    o += "<tr><td>" + num(b, "batch") + "</td><td>" + Esc(b.contains("added_at") ? Str(b["added_at"]) : "") + "</td><td>" +
+         num(b, "records_in") + "</td><td>" + num(b, "kept") + "</td><td>" + num(b, "rejected") + "</td><td>" + conflicts +
+         "</td><td class=\"small\">" + digests + "</td></tr>";
+  }
+  o += "</tbody></table>\n";
+  if (const Json* ev = Find(whole, {"evaluation_sets", "note"})) o += "<p class=\"small\">Evaluation sets: " + Esc(Str(*ev)) + ".</p>\n";
+  return o;
+}
+
+// Rejects by stage and reason (a whole store: the records are in each batch's rejects.jsonl).
+std::string ReasonTable(const Json& s) {
+  const Json* rb = Find(s, {"rejects_by_stage"});
+  std::string o = "<h2>Rejects by reason</h2>";
+  if (!rb || rb->empty()) return o + "<p class=\"missing\">no rejects</p>\n";
+  o += "<table><thead><tr><th>stage</th><th>reason</th><th>records</th></tr></thead><tbody>";
+  for (const auto& r : *rb) {
+    if (!r.contains("by_reason") || !r["by_reason"].is_object()) continue;
+    for (auto it = r["by_reason"].begin(); it != r["by_reason"].end(); ++it) {
+      o += "<tr><td>" + Esc(Str(r["stage"])) + "</td><td><code>" + Esc(it.key()) + "</code></td><td>" +
+           (it.value().is_number() ? Fmt(it.value().get<double>()) : Esc(Str(it.value()))) + "</td></tr>";
+    }
+  }
+  return o + "</tbody></table>\n";
 }
 
 const char* kStyle = R"CSS(
@@ -335,6 +384,7 @@ th{font-weight:600;color:var(--muted)}
 tr.bad td:last-child{color:#9b2c2c;font-weight:600}tr.ok td:last-child{color:#2d6d3c;font-weight:600}
 tr.na td:last-child{color:#7d6217}
 .small{font-size:12px;color:var(--muted)}
+table.batches code{word-break:break-all}
 .grid-2{display:grid;grid-template-columns:1fr;gap:16px}
 figure.chart{margin:0;border:1px solid var(--line);border-radius:8px;padding:12px 14px;break-inside:avoid;page-break-inside:avoid}
 figcaption{font-size:13px;color:var(--muted);margin-top:4px}
@@ -368,10 +418,13 @@ window.addEventListener('load', function () {
 
 std::string RenderHtmlReport(const Json& s, const Json& sheet) {
   std::string name = sheet.contains("dataset_name") ? Str(sheet["dataset_name"]) : "not provided";
+  const Json* whole = Find(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
+  const std::string kind = whole ? "prefsift store report" : "prefsift report";
   std::string h = "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
                   "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
-                  "<title>prefsift report: " + Esc(name) + "</title><style>" + kStyle + "</style></head>\n<body><main>\n";
-  h += "<h1>prefsift report</h1><p class=\"sub\">Dataset: " + Esc(name);
+                  "<title>" + kind + ": " + Esc(name) + "</title><style>" + kStyle + "</style></head>\n<body><main>\n";
+  h += "<h1>" + kind + "</h1><p class=\"sub\">Dataset: " + Esc(name);
+  if (whole && whole->contains("scope")) h += " &middot; " + Esc(Str((*whole)["scope"]));
   if (const Json* t = Find(s, {"provenance", "time", "utc"})) h += " &middot; " + Esc(Str(*t));
   if (const Json* v = Find(s, {"tool", "version"})) h += " &middot; prefsift " + Esc(Str(*v));
   if (const Json* r = Find(s, {"tool", "revision"})) h += " (" + Esc(Str(*r)) + ")";
@@ -380,17 +433,35 @@ std::string RenderHtmlReport(const Json& s, const Json& sheet) {
   if (const Json* l = Find(s, {"ledger"})) {
     h += "<dl class=\"facts\"><dt>records read</dt><dd>" + Fmt((*l)["records_in"].get<double>()) +
          "</dd><dt>kept</dt><dd>" + Fmt((*l)["kept"].get<double>()) + "</dd><dt>rejected</dt><dd>" +
-         Fmt((*l)["rejected"].get<double>()) + " (reasons in rejects.jsonl)</dd>";
+         Fmt((*l)["rejected"].get<double>()) +
+         (whole ? " (reasons below; records in each batch's rejects.jsonl)</dd>" : " (reasons in rejects.jsonl)</dd>");
+    if (const Json* c = whole ? Find(*whole, {"content_sha256"}) : nullptr) {
+      h += "<dt>store content SHA-256</dt><dd><code>" + Esc(Str(*c)) + "</code></dd>";
+    }
     if (const Json* p = Find(s, {"settings", "plan_sha256"})) h += "<dt>plan SHA-256</dt><dd><code>" + Esc(Str(*p)) + "</code></dd>";
     if (const Json* sd = Find(s, {"settings", "seed"})) h += "<dt>seed</dt><dd>" + Esc(Str(*sd)) + "</dd>";
     h += "</dl>\n";
   }
   h += "<h2>Charts</h2><div class=\"grid-2\">\n";
-  h += LedgerChart(s) + SplitChart(s) + SlotChart(s) + LengthChart(s) + ClusterChart(s) + PersonalChart(s) + LeakChart(s);
-  h += "</div>\n";
+  if (whole) {
+    // The store keeps facts, not text: answer slots, lengths, personal-data
+    // findings and evaluation-set matches are charted in each batch's report.
+    h += LedgerChart(s) + SplitChart(s) + ClusterChart(s);
+    h += "</div>\n<p class=\"small\">Per batch only (each batch's report.html): chosen slot, answer lengths, "
+         "personal-data findings by rule, evaluation-set matches.</p>\n";
+    h += ReasonTable(s) + BatchTable(*whole);
+  } else {
+    h += LedgerChart(s) + SplitChart(s) + SlotChart(s) + LengthChart(s) + ClusterChart(s) + PersonalChart(s) + LeakChart(s);
+    h += "</div>\n";
+  }
   h += "<div class=\"caution\"><strong>Personal data.</strong> " + Esc(kPersonalDataCaution) + "</div>\n";
-  h += "<p class=\"small\">Details: summary.json (every figure), datasheet.md (the seven datasheet sections and file "
-       "digests), rejects.jsonl (every rejected record with its reason).</p>\n";
+  if (whole) {
+    h += "<p class=\"small\">Details: store-summary.json (every figure), datasheet.md (the seven datasheet sections and "
+         "every batch's digests), each batch's output folder (rejects.jsonl, store_conflicts.jsonl).</p>\n";
+  } else {
+    h += "<p class=\"small\">Details: summary.json (every figure), datasheet.md (the seven datasheet sections and file "
+         "digests), rejects.jsonl (every rejected record with its reason).</p>\n";
+  }
   h += "<output id=\"self-check\" data-verdict=\"pending\">charts not checked yet</output>\n";
   h += std::string("<script>") + kSelfCheck + "</script>\n</main></body></html>\n";
   return h;

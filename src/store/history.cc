@@ -65,6 +65,14 @@ Status CumulativeSummary(const std::string& store_path, Json* out) {
   Json batches = Json::array();
   uint64_t entries = 0, kept = 0, rejected = 0, records = 0;
   std::map<std::string, uint64_t> by_reason;
+  // The store's own counts, summed over batches (docs/store.md).
+  static const char* const kStoreCounts[] = {"store_duplicates",      "store_label_conflicts",
+                                             "store_group_conflicts", "group_conflict_components",
+                                             "records_joined_first",  "records_inheriting_a_split",
+                                             "new_groups",            "stored_clusters_merged",
+                                             "stored_groups_merged"};
+  std::map<std::string, uint64_t> store_counts;
+  for (const char* k : kStoreCounts) store_counts[k] = 0;
   {
     auto q = db.Prepare(
         "SELECT batch, added_at, plan_digest, inputs_digest, inputs, eval_sets, first_seq, records, entries, kept, "
@@ -91,6 +99,11 @@ Status CumulativeSummary(const std::string& store_path, Json* out) {
       kept += static_cast<uint64_t>(s.Int(9));
       rejected += static_cast<uint64_t>(s.Int(10));
       records += static_cast<uint64_t>(s.Int(7));
+      for (const char* k : kStoreCounts) {
+        if (counts.is_object() && counts.contains(k) && counts[k].is_number_unsigned()) {
+          store_counts[k] += counts[k].get<uint64_t>();
+        }
+      }
       if (counts.is_object() && counts.contains("rejected_by_reason")) {
         for (auto it = counts["rejected_by_reason"].begin(); it != counts["rejected_by_reason"].end(); ++it) {
           by_reason[it.key()] += it.value().get<uint64_t>();
@@ -108,6 +121,9 @@ Status CumulativeSummary(const std::string& store_path, Json* out) {
   Json reasons = Json::object();
   for (const auto& [k, v] : by_reason) reasons[k] = v;
   totals["rejected_by_reason"] = std::move(reasons);
+  Json store_totals = Json::object();
+  for (const char* k : kStoreCounts) store_totals[k] = store_counts[k];
+  totals["store"] = std::move(store_totals);
   j["totals"] = std::move(totals);
   // Splits, from the records table (kept records only).
   Json splits = Json::array();
@@ -124,6 +140,23 @@ Status CumulativeSummary(const std::string& store_path, Json* out) {
     if (!err.ok()) return err;
   }
   j["splits"] = std::move(splits);
+  // Checks over the whole store: a group is never split; a prompt can sit in
+  // two splits only when a group conflict was resolved by join-first.
+  {
+    auto q = db.Prepare(
+        "SELECT (SELECT COUNT(*) FROM (SELECT grp FROM records WHERE kept = 1 GROUP BY grp "
+        "HAVING COUNT(DISTINCT split) > 1)), "
+        "(SELECT COUNT(*) FROM (SELECT prompt FROM records WHERE kept = 1 GROUP BY prompt "
+        "HAVING COUNT(DISTINCT split) > 1))");
+    if (!q.ok()) return q.status();
+    Status err;
+    if (q.value()->Step(&err)) {
+      j["split_checks"] = Json{{"groups_spanning_splits", q.value()->Int(0)},
+                               {"prompts_split_apart", q.value()->Int(1)},
+                               {"scope", "kept records of every batch"}};
+    }
+    if (!err.ok()) return err;
+  }
   Json clusters;
   {
     auto q = db.Prepare(

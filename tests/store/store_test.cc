@@ -1,6 +1,7 @@
 // Growing stores (docs/store.md), end to end through the prefsift binary:
 // batches vs one full run, crash safety at named kill points, a busy store,
-// history and the cumulative summary, shard signing + merge vs the near stage.
+// history, the cumulative summary and the whole-store datasheet and report,
+// the group-conflict policies, shard signing + merge vs the near stage.
 //
 // Outside references: SHA-256 of the inputs recomputed with Python's hashlib
 // (FIPS 180-4) [V]; the store file checked with SQLite's own
@@ -349,6 +350,205 @@ TEST_F(StoreTest, SecondWriterWaitsThenFailsClearly) {
   EXPECT_EQ(ok.exit, 0) << ok.err;
 }
 
+// store-report over three batches: the cumulative datasheet's totals are the
+// sums of the batches' own summaries, no planted personal value appears, and
+// a rerun writes byte-identical files. The sums are recomputed here from each
+// batch's summary.json and kept files (plain arithmetic, no outside reference).
+TEST_F(StoreTest, StoreReportSumsTheBatchesAndIsDeterministic) {
+  for (int b = 0; b < 3; ++b) ASSERT_EQ(Add(b).exit, 0);
+  Ran r = RunBin("store-report --store " + Store() + " --out " + dir_ + "/report");
+  ASSERT_EQ(r.exit, 0) << r.err;
+  for (const char* f : {"store-summary.json", "datasheet.md", "datasheet.json", "report.html"}) {
+    EXPECT_TRUE(fs::exists(dir_ + "/report/" + f)) << f;
+  }
+  // Sums over the batches' own summary.json.
+  uint64_t in = 0, kept = 0, rejected = 0;
+  std::map<std::string, uint64_t> by_reason, by_split;
+  for (int b = 0; b < 3; ++b) {
+    std::string out = dir_ + "/out" + std::to_string(b + 1);
+    Json s = Json::parse(Slurp(out + "/summary.json"));
+    in += s["ledger"]["records_in"].get<uint64_t>();
+    kept += s["ledger"]["kept"].get<uint64_t>();
+    rejected += s["ledger"]["rejected"].get<uint64_t>();
+    for (const auto& st : s["rejects_by_stage"]) {
+      for (auto it = st["by_reason"].begin(); it != st["by_reason"].end(); ++it) {
+        by_reason[st["stage"].get<std::string>() + "/" + it.key()] += it.value().get<uint64_t>();
+      }
+    }
+    for (auto& [id, split] : KeptSplits(out)) ++by_split[split];
+  }
+  EXPECT_EQ(in, 3000u);
+  EXPECT_EQ(kept + rejected, in);
+  Json sheet = Json::parse(Slurp(dir_ + "/report/datasheet.json"));
+  std::map<std::string, Json> facts;
+  for (const auto& sec : sheet["sections"]) {
+    if (sec["key"] == "composition") {
+      for (const auto& f : sec["from_the_run"]) facts[f["fact"].get<std::string>()] = f["value"];
+    }
+  }
+  EXPECT_EQ(facts["records read (non-blank input lines)"], in);
+  EXPECT_EQ(facts["records kept"], kept);
+  EXPECT_EQ(facts["records rejected"], rejected);
+  EXPECT_EQ(facts["batches in the store"], 3);
+  Json rec = facts["recommended splits (records; group-aware, see Preprocessing)"];
+  for (auto& [split, n] : by_split) EXPECT_EQ(rec[split], n) << split;
+  Json cum = Json::parse(Slurp(dir_ + "/report/store-summary.json"));
+  std::map<std::string, uint64_t> cum_reasons;
+  for (auto it = cum["totals"]["rejected_by_reason"].begin(); it != cum["totals"]["rejected_by_reason"].end(); ++it) {
+    cum_reasons[it.key()] = it.value().get<uint64_t>();
+  }
+  EXPECT_EQ(cum_reasons, by_reason);
+  EXPECT_GT(cum_reasons["store/store_duplicate"], 0u);
+  // The preprocessing table lists the store's own rejects by reason.
+  std::string md = Slurp(dir_ + "/report/datasheet.md");
+  std::string html = Slurp(dir_ + "/report/report.html");
+  EXPECT_NE(md.find("store_duplicate"), std::string::npos);
+  EXPECT_NE(html.find("store_duplicate"), std::string::npos);
+  // Every batch with its input digest, in both documents.
+  for (const auto& b : cum["batches"]) {
+    std::string sha = b["inputs"][0]["sha256"].get<std::string>();
+    EXPECT_NE(md.find(sha), std::string::npos) << sha;
+    EXPECT_NE(html.find(sha), std::string::npos) << sha;
+  }
+  EXPECT_NE(md.find(cum["content_sha256"].get<std::string>()), std::string::npos);
+  // The caution (an aid, not a guarantee) in both.
+  EXPECT_NE(md.find("an aid, not a guarantee"), std::string::npos);
+  EXPECT_NE(html.find("an aid, not a guarantee"), std::string::npos);
+  // No planted personal value (samples/truth.json) in any written file.
+  Json truth = Json::parse(Slurp(std::string(PREFSIFT_SAMPLES) + "/truth.json"));
+  size_t checked = 0;
+  for (const auto& p : truth["personal_data"]["planted"]) {
+    std::string v = p["value"].get<std::string>();
+    for (const char* f : {"store-summary.json", "datasheet.md", "datasheet.json", "report.html"}) {
+      EXPECT_EQ(Slurp(dir_ + "/report/" + f).find(v), std::string::npos) << f << " holds " << p["kind"];
+    }
+    ++checked;
+  }
+  EXPECT_GT(checked, 10u);
+  // SOURCE_DATE_EPOCH (set by RunBin) is the only time; a rerun is byte-identical.
+  EXPECT_NE(md.find("2026-01-01T00:00:00Z"), std::string::npos);
+  ASSERT_EQ(RunBin("store-report --store " + Store() + " --out " + dir_ + "/report2").exit, 0);
+  for (const char* f : {"store-summary.json", "datasheet.md", "datasheet.json", "report.html"}) {
+    EXPECT_EQ(Slurp(dir_ + "/report/" + f), Slurp(dir_ + "/report2/" + f)) << f;
+  }
+  // Without SOURCE_DATE_EPOCH no time is recorded, so reruns still agree.
+  std::string bare = "env -u SOURCE_DATE_EPOCH " + std::string(PREFSIFT_BIN) + " store-report --overwrite --store " +
+                     Store() + " --out ";
+  ASSERT_EQ(std::system((bare + dir_ + "/report3 2>/dev/null").c_str()), 0);
+  ASSERT_EQ(std::system((bare + dir_ + "/report4 2>/dev/null").c_str()), 0);
+  EXPECT_NE(Slurp(dir_ + "/report3/datasheet.md").find("time not recorded"), std::string::npos);
+  for (const char* f : {"datasheet.md", "datasheet.json", "report.html"}) {
+    EXPECT_EQ(Slurp(dir_ + "/report3/" + f), Slurp(dir_ + "/report4/" + f)) << f;
+  }
+  // The page's own chart self-check in a real browser (as tests/e2e/splits_report_test.cc).
+  if (fs::exists("/usr/bin/chromium")) {
+    std::string profile = dir_ + "/chromium-profile";
+    std::string dom = Capture("timeout 90 /usr/bin/chromium --headless --no-sandbox --disable-gpu --disable-quic "
+                              "--no-first-run --disable-background-networking --disable-component-update "
+                              "--disable-sync --user-data-dir=" + profile + " --dump-dom file://" + dir_ +
+                              "/report/report.html 2>/dev/null");
+    EXPECT_NE(dom.find("data-verdict=\"ok\""), std::string::npos) << dom.substr(0, 2000);
+    for (const char* chart : {"ledger", "splits", "clusters"}) {
+      EXPECT_NE(dom.find(std::string("data-chart=\"") + chart + "\" data-state=\"data\" data-marks=\""), std::string::npos)
+          << chart;
+    }
+  }
+  // An existing folder is refused without --overwrite.
+  Ran again = RunBin("store-report --store " + Store() + " --out " + dir_ + "/report");
+  EXPECT_NE(again.exit, 0);
+}
+
+// The plan's store.group_conflicts: "join-first" keeps the records that
+// "reject" holds back, in the split of the group accepted first; nothing
+// stored moves, and store_conflicts.jsonl and the summary list them.
+TEST_F(StoreTest, JoinFirstPolicyKeepsConflictsInTheFirstGroup) {
+  // Reject (the default) on a copy of the first batch, for comparison.
+  ASSERT_EQ(Add(0).exit, 0);
+  auto batch1 = [&](const std::string& store) {
+    std::map<std::string, std::string> m;  // id -> split of batch-1 records
+    sqlite3* db = nullptr;
+    EXPECT_EQ(sqlite3_open_v2(store.c_str(), &db, SQLITE_OPEN_READONLY, nullptr), SQLITE_OK);
+    sqlite3_stmt* q = nullptr;
+    sqlite3_prepare_v2(db, "SELECT id, COALESCE(split, '') FROM records WHERE batch = 1", -1, &q, nullptr);
+    while (sqlite3_step(q) == SQLITE_ROW) {
+      m[reinterpret_cast<const char*>(sqlite3_column_text(q, 0))] = reinterpret_cast<const char*>(sqlite3_column_text(q, 1));
+    }
+    sqlite3_finalize(q);
+    sqlite3_close(db);
+    return m;
+  };
+  const auto before = batch1(Store());
+  fs::copy_file(Store(), dir_ + "/join.db");
+  ASSERT_EQ(Add(1).exit, 0);
+  auto rejected = Rejects(dir_ + "/out2");
+  std::set<std::string> held;
+  for (auto& [id, j] : rejected) {
+    if (j["reason"] == "store_group_conflict") held.insert(id);
+  }
+  ASSERT_FALSE(held.empty()) << "the samples cut at line 1000 should give a group conflict";
+  // join-first on the copy.
+  Json plan = Json::parse(Slurp(dir_ + "/plan.json"));
+  plan["store"] = Json{{"path", "join.db"}, {"group_conflicts", "join-first"}};
+  std::ofstream(dir_ + "/join-plan.json") << plan.dump(2);
+  Ran j = RunBin("add -q --threads 2 --plan " + dir_ + "/join-plan.json --out " + dir_ + "/join2 " + Part(1));
+  ASSERT_EQ(j.exit, 0) << j.err;
+  auto kept = KeptSplits(dir_ + "/join2");
+  auto reject_kept = KeptSplits(dir_ + "/out2");
+  for (const auto& id : held) EXPECT_TRUE(kept.count(id)) << id << " should be kept by join-first";
+  EXPECT_EQ(kept.size(), reject_kept.size() + held.size());
+  // Each conflict names its resolution: the records sit in the chosen group's split.
+  std::ifstream in(dir_ + "/join2/store_conflicts.jsonl");
+  std::string line;
+  size_t listed = 0;
+  while (std::getline(in, line)) {
+    Json c = Json::parse(line);
+    ASSERT_EQ(c["resolution"]["policy"], "join-first") << line;
+    if (!c["resolution"].contains("split")) continue;  // a near-cluster entry; its records are settled by ties
+    bool named = false;
+    for (const auto& g : c["groups"]) named = named || (g["group"] == c["resolution"]["group"] && g["split"] == c["resolution"]["split"]);
+    EXPECT_TRUE(named) << line;
+    for (const auto& id : c["records"]) {
+      EXPECT_EQ(kept[id.get<std::string>()], c["resolution"]["split"].get<std::string>()) << id;
+      ++listed;
+    }
+  }
+  EXPECT_GE(listed, held.size());
+  Json sum = Json::parse(Slurp(dir_ + "/join2/summary.json"));
+  const Json* gc = nullptr;
+  for (const auto* sec : {&sum["store"], &sum["stages"]["store"]}) {
+    if (sec->is_object() && sec->contains("group_conflicts")) gc = &(*sec)["group_conflicts"];
+  }
+  ASSERT_NE(gc, nullptr) << sum.dump().substr(0, 400);
+  EXPECT_EQ((*gc)["policy"], "join-first");
+  EXPECT_EQ((*gc)["records_rejected"], 0);
+  EXPECT_GE((*gc)["records_joined_first"].get<size_t>(), held.size());
+  // Nothing stored moved: every batch-1 record keeps its split.
+  EXPECT_EQ(batch1(dir_ + "/join.db"), before);
+  EXPECT_EQ(IntegrityCheck(dir_ + "/join.db"), "ok");
+  // The cumulative summary counts the joined records.
+  Json cum = Json::parse(Capture(std::string(PREFSIFT_BIN) + " store-summary --store " + dir_ + "/join.db"));
+  EXPECT_EQ(cum["totals"]["store"]["records_joined_first"], (*gc)["records_joined_first"]);
+  EXPECT_EQ(cum["totals"]["store"]["store_group_conflicts"], 0);
+  EXPECT_EQ(cum["batches"][1]["counts"]["group_conflict_policy"], "join-first");
+}
+
+TEST_F(StoreTest, StoreSettingsInThePlanAreChecked) {
+  Json plan = Json::parse(Slurp(dir_ + "/plan.json"));
+  plan["store"] = Json{{"path", "s.db"}, {"group_conflicts", "move-stored"}};
+  std::ofstream(dir_ + "/bad.json") << plan.dump(2);
+  Ran r = RunBin("add -q --plan " + dir_ + "/bad.json --out " + dir_ + "/o " + Part(0));
+  EXPECT_EQ(r.exit, 2) << r.err;
+  EXPECT_NE(r.err.find("store.group_conflicts"), std::string::npos) << r.err;
+  EXPECT_NE(r.err.find("join-first"), std::string::npos) << r.err;
+  plan["store"] = Json{{"path", "s.db"}, {"policy", "reject"}};
+  std::ofstream(dir_ + "/bad.json") << plan.dump(2);
+  r = RunBin("add -q --plan " + dir_ + "/bad.json --out " + dir_ + "/o " + Part(0));
+  EXPECT_EQ(r.exit, 2) << r.err;
+  EXPECT_NE(r.err.find("store.policy: unknown key"), std::string::npos) << r.err;
+  EXPECT_FALSE(fs::exists(dir_ + "/s.db"));
+  EXPECT_FALSE(fs::exists(dir_ + "/o"));
+}
+
 // shard-sign over the three parts + merge gives the near stage's clusters over
 // their union (same banding and verification).
 TEST_F(StoreTest, ShardSignAndMergeEqualTheNearStage) {
@@ -359,8 +559,21 @@ TEST_F(StoreTest, ShardSignAndMergeEqualTheNearStage) {
     ASSERT_EQ(r.exit, 0) << r.err;
     files += " " + out + "/signatures.jsonl";
   }
+  // The second shard compressed: merge reads through the shared line reader
+  // (gzip recognised by its magic bytes, RFC 1952).
+  ASSERT_EQ(std::system(("gzip -k " + dir_ + "/sig2/signatures.jsonl").c_str()), 0);
+  files.replace(files.find("/sig2/signatures.jsonl"), 22, "/sig2/signatures.jsonl.gz");
   Ran m = RunBin("merge" + files + " --out " + dir_ + "/merged");
   ASSERT_EQ(m.exit, 0) << m.err;
+  // A damaged line: the error names the file and the line.
+  {
+    std::string text = Slurp(dir_ + "/sig3/signatures.jsonl");
+    size_t second = text.find('\n', text.find('\n') + 1);
+    std::ofstream(dir_ + "/bad.jsonl") << text.substr(0, second + 1) << "{\"id\": \"x\", \"signature\": \"zz\"}\n";
+    Ran bad = RunBin("merge " + dir_ + "/bad.jsonl --out " + dir_ + "/bad-merge");
+    EXPECT_EQ(bad.exit, 3) << bad.err;
+    EXPECT_NE(bad.err.find(dir_ + "/bad.jsonl:3: not a signature line"), std::string::npos) << bad.err;
+  }
   Ran n = RunBin("near -q --plan " + dir_ + "/full-plan.json --out " + dir_ + "/near");
   ASSERT_EQ(n.exit, 0) << n.err;
   auto members = [](const std::string& path) {
