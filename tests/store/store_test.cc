@@ -11,6 +11,7 @@
 #include <sqlite3.h>
 
 #include <sys/wait.h>
+#include <unistd.h>
 
 #include <cstdlib>
 #include <filesystem>
@@ -43,7 +44,8 @@ std::string Slurp(const std::string& path) {
 }
 
 Ran RunBin(const std::string& args, const std::string& env = "") {
-  std::string err = ::testing::TempDir() + "store_test_stderr.txt";
+  // One stderr file per process: ctest runs the tests of this file in parallel processes.
+  std::string err = ::testing::TempDir() + "store_test_stderr_" + std::to_string(::getpid()) + ".txt";
   std::string cmd = "env SOURCE_DATE_EPOCH=1767225600 " + env + " " + PREFSIFT_BIN + " " + args + " 2>" + err + " >/dev/null";
   int st = std::system(cmd.c_str());
   Ran r;
