@@ -4,6 +4,8 @@
 #include <gtest/gtest.h>
 #include <nlohmann/json.hpp>
 
+#include <unistd.h>
+
 #include <filesystem>
 #include <fstream>
 #include <sstream>
@@ -14,7 +16,11 @@
 
 namespace prefsift::testing {
 
-inline std::string TempPath(const std::string& name) { return ::testing::TempDir() + name; }
+// Per-process names: ctest runs every test as its own process, in parallel, and
+// two tests of one file may use the same name (e.g. the same input file).
+inline std::string TempPath(const std::string& name) {
+  return ::testing::TempDir() + "prefsift" + std::to_string(::getpid()) + "_" + name;
+}
 
 inline std::string WriteFile(const std::string& name, const std::string& bytes) {
   std::string path = TempPath(name);
