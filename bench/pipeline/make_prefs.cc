@@ -2,7 +2,7 @@
 // (bench/pipeline, scripts/bench.sh). Single-threaded, fixed seed: the same
 // arguments give byte-identical files.
 //
-//   make_prefs N OUT_DIR [SEED]
+//   make_prefs N OUT_DIR [SEED] [EVAL]
 //
 // writes OUT_DIR/prefs-N.jsonl (layout: the "choice" preset plus /annotator,
 // /source, /thread) and OUT_DIR/eval-N.jsonl (a small evaluation set of
@@ -110,7 +110,7 @@ std::string Pii(Rng& r) {
 
 int main(int argc, char** argv) {
   if (argc < 3) {
-    std::fprintf(stderr, "usage: make_prefs N OUT_DIR [SEED]\n");
+    std::fprintf(stderr, "usage: make_prefs N OUT_DIR [SEED] [EVAL]\n");
     return 2;
   }
   uint64_t n = std::strtoull(argv[1], nullptr, 10);
@@ -118,8 +118,10 @@ int main(int argc, char** argv) {
   Rng r{argc > 3 ? std::strtoull(argv[3], nullptr, 10) : 20260401ull};
   std::vector<std::string> vocab = MakeVocab(r, 20000);
 
-  // Evaluation set: 1 per 200 records, at least 500, at most 50000.
-  uint64_t n_eval = std::min<uint64_t>(50000, std::max<uint64_t>(500, n / 200));
+  // Evaluation set: EVAL questions when given (issue 9's target uses 50,000),
+  // else 1 per 200 records, at least 500, at most 50000.
+  uint64_t n_eval = argc > 4 ? std::strtoull(argv[4], nullptr, 10)
+                             : std::min<uint64_t>(50000, std::max<uint64_t>(500, n / 200));
   std::vector<std::string> eval;
   std::string eval_path = dir + "/eval-" + std::to_string(n) + ".jsonl";
   std::FILE* ef = std::fopen(eval_path.c_str(), "wb");
