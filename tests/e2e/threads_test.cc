@@ -50,7 +50,7 @@ TEST(Threads, DemoPlanSameOutputsWithOneAndThreeThreads) {
   RunTwiceAndCompare(SourceDir() + "/samples/demo-plan.json", "demo");
 }
 
-// Several 4096-line chunks, with planted duplicates, near-duplicates, leaks and
+// Several 1024-line chunks (9,000 lines: nine chunks), with planted duplicates, near-duplicates, leaks and
 // fake personal data (example.com, 192.0.2.0/24), every stage on.
 TEST(Threads, ManyChunksSameOutputsWithOneAndThreeThreads) {
   std::string dir = ::testing::TempDir() + "prefsift-threads-data-" + std::to_string(::getpid());

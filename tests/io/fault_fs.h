@@ -1,6 +1,7 @@
 // A FileSystem wrapper for tests that fails writes or reads on demand.
 #pragma once
 
+#include <atomic>
 #include <string>
 
 #include "io/file_system.h"
@@ -25,7 +26,9 @@ class FaultFileSystem : public FileSystem {
   Status RemoveAll(const std::string& path) override { return base_->RemoveAll(path); }
   bool Exists(const std::string& path) override { return base_->Exists(path); }
 
-  long long written = 0, read = 0;
+  // Atomic: the pipeline reads and writes from more than one thread (read-ahead,
+  // parallel hashing of outputs).
+  std::atomic<long long> written{0}, read{0};
 
  private:
   FileSystem* base_;
