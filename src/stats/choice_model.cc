@@ -12,10 +12,12 @@
 #include "stats/choice_model.h"
 
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <cstdio>
 #include <limits>
 #include <numeric>
+#include <thread>
 #include <utility>
 
 namespace prefsift::stats {
@@ -524,19 +526,46 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
   for (size_t i = 0; i < n; ++i) {
     fold[i] = std::lower_bound(fold_of.begin(), fold_of.end(), std::make_pair(ids[i], -1))->second;
   }
-  CrossValidation cv;
-  double total_credit = 0.0;
-  for (int k = 0; k < folds; ++k) {
+  // The folds are independent fits: run them on their own threads (at most one
+  // per core at a time), then combine in fold order, so the sums are the same
+  // whatever the number of cores.
+  struct FoldResult {
+    Status status = Status::Ok();
+    bool converged = false;
+    double credit = 0.0;
+    size_t size = 0;
+  };
+  std::vector<FoldResult> results(static_cast<size_t>(folds));
+  auto run_fold = [&](int k) {
+    FoldResult& r = results[static_cast<size_t>(k)];
     std::vector<size_t> train, test;
     for (size_t i = 0; i < n; ++i) (fold[i] == k ? test : train).push_back(i);
     Result<ChoiceFit> fit = FitOnSubset(data, &train, options);
-    if (!fit.ok()) return fit.status();
-    if (!fit.value().converged) ++cv.folds_not_converged;
-    double credit = 0.0;
-    for (size_t i : test) credit += Credit(data, i, fit.value().weights);
-    total_credit += credit;
-    cv.fold_size.push_back(test.size());
-    cv.fold_accuracy.push_back(test.empty() ? 0.0 : credit / static_cast<double>(test.size()));
+    if (!fit.ok()) {
+      r.status = fit.status();
+      return;
+    }
+    r.converged = fit.value().converged;
+    for (size_t i : test) r.credit += Credit(data, i, fit.value().weights);
+    r.size = test.size();
+  };
+  std::atomic<int> next{0};
+  auto worker = [&] {
+    for (int k = next++; k < folds; k = next++) run_fold(k);
+  };
+  const unsigned width = std::max(1u, std::min(std::thread::hardware_concurrency(), static_cast<unsigned>(folds)));
+  std::vector<std::thread> threads;
+  for (unsigned t = 1; t < width; ++t) threads.emplace_back(worker);
+  worker();
+  for (auto& t : threads) t.join();
+  CrossValidation cv;
+  double total_credit = 0.0;
+  for (const FoldResult& r : results) {
+    if (!r.status.ok()) return r.status;
+    if (!r.converged) ++cv.folds_not_converged;
+    total_credit += r.credit;
+    cv.fold_size.push_back(r.size);
+    cv.fold_accuracy.push_back(r.size == 0 ? 0.0 : r.credit / static_cast<double>(r.size));
   }
   cv.accuracy = total_credit / static_cast<double>(n);
   return cv;
