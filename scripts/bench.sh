@@ -6,7 +6,8 @@
 # read + simdjson parse + XXH3_128bits, one thread).
 #
 #   scripts/bench.sh [SIZES...]          default: 10000 100000 1000000
-#   env: BUILD=build-perf  DATA=/tmp/prefsift-bench  THREADS=(all cores)
+#   env: BUILD=build-perf  DATA=/tmp/prefsift-bench-e$EVAL  THREADS=(all cores)
+#        EVAL=50000 evaluation prompts (issue 9's target; 0 = make_prefs' default, N/200)
 #        PREFSIFT=path/to/prefsift (default $BUILD/src/cli/prefsift)
 #        STAGES="exact near leakage screen bias split"  (subset for quick runs)
 #
@@ -18,7 +19,8 @@
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 BUILD=${BUILD:-$ROOT/build-perf}
-DATA=${DATA:-/tmp/prefsift-bench}
+EVAL=${EVAL:-50000}
+DATA=${DATA:-/tmp/prefsift-bench-e$EVAL}
 THREADS=${THREADS:-$(nproc)}
 STAGES=${STAGES-"exact near leakage screen bias split"}  # STAGES="" runs the whole pipeline only
 SIZES=("$@")
@@ -80,7 +82,11 @@ run_cmd() {  # N STAGE -> the prefsift command line
 }
 
 # Baseline RSS per command on a tiny file.
-"$BUILD/bench/pipeline/make_prefs" 100 "$DATA" >/dev/null
+make_data() {  # N DIR
+  if [ "$EVAL" -gt 0 ]; then "$BUILD/bench/pipeline/make_prefs" "$1" "$2" 20260401 "$EVAL" >/dev/null
+  else "$BUILD/bench/pipeline/make_prefs" "$1" "$2" >/dev/null; fi
+}
+make_data 100 "$DATA"
 write_plan 100
 declare -A BASE
 for stage in $STAGES run; do
@@ -92,7 +98,7 @@ echo "machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -
 for n in "${SIZES[@]}"; do
   f=$DATA/prefs-$n.jsonl
   if [ ! -s "$f" ]; then  # generate under a temporary name so an interrupted run leaves no partial file
-    mkdir -p "$DATA/gen" && "$BUILD/bench/pipeline/make_prefs" "$n" "$DATA/gen" >/dev/null
+    mkdir -p "$DATA/gen" && make_data "$n" "$DATA/gen"
     mv "$DATA/gen/eval-$n.jsonl" "$DATA/eval-$n.jsonl" && mv "$DATA/gen/prefs-$n.jsonl" "$f"
   fi
   write_plan "$n"
