@@ -78,12 +78,16 @@ class CandidateSets {
       : texts_(texts), n_(n), seed_(seed), per_(texts.size()) {
     sketch::ShingleOptions so;
     so.mode = forced;
+    bool all_full_words = texts.size() <= kTableMaxTexts;
     for (size_t i = 0; i < texts.size(); ++i) {
       per_[i].chars_mode = sketch::ResolveMode(texts[i], so) == sketch::ShingleMode::kChars;
+      all_full_words = all_full_words && !per_[i].chars_mode && Units(i, false) >= static_cast<size_t>(n_);
     }
+    if (all_full_words) BuildTable();
   }
 
   float Similarity(size_t a, size_t b) {
+    if (table_built_) return TableSimilarity(a, b);
     const bool chars = per_[a].chars_mode || per_[b].chars_mode;
     const size_t units = std::min(Units(a, chars), Units(b, chars));  // counted up to n only
     const int eff = static_cast<int>(std::max<size_t>(1, std::min<size_t>(static_cast<size_t>(n_), units)));
@@ -136,10 +140,72 @@ class CandidateSets {
     }
     return p.set[chars];
   }
+  // The common case (every candidate in word mode with at least n words, so
+  // every pair uses the full n): one hash table over all candidates' n-gram
+  // hashes, each entry marked with the candidates that contain it. One pass
+  // over the table then gives every candidate's set size and every pair's
+  // intersection: no per-candidate sort. Same sets, same hashes, same
+  // division as ExactJaccard, so the same similarities to the last bit.
+  static constexpr size_t kTableMaxTexts = 8;
+  void BuildTable() {
+    thread_local std::vector<uint64_t> grams;
+    thread_local std::vector<uint64_t> keys;
+    thread_local std::vector<uint8_t> marks;  // 0 = empty slot, else a bit per candidate
+    sketch::ShingleOptions so;
+    so.mode = sketch::ShingleMode::kWords;
+    so.word_n = n_;
+    so.seed = seed_;
+    size_t total = 0;
+    std::vector<size_t> ends;
+    grams.clear();
+    for (size_t i = 0; i < texts_.size(); ++i) {
+      sketch::AppendShingles(texts_[i], so, &grams);
+      ends.push_back(grams.size());
+    }
+    total = grams.size();
+    size_t cap = 16;
+    while (cap < 2 * total) cap <<= 1;
+    keys.assign(cap, 0);
+    marks.assign(cap, 0);
+    const size_t mask = cap - 1;
+    size_t begin = 0;
+    for (size_t i = 0; i < texts_.size(); ++i) {
+      const auto bit = static_cast<uint8_t>(1u << i);
+      for (size_t g = begin; g < ends[i]; ++g) {
+        const uint64_t h = grams[g];
+        size_t slot = static_cast<size_t>(h ^ (h >> 29)) & mask;
+        while (marks[slot] != 0 && keys[slot] != h) slot = (slot + 1) & mask;
+        keys[slot] = h;
+        marks[slot] |= bit;
+      }
+      begin = ends[i];
+    }
+    const size_t b = texts_.size();
+    size_.assign(b, 0);
+    inter_.assign(b * b, 0);
+    for (size_t slot = 0; slot < cap; ++slot) {
+      const unsigned m = marks[slot];
+      if (m == 0) continue;
+      for (size_t x = 0; x < b; ++x) {
+        if (!(m & (1u << x))) continue;
+        ++size_[x];
+        for (size_t y = x + 1; y < b; ++y) inter_[x * b + y] += (m >> y) & 1u;
+      }
+    }
+    table_built_ = true;
+  }
+  float TableSimilarity(size_t a, size_t b) const {
+    const size_t n = texts_.size();
+    const uint64_t common = inter_[std::min(a, b) * n + std::max(a, b)];
+    return static_cast<float>(static_cast<double>(common) / static_cast<double>(size_[a] + size_[b] - common));
+  }
+
   const std::vector<std::string>& texts_;
   int n_;
   uint64_t seed_;
   std::vector<PerText> per_;
+  bool table_built_ = false;
+  std::vector<uint64_t> size_, inter_;
 };
 
 class NearDupsStage : public Stage {

@@ -10,6 +10,9 @@
 
 #include <cmath>
 #include <map>
+#include <random>
+#include <set>
+#include <string>
 
 #include "run_helpers.h"
 
@@ -243,6 +246,83 @@ TEST(NearDups, TextWithoutSpacesUsesCodePointShingles) {
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
   EXPECT_EQ(ReadJsonl(out + "/clusters.jsonl").size(), 0u);
   EXPECT_EQ(NearSummary(out)["shingle_modes"]["words"], 2);
+}
+
+// Differential check of the near-identical candidate similarities against a
+// brute-force reference: exact Jaccard of the sets of word 3-grams, built as
+// strings in the test (no hashing), for records of B = 2..5 and one of B = 9
+// (the stage's one-table path covers B <= 8 with every candidate at least 3
+// words long; the others take the per-pair path). Threshold 0.3 so that many
+// pairs, near and far from it, are compared.
+TEST(NearDups, CandidateSimilaritiesMatchBruteForceJaccard) {
+  std::mt19937_64 rng(20261202);
+  auto jaccard3 = [](const std::vector<std::string>& a, const std::vector<std::string>& b) {
+    auto grams = [](const std::vector<std::string>& w) {
+      std::set<std::string> g;
+      if (w.size() < 3) {
+        std::string all;
+        for (const auto& x : w) all += x + " ";
+        g.insert(all);
+        return g;
+      }
+      for (size_t i = 0; i + 3 <= w.size(); ++i) g.insert(w[i] + " " + w[i + 1] + " " + w[i + 2]);
+      return g;
+    };
+    auto ga = grams(a), gb = grams(b);
+    size_t common = 0;
+    for (const auto& x : ga) common += gb.count(x);
+    return static_cast<double>(common) / static_cast<double>(ga.size() + gb.size() - common);
+  };
+  std::string data;
+  std::map<std::string, std::vector<std::vector<std::string>>> cands_of;
+  for (int r = 0; r < 120; ++r) {
+    const size_t b = r == 119 ? 9 : 2 + static_cast<size_t>(rng() % 4);
+    std::vector<std::string> base;
+    const size_t len = 3 + rng() % 40;
+    for (size_t i = 0; i < len; ++i) base.push_back("w" + std::to_string(rng() % 30));  // repeats on purpose
+    std::vector<std::vector<std::string>> cands;
+    Json arr = Json::array();
+    for (size_t c = 0; c < b; ++c) {
+      auto w = base;
+      const size_t edits = rng() % 4;
+      for (size_t e = 0; e < edits; ++e) w[rng() % w.size()] = "x" + std::to_string(rng() % 5);
+      cands.push_back(w);
+      arr.push_back(Join(w));
+    }
+    std::string id = "c" + std::to_string(r);
+    cands_of[id] = cands;
+    data += Json{{"id", id}, {"prompt", Join(WordList("q" + std::to_string(r) + "w", 12))}, {"candidates", arr},
+                 {"choice", 0}}.dump() + "\n";
+  }
+  std::string in = WriteFile("near_cands_diff.jsonl", data);
+  std::string out = TempPath("near_cands_diff_out");
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
+  plan.stages["near"] = Json{{"candidate_threshold", 0.3}};
+  ASSERT_TRUE(RunNear(plan, {"near"}).ok());
+  std::map<std::string, std::map<std::pair<int, int>, double>> got;
+  for (const auto& j : ReadJsonl(out + "/near_identical.jsonl")) {
+    for (const auto& p : j["pairs"]) {
+      got[j["id"].get<std::string>()][{p["candidates"][0].get<int>(), p["candidates"][1].get<int>()}] =
+          p["similarity"].get<double>();
+    }
+  }
+  size_t checked = 0;
+  for (const auto& [id, cands] : cands_of) {
+    for (size_t a = 0; a < cands.size(); ++a) {
+      for (size_t b = a + 1; b < cands.size(); ++b) {
+        const double want = jaccard3(cands[a], cands[b]);
+        auto it = got[id].find({static_cast<int>(a), static_cast<int>(b)});
+        if (want >= 0.3 + 1e-9) {
+          ASSERT_NE(it, got[id].end()) << id << " " << a << "," << b << " J=" << want;
+          EXPECT_NEAR(it->second, want, 1e-6) << id << " " << a << "," << b;
+          ++checked;
+        } else if (want < 0.3 - 1e-6) {
+          EXPECT_EQ(it, got[id].end()) << id << " " << a << "," << b << " J=" << want;
+        }
+      }
+    }
+  }
+  EXPECT_GT(checked, 200u);
 }
 
 TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
