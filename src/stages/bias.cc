@@ -74,7 +74,7 @@ class BiasStage : public Stage {
                     {"ratio", d.ratio >= 0 ? Json(std::round(d.ratio * 1e4) / 1e4) : Json(nullptr)},
                     {"abs_log2_ratio_bin", range},
                     {"target_share", s_.length.target},
-                    {"source", st.records[d.record].source}};
+                    {"source", st.Text(st.records[d.record].source_id)}};
         if (st.Reject(d.record, name(), "length_rebalance",
                       std::string("discarded to bring the chosen-longer share to the target: the chosen answer is ") +
                           (d.direction > 0 ? "longer" : "shorter") + " and its source's length-ratio bin had too many such records",

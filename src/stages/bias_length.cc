@@ -182,8 +182,8 @@ LengthStats ComputeLengthStats(const RunState& st, const std::vector<size_t>& re
     const int dc = LengthDirection(f, LengthUnit::kChars, &rc);
     words.Add(dw, rw);
     chars.Add(dc, rc);
-    if (!f.source.empty()) by_src[f.source].Add(dw, rw);
-    if (!f.annotator.empty()) by_ann[f.annotator].Add(dw, rw);
+    if (f.source_id != 0) by_src[st.Text(f.source_id)].Add(dw, rw);
+    if (f.annotator_id != 0) by_ann[st.Text(f.annotator_id)].Add(dw, rw);
     const size_t b = f.ranks.size();
     for (size_t i = 0; i < b; ++i) {
       const bool is_chosen = static_cast<int>(i) == c;
@@ -270,7 +270,7 @@ LengthRebalancePlan PlanLengthRebalance(const RunState& st, const std::vector<si
     const double dist = ratio > 0 ? std::fabs(std::log2(ratio)) : INFINITY;
     const size_t bin = static_cast<size_t>(std::upper_bound(o.bin_edges.begin(), o.bin_edges.end(), dist) -
                                            o.bin_edges.begin());
-    auto& m = strata[o.by_source ? f.source : std::string()];
+    auto& m = strata[o.by_source ? st.Text(f.source_id) : std::string()];
     if (m.empty()) m.resize(nbins);
     m[bin][dir > 0 ? 0 : 1].push_back({SeededHash(seed, "length", f.id), r, ratio});
   }

@@ -81,7 +81,7 @@ struct LengthRebalanceOptions {
   LengthUnit unit = LengthUnit::kWords;
   // Upper edges of the |log2(chosen / other)| bins; the last bin is open.
   std::vector<double> bin_edges = {0.1, 0.25, 0.5, 1.0, 2.0};
-  // Balance each source (RecordFacts::source; "" is a source too) on its own,
+  // Balance each source (RecordFacts::source_id; "" is a source too) on its own,
   // so a source that is already balanced loses nothing.
   bool by_source = true;
 };

@@ -145,8 +145,8 @@ PositionStats ComputePositionStats(const RunState& st, const std::vector<size_t>
       ++v[slot];
     };
     bump(by_b[b]);
-    if (!f.annotator.empty()) bump(by_ann[{f.annotator, b}]);
-    if (!f.source.empty()) bump(by_src[{f.source, b}]);
+    if (f.annotator_id != 0) bump(by_ann[{st.Text(f.annotator_id), b}]);
+    if (f.source_id != 0) bump(by_src[{st.Text(f.source_id), b}]);
   }
   for (const auto& [b, counts] : by_b) {
     SlotTest t;

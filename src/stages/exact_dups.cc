@@ -160,7 +160,7 @@ class ExactDupsStage : public Stage {
       for (size_t k = 0; k < cg.members.size(); ++k) {
         const auto& rf = st.records[cg.members[k]];
         const auto& d = st.decisions[rf.entry];
-        members.push_back(Json{{"id", rf.id}, {"judgment", cg.judgment_of[k]}, {"ranks", rf.ranks},
+        members.push_back(Json{{"id", rf.id}, {"judgment", cg.judgment_of[k]}, {"ranks", rf.ranks.to_vector()},
                                {"kept", !d.rejected || d.stage != "exact" ? !d.rejected : false}});
       }
       j["comparison_of"] = st.records[cg.members[0]].id;

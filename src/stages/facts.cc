@@ -63,11 +63,15 @@ RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm, MatchT
   f.ranks = rec.ranks;
   f.chosen = rec.chosen;
   f.shape = rec.shape;
-  f.annotator = rec.annotator.value_or("");
-  f.thread = rec.thread.value_or("");
-  f.source = rec.source.value_or("");
-  f.group = rec.group.value_or("");
   return f;
+}
+
+void InternRecordTexts(const Record& rec, RunState& st, RecordFacts* f) {
+  auto id = [&](const std::optional<std::string>& s) { return s ? st.InternText(*s) : 0; };
+  f->annotator_id = id(rec.annotator);
+  f->thread_id = id(rec.thread);
+  f->source_id = id(rec.source);
+  f->group_id = id(rec.group);
 }
 
 }  // namespace prefsift

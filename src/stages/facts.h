@@ -32,6 +32,11 @@ uint32_t CountCodePoints(std::string_view s);
 uint32_t CountWords(std::string_view s);
 
 // Facts of `rec`; fills *text with its normalised texts (buffers are reused).
+// Thread-safe; leaves the text ids 0 (InternRecordTexts sets them).
 RecordFacts ComputeFacts(const Record& rec, const NormalizeOptions& norm, MatchText* text);
+
+// Sets f's annotator, thread, source and group ids (RunState::InternText).
+// Not thread-safe: the pipeline calls it in input order.
+void InternRecordTexts(const Record& rec, RunState& st, RecordFacts* f);
 
 }  // namespace prefsift

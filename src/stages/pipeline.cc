@@ -229,6 +229,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
           e.record = static_cast<int64_t>(st.records.size());
           rec_of[i] = st.records.size();
           p.facts.entry = static_cast<uint32_t>(entry_index);
+          InternRecordTexts(p.rec, st, &p.facts);
           st.records.push_back(std::move(p.facts));
           ++stats.records;
         }

@@ -36,6 +36,16 @@ void RunState::RejectEntry(size_t entry, const std::string& stage, const std::st
   Count(stage, reason);
 }
 
+uint32_t RunState::InternText(std::string_view s) {
+  if (s.empty()) return 0;
+  auto it = text_ids_.find(s);
+  if (it != text_ids_.end()) return it->second;
+  const auto id = static_cast<uint32_t>(texts_.size());
+  texts_.emplace_back(s);
+  text_ids_.emplace(texts_.back(), id);
+  return id;
+}
+
 const RejectText& RunState::RejectTextOf(const Decision& d) const {
   static const RejectText kNone;
   return d.text < reject_texts.size() ? reject_texts[d.text] : kNone;

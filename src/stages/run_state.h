@@ -9,14 +9,17 @@
 #pragma once
 
 #include <cstdint>
+#include <deque>
 #include <map>
 #include <set>
 #include <string>
 #include <string_view>
+#include <unordered_map>
 #include <vector>
 
 #include "core/hash.h"
 #include "core/plan.h"
+#include "core/small_vector.h"
 
 namespace prefsift {
 
@@ -46,17 +49,21 @@ struct Decision {
 };
 
 // Small, fixed facts about one parsed record; the text itself is not kept.
+// One per record, so kept small (docs/performance.md): the per-candidate facts
+// sit inside the struct for up to 4 candidates, and the annotator, thread,
+// source and group are ids of texts interned in RunState (RunState::Text).
 struct RecordFacts {
   uint32_t entry = 0;
+  int chosen = -1;                              // single best candidate or -1
   std::string id;
-  Hash128 prompt_hash;                 // normalised prompt (chat: all turns with roles)
-  std::vector<Hash128> cand_hashes;    // normalised candidates, file order
-  std::vector<int> ranks;              // dense ranks, 1 = best
-  int chosen = -1;                     // single best candidate or -1
-  JudgmentShape shape = JudgmentShape::kChoice;
-  std::string annotator, thread, source, group;  // "" when absent
-  std::vector<uint32_t> cand_chars, cand_words;  // code points and whitespace-separated words
+  Hash128 prompt_hash;                          // normalised prompt (chat: all turns with roles)
+  SmallVector<Hash128> cand_hashes;             // normalised candidates, file order
+  SmallVector<int> ranks;                       // dense ranks, 1 = best
+  SmallVector<uint32_t> cand_chars, cand_words; // code points and whitespace-separated words
+  // RunState::Text ids; 0 (= "") when absent. Set in the serial part of Observe.
+  uint32_t annotator_id = 0, thread_id = 0, source_id = 0, group_id = 0;
   uint32_t prompt_chars = 0;
+  JudgmentShape shape = JudgmentShape::kChoice;
 };
 
 struct InputStats {
@@ -68,6 +75,8 @@ struct InputStats {
 class RunState {
  public:
   explicit RunState(const Plan& plan) : plan_(plan) {}
+  RunState(const RunState&) = delete;  // text_ids_ views texts_
+  RunState& operator=(const RunState&) = delete;
   const Plan& plan() const { return plan_; }
 
   std::vector<InputStats> inputs;
@@ -92,6 +101,13 @@ class RunState {
   std::vector<int32_t> prior_split;
 
   std::vector<RejectText> reject_texts;  // one per rejected entry (Decision::text)
+
+  // Texts of records' annotator, thread, source and group (RecordFacts::*_id):
+  // each distinct text is stored once. Id 0 is "". Intern is not thread-safe
+  // (the pipeline calls it in input order); Text is safe for concurrent readers.
+  uint32_t InternText(std::string_view s);
+  const std::string& Text(uint32_t id) const { return texts_[id]; }
+  size_t text_count() const { return texts_.size(); }
 
   // The texts of a rejected entry's decision (empty texts for a kept one).
   const RejectText& RejectTextOf(const Decision& d) const;
@@ -118,6 +134,8 @@ class RunState {
   const Plan& plan_;
   std::set<std::string, std::less<>> names_;  // stage and reason names (node-based: views stay valid)
   std::vector<std::pair<std::string, std::map<std::string, uint64_t>>> by_stage_;
+  std::deque<std::string> texts_{std::string()};  // by id (a deque: growing never moves a text)
+  std::unordered_map<std::string_view, uint32_t> text_ids_{{std::string_view(), 0}};  // views of texts_
 };
 
 }  // namespace prefsift

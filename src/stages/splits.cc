@@ -156,7 +156,8 @@ class SplitStage : public Stage {
         auto [it, fresh] = by_near.try_emplace(st.near_cluster[i], i);
         if (!fresh) join(kNear, it->second, i);
       }
-      const std::string* text[kTieCount] = {nullptr, nullptr, &f.thread, &f.annotator, &f.group};
+      const std::string* text[kTieCount] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
+                                            &st.Text(f.group_id)};
       for (int t = kThread; t < kTieCount; ++t) {
         if (!s_.tie[t] || text[t]->empty()) continue;
         auto [it, fresh] = by_text[t].try_emplace(*text[t], i);
@@ -179,7 +180,8 @@ class SplitStage : public Stage {
       g.ties |= tie_bits[i];
       const RecordFacts& f = st.records[i];
       const RecordFacts& a = st.records[g.anchor];
-      if (f.prompt_hash < g.key || (f.prompt_hash == g.key && std::tie(f.id, f.source) < std::tie(a.id, a.source))) {
+      if (f.prompt_hash < g.key ||
+          (f.prompt_hash == g.key && std::tie(f.id, st.Text(f.source_id)) < std::tie(a.id, st.Text(a.source_id)))) {
         g.key = f.prompt_hash;
         g.anchor = i;
       }
@@ -196,7 +198,7 @@ class SplitStage : public Stage {
       return static_cast<uint32_t>(cum.size() - 1);
     };
     for (Group& g : groups_) {
-      g.source = st.records[g.anchor].source;
+      g.source = st.Text(st.records[g.anchor].source_id);
       g.u = SplitPosition(s_.salt, g.key);
       if (!s_.stratify_source) g.split = split_at(g.u);
     }
@@ -456,12 +458,12 @@ class SplitStage : public Stage {
       } else {
         ++top_tied;
       }
-      ++sources[f.source.empty() ? "(not given)" : f.source];
-      if (!f.annotator.empty()) {
-        ++annotators[f.annotator];
+      ++sources[f.source_id == 0 ? "(not given)" : st.Text(f.source_id)];
+      if (f.annotator_id != 0) {
+        ++annotators[st.Text(f.annotator_id)];
         ++with_annotator;
       }
-      with_thread += f.thread.empty() ? 0 : 1;
+      with_thread += f.thread_id == 0 ? 0 : 1;
       ++shapes[JudgmentShapeName(f.shape)];
       ++scripts[i < script_.size() ? script_[i] : kNone];
       prompt_len.push_back(f.prompt_chars);

@@ -499,7 +499,8 @@ class StoreCompanion : public RunCompanion {
           }
         }
       }
-      const std::string* text[kTieKinds] = {nullptr, nullptr, &f.thread, &f.annotator, &f.group};
+      const std::string* text[kTieKinds] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
+                                            &st.Text(f.group_id)};
       for (int t = kTieThread; t < kTieKinds; ++t) {
         if (!view_.tie[t] || text[t]->empty()) continue;
         auto [it, fresh] = by_text[t].try_emplace(*text[t], i);
@@ -739,7 +740,8 @@ class StoreCompanion : public RunCompanion {
         Status s;
         if (view_.tie[kTiePrompt]) s = tie(kTiePrompt, pb);
         if (s.ok() && view_.tie[kTieNear]) s = tie(kTieNear, ClusterBlob(cluster_[i]));
-        const std::string* text[kTieKinds] = {nullptr, nullptr, &f.thread, &f.annotator, &f.group};
+        const std::string* text[kTieKinds] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
+                                              &st.Text(f.group_id)};
         for (int t = kTieThread; t < kTieKinds && s.ok(); ++t) {
           if (view_.tie[t] && !text[t]->empty()) s = tie(t, Blob(HashBytes(*text[t])));
         }
