@@ -4,7 +4,12 @@
 
 namespace prefsift {
 namespace {
-constexpr size_t kBatch = 16;  // indexes taken at a time: few atomics, still balanced
+// Indexes taken at a time: up to 16 (few atomics for many small items), down
+// to 1 when there are few items (e.g. a handful of files or folds), so that
+// every worker still gets some.
+size_t BatchFor(size_t n, unsigned workers) {
+  return std::max<size_t>(1, std::min<size_t>(16, n / (4 * static_cast<size_t>(workers))));
+}
 }  // namespace
 
 ThreadPool::ThreadPool(unsigned threads)
@@ -23,9 +28,9 @@ ThreadPool::~ThreadPool() {
 
 void ThreadPool::Drain(unsigned worker) {
   for (;;) {
-    size_t begin = next_.fetch_add(kBatch, std::memory_order_relaxed);
+    size_t begin = next_.fetch_add(batch_, std::memory_order_relaxed);
     if (begin >= n_) return;
-    size_t end = std::min(n_, begin + kBatch);
+    size_t end = std::min(n_, begin + batch_);
     for (size_t i = begin; i < end; ++i) (*fn_)(i, worker);
   }
 }
@@ -48,7 +53,7 @@ void ThreadPool::Run(unsigned worker) {
 }
 
 void ThreadPool::ParallelFor(size_t n, const std::function<void(size_t, unsigned)>& fn) {
-  if (size_ == 1 || n <= kBatch) {
+  if (size_ == 1 || n <= 1) {
     for (size_t i = 0; i < n; ++i) fn(i, 0);
     return;
   }
@@ -56,6 +61,7 @@ void ThreadPool::ParallelFor(size_t n, const std::function<void(size_t, unsigned
     std::lock_guard<std::mutex> lock(mu_);
     fn_ = &fn;
     n_ = n;
+    batch_ = BatchFor(n, size_);
     next_.store(0, std::memory_order_relaxed);
     busy_ = size_ - 1;
     ++generation_;

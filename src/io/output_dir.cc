@@ -29,6 +29,14 @@ Result<std::unique_ptr<WritableFile>> OutputDir::Create(const std::string& name)
   return fs_->OpenWrite(staging_ + "/" + name);
 }
 
+Status OutputDir::Write(const std::string& name, std::string_view bytes) {
+  auto f = Create(name);
+  if (!f.ok()) return f.status();
+  Status s = f.value()->Append(bytes);
+  if (s.ok()) s = f.value()->Close();
+  return s;
+}
+
 Status OutputDir::Commit() {
   std::string aside;
   if (fs_->Exists(dir_)) {

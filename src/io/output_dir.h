@@ -10,6 +10,7 @@
 
 #include <memory>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "core/status.h"
@@ -24,6 +25,8 @@ class OutputDir {
 
   // A new file in the staging folder; `name` is a plain file name.
   Result<std::unique_ptr<WritableFile>> Create(const std::string& name);
+  // A whole small file at once: Create, Append, Close.
+  Status Write(const std::string& name, std::string_view bytes);
   // Path of a file in the staging folder (for tools that write by path).
   std::string StagingPath(const std::string& name) const { return staging_ + "/" + name; }
   const std::string& final_path() const { return dir_; }

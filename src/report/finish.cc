@@ -4,14 +4,13 @@
 #include <nlohmann/json.hpp>
 
 #include <algorithm>
-#include <atomic>
 #include <cstdlib>
 #include <ctime>
 #include <filesystem>
-#include <thread>
 #include <vector>
 
 #include "core/sha256.h"
+#include "core/thread_pool.h"
 #include "prefsift_version.h"
 #include "report/datasheet.h"
 #include "report/gate.h"
@@ -51,15 +50,8 @@ Result<Digest> HashFile(FileSystem* fs, const std::string& path) {
 // the order of `paths`.
 std::vector<Result<Digest>> HashFiles(FileSystem* fs, const std::vector<std::string>& paths) {
   std::vector<Result<Digest>> out(paths.size(), Status::Internal("not hashed"));
-  const size_t width = std::max(1u, std::thread::hardware_concurrency());
-  std::atomic<size_t> next{0};
-  auto work = [&] {
-    for (size_t i = next++; i < paths.size(); i = next++) out[i] = HashFile(fs, paths[i]);
-  };
-  std::vector<std::thread> threads;
-  for (size_t t = 1; t < std::min(width, paths.size()); ++t) threads.emplace_back(work);
-  work();
-  for (auto& t : threads) t.join();
+  ThreadPool pool(0);
+  pool.ParallelFor(paths.size(), [&](size_t i, unsigned) { out[i] = HashFile(fs, paths[i]); });
   return out;
 }
 
@@ -133,14 +125,6 @@ long long RemainingFindings(FileSystem* fs, const OutputDir& out, const Json& su
   return left;
 }
 
-Status WriteText(OutputDir& out, const std::string& name, const std::string& text) {
-  auto f = out.Create(name);
-  if (!f.ok()) return f.status();
-  Status s = f.value()->Append(text);
-  if (s.ok()) s = f.value()->Close();
-  return s;
-}
-
 }  // namespace
 
 Json ProvenanceTime() { return RunTime(); }
@@ -203,9 +187,9 @@ Status WriteDocuments(const Plan& plan, FileSystem* fs, OutputDir& out, const Js
   auto d = HashFile(fs, out.StagingPath("summary.json"));
   if (!d.ok()) return d.status();
   Json sheet = BuildDatasheet(plan.provenance, plan.stages, summary, d.value().sha256);
-  Status s = WriteText(out, "datasheet.json", sheet.dump(2) + "\n");
-  if (s.ok()) s = WriteText(out, "datasheet.md", DatasheetMarkdown(sheet));
-  if (s.ok()) s = WriteText(out, "report.html", RenderHtmlReport(summary, sheet));
+  Status s = out.Write("datasheet.json", sheet.dump(2) + "\n");
+  if (s.ok()) s = out.Write("datasheet.md", DatasheetMarkdown(sheet));
+  if (s.ok()) s = out.Write("report.html", RenderHtmlReport(summary, sheet));
   return s;
 }
 

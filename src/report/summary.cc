@@ -1,6 +1,6 @@
 #include "report/summary.h"
 
-#include "prefsift_version.h"
+#include "report/finish.h"
 
 namespace prefsift {
 
@@ -9,7 +9,7 @@ using Json = nlohmann::ordered_json;
 Json BuildSummary(const Plan& plan, const RunState& st, const std::vector<const Stage*>& stages,
                   const std::map<std::string, uint64_t>& written) {
   Json s;
-  s["tool"] = Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}};
+  s["tool"] = ToolInfo();
   uint64_t entries = 0, kept = 0, rejected = 0;
   Json inputs = Json::array();
   for (size_t i = 0; i < plan.inputs.size(); ++i) {

@@ -5,12 +5,11 @@
 namespace prefsift {
 namespace {
 
-// Byte classes for the counters: white space (ASCII) and UTF-8 continuation bytes.
-constexpr uint8_t kSpace = 1, kCont = 2;
+// ASCII white space, as a byte table for the word counter.
+constexpr uint8_t kSpace = 1;
 constexpr std::array<uint8_t, 256> MakeClasses() {
   std::array<uint8_t, 256> t{};
   for (int c : {' ', '\t', '\n', '\r', '\v', '\f'}) t[static_cast<size_t>(c)] = kSpace;
-  for (int c = 0x80; c < 0xC0; ++c) t[static_cast<size_t>(c)] = kCont;
   return t;
 }
 constexpr std::array<uint8_t, 256> kClass = MakeClasses();

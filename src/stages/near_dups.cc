@@ -155,16 +155,14 @@ class CandidateSets {
     so.mode = sketch::ShingleMode::kWords;
     so.word_n = n_;
     so.seed = seed_;
-    size_t total = 0;
     std::vector<size_t> ends;
     grams.clear();
     for (size_t i = 0; i < texts_.size(); ++i) {
       sketch::AppendShingles(texts_[i], so, &grams);
       ends.push_back(grams.size());
     }
-    total = grams.size();
     size_t cap = 16;
-    while (cap < 2 * total) cap <<= 1;
+    while (cap < 2 * grams.size()) cap <<= 1;
     keys.assign(cap, 0);
     marks.assign(cap, 0);
     const size_t mask = cap - 1;

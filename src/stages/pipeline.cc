@@ -509,10 +509,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (!s.ok()) return s;
   timer.Mark("gate and provenance");
   outcome.gate_failed = st.gate_failed;
-  auto sf = out.value()->Create("summary.json");
-  if (!sf.ok()) return sf.status();
-  s = sf.value()->Append(summary.dump(2) + "\n");
-  if (s.ok()) s = sf.value()->Close();
+  s = out.value()->Write("summary.json", summary.dump(2) + "\n");
   if (s.ok()) s = WriteDocuments(plan, fs, *out.value(), summary);  // datasheet.md/json, report.html
   if (!s.ok()) return s;
   timer.Mark("datasheet and report");

@@ -264,10 +264,7 @@ Result<AuditOutcome> RunSplitAudit(const AuditOptions& o, FileSystem* fs) {
   for (const auto& [k, n] : shared_by_kind) sk[k] = n;
   summary["shared_groups_by_kind"] = std::move(sk);
   summary["leak_found"] = out.leak_found;
-  auto sf = dir.value()->Create("audit.json");
-  if (!sf.ok()) return sf.status();
-  s = sf.value()->Append(summary.dump(2) + "\n");
-  if (s.ok()) s = sf.value()->Close();
+  s = dir.value()->Write("audit.json", summary.dump(2) + "\n");
   if (!s.ok()) return s;
   s = dir.value()->Commit();
   if (!s.ok()) return s;

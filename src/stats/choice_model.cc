@@ -12,13 +12,13 @@
 #include "stats/choice_model.h"
 
 #include <algorithm>
-#include <atomic>
 #include <cmath>
 #include <cstdio>
 #include <limits>
 #include <numeric>
-#include <thread>
 #include <utility>
+
+#include "core/thread_pool.h"
 
 namespace prefsift::stats {
 namespace {
@@ -549,15 +549,8 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
     for (size_t i : test) r.credit += Credit(data, i, fit.value().weights);
     r.size = test.size();
   };
-  std::atomic<int> next{0};
-  auto worker = [&] {
-    for (int k = next++; k < folds; k = next++) run_fold(k);
-  };
-  const unsigned width = std::max(1u, std::min(std::thread::hardware_concurrency(), static_cast<unsigned>(folds)));
-  std::vector<std::thread> threads;
-  for (unsigned t = 1; t < width; ++t) threads.emplace_back(worker);
-  worker();
-  for (auto& t : threads) t.join();
+  ThreadPool pool(0);
+  pool.ParallelFor(static_cast<size_t>(folds), [&](size_t k, unsigned) { run_fold(static_cast<int>(k)); });
   CrossValidation cv;
   double total_credit = 0.0;
   for (const FoldResult& r : results) {

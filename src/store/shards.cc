@@ -194,13 +194,10 @@ Result<MergeOutcome> MergeShards(const std::vector<std::string>& files, const st
     outcome.records_in_clusters += cs.size;
   }
   if (Status s = f.value()->Close(); !s.ok()) return s;
-  auto sf = out.value()->Create("merge.json");
-  if (!sf.ok()) return sf.status();
   Json summary{{"files", files}, {"settings", head0}, {"records", outcome.records}, {"clusters", outcome.clusters},
                {"records_in_clusters", outcome.records_in_clusters},
                {"candidate_pairs", c.stats.candidates.unique_pairs}, {"verified_pairs", c.stats.verified_edges}};
-  if (Status s = sf.value()->Append(summary.dump(2) + "\n"); !s.ok()) return s;
-  if (Status s = sf.value()->Close(); !s.ok()) return s;
+  if (Status s = out.value()->Write("merge.json", summary.dump(2) + "\n"); !s.ok()) return s;
   if (Status s = out.value()->Commit(); !s.ok()) return s;
   return outcome;
 }

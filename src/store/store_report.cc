@@ -132,14 +132,6 @@ Json Batches(const Json& cum) {
   return out;
 }
 
-Status WriteText(OutputDir& out, const std::string& name, const std::string& text) {
-  auto f = out.Create(name);
-  if (!f.ok()) return f.status();
-  Status s = f.value()->Append(text);
-  if (s.ok()) s = f.value()->Close();
-  return s;
-}
-
 }  // namespace
 
 Json StoreAsRunSummary(const Json& cum) {
@@ -229,10 +221,10 @@ Status WriteStoreReport(const StoreReportOptions& o, FileSystem* fs) {
   Json sheet = BuildDatasheet(provenance, plan_stages, summary, Sha256Hex(summary_text));
   auto out = OutputDir::Begin(fs, o.out_dir, o.overwrite);
   if (!out.ok()) return out.status();
-  Status s = WriteText(*out.value(), kSummaryFile, summary_text);
-  if (s.ok()) s = WriteText(*out.value(), "datasheet.json", sheet.dump(2) + "\n");
-  if (s.ok()) s = WriteText(*out.value(), "datasheet.md", DatasheetMarkdown(sheet));
-  if (s.ok()) s = WriteText(*out.value(), "report.html", RenderHtmlReport(summary, sheet));
+  Status s = out.value()->Write(kSummaryFile, summary_text);
+  if (s.ok()) s = out.value()->Write("datasheet.json", sheet.dump(2) + "\n");
+  if (s.ok()) s = out.value()->Write("datasheet.md", DatasheetMarkdown(sheet));
+  if (s.ok()) s = out.value()->Write("report.html", RenderHtmlReport(summary, sheet));
   if (s.ok()) s = out.value()->Commit();
   return s;
 }
