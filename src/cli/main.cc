@@ -190,9 +190,26 @@ std::vector<std::string> AllStageNames() {
 }
 
 }  // namespace
+
+int Main(int argc, char** argv);
+
 }  // namespace prefsift
 
 int main(int argc, char** argv) {
+  // Library code returns errors as values; this is the last line of defence, so
+  // that an unexpected exception still unwinds (removing any partial output
+  // folder) and ends with exit 1 and a message instead of an abort.
+  try {
+    return prefsift::Main(argc, argv);
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "prefsift: internal error: %s (please report this with the input that caused it)\n", e.what());
+  } catch (...) {
+    std::fprintf(stderr, "prefsift: internal error: an unknown exception (please report this)\n");
+  }
+  return 1;
+}
+
+int prefsift::Main(int argc, char** argv) {
   using namespace prefsift;  // NOLINT: main only
   CLI::App app{
       "prefsift: gate a human-preference dataset before reward-model training.\n"

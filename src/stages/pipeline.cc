@@ -11,6 +11,7 @@
 #include <optional>
 #include <thread>
 
+#include "core/normalize.h"
 #include "core/record_reader.h"
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
@@ -273,16 +274,21 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   j["reason"] = d.reason;
   if (!t.field.empty()) j["field"] = t.field;
   j["message"] = t.message;
-  std::string head = j.dump();
+  // Every text above comes from the run, but a message or id may quote input
+  // bytes: invalid UTF-8 there is replaced (U+FFFD), never thrown on; the
+  // record itself is kept losslessly below.
+  std::string head = j.dump(-1, ' ', false, Json::error_handler_t::replace);
   head.pop_back();  // reopen the object to append raw JSON without re-serialising it
   if (!t.detail.empty()) head += ",\"detail\":" + t.detail;
   if (d.reason == "line_too_long") {
     head += ",\"record_omitted\":\"longer than the line limit; see file and line\"";
-  } else if (e.record >= 0 || (d.reason != "not_json" && d.reason != "invalid_utf8" && d.reason != "json_too_deep")) {
+  } else if (!IsValidUtf8(raw)) {
+    // Not UTF-8 (whatever reason rejected it): the exact bytes, as base64.
+    head += ",\"record_base64\":\"" + Base64(raw) + "\"";
+  } else if (e.record >= 0 || (d.reason != "not_json" && d.reason != "json_too_deep" && Json::accept(raw))) {
+    // A parsed record, or a line that is JSON but not a usable record: as it is.
     head += ",\"record\":";
     head.append(raw);
-  } else if (d.reason == "invalid_utf8") {
-    head += ",\"record_base64\":\"" + Base64(raw) + "\"";
   } else {
     head += ",\"record_text\":" + Json(std::string(raw)).dump();
   }
