@@ -96,6 +96,10 @@ class PosixFileSystem : public FileSystem {
     std::error_code ec;
     return std::filesystem::exists(path, ec);
   }
+  bool IsDirectory(const std::string& path) override {
+    std::error_code ec;
+    return std::filesystem::is_directory(path, ec);
+  }
 };
 
 }  // namespace

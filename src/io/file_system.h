@@ -37,6 +37,8 @@ class FileSystem {
   virtual Status MakeDir(const std::string& path) = 0;
   virtual Status RemoveAll(const std::string& path) = 0;
   virtual bool Exists(const std::string& path) = 0;
+  // True for an existing folder (after following symbolic links).
+  virtual bool IsDirectory(const std::string& path) = 0;
 };
 
 // The real, POSIX file system.

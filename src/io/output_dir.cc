@@ -2,12 +2,20 @@
 
 #include <unistd.h>
 
+#include <filesystem>
+
+#include "io/signal_cleanup.h"
+
 namespace prefsift {
 
 Result<std::unique_ptr<OutputDir>> OutputDir::Begin(FileSystem* fs, const std::string& dir_in, bool overwrite) {
   std::string dir = dir_in;
   while (dir.size() > 1 && dir.back() == '/') dir.pop_back();
   if (dir.empty()) return Status::Usage("the output folder name is empty");
+  if (fs->Exists(dir) && !fs->IsDirectory(dir)) {
+    return Status::Usage("the output folder " + dir + " is an existing file, not a folder; prefsift never replaces a "
+                         "file with its output folder (with or without --overwrite): choose another name");
+  }
   if (fs->Exists(dir) && !overwrite) {
     return Status::Usage("the output folder " + dir + " already exists; choose another or pass --overwrite");
   }
@@ -18,11 +26,13 @@ Result<std::unique_ptr<OutputDir>> OutputDir::Begin(FileSystem* fs, const std::s
   }
   Status s = fs->MakeDir(staging);
   if (!s.ok()) return s;
+  RegisterPartialOutput(staging);
   return std::unique_ptr<OutputDir>(new OutputDir(fs, dir, staging, overwrite));
 }
 
 OutputDir::~OutputDir() {
   if (!committed_) (void)fs_->RemoveAll(staging_);
+  UnregisterPartialOutput(staging_);
 }
 
 Result<std::unique_ptr<WritableFile>> OutputDir::Create(const std::string& name) {
@@ -52,6 +62,51 @@ Status OutputDir::Commit() {
   }
   committed_ = true;
   if (!aside.empty()) return fs_->RemoveAll(aside);
+  return Status::Ok();
+}
+
+namespace {
+
+std::filesystem::path Resolved(std::string p) {
+  while (p.size() > 1 && p.back() == '/') p.pop_back();
+  std::error_code ec;
+  std::filesystem::path abs = std::filesystem::absolute(p, ec);
+  if (ec) abs = p;
+  std::filesystem::path r = std::filesystem::weakly_canonical(abs, ec);
+  return (ec ? abs.lexically_normal() : r);
+}
+
+// True when `inner` is `outer` or lies inside it (component-wise).
+bool Within(const std::filesystem::path& inner, const std::filesystem::path& outer) {
+  auto i = inner.begin();
+  for (auto o = outer.begin(); o != outer.end(); ++o, ++i) {
+    if (o->empty()) continue;  // a trailing separator
+    if (i == inner.end() || *i != *o) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+Status CheckOutputClear(const std::string& out, const std::vector<ReadPath>& reads) {
+  const std::filesystem::path o = Resolved(out);
+  for (const auto& r : reads) {
+    if (r.path.empty()) continue;
+    const std::filesystem::path p = Resolved(r.path);
+    const char* how = nullptr;
+    if (p == o) {
+      how = "is";
+    } else if (Within(p, o)) {
+      how = "contains";
+    } else if (Within(o, p)) {
+      how = "lies inside";
+    }
+    if (how) {
+      return Status::Usage("the output folder " + out + " " + how + " the " + r.role + " " + r.path +
+                           "; writing there could destroy what the run reads: choose an output folder apart from "
+                           "every input");
+    }
+  }
   return Status::Ok();
 }
 

@@ -41,6 +41,19 @@ class OutputDir {
   bool committed_ = false;
 };
 
+// A file or folder that a run reads, and what it is to the run ("input",
+// "plan", "evaluation set", "rule pack", "key file", "store", ...).
+struct ReadPath {
+  std::string path;
+  std::string role;
+};
+
+// Refuses (usage error naming both paths) an output folder that is, contains,
+// or lies inside any path the run reads: writing there, or replacing it with
+// --overwrite, would destroy the run's own input. Paths are compared after
+// resolving symbolic links and "..", so "./x", "x/" and a link to x are one.
+Status CheckOutputClear(const std::string& out, const std::vector<ReadPath>& reads);
+
 // Writes `bytes` to `path` atomically (temporary name in the same folder, then
 // rename). For single files outside an OutputDir, e.g. a store export.
 Status WriteFileAtomically(FileSystem* fs, const std::string& path, std::string_view bytes);

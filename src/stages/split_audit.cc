@@ -195,6 +195,9 @@ Result<AuditOutcome> RunSplitAudit(const AuditOptions& o, FileSystem* fs) {
   }
 
   // 4. Outputs.
+  std::vector<ReadPath> reads{{o.train_path, "training file"}};
+  for (const auto& h : o.heldout_paths) reads.push_back({h, "held-out file"});
+  if (Status clear = CheckOutputClear(o.out, reads); !clear.ok()) return clear;
   auto dir = OutputDir::Begin(fs, o.out, o.overwrite);
   if (!dir.ok()) return dir.status();
   auto lines = dir.value()->Create("audit.jsonl");

@@ -944,6 +944,7 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   popts.progress = options.progress;
   popts.table = options.table;
   popts.companion = &companion;
+  popts.also_reads.push_back({path, "store"});
   // The batch row goes in from the companion's facts after the run; the
   // output folder is committed inside RunPipeline, the store right after.
   auto run = RunPipeline(plan, popts, fs, log);

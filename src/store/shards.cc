@@ -176,6 +176,9 @@ Result<MergeOutcome> MergeShards(const std::vector<std::string>& files, const st
     if (!r.ok()) return r.status();
     c = std::move(r).value();
   }
+  std::vector<ReadPath> reads;
+  for (const auto& f : files) reads.push_back({f, "shard file"});
+  if (Status clear = CheckOutputClear(out_dir, reads); !clear.ok()) return clear;
   auto out = OutputDir::Begin(fs, out_dir, overwrite);
   if (!out.ok()) return out.status();
   auto f = out.value()->Create("clusters.jsonl");

@@ -219,6 +219,7 @@ Status WriteStoreReport(const StoreReportOptions& o, FileSystem* fs) {
     if (Get(bound, k).is_object()) plan_stages[k] = bound[k];
   }
   Json sheet = BuildDatasheet(provenance, plan_stages, summary, Sha256Hex(summary_text));
+  if (Status clear = CheckOutputClear(o.out_dir, {{o.store_path, "store"}}); !clear.ok()) return clear;
   auto out = OutputDir::Begin(fs, o.out_dir, o.overwrite);
   if (!out.ok()) return out.status();
   Status s = out.value()->Write(kSummaryFile, summary_text);

@@ -25,6 +25,7 @@ class FaultFileSystem : public FileSystem {
   Status MakeDir(const std::string& path) override { return base_->MakeDir(path); }
   Status RemoveAll(const std::string& path) override { return base_->RemoveAll(path); }
   bool Exists(const std::string& path) override { return base_->Exists(path); }
+  bool IsDirectory(const std::string& path) override { return base_->IsDirectory(path); }
 
   // Atomic: the pipeline reads and writes from more than one thread (read-ahead,
   // parallel hashing of outputs).
