@@ -22,7 +22,8 @@ const std::map<std::string, Json>& Presets() {
 
 const char* kKnownKeys[] = {"preset", "id", "prompt", "turn_role", "turn_text", "candidates", "candidate_text",
                             "candidate_origin", "chosen", "rejected", "choice", "choice_base", "ranks", "order",
-                            "annotator", "thread", "source", "timestamp", "group", "metadata"};
+                            "annotator", "thread", "source", "timestamp", "group", "metadata", "rank_base",
+                            "user_roles", "system_roles"};
 
 }  // namespace
 
@@ -34,6 +35,20 @@ const char* JudgmentShapeName(JudgmentShape s) {
     case JudgmentShape::kPairwise: return "pairwise";
   }
   return "?";
+}
+
+const std::vector<std::string>& DefaultUserRoles() {
+  // The words chat exports commonly use for the person asking (our own list).
+  static const std::vector<std::string> k = {"user", "human", "customer", "client", "member", "person",
+                                             "patient", "student", "caller", "visitor", "requester", "asker",
+                                             "questioner", "prompter", "guest", "player"};
+  return k;
+}
+
+const std::vector<std::string>& DefaultSystemRoles() {
+  static const std::vector<std::string> k = {"system", "developer", "instruction", "instructions", "context",
+                                             "preamble", "system_prompt"};
+  return k;
 }
 
 std::vector<std::string> LayoutPresetNames() {
@@ -123,12 +138,31 @@ Result<Layout> LayoutFromJson(const Json& spec_in, const std::string& where) {
     if (has_ranks) { l.judgment = JudgmentShape::kRanks; l.ranking = ranks; }
     if (has_order) { l.judgment = JudgmentShape::kOrder; l.ranking = order; }
   }
-  if (spec.contains("choice_base")) {
-    const auto& b = spec["choice_base"];
+  l.id_required = l.has_id && spec_in.contains("id") && !spec_in["id"].is_null();
+  for (const char* key : {"choice_base", "rank_base"}) {
+    if (!spec.contains(key)) continue;
+    const auto& b = spec[key];
     if (!b.is_number_integer() || (b.get<int>() != 0 && b.get<int>() != 1)) {
-      return Status::Usage(where + ".choice_base: must be 0 or 1");
+      return Status::Usage(where + "." + key + ": must be 0 or 1");
     }
-    l.choice_base = b.get<int>();
+    (std::string(key) == "choice_base" ? l.choice_base : l.rank_base) = b.get<int>();
+    l.base_given = true;
+  }
+  l.user_roles = DefaultUserRoles();
+  l.system_roles = DefaultSystemRoles();
+  for (auto [key, out] : {std::pair{"user_roles", &l.user_roles}, std::pair{"system_roles", &l.system_roles}}) {
+    if (!spec.contains(key)) continue;
+    const auto& v = spec[key];
+    if (!v.is_array() || v.empty()) return Status::Usage(where + "." + key + ": must be a non-empty array of role names");
+    out->clear();
+    for (const auto& r : v) {
+      if (!r.is_string() || r.get<std::string>().empty()) {
+        return Status::Usage(where + "." + key + ": every entry must be a non-empty string");
+      }
+      std::string lower = r.get<std::string>();
+      for (auto& c : lower) c = static_cast<char>(c >= 'A' && c <= 'Z' ? c - 'A' + 'a' : c);
+      out->push_back(lower);
+    }
   }
   return l;
 }
@@ -152,9 +186,11 @@ void LayoutToJson(const Layout& l, Json* out) {
     put("candidate_origin", l.candidate_origin, l.has_candidate_origin);
     if (l.judgment == JudgmentShape::kChoice) {
       j["choice"] = l.choice.text;
-      j["choice_base"] = l.choice_base;
+      if (l.base_given) j["choice_base"] = l.choice_base;
     } else {
       j[l.judgment == JudgmentShape::kRanks ? "ranks" : "order"] = l.ranking.text;
+      if (l.base_given) j[l.judgment == JudgmentShape::kRanks ? "rank_base" : "choice_base"] =
+          l.judgment == JudgmentShape::kRanks ? l.rank_base : l.choice_base;
     }
   }
   put("annotator", l.annotator, l.has_annotator);
@@ -163,6 +199,8 @@ void LayoutToJson(const Layout& l, Json* out) {
   put("timestamp", l.timestamp, l.has_timestamp);
   put("group", l.group, l.has_group);
   put("metadata", l.metadata, l.has_metadata);
+  if (l.user_roles != DefaultUserRoles()) j["user_roles"] = l.user_roles;
+  if (l.system_roles != DefaultSystemRoles()) j["system_roles"] = l.system_roles;
   *out = std::move(j);
 }
 

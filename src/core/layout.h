@@ -37,14 +37,24 @@ struct Layout {
   JsonPointer rejected;           // pairwise: the rejected text
   JudgmentShape judgment = JudgmentShape::kChoice;
   JsonPointer choice;             // kChoice
-  int choice_base = 0;            // 0 or 1
+  int choice_base = 0;            // 0 or 1: the number of the first candidate (choice and order)
+  int rank_base = 1;              // 0 or 1: the rank of the best candidate (ranks)
+  bool base_given = false;        // the layout states choice_base / rank_base (else the data is checked)
   JsonPointer ranking;            // kRanks or kOrder
   JsonPointer annotator, thread, source, timestamp, group, metadata;  // optional
+  // Chat roles, compared without regard to ASCII case: the user's turns are the
+  // prompt that matching uses; system turns are left out of it.
+  std::vector<std::string> user_roles, system_roles;
 
   bool has_id = false, has_candidate_origin = false;
+  bool id_required = false;       // the id pointer was named by the user (a preset's id is optional)
   bool has_annotator = false, has_thread = false, has_source = false, has_timestamp = false, has_group = false,
        has_metadata = false;
 };
+
+// The default role words (docs/layouts.md, "Chat prompts").
+const std::vector<std::string>& DefaultUserRoles();
+const std::vector<std::string>& DefaultSystemRoles();
 
 // Names of the built-in presets, for --help and errors.
 std::vector<std::string> LayoutPresetNames();

@@ -9,17 +9,26 @@ std::string Record::UserPromptText() const {
   std::string out;
   bool any_user = false;
   for (const auto& t : turns) {
-    if (t.role == "user" || t.role == "human") {
+    if (t.kind == TurnKind::kUser) {
       if (any_user) out.push_back('\n');
       out += t.text;
       any_user = true;
     }
   }
-  if (!any_user) {
-    for (size_t i = 0; i < turns.size(); ++i) {
-      if (i) out.push_back('\n');
-      out += turns[i].text;
-    }
+  if (any_user) return out;
+  // No turn has a user role: every turn but the system ones, and every turn
+  // when that leaves nothing.
+  bool any = false;
+  for (const auto& t : turns) {
+    if (t.kind == TurnKind::kSystem) continue;
+    if (any) out.push_back('\n');
+    out += t.text;
+    any = true;
+  }
+  if (any) return out;
+  for (size_t i = 0; i < turns.size(); ++i) {
+    if (i) out.push_back('\n');
+    out += turns[i].text;
   }
   return out;
 }

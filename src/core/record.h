@@ -5,6 +5,7 @@
 // need not care which shape the user's file had.
 #pragma once
 
+#include <cstdint>
 #include <optional>
 #include <string>
 #include <vector>
@@ -13,9 +14,14 @@
 
 namespace prefsift {
 
+// What a chat turn's role says about it (the layout's user_roles and
+// system_roles decide; any other role, e.g. an earlier assistant turn, is kOther).
+enum class TurnKind : uint8_t { kOther, kUser, kSystem };
+
 struct Turn {
   std::string role;
   std::string text;
+  TurnKind kind = TurnKind::kOther;
 };
 
 // One string value found under the layout's metadata pointer.

@@ -107,7 +107,20 @@ struct RecordReader::Impl {
   Layout layout;
   InputLimits limits;
   simdjson::dom::parser parser;
+  BaseEvidence evidence;
 };
+
+const BaseEvidence& RecordReader::base_evidence() const { return impl_->evidence; }
+
+namespace {
+
+bool RoleIn(const std::string& role, const std::vector<std::string>& names) {
+  std::string lower = role;
+  for (auto& c : lower) c = static_cast<char>(c >= 'A' && c <= 'Z' ? c - 'A' + 'a' : c);
+  return std::find(names.begin(), names.end(), lower) != names.end();
+}
+
+}  // namespace
 
 RecordReader::RecordReader(const Layout& layout, const InputLimits& limits) : impl_(new Impl) {
   impl_->layout = layout;
@@ -204,9 +217,12 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
 
   Record r;
   // id
-  if (L.has_id) {
-    element e;
-    if (!get(root, "", L.id, true, &e, nullptr)) return false;
+  element id_e;
+  bool id_present = false;
+  if (L.has_id && !get(root, "", L.id, L.id_required, &id_e, &id_present)) return false;
+  if (L.has_id && id_present && (L.id_required || id_e.type() != element_type::NULL_VALUE)) {
+    // A preset's id pointer is optional: a record without it gets the default id.
+    element e = id_e;
     if (e.type() == element_type::STRING) {
       r.id = std::string(e.get_string().value_unsafe());
     } else if (e.type() == element_type::INT64) {
@@ -244,6 +260,9 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
         if (!text_of(role, Join(base, L.turn_role), &t.role)) return false;
         if (!get(turn, base, L.turn_text, true, &text, nullptr)) return false;
         if (!text_of(text, Join(base, L.turn_text), &t.text)) return false;
+        t.kind = RoleIn(t.role, L.user_roles) ? TurnKind::kUser
+                 : RoleIn(t.role, L.system_roles) ? TurnKind::kSystem
+                                                  : TurnKind::kOther;
         if (!r.prompt.empty()) r.prompt.push_back('\n');
         r.prompt += t.role + ": " + t.text;
         r.turns.push_back(std::move(t));
@@ -317,6 +336,9 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
         return fail("wrong_type", L.choice.text, "the choice at " + L.choice.text + " is " + TypeName(e.type()) +
                                                      ", not an integer");
       }
+      ++impl_->evidence.judgments;
+      if (v == 0) ++impl_->evidence.first_slot;
+      if (v == static_cast<long long>(b)) ++impl_->evidence.past_last;
       long long idx = v - L.choice_base;
       if (idx < 0 || idx >= static_cast<long long>(b)) {
         return fail("choice_out_of_range", L.choice.text,
@@ -350,14 +372,28 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
         return fail("bad_ranking", L.ranking.text, "the ranking has " + std::to_string(vals.size()) +
                                                        " entries for " + std::to_string(b) + " candidates");
       }
+      ++impl_->evidence.judgments;
+      if (!vals.empty()) {
+        const long long lo = *std::min_element(vals.begin(), vals.end());
+        const long long hi = *std::max_element(vals.begin(), vals.end());
+        if (L.judgment == JudgmentShape::kOrder) {
+          if (lo == 0) ++impl_->evidence.first_slot;
+          if (hi == static_cast<long long>(b)) ++impl_->evidence.past_last;
+        } else {
+          if (lo == 0) ++impl_->evidence.best_rank_0;
+          if (lo == 1) ++impl_->evidence.best_rank_1;
+        }
+      }
       if (L.judgment == JudgmentShape::kOrder) {
         std::vector<char> seen(b, 0);
         r.ranks.assign(b, 0);
         for (size_t pos = 0; pos < b; ++pos) {
-          long long c = vals[pos];
+          long long c = vals[pos] - L.choice_base;
           if (c < 0 || c >= static_cast<long long>(b) || seen[c]) {
-            return fail("bad_ranking", L.ranking.text, "an order must list each candidate index 0.." +
-                                                           std::to_string(b - 1) + " exactly once");
+            return fail("bad_ranking", L.ranking.text,
+                        "an order must list each candidate index " + std::to_string(L.choice_base) + ".." +
+                            std::to_string(static_cast<long long>(b) - 1 + L.choice_base) +
+                            " exactly once (choice_base " + std::to_string(L.choice_base) + ")");
           }
           seen[c] = 1;
           r.ranks[c] = static_cast<int>(pos) + 1;
@@ -366,6 +402,9 @@ bool RecordReader::Read(std::string_view line, const std::string& default_id, Re
         // Ranks: 1 = best. Accepted: dense ranks (1,1,2) and standard
         // competition ranks (1,1,3); anything else (no 1, zero, negative, gaps
         // not explained by ties) is not a ranking.
+        if (L.rank_base == 0) {
+          for (auto& v : vals) ++v;  // 0 = best: shift to 1 = best
+        }
         std::vector<long long> sorted(vals);
         std::sort(sorted.begin(), sorted.end());
         bool dense = sorted[0] == 1, competition = sorted[0] == 1;

@@ -408,6 +408,11 @@ std::string DefaultRulesDir() {
     if (d == d.parent_path()) break;
     d = d.parent_path();
   }
+#ifdef PREFSIFT_SOURCE_RULES_DIR
+  // Last: the source tree's rules folder, recorded at build time, so a binary
+  // built outside the checkout (cmake -B /elsewhere) still finds the packs.
+  if (HasJsonFile(PREFSIFT_SOURCE_RULES_DIR)) return PREFSIFT_SOURCE_RULES_DIR;
+#endif
   return "";
 }
 
