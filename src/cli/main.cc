@@ -1,9 +1,6 @@
 // prefsift command line. The only place that knows CLI11 and exit codes.
 //
-// Exit codes (docs/cli.md):
-//   0 success   1 internal or output error   2 usage error (command line,
-//   plan, rule file)   3 input error (unreadable input)   4 the gate failed
-//   5 --strict and at least one record was rejected
+// Exit codes: cli/exit_codes.h and docs/cli.md.
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
@@ -13,9 +10,11 @@
 #include <iostream>
 #include <tuple>
 
+#include "cli/exit_codes.h"
 #include "core/limits.h"
 #include "core/plan.h"
 #include "io/file_system.h"
+#include "io/signal_cleanup.h"
 #include "prefsift_version.h"
 #include "stages/pipeline.h"
 #include "stages/split_audit.h"
@@ -29,19 +28,6 @@ namespace {
 
 using Json = nlohmann::ordered_json;
 
-enum ExitCode { kExitOk = 0, kExitInternal = 1, kExitUsage = 2, kExitInput = 3, kExitGate = 4, kExitStrict = 5 };
-
-int ExitFor(const Status& s) {
-  switch (s.code()) {
-    case StatusCode::kOk: return kExitOk;
-    case StatusCode::kUsage: return kExitUsage;
-    case StatusCode::kInput: return kExitInput;
-    case StatusCode::kLimit: return kExitInput;
-    case StatusCode::kIo:
-    case StatusCode::kInternal: return kExitInternal;
-  }
-  return kExitInternal;
-}
 
 // Options every record-reading subcommand shares.
 struct CommonOptions {
@@ -58,6 +44,7 @@ struct CommonOptions {
   long long seed = -1;
   // Input limits (docs/hardening.md); 0 = the plan's value or the default.
   size_t max_line_bytes = 0, max_depth = 0, max_candidates = 0, max_text_bytes = 0;
+  double max_reject_share = 0;
 };
 
 void AddCommon(CLI::App* cmd, CommonOptions* o) {
@@ -80,6 +67,8 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   lim->add_option("--max-depth", o->max_depth, "Deepest JSON nesting (default 128, at most 1024)");
   lim->add_option("--max-candidates", o->max_candidates, "Most candidates per record (default 256)");
   lim->add_option("--max-text-bytes", o->max_text_bytes, "Longest prompt, turn or candidate text in bytes (default 4 MiB)");
+  lim->add_option("--max-reject-share", o->max_reject_share,
+                  "Stop (exit 8) when one ingest reason rejects more than this share of a file (default 0.5; 1 = never)");
 }
 
 Result<Plan> BuildPlan(const CommonOptions& o) {
@@ -98,9 +87,19 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
         return Status::Usage("--field " + f + ": expected KEY=POINTER, e.g. prompt=/question");
       }
       std::string key = f.substr(0, eq), value = f.substr(eq + 1);
-      if (key == "choice_base") {
-        if (value != "0" && value != "1") return Status::Usage("--field choice_base=" + value + ": must be 0 or 1");
+      if (key == "choice_base" || key == "rank_base") {
+        if (value != "0" && value != "1") return Status::Usage("--field " + key + "=" + value + ": must be 0 or 1");
         spec[key] = std::stoi(value);
+      } else if (key == "user_roles" || key == "system_roles") {
+        Json roles = Json::array();  // comma-separated on the command line
+        size_t start = 0;
+        while (start <= value.size()) {
+          size_t comma = value.find(',', start);
+          if (comma == std::string::npos) comma = value.size();
+          if (comma > start) roles.push_back(value.substr(start, comma - start));
+          start = comma + 1;
+        }
+        spec[key] = roles;
       } else {
         spec[key] = value;
       }
@@ -128,6 +127,10 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
     Status s = LimitsFromJson(Json{{key, v}}, "limits", &plan.limits);
     if (!s.ok()) return Status::Usage(std::string(flag) + ": " + s.message());
   }
+  if (o.max_reject_share != 0) {
+    Status s = LimitsFromJson(Json{{"max_reject_share", o.max_reject_share}}, "limits", &plan.limits);
+    if (!s.ok()) return Status::Usage(std::string("--max-reject-share: ") + s.message());
+  }
   return plan;
 }
 
@@ -148,6 +151,14 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages) {
     return ExitFor(outcome.status());
   }
   if (!o.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
+  if (outcome.value().nothing_kept()) {
+    std::fprintf(stderr,
+                 "prefsift: every one of the %llu records was rejected, so nothing is left to train on; rejects.jsonl "
+                 "in %s says why (exit %d)\n",
+                 static_cast<unsigned long long>(outcome.value().entries), plan.value().output.c_str(),
+                 kExitNothingKept);
+    return kExitNothingKept;
+  }
   if (outcome.value().gate_failed) return kExitGate;
   if (plan.value().strict && outcome.value().rejected > 0) {
     std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
@@ -211,6 +222,7 @@ int main(int argc, char** argv) {
 
 int prefsift::Main(int argc, char** argv) {
   using namespace prefsift;  // NOLINT: main only
+  RemovePartialOutputsOnSignal();  // before any thread starts
   CLI::App app{
       "prefsift: gate a human-preference dataset before reward-model training.\n"
       "Every input record ends in exactly one output: a kept file or rejects.jsonl, with a reason.\n"

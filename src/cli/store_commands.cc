@@ -12,6 +12,7 @@
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "store/add_batch.h"
+#include "cli/exit_codes.h"
 #include "store/history.h"
 #include "store/shards.h"
 #include "store/store_report.h"
@@ -19,19 +20,9 @@
 namespace prefsift {
 namespace {
 
-int ExitOf(const Status& s) {
-  switch (s.code()) {
-    case StatusCode::kOk: return 0;
-    case StatusCode::kUsage: return 2;
-    case StatusCode::kInput:
-    case StatusCode::kLimit: return 3;
-    default: return 1;
-  }
-}
-
 int Fail(const Status& s) {
   std::fprintf(stderr, "prefsift: %s\n", s.message().c_str());
-  return ExitOf(s);
+  return ExitFor(s);
 }
 
 std::string Stem(const std::string& path) {
@@ -191,7 +182,7 @@ class Commands : public StoreCommands {
     if (r.value().gate_failed) {
       std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
                    plan.value().output.c_str());
-      return 4;
+      return kExitGate;
     }
     if (!add_args_.quiet) {
       std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(r.value().batch),

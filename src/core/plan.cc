@@ -49,6 +49,13 @@ size_t Depth(const Json& root) {
 Status LimitsFromJson(const Json& j, const std::string& where, InputLimits* lim) {
   if (!j.is_object()) return Status::Usage(where + ": must be an object");
   for (auto it = j.begin(); it != j.end(); ++it) {
+    if (it.key() == "max_reject_share") {
+      if (!it.value().is_number() || it.value().get<double>() <= 0 || it.value().get<double>() > 1) {
+        return Status::Usage(where + ".max_reject_share: must be a number above 0 and at most 1 (1 = never stop)");
+      }
+      lim->max_reject_share = it.value().get<double>();
+      continue;
+    }
     size_t* target = nullptr;
     if (it.key() == "max_line_bytes") target = &lim->max_line_bytes;
     else if (it.key() == "max_depth") target = &lim->max_depth;
@@ -165,7 +172,10 @@ Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std:
     plan.stages = j["stages"];
   }
   if (j.contains("provenance")) plan.provenance = j["provenance"];
-  if (j.contains("gate")) plan.gate = j["gate"];
+  if (j.contains("gate")) {
+    plan.gate = j["gate"];
+    plan.gate_given = true;
+  }
   return plan;
 }
 

@@ -35,6 +35,7 @@ struct Plan {
   nlohmann::ordered_json stages = nlohmann::ordered_json::object();  // per-stage settings by stage name
   nlohmann::ordered_json provenance = nlohmann::ordered_json::object();
   nlohmann::ordered_json gate = nlohmann::ordered_json::object();
+  bool gate_given = false;       // the plan has a "gate" section (else the default gate applies, docs/gate.md)
   std::string plan_path;         // "" when built from the command line only
   std::string plan_digest;       // SHA-256 of the plan file bytes, hex ("" without a file)
 };

@@ -19,6 +19,8 @@ enum class StatusCode {
   kIo,         // writing an output failed (disk full, permission)
   kLimit,      // a configured limit was exceeded and the user asked to stop
   kInternal,   // a bug or resource failure (e.g. regex engine out of memory)
+  kEmptyInput,   // an input file holds no record at all
+  kLayoutSuspect,  // one ingest reason rejects most of a file: almost always a layout mistake
 };
 
 class Status {
@@ -30,6 +32,8 @@ class Status {
   static Status Io(std::string m) { return Status(StatusCode::kIo, std::move(m)); }
   static Status Limit(std::string m) { return Status(StatusCode::kLimit, std::move(m)); }
   static Status Internal(std::string m) { return Status(StatusCode::kInternal, std::move(m)); }
+  static Status EmptyInput(std::string m) { return Status(StatusCode::kEmptyInput, std::move(m)); }
+  static Status LayoutSuspect(std::string m) { return Status(StatusCode::kLayoutSuspect, std::move(m)); }
 
   bool ok() const { return code_ == StatusCode::kOk; }
   StatusCode code() const { return code_; }

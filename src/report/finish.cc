@@ -137,11 +137,14 @@ Status ValidateFinishPlan(const Plan& plan) {
   return ValidateProvenance(plan.provenance);
 }
 
-Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, bool* gate_failed) {
+Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, bool* gate_failed,
+                     const std::vector<std::string>& command_stages) {
   GateExtras extras;
   extras.remaining_personal_data = RemainingFindings(fs, out, *summary);
   bool failed = false;
-  (*summary)["gate"] = EvaluateGate(plan.gate, *summary, extras, &failed);
+  const bool defaulted = !plan.gate_given && plan.gate.empty();  // a plan built in code may set plan.gate
+  (*summary)["gate"] = EvaluateGate(defaulted ? DefaultGate() : plan.gate, *summary, extras, &failed, defaulted,
+                                   &command_stages);
   *gate_failed = failed;
 
   Json p;

@@ -23,8 +23,9 @@ Status ValidateFinishPlan(const Plan& plan);
 // Adds "gate" and "provenance" to the summary; *gate_failed is set when a gate
 // check fails. Hashes every input file and every file already in `out`.
 // REQUIRES: every output file except summary.json is written and closed.
+// `command_stages`: the stages the command runs (gate checks of others are skipped).
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
-                     bool* gate_failed);
+                     bool* gate_failed, const std::vector<std::string>& command_stages);
 
 // The provenance time: SOURCE_DATE_EPOCH as UTC text when set, otherwise
 // "time not recorded" (so outputs stay byte-identical). {"utc", "source"}.

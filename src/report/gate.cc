@@ -5,6 +5,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 
@@ -18,17 +19,26 @@ struct CheckSpec {
   const char* key;
   bool at_most;  // value <= threshold passes (else value >= threshold)
   const char* what;
+  const char* stage;  // the stage that gives its figure ("" = the pipeline itself)
 };
 
 const CheckSpec kChecks[] = {
-    {"min_kept_share", false, "share of input records kept"},
-    {"max_label_conflict_rate", true, "share of parsed records in label conflicts (stage exact)"},
-    {"max_leakage_rate", true, "share of records leaking an evaluation set and still kept (stage leakage)"},
-    {"max_personal_data_findings", true, "personal-data findings left in kept records with no action (stage screen)"},
-    {"min_position_p_adjusted", false, "smallest adjusted p of the chosen-slot tests (stage bias)"},
-    {"max_shortcut_accuracy", true, "held-out accuracy of the surface-feature shortcut audit (stage bias)"},
-    {"require_split_checks", false, "split checks passed (stage split)"},
+    {"min_kept_share", false, "share of input records kept", ""},
+    {"max_label_conflict_rate", true, "share of parsed records in label conflicts (stage exact)", "exact"},
+    {"max_leakage_rate", true, "share of records leaking an evaluation set and still kept (stage leakage)", "leakage"},
+    {"max_personal_data_findings", true, "personal-data findings left in kept records with no action (stage screen)",
+     "screen"},
+    {"min_position_p_adjusted", false, "smallest adjusted p of the chosen-slot tests (stage bias)", "bias"},
+    {"max_shortcut_accuracy", true, "held-out accuracy of the surface-feature shortcut audit (stage bias)", "bias"},
+    {"require_split_checks", false, "split checks passed (stage split)", "split"},
 };
+
+const char* StageOfCheck(const std::string& key) {
+  for (const auto& c : kChecks) {
+    if (key == c.key) return c.stage;
+  }
+  return "";
+}
 
 const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
@@ -65,6 +75,13 @@ Status ValidateGate(const Json& gate) {
   for (auto it = gate.begin(); it != gate.end(); ++it) {
     const std::string& k = it.key();
     if (k == "$comment") continue;
+    if (k == "on_incomplete") {
+      if (!it.value().is_string() || (it.value() != "fail" && it.value() != "pass")) {
+        return Status::Usage("gate.on_incomplete: must be \"fail\" (the default: a check that could not be "
+                             "evaluated fails the run) or \"pass\"");
+      }
+      continue;
+    }
     const CheckSpec* spec = nullptr;
     for (const auto& c : kChecks) {
       if (k == c.key) spec = &c;
@@ -72,7 +89,7 @@ Status ValidateGate(const Json& gate) {
     if (!spec) {
       std::string known;
       for (const auto& c : kChecks) known += std::string(known.empty() ? "" : ", ") + c.key;
-      return Status::Usage("gate." + k + ": unknown check (known: " + known + ")");
+      return Status::Usage("gate." + k + ": unknown check (known: " + known + ", and on_incomplete)");
     }
     const Json& v = it.value();
     if (k == "require_split_checks") {
@@ -95,7 +112,18 @@ Status ValidateGate(const Json& gate) {
   return Status::Ok();
 }
 
-Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extras, bool* failed) {
+const Json& DefaultGate() {
+  // Small on purpose: what any reviewer wants whatever the data. Bias
+  // thresholds depend on the data and are left to the plan.
+  static const Json k = {{"min_kept_share", 0.5},
+                         {"max_leakage_rate", 0.0},
+                         {"max_personal_data_findings", 0},
+                         {"require_split_checks", true}};
+  return k;
+}
+
+Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extras, bool* failed, bool defaulted,
+                  const std::vector<std::string>* command_stages) {
   Json checks = Json::array();
   for (const auto& spec : kChecks) {
     if (!gate.contains(spec.key)) continue;
@@ -181,6 +209,35 @@ Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extra
                                thr, spec.at_most, passed ? "" : "stage split did not run"));
     }
   }
+  Json skipped = Json::array();
+  if (command_stages) {
+    // A command that runs some stages only (e.g. `prefsift screen`) skips the
+    // checks of the others: nobody asked this command for them.
+    Json kept = Json::array();
+    for (auto& c : checks) {
+      const std::string stage = StageOfCheck(c["check"].get<std::string>());
+      if (!stage.empty() &&
+          std::find(command_stages->begin(), command_stages->end(), stage) == command_stages->end()) {
+        skipped.push_back(Json{{"check", c["check"]}, {"reason", "this command does not run stage " + stage}});
+      } else {
+        kept.push_back(std::move(c));
+      }
+    }
+    checks = std::move(kept);
+  }
+  if (defaulted) {
+    // A default check whose stage did not run (or has nothing to check) is
+    // skipped, not "not evaluated": the user never asked for it.
+    Json kept = Json::array();
+    for (auto& c : checks) {
+      if (c["verdict"] == "not evaluated") {
+        skipped.push_back(Json{{"check", c["check"]}, {"reason", c["reason"]}});
+      } else {
+        kept.push_back(std::move(c));
+      }
+    }
+    checks = std::move(kept);
+  }
   uint64_t pass = 0, fail = 0, not_eval = 0;
   for (const auto& c : checks) {
     const std::string v = c["verdict"].get<std::string>();
@@ -188,15 +245,25 @@ Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extra
     else if (v == "fail") ++fail;
     else ++not_eval;
   }
-  *failed = fail > 0;
+  const bool incomplete_passes = gate.contains("on_incomplete") && gate["on_incomplete"] == "pass";
+  *failed = fail > 0 || (not_eval > 0 && !incomplete_passes);
   Json g;
   g["verdict"] = fail ? "fail" : not_eval ? "incomplete" : pass ? "pass" : "no checks";
+  g["fails_the_run"] = *failed;
+  if (defaulted) g["default_gate"] = true;
+  g["on_incomplete"] = incomplete_passes ? "pass" : "fail";
   g["passed"] = pass;
   g["failed"] = fail;
   g["not_evaluated"] = not_eval;
-  g["note"] = checks.empty() ? "the plan sets no gate checks"
-                             : "a check whose stage did not run is \"not evaluated\", which is not a pass";
+  g["note"] = checks.empty() && !defaulted ? "the plan sets no gate checks"
+              : defaulted ? "the plan has no \"gate\" section, so the default gate applies (docs/gate.md); checks "
+                            "whose stage did not run are skipped"
+              : incomplete_passes
+                  ? "a check whose stage did not run is \"not evaluated\"; the plan lets an incomplete gate pass"
+                  : "a check whose stage did not run is \"not evaluated\", which is not a pass: an incomplete gate "
+                    "fails the run unless gate.on_incomplete is \"pass\"";
   g["checks"] = std::move(checks);
+  if (!skipped.empty() || defaulted) g["skipped"] = std::move(skipped);
   return g;
 }
 

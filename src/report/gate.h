@@ -5,7 +5,9 @@
 // "not evaluated" (its stage did not run or gave no figure; not a pass).
 // The overall verdict is "fail" when any check fails, else "incomplete" when
 // a check was not evaluated, else "pass" ("no checks" for an empty gate).
-// Only "fail" fails the run (exit code 4).
+// "fail" fails the run (exit code 4), and so does "incomplete" unless the plan
+// sets gate.on_incomplete to "pass". A plan without a "gate" section gets the
+// default gate (DefaultGate); its checks whose stage did not run are skipped.
 // Thread-safety: pure functions.
 #pragma once
 
@@ -28,9 +30,17 @@ struct GateExtras {
   long long remaining_personal_data = -1;
 };
 
+// The checks a plan without a "gate" section gets (docs/gate.md, "Default gate").
+const nlohmann::ordered_json& DefaultGate();
+
 // Evaluates the gate; returns the "gate" section. `*failed` is set when any
-// check fails. REQUIRES: ValidateGate(gate).ok().
+// check fails, or when one was not evaluated and on_incomplete is "fail".
+// `defaulted`: the gate is DefaultGate() because the plan has none.
+// `command_stages`: the stages the command runs (null = all); a check of a
+// stage the command does not run is skipped, not "not evaluated".
+// REQUIRES: ValidateGate(gate).ok().
 nlohmann::ordered_json EvaluateGate(const nlohmann::ordered_json& gate, const nlohmann::ordered_json& summary,
-                                    const GateExtras& extras, bool* failed);
+                                    const GateExtras& extras, bool* failed, bool defaulted = false,
+                                    const std::vector<std::string>* command_stages = nullptr);
 
 }  // namespace prefsift

@@ -101,7 +101,14 @@ void PrintLedgerTable(const Json& s, std::FILE* out) {
   // The gate's verdict and every check that did not pass, so exit code 4 explains itself.
   if (s.contains("gate") && s["gate"].is_object() && s["gate"].contains("verdict")) {
     const Json& g = s["gate"];
-    std::fprintf(out, "gate: %s\n", g["verdict"].is_string() ? g["verdict"].get<std::string>().c_str() : "?");
+    std::string verdict = g["verdict"].is_string() ? g["verdict"].get<std::string>() : "?";
+    if (g.value("default_gate", false)) verdict += " (default gate: the plan has none; docs/gate.md)";
+    if (verdict.rfind("incomplete", 0) == 0) {
+      verdict += g.value("fails_the_run", false) ? " - fails the run (a check could not be evaluated; "
+                                                   "gate.on_incomplete: \"pass\" accepts this)"
+                                                 : " - passes (gate.on_incomplete is \"pass\")";
+    }
+    std::fprintf(out, "gate: %s\n", verdict.c_str());
     if (g.contains("checks") && g["checks"].is_array()) {
       for (const auto& c : g["checks"]) {
         std::string verdict = c.value("verdict", "");

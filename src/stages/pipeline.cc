@@ -19,6 +19,7 @@
 #include "report/finish.h"
 #include "report/summary.h"
 #include "stages/facts.h"
+#include "stages/personal_data.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -180,6 +181,77 @@ void ReserveForInputs(const Plan& plan, const RawChunk& first, RunState& st,
   for (auto& s : stages) s->Reserve(expected);
 }
 
+// The first reject of one ingest reason in one file, and how many there were.
+struct IngestTally {
+  uint64_t count = 0;
+  std::string field;
+  uint64_t first_line = 0;
+  std::string first_keys;  // top-level keys of the first rejected line, or a note
+};
+
+std::string KeysOf(std::string_view line) {
+  Json j = Json::parse(line, nullptr, /*allow_exceptions=*/false);
+  if (j.is_discarded()) return "(the line is not JSON)";
+  if (!j.is_object()) return std::string("(the line is a JSON ") + j.type_name() + ", not an object)";
+  std::string keys;
+  size_t n = 0;
+  for (auto it = j.begin(); it != j.end(); ++it) {
+    if (++n > 20) {
+      keys += ", ...";
+      break;
+    }
+    keys += (keys.empty() ? "" : ", ") + Json(it.key()).dump(-1, ' ', false, Json::error_handler_t::replace);
+  }
+  return keys.empty() ? "(an empty object)" : keys;
+}
+
+// Stops a run whose layout is almost certainly wrong for a file, before
+// anything is decided or written (docs/cli.md, exit codes 2, 7 and 8).
+Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStats& stats,
+                        const std::map<std::string, IngestTally>& tallies, const BaseEvidence& ev) {
+  if (stats.entries == 0) {
+    return Status::EmptyInput(spec.path + (stats.lines == 0 ? std::string(": the file is empty")
+                                                            : ": the file's " + std::to_string(stats.lines) +
+                                                                  " line(s) are all blank") +
+                              "; there is nothing to check. Is it the right file? Nothing was written.");
+  }
+  const Layout& L = spec.layout;
+  if (!L.base_given && L.judgment != JudgmentShape::kPairwise) {
+    const std::string where = spec.path + ": " + std::to_string(ev.judgments) + " judgment(s) read";
+    if ((L.judgment == JudgmentShape::kChoice || L.judgment == JudgmentShape::kOrder) && ev.first_slot == 0 &&
+        ev.past_last > 0) {
+      return Status::Usage(
+          where + ", none names candidate 0 and " + std::to_string(ev.past_last) +
+          " name candidate B (one past the last when counting from 0): the " +
+          (L.judgment == JudgmentShape::kChoice ? "choices" : "orders") +
+          " look 1-based. prefsift does not guess: set the layout's \"choice_base\" to 1 (command line: --field "
+          "choice_base=1), or to 0 to count from 0 and reject those records (docs/layouts.md)");
+    }
+    if (L.judgment == JudgmentShape::kRanks && ev.best_rank_1 == 0 && ev.best_rank_0 > 0) {
+      return Status::Usage(where + ", " + std::to_string(ev.best_rank_0) +
+                           " ranking(s) have 0 as the best rank and none has 1: the ranks look 0-based. prefsift "
+                           "does not guess: set the layout's \"rank_base\" to 0 (command line: --field rank_base=0), "
+                           "or to 1 to reject those records (docs/layouts.md)");
+    }
+  }
+  for (const auto& [reason, t] : tallies) {
+    const double share = static_cast<double>(t.count) / static_cast<double>(stats.entries);
+    if (share <= plan.limits.max_reject_share) continue;
+    char pct[32];
+    std::snprintf(pct, sizeof pct, "%.1f%%", 100.0 * share);
+    std::string msg = spec.path + ": " + reason + " rejects " + std::to_string(t.count) + " of " +
+                      std::to_string(stats.entries) + " records (" + pct + ", more than limits.max_reject_share = " +
+                      std::to_string(plan.limits.max_reject_share).substr(0, 4) + ")";
+    if (!t.field.empty()) msg += " at the pointer " + t.field;
+    msg += ". This is almost always a layout mistake (or a limit set too low). The first such line (line " + std::to_string(t.first_line) +
+           ") has the keys: " + t.first_keys +
+           ". Check the layout's pointers (prefsift layouts; docs/layouts.md), or raise limits.max_reject_share "
+           "(--max-reject-share) if the file really is this broken. Nothing was written.";
+    return Status::LayoutSuspect(msg);
+  }
+  return Status::Ok();
+}
+
 Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
                ThreadPool& pool, Progress& progress) {
   st.inputs.resize(plan.inputs.size());
@@ -191,6 +263,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     if (!opened.ok()) return opened.status();
     LineReader& reader = *opened.value();
     stats.compression = CompressionName(reader.compression());
+    std::map<std::string, IngestTally> tallies;
     std::vector<std::unique_ptr<RecordReader>> parsers;
     for (unsigned t = 0; t < pool.size(); ++t) {
       parsers.push_back(std::make_unique<RecordReader>(spec.layout, plan.limits));
@@ -242,6 +315,14 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         } else if (!p.ok) {
           st.RejectEntry(entry_index, "ingest", p.why.code, p.why.field, p.why.message, p.why.id);
         }
+        if (!p.ok) {
+          IngestTally& t = tallies[p.too_long ? std::string("line_too_long") : p.why.code];
+          if (t.count++ == 0) {
+            t.field = p.too_long ? "" : p.why.field;
+            t.first_line = p.line;
+            t.first_keys = p.too_long ? "(not read: too long)" : KeysOf(raw.texts[i]);
+          }
+        }
       }
       if (in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
@@ -252,6 +333,9 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       progress.Tick("reading " + spec.name, stats.lines, raw.bytes_read);
       if (eof) break;
     }
+    BaseEvidence evidence;
+    for (const auto& r : parsers) evidence.Add(r->base_evidence());
+    if (Status s = CheckInputSanity(plan, spec, stats, tallies, evidence); !s.ok()) return s;
   }
   return Status::Ok();
 }
@@ -431,7 +515,35 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
   return Status::Ok();
 }
 
+// Collects path-valued settings wherever they sit in a stage's section.
+void CollectSettingPaths(const Json& j, const std::string& key, const std::string& base, const std::string& stage,
+                         std::vector<ReadPath>* out) {
+  if (j.is_object()) {
+    for (auto it = j.begin(); it != j.end(); ++it) CollectSettingPaths(it.value(), it.key(), base, stage, out);
+  } else if (j.is_array()) {
+    for (const auto& v : j) CollectSettingPaths(v, key, base, stage, out);
+  } else if (j.is_string()) {
+    const std::string v = j.get<std::string>();
+    const bool pathish = key == "path" || key == "key_file" || key == "previous" || key == "rules_dir" ||
+                         (key == "packs" && (v.find('/') != std::string::npos ||
+                                             (v.size() > 5 && v.compare(v.size() - 5, 5, ".json") == 0)));
+    if (pathish && !v.empty()) out->push_back({ResolvePlanPath(base, v), "file named by stages." + stage + "." + key});
+  }
+}
+
 }  // namespace
+
+std::vector<ReadPath> PathsReadBy(const Plan& plan) {
+  std::vector<ReadPath> reads;
+  if (!plan.plan_path.empty()) reads.push_back({plan.plan_path, "plan"});
+  for (const auto& in : plan.inputs) reads.push_back({in.path, "input"});
+  const std::string base =
+      plan.plan_path.empty() ? "" : std::filesystem::path(plan.plan_path).parent_path().string();
+  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
+    CollectSettingPaths(it.value(), it.key(), base, it.key(), &reads);
+  }
+  return reads;
+}
 
 Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
@@ -453,6 +565,14 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     if (!known) return Status::Usage("plan: unknown stage \"" + it.key() + "\" under \"stages\"");
   }
   if (Status fs_ok = ValidateFinishPlan(plan); !fs_ok.ok()) return fs_ok;
+  {
+    std::vector<ReadPath> reads = PathsReadBy(plan);
+    reads.insert(reads.end(), options.also_reads.begin(), options.also_reads.end());
+    if (std::find(options.stages.begin(), options.stages.end(), "screen") != options.stages.end()) {
+      reads.push_back({DefaultRulesDir(), "rules folder"});
+    }
+    if (Status clear = CheckOutputClear(plan.output, reads); !clear.ok()) return clear;
+  }
   auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
   if (!out.ok()) return out.status();
 
@@ -511,7 +631,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (options.companion) stage_ptrs.push_back(options.companion);
   Json summary = BuildSummary(plan, st, stage_ptrs, written);
   timer.Mark("summary");
-  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed);  // gate and provenance
+  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed, options.stages);  // gate and provenance
   if (!s.ok()) return s;
   timer.Mark("gate and provenance");
   outcome.gate_failed = st.gate_failed;

@@ -10,6 +10,7 @@
 #include "core/plan.h"
 #include "core/status.h"
 #include "io/file_system.h"
+#include "io/output_dir.h"
 
 namespace prefsift {
 
@@ -21,12 +22,19 @@ struct PipelineOptions {
   bool table = true;                // the ledger table on `log` at the end
   bool timings = false;             // wall seconds per phase and stage on `log` (diagnostics only)
   RunCompanion* companion = nullptr;  // optional (src/store): see RunCompanion in stages/stage.h
+  std::vector<ReadPath> also_reads;   // paths beyond the plan's that the output must not touch (e.g. the store)
 };
 
 struct RunOutcome {
   uint64_t entries = 0, kept = 0, rejected = 0, blank_lines = 0;
   bool gate_failed = false;
+  bool nothing_kept() const { return entries > 0 && kept == 0; }
 };
+
+// Every file or folder a run with this plan reads: the plan file, the inputs,
+// and the paths named in stage settings (evaluation sets, rule packs and their
+// folder, key file, previous split assignments).
+std::vector<ReadPath> PathsReadBy(const Plan& plan);
 
 Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log);
 

@@ -92,16 +92,29 @@ TEST(Cli, UsageErrors) {
 
 TEST(Cli, MalformedRecordsAreRejectsNotErrors) {
   std::string out = Tmp("o5");
-  CliRun r = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --layout choice -q --overwrite -o " + out);
+  // 6 of its 7 lines are bad on purpose: past limits.max_reject_share, so the
+  // run stops (exit 8) unless the share is raised; then the default gate's
+  // min_kept_share (0.5) fails (exit 4) unless the plan sets no gate.
+  CliRun stop = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --layout choice -q --overwrite -o " + out);
+  EXPECT_EQ(stop.code, 8) << stop.err;
+  CliRun g = Prefsift("check " + Corpus("invalid_utf8.jsonl") +
+                      " --layout choice -q --overwrite --max-reject-share 1 -o " + out);
+  EXPECT_EQ(g.code, 4) << g.err;
+  std::string no_gate = Tmp("no_gate.json");
+  std::ofstream(no_gate) << R"({"gate": {}})";
+  CliRun r = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --plan " + no_gate +
+                      " --layout choice -q --overwrite --max-reject-share 1 -o " + out);
   EXPECT_EQ(r.code, 0) << r.err;
-  CliRun s = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --layout choice -q --overwrite --strict -o " + out);
+  CliRun s = Prefsift("check " + Corpus("invalid_utf8.jsonl") + " --plan " + no_gate +
+                      " --layout choice -q --overwrite --strict --max-reject-share 1 -o " + out);
   EXPECT_EQ(s.code, 5) << s.err;
 }
 
 TEST(Cli, LimitFlagsApplyAndAreNamedInRejects) {
   std::string out = Tmp("o6");
-  CliRun r = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-line-bytes 40 -o " + out);
-  ASSERT_EQ(r.code, 0) << r.err;
+  // Both records are over the limit: nothing is kept (exit 6), and rejects.jsonl says why.
+  CliRun r = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-reject-share 1 --max-line-bytes 40 -o " + out);
+  ASSERT_EQ(r.code, 6) << r.err;
   std::ifstream in(out + "/rejects.jsonl");
   std::string line;
   int n = 0;
@@ -112,14 +125,17 @@ TEST(Cli, LimitFlagsApplyAndAreNamedInRejects) {
     ++n;
   }
   EXPECT_EQ(n, 2);
-  CliRun c = Prefsift("check " + Corpus("ranking_gaps.jsonl") + " --layout ranked -q --overwrite --max-candidates 2 -o " + out);
-  ASSERT_EQ(c.code, 0) << c.err;
+  CliRun c = Prefsift("check " + Corpus("ranking_gaps.jsonl") + " --layout ranked -q --overwrite --max-reject-share 1 --max-candidates 2 -o " + out);
+  ASSERT_EQ(c.code, 6) << c.err;  // every record over a limit: nothing kept
   EXPECT_NE(Slurp(out + "/rejects.jsonl").find("too_many_candidates"), std::string::npos);
-  CliRun t = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-text-bytes 2 -o " + out);
-  ASSERT_EQ(t.code, 0) << t.err;
+  CliRun t = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-reject-share 1 --max-text-bytes 2 -o " + out);
+  ASSERT_EQ(t.code, 6) << t.err;
   EXPECT_NE(Slurp(out + "/rejects.jsonl").find("limits.max_text_bytes = 2"), std::string::npos);
   CliRun d = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-depth 1 -o " + out);
-  ASSERT_EQ(d.code, 0) << d.err;
+  ASSERT_EQ(d.code, 8) << d.err;  // one reason rejects every record: the run stops and says so
+  EXPECT_NE(d.err.find("json_too_deep"), std::string::npos) << d.err;
+  d = Prefsift("check " + Corpus("crlf.jsonl") + " --layout choice -q --overwrite --max-reject-share 1 --max-depth 1 -o " + out);
+  ASSERT_EQ(d.code, 6) << d.err;
   EXPECT_NE(Slurp(out + "/rejects.jsonl").find("json_too_deep"), std::string::npos);
 }
 

@@ -47,6 +47,7 @@ std::vector<Json> RunAndCheck(const Expect& e, const Plan* plan_in = nullptr) {
   Plan plan = plan_in ? *plan_in : PlanFor({in}, Json{{"preset", e.layout}}, out);
   plan.output = out;
   plan.overwrite = true;
+  plan.limits.max_reject_share = 1.0;  // these files are broken on purpose: read every reason
   PipelineOptions o;
   o.stages = {};
   o.table = false;
@@ -145,9 +146,14 @@ TEST(MalformedCorpus, EmptyAndTooFewCandidates) {
 TEST(MalformedCorpus, ChoiceOutOfRange) {
   // -1, B, 2^64-1, -2^63, a number too large for a double (simdjson refuses
   // 1e400 as a bad number: not_json), then a good choice.
-  RunAndCheck({"choice_out_of_range.jsonl", "choice",
+  // No record picks 0 and one picks B, so the base must be stated (an
+  // unstated base would stop the run: docs/layouts.md, "Choice and rank base").
+  const std::string in = CorpusDir() + "/choice_out_of_range.jsonl";
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}, {"choice_base", 0}}, "");
+  RunAndCheck({in, "choice",
                {"choice_out_of_range", "choice_out_of_range", "choice_out_of_range", "choice_out_of_range",
-                "not_json", ""}});
+                "not_json", ""}},
+              &plan);
 }
 
 TEST(MalformedCorpus, RankingsWithGaps) {
@@ -165,8 +171,21 @@ TEST(MalformedCorpus, NotObjects) {
 }
 
 TEST(MalformedCorpus, EmptyFileAndBlankLines) {
-  RunAndCheck({"empty.jsonl", "choice", {}});
-  RunAndCheck({"blank_lines_only.jsonl", "choice", {}, 4});
+  // A file with no record is not a success (exit 7, docs/cli.md): the run
+  // stops after reading it, names the file, and writes nothing.
+  for (const char* f : {"empty.jsonl", "blank_lines_only.jsonl"}) {
+    std::string in = CorpusDir() + "/" + f;
+    Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath(std::string("malformed_") + f));
+    plan.overwrite = true;
+    std::filesystem::remove_all(plan.output);
+    PipelineOptions o;
+    o.table = false;
+    auto r = RunPipeline(plan, o, DefaultFileSystem(), stderr);
+    ASSERT_FALSE(r.ok()) << f;
+    EXPECT_EQ(r.status().code(), StatusCode::kEmptyInput) << r.status().message();
+    EXPECT_NE(r.status().message().find(f), std::string::npos) << r.status().message();
+    EXPECT_FALSE(std::filesystem::exists(plan.output)) << f;
+  }
 }
 
 TEST(MalformedCorpus, DeepNesting) {

@@ -272,14 +272,27 @@ TEST(Gate, Verdicts) {
   EXPECT_EQ(g["checks"][0]["value"], 0.004);
   EXPECT_EQ(g["checks"][0]["verdict"], "fail");
   EXPECT_EQ(g["checks"][1]["verdict"], "pass");
-  // Stages that did not run: not evaluated, not a pass, not a failure.
-  g = EvaluateGate(Json{{"max_shortcut_accuracy", 0.6}, {"max_leakage_rate", 0.01}, {"max_personal_data_findings", 0},
-                        {"require_split_checks", true}},
-                   SummaryWith(false), {}, &failed);
-  EXPECT_FALSE(failed);
+  // Stages that did not run: not evaluated, not a pass; an incomplete gate
+  // fails the run unless the plan says on_incomplete: pass.
+  Json four{{"max_shortcut_accuracy", 0.6}, {"max_leakage_rate", 0.01}, {"max_personal_data_findings", 0},
+            {"require_split_checks", true}};
+  g = EvaluateGate(four, SummaryWith(false), {}, &failed);
+  EXPECT_TRUE(failed);
   EXPECT_EQ(g["verdict"], "incomplete");
+  EXPECT_EQ(g["fails_the_run"], true);
   EXPECT_EQ(g["not_evaluated"], 4);
   for (const auto& c : g["checks"]) EXPECT_EQ(c["verdict"], "not evaluated") << c.dump();
+  four["on_incomplete"] = "pass";
+  ASSERT_TRUE(ValidateGate(four).ok());
+  g = EvaluateGate(four, SummaryWith(false), {}, &failed);
+  EXPECT_FALSE(failed);
+  EXPECT_EQ(g["verdict"], "incomplete");
+  EXPECT_FALSE(ValidateGate(Json{{"on_incomplete", "maybe"}}).ok());
+  // The default gate skips what did not run instead of failing on it.
+  g = EvaluateGate(DefaultGate(), SummaryWith(false), {}, &failed, /*defaulted=*/true);
+  EXPECT_FALSE(failed) << g.dump();
+  EXPECT_EQ(g["default_gate"], true);
+  EXPECT_EQ(g["skipped"].size(), 3u) << g.dump();
   // Remaining personal data from the findings file.
   Json s = SummaryWith(false);
   s["stages"]["screen"] = Json::object();

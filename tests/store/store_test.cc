@@ -97,7 +97,10 @@ class StoreTest : public ::testing::Test {
         {"stages", {{"exact", {{"conflicts", "keep-majority"}}},
                     {"near", {{"threshold", 0.8}}},
                     {"screen", {{"action", "flag"}}},
-                    {"split", {{"tie_by", {"prompt", "near", "thread"}}}}}}};
+                    {"split", {{"tie_by", {"prompt", "near", "thread"}}}}}},
+        // No gate: the screen only flags here, which the default gate would fail
+        // (docs/gate.md); these tests are about batches, not the gate.
+        {"gate", Json::object()}};
     std::ofstream(dir_ + "/plan.json") << plan.dump(2);
     Json full = plan;
     full["inputs"] = Json::array();
