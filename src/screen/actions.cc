@@ -112,9 +112,9 @@ std::string ApplyActions(std::string_view text, const std::vector<Finding>& find
     out.append(text.substr(pos, f->begin - pos));
     std::string_view value = text.substr(f->begin, f->end - f->begin);
     if (f->action == Action::kPseudonymise && key != nullptr) {
-      out += Pseudonym(f->rule_id, value, *key);
+      out += Pseudonym(f->kind.empty() ? f->rule_id : f->kind, value, *key);
     } else {
-      out += MaskPlaceholder(f->rule_id);
+      out += MaskPlaceholder(f->kind.empty() ? f->rule_id : f->kind);
     }
     pos = f->end;
   }

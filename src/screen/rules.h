@@ -24,35 +24,35 @@ inline constexpr int kFieldKindCount = 3;
 // What the caller should do with a finding's span.
 enum class Action : uint8_t { kFlag = 0, kMask = 1, kPseudonymise = 2, kDrop = 3 };
 
-enum class Severity : uint8_t { kLow = 0, kMedium = 1, kHigh = 2, kCritical = 3 };
-
 std::string_view FieldKindName(FieldKind f);   // "prompt" | "candidates" | "metadata"
 std::string_view ActionName(Action a);         // "flag" | "mask" | "pseudonymise" | "drop"
-std::string_view SeverityName(Severity s);     // "low" | "medium" | "high" | "critical"
 
-// Words looked for within `window` bytes on either side of a span: ASCII
-// case-insensitive, and only where they start a word (the byte before is not
-// an ASCII letter), so "tel" is found in "Tel.:" and "Telefon" but not "hotel".
-struct ContextRule {
-  int window = 40;
-  std::vector<std::string> boost_words;     // any present: confidence += boost
-  double boost = 0.0;
-  std::vector<std::string> required_words;  // non-empty and none present: no finding
-  std::vector<std::string> deny_words;      // any present: no finding
+// Words looked for within `reach` bytes on either side of a span (rule key
+// "nearby"): ASCII case-insensitive, and only where they start a word (the
+// byte before is not an ASCII letter), so "tel" is found in "Tel.:" and
+// "Telefon" but not "hotel".
+struct NearbyWords {
+  int reach = 40;
+  std::vector<std::string> raise_with;  // any present: certainty += raise_by
+  double raise_by = 0.0;
+  std::vector<std::string> only_with;   // non-empty and none present: no finding
+  std::vector<std::string> never_with;  // any present: no finding (a veto)
 };
 
 struct Rule {
-  std::string id;           // our own name, e.g. "contact.email"; unique in a RuleSet
-  std::string description;
-  std::string pattern;      // RE2 syntax, UTF-8
-  std::string validator;    // "" or a name known to validators.h
-  ContextRule context;
+  std::string kind;         // kind id, e.g. "card-number" (docs/personal-data.md, "Kind ids")
+  std::string vendor;       // "" or the issuer of a credential shape, e.g. "github"
+  std::string id;           // the rule's name: kind, or kind/vendor; unique in a RuleSet
+  std::string family;       // the pack's name ("contact", "payment", ...), for grouping
+  std::string about;        // one line for people
+  std::string shape;        // RE2 syntax, UTF-8; the whole match is the span
+  std::string check;        // "" or a check name known to validators.h
+  NearbyWords nearby;
   bool fields[kFieldKindCount] = {true, true, true};
-  Severity severity = Severity::kMedium;
   Action action = Action::kMask;
-  double confidence = 0.8;  // base confidence in [0, 1]
+  double certainty = 0.8;   // base certainty in [0, 1]; also the first key of the overlap order
   std::string source_file;  // where it was loaded from (for messages)
-  int source_line = 0;      // 1-based line of the rule's id in that file
+  int source_line = 0;      // 1-based line of the rule's kind in that file
 };
 
 struct RuleSet {

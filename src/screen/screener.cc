@@ -22,7 +22,7 @@ struct Screener::Impl {
   std::vector<Compiled> rules;
   std::unique_ptr<RE2::Set> sets[kFieldKindCount];
   std::vector<int> set_to_rule[kFieldKindCount];
-  double min_confidence = 0.0;
+  double certainty_floor = 0.0;
 };
 
 namespace {
@@ -87,11 +87,11 @@ bool AnyWordIn(const std::string& haystack_lower, const std::vector<std::string>
   return false;
 }
 
-// Returns false if the finding is refused by its context; else sets *conf.
-bool ApplyContext(const ContextRule& c, std::string_view t, size_t b, size_t e, double base, double* conf) {
+// Returns false if the finding is vetoed or lacks a word it needs; else sets *conf.
+bool ApplyNearby(const NearbyWords& c, std::string_view t, size_t b, size_t e, double base, double* conf) {
   *conf = base;
-  if (c.boost_words.empty() && c.required_words.empty() && c.deny_words.empty()) return true;
-  size_t w = static_cast<size_t>(c.window);
+  if (c.raise_with.empty() && c.only_with.empty() && c.never_with.empty()) return true;
+  size_t w = static_cast<size_t>(c.reach);
   size_t lo = b > w ? b - w : 0;
   size_t hi = std::min(t.size(), e + w);
   std::string around;
@@ -102,10 +102,10 @@ bool ApplyContext(const ContextRule& c, std::string_view t, size_t b, size_t e, 
   for (char& ch : around) {
     if (ch >= 'A' && ch <= 'Z') ch = static_cast<char>(ch - 'A' + 'a');
   }
-  if (!c.deny_words.empty() && AnyWordIn(around, c.deny_words)) return false;
-  if (!c.required_words.empty() && !AnyWordIn(around, c.required_words)) return false;
-  if (!c.boost_words.empty() && AnyWordIn(around, c.boost_words)) {
-    *conf = std::clamp(base + c.boost, 0.0, 1.0);
+  if (!c.never_with.empty() && AnyWordIn(around, c.never_with)) return false;
+  if (!c.only_with.empty() && !AnyWordIn(around, c.only_with)) return false;
+  if (!c.raise_with.empty() && AnyWordIn(around, c.raise_with)) {
+    *conf = std::clamp(base + c.raise_by, 0.0, 1.0);
   }
   return true;
 }
@@ -120,7 +120,7 @@ struct Candidate {
 
 Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& options) {
   auto impl = std::make_shared<Impl>();
-  impl->min_confidence = options.min_confidence;
+  impl->certainty_floor = options.certainty_floor;
   RE2::Options ro;
   ro.set_log_errors(false);
   ro.set_max_mem(options.rule_max_mem);
@@ -133,18 +133,18 @@ Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& op
     const std::string where = r.source_file + ":" + std::to_string(r.source_line) + ": rule '" + r.id + "': ";
     Impl::Compiled c;
     c.rule = r;
-    c.re = std::make_unique<RE2>(r.pattern, ro);
-    if (!c.re->ok()) return Status::Usage(where + "bad pattern: " + c.re->error());
-    if (!r.validator.empty()) {
-      c.validator = FindValidator(r.validator);
-      if (c.validator == nullptr) return Status::Usage(where + "unknown validator '" + r.validator + "'");
+    c.re = std::make_unique<RE2>(r.shape, ro);
+    if (!c.re->ok()) return Status::Usage(where + "bad shape: " + c.re->error());
+    if (!r.check.empty()) {
+      c.validator = FindValidator(r.check);
+      if (c.validator == nullptr) return Status::Usage(where + "unknown check '" + r.check + "'");
     }
     int idx = static_cast<int>(impl->rules.size());
     for (int f = 0; f < kFieldKindCount; ++f) {
       if (!r.fields[f]) continue;
       std::string err;
-      int id = impl->sets[f]->Add(r.pattern, &err);
-      if (id < 0) return Status::Usage(where + "bad pattern: " + err);
+      int id = impl->sets[f]->Add(r.shape, &err);
+      if (id < 0) return Status::Usage(where + "bad shape: " + err);
       impl->set_to_rule[f].push_back(idx);
     }
     impl->rules.push_back(std::move(c));
@@ -210,18 +210,16 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
         }
       }
       double conf;
-      if (!ApplyContext(c.rule.context, text, b, e, c.rule.confidence, &conf)) continue;
-      if (conf < impl_->min_confidence) continue;
+      if (!ApplyNearby(c.rule.nearby, text, b, e, c.rule.certainty, &conf)) continue;
+      if (conf < impl_->certainty_floor) continue;
       cands.push_back({b, e, ri, conf});
     }
   }
   if (cands.empty()) return out;
 
-  // Overlap order: severity, length, rule order, start.
+  // Overlap order: certainty after nearby words, length, rule order, start.
   std::sort(cands.begin(), cands.end(), [&](const Candidate& x, const Candidate& y) {
-    const Rule& rx = impl_->rules[static_cast<size_t>(x.rule)].rule;
-    const Rule& ry = impl_->rules[static_cast<size_t>(y.rule)].rule;
-    if (rx.severity != ry.severity) return rx.severity > ry.severity;
+    if (x.confidence != y.confidence) return x.confidence > y.confidence;
     if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
     if (x.rule != y.rule) return x.rule < y.rule;
     return x.begin < y.begin;
@@ -247,8 +245,8 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
     fd.begin = k.begin;
     fd.end = k.end;
     fd.action = r.action;
-    fd.severity = r.severity;
-    fd.confidence = k.confidence;
+    fd.certainty = k.confidence;
+    fd.kind = r.kind;
     fd.preview = MaskedPreview(text.substr(k.begin, k.end - k.begin));
     out.push_back(std::move(fd));
   }
