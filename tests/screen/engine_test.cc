@@ -47,14 +47,20 @@ TEST(Engine, FindsFictionalSamples) {
       {"write to jane.doe@example.com today", "mailbox-address", "jane.doe@example.com"},
       {"mail müller@beispiel.example bitte", "mailbox-address", "müller@beispiel.example"},
       {"ring me on +44 7700 900123 tonight", "phone-international-form", "+44 7700 900123"},
-      {"call 020 7946 0123 after six", "phone-british-national-form", "020 7946 0123"},
+      {"call 020 7946 0123 after six", "phone-british-standard-grouping", "020 7946 0123"},
+      // Without a phone word: the standard grouping is enough (issue 16).
+      {"Reference: 020 7946 0123", "phone-british-standard-grouping", "020 7946 0123"},
+      {"Backup person: Jo, 07700 900123", "phone-british-standard-grouping", "07700 900123"},
       {"phone (201) 555-0123 now", "phone-north-american-form", "(201) 555-0123"},
       // ARCEP range for fiction 01 99 00 xx xx (from memory, unverified).
       {"Tél : 01 99 00 12 34", "phone-french-national-form", "01 99 00 12 34"},
       // No Japanese fiction range known to us; a 0000 subscriber block (from memory, unverified).
       {"電話03-0000-1234まで", "phone-japanese-national-form", "03-0000-1234"},
       // Bundesnetzagentur range for film/TV 030 23125 xxx (from memory, unverified).
-      {"Rufnummer: 030 23125 456", "phone-german-national-form", "030 23125 456"},
+      {"Rufnummer: 030 23125 456", "phone-german-standard-grouping", "030 23125 456"},
+      // Not a standard grouping: the national-form rule, which needs a phone word.
+      {"Rufnummer: 030/23125456", "phone-german-national-form", "030/23125456"},
+      {"ring 0207 946 0123 after six", "phone-british-national-form", "0207 946 0123"},
       {"card 4111 1111 1111 1111 exp 12/30", "card-number", "4111 1111 1111 1111"},
       {"IBAN GB82 WEST 1234 5698 7654 32 Bank", "bank-account-iban", "GB82 WEST 1234 5698 7654 32"},
       {"her SSN is 123-45-6789.", "us-social-security-number", "123-45-6789"},

@@ -113,7 +113,7 @@ TEST(PersonalDataStage, MasksEveryPlantedValueInTheRightString) {
   // and the text between them is intact (offsets stay right with several spans).
   EXPECT_EQ(kept["r1"]["turns"][0]["content"], "Hello there");
   EXPECT_EQ(kept["r1"]["turns"][1]["content"],
-            "mail [[masked:mailbox-address]] or [[masked:mailbox-address]], phone [[masked:phone-british-national-form]]");
+            "mail [[masked:mailbox-address]] or [[masked:mailbox-address]], phone [[masked:phone-british-standard-grouping]]");
   EXPECT_EQ(kept["r1"]["answers"][0], "I will write to [[masked:mailbox-address]] today.");
   EXPECT_EQ(kept["r1"]["answers"][1], "No personal data here at all.");
   EXPECT_EQ(kept["r1"]["meta"]["note"], "seen from [[masked:ipv4-address]]");
@@ -321,8 +321,12 @@ TEST(PersonalDataRules, FixesMadeDuringIntegration) {
   // Voided SSNs are masked like SSNs (not taken as Japanese phone numbers).
   EXPECT_EQ(ids("Never write a number like 078-05-1120 on forms"), V{"us-social-security-number-voided"});
   // UK national numbers with the area code in parentheses, after "message".
-  EXPECT_EQ(ids("Leave a message on (020) 7946 0450 if nobody answers."), V{"phone-british-national-form"});
-  EXPECT_EQ(ids("Leave a message on 01632 960022 if nobody answers."), V{"phone-british-national-form"});
+  // (Since issue 16 these standard groupings are found without the word, by
+  // phone-british-standard-grouping; other groupings still need it.)
+  EXPECT_EQ(ids("Leave a message on (020) 7946 0450 if nobody answers."), V{"phone-british-standard-grouping"});
+  EXPECT_EQ(ids("Leave a message on 01632 960022 if nobody answers."), V{"phone-british-standard-grouping"});
+  EXPECT_EQ(ids("Leave a message on 0163 296 0022 if nobody answers."), V{"phone-british-national-form"});
+  EXPECT_EQ(ids("Please use 0163 296 0022 if nobody answers."), V{});
   // A token assigned to a secret-sounding name, letters only (no digits).
   EXPECT_EQ(ids("The old setting token=AyJwzWJbIXIWqTBPeGEUAYCehlpkQhRpMkMAXjcB was revoked"),
             V{"labelled-secret-value"});
