@@ -61,10 +61,17 @@ std::string NormaliseForPseudonym(std::string_view value) {
     }
     return out;
   }
-  out.assign(value.data(), value.size());
-  for (char& c : out) {
-    if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+  // Other spans: ASCII-lower-cased, each run of ASCII white space made one
+  // space (so a name split over a line break or doubly spaced agrees).
+  for (char c : value) {
+    bool space = c == ' ' || c == '\n' || c == '\t' || c == '\r';
+    if (space) {
+      if (!out.empty() && out.back() != ' ') out.push_back(' ');
+      continue;
+    }
+    out.push_back(c >= 'A' && c <= 'Z' ? static_cast<char>(c - 'A' + 'a') : c);
   }
+  while (!out.empty() && out.back() == ' ') out.pop_back();
   return out;
 }
 

@@ -46,7 +46,7 @@ std::array<uint8_t, 32> HmacSha256(std::string_view key, std::string_view messag
 
 // The value as compared for pseudonyms: a span of only digits and the
 // separators " -.()/+" keeps its digits (and a leading '+'); any other span
-// is ASCII-lowercased.
+// is ASCII-lowercased with each run of ASCII white space made one space.
 std::string NormaliseForPseudonym(std::string_view value);
 
 std::string MaskPlaceholder(std::string_view kind);

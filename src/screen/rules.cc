@@ -3,6 +3,8 @@
 #include "screen/rules.h"
 
 #include <fstream>
+#include <map>
+#include <mutex>
 #include <set>
 #include <sstream>
 
@@ -101,6 +103,31 @@ bool IsKindWord(const std::string& s) {
   return true;
 }
 
+// One word a line; '#' starts a comment line; blank lines skipped. Words are
+// ASCII-lower-cased. Lists are shared by every rule that names the same file.
+Result<std::shared_ptr<const WordList>> LoadWordList(const std::string& path, const std::string& where) {
+  static std::mutex mu;
+  static std::map<std::string, std::shared_ptr<const WordList>> cache;
+  std::lock_guard<std::mutex> lock(mu);
+  auto it = cache.find(path);
+  if (it != cache.end()) return it->second;
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return Status::Usage(where + "cannot read the word list " + path);
+  auto list = std::make_shared<WordList>();
+  std::string line;
+  while (std::getline(in, line)) {
+    while (!line.empty() && (line.back() == '\r' || line.back() == ' ')) line.pop_back();
+    if (line.empty() || line[0] == '#') continue;
+    for (char& c : line) {
+      if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+    }
+    list->insert(line);
+  }
+  if (list->empty()) return Status::Usage(where + "the word list " + path + " is empty");
+  cache[path] = list;
+  return std::shared_ptr<const WordList>(list);
+}
+
 Status ParseRule(const json& j, std::string_view text, const std::string& file, const std::string& family,
                  size_t* cursor, Rule* r) {
   if (!j.is_object()) return Status::Usage(file + ": every entry of 'rules' must be an object");
@@ -123,14 +150,24 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
     }
     r->vendor = j.at("vendor").get<std::string>();
   }
-  r->id = r->vendor.empty() ? r->kind : r->kind + "/" + r->vendor;
+  if (j.contains("variant")) {
+    if (!j.at("variant").is_string() || !IsKindWord(j.at("variant").get<std::string>())) {
+      return Status::Usage(Where(file, r->source_line, r->kind) +
+                           "'variant' must be lower-case letters and digits joined by single hyphens");
+    }
+    if (!r->vendor.empty()) {
+      return Status::Usage(Where(file, r->source_line, r->kind) + "give either 'vendor' or 'variant', not both");
+    }
+    r->variant = j.at("variant").get<std::string>();
+  }
+  r->id = !r->vendor.empty() ? r->kind + "/" + r->vendor : !r->variant.empty() ? r->kind + "/" + r->variant : r->kind;
   const std::string where = Where(file, r->source_line, r->id);
   if (!IsKindWord(r->kind)) {
     return Status::Usage(where + "'kind' must be lower-case letters and digits joined by single hyphens");
   }
 
-  static const std::set<std::string> kKnown = {"kind", "vendor", "about", "shape", "check", "nearby",
-                                               "fields", "action", "certainty"};
+  static const std::set<std::string> kKnown = {"kind", "vendor", "variant", "about", "shape", "check", "nearby",
+                                               "fields", "action", "certainty", "first_word_in", "not_in_span", "beside"};
   for (auto it = j.begin(); it != j.end(); ++it) {
     if (kKnown.count(it.key())) continue;
     if (const char* m = RenamedRuleKey(it.key())) return Status::Usage(where + m);
@@ -212,6 +249,29 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
     r->nearby.raise_with = std::move(b).value();
     r->nearby.only_with = std::move(q).value();
     r->nearby.never_with = std::move(d).value();
+  }
+  if (j.contains("first_word_in")) {
+    if (!j.at("first_word_in").is_string() || j.at("first_word_in").get<std::string>().empty()) {
+      return Status::Usage(where + "'first_word_in' must be the path of a word list, relative to the pack's folder");
+    }
+    std::string rel = j.at("first_word_in").get<std::string>();
+    std::string dir = file.find('/') == std::string::npos ? "." : file.substr(0, file.find_last_of('/'));
+    std::string path = !rel.empty() && rel[0] == '/' ? rel : dir + "/" + rel;
+    auto list = LoadWordList(path, where);
+    if (!list.ok()) return list.status();
+    r->first_word_in = std::move(list).value();
+    r->first_word_in_file = rel;
+  }
+  if (j.contains("not_in_span")) {
+    auto b = StringList(j, "not_in_span", where);
+    if (!b.ok()) return b.status();
+    r->not_in_span = std::move(b).value();
+  }
+  if (j.contains("beside")) {
+    auto b = StringList(j, "beside", where);
+    if (!b.ok()) return b.status();
+    if (b.value().empty()) return Status::Usage(where + "'beside' must list at least one kind id");
+    r->beside = std::move(b).value();
   }
   // Compile once here so a bad pattern stops the run before anything is read.
   RE2::Options opt;

@@ -9,7 +9,9 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <string>
+#include <unordered_set>
 #include <string_view>
 #include <vector>
 
@@ -39,18 +41,31 @@ struct NearbyWords {
   std::vector<std::string> never_with;  // any present: no finding (a veto)
 };
 
+// A word list (rule key "first_word_in"): lower-cased words in a hash set.
+using WordList = std::unordered_set<std::string>;
+
 struct Rule {
   std::string kind;         // kind id, e.g. "card-number" (docs/personal-data.md, "Kind ids")
   std::string vendor;       // "" or the issuer of a credential shape, e.g. "github"
-  std::string id;           // the rule's name: kind, or kind/vendor; unique in a RuleSet
+  std::string variant;      // "" or which of several rules of one kind, e.g. "salutation"
+  std::string id;           // the rule's name: kind, kind/vendor or kind/variant; unique in a RuleSet
   std::string family;       // the pack's name ("contact", "payment", ...), for grouping
   std::string about;        // one line for people
-  std::string shape;        // RE2 syntax, UTF-8; the whole match is the span
+  std::string shape;        // RE2 syntax, UTF-8; the span is capture group 1 if there is one, else the whole match
   std::string check;        // "" or a check name known to validators.h
   NearbyWords nearby;
   bool fields[kFieldKindCount] = {true, true, true};
   Action action = Action::kMask;
   double certainty = 0.8;   // base certainty in [0, 1]; also the first key of the overlap order
+  // The span's first word (ASCII case-insensitive) must be in this list.
+  std::shared_ptr<const WordList> first_word_in;
+  std::string first_word_in_file;      // as written in the pack, for messages
+  // No word of the span may be one of these (lower-cased; e.g. "pepper" for a
+  // product built on a title, "library" for an organisation after "this is").
+  std::vector<std::string> not_in_span;
+  // Kept only if a finding of one of these kinds (of other rules) lies within
+  // nearby.reach bytes of the span. Evaluated after all other findings.
+  std::vector<std::string> beside;
   std::string source_file;  // where it was loaded from (for messages)
   int source_line = 0;      // 1-based line of the rule's kind in that file
 };

@@ -30,7 +30,7 @@ std::vector<std::vector<std::string>> ReadTsv(const std::string& name) {
 
 const RuleSet& AllPacks() {
   static const RuleSet* set = [] {
-    auto r = LoadRulePacks({"contact", "payment", "government", "network", "secrets"}, PREFSIFT_RULES_DIR);
+    auto r = LoadRulePacks({"contact", "payment", "government", "network", "secrets", "people"}, PREFSIFT_RULES_DIR);
     if (!r.ok()) throw std::runtime_error(r.status().message());
     return new RuleSet(std::move(r).value());
   }();

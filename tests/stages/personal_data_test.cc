@@ -297,7 +297,9 @@ TEST(PersonalDataStage, BadRuleFileStopsTheRunNamingFileLineRuleAndRe2Message) {
 // numbers, a voided SSN (SSA, from memory), UK drama numbers (Ofcom [S]).
 TEST(PersonalDataRules, FixesMadeDuringIntegration) {
   std::vector<std::string> packs;
-  for (const auto& e : std::filesystem::directory_iterator(RulesDir())) packs.push_back(e.path().string());
+  for (const auto& e : std::filesystem::directory_iterator(RulesDir())) {
+    if (e.path().extension() == ".json") packs.push_back(e.path().string());
+  }
   std::sort(packs.begin(), packs.end());
   auto rules = screen::LoadRulePacks(packs, RulesDir());
   ASSERT_TRUE(rules.ok()) << rules.status().message();
