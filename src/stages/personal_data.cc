@@ -67,10 +67,13 @@ struct RecordHits {
 
 const char* const kCautions[] = {
     "The screen is an aid, not a guarantee and not legal advice: rule packs find values with a recognisable shape "
-    "(e-mail addresses, phone numbers, card numbers, IBANs, national identifiers, network addresses, secrets) and "
-    "miss what does not have one.",
-    "Names, postal addresses and free-text health, religious or other sensitive details are not reliably found by "
-    "patterns; review samples by hand before release.",
+    "(e-mail addresses, phone numbers, card numbers, IBANs, national identifiers, network addresses, secrets, and "
+    "names and postal addresses in the phrasings listed below) and miss what does not have one.",
+    "Names of people and postal addresses are found only where the text signals them (a self-introduction, greeting, "
+    "sign-off or title; a name beside an e-mail, phone or address; a US address with state and ZIP, a UK address "
+    "ending in a postcode): a name in a plain sentence, nicknames and other address formats are missed, and product "
+    "names built on a title can be masked. Free-text health, religious or other sensitive details are not found at "
+    "all; review samples by hand before release.",
     "Which data may be kept, masked, pseudonymised or must be removed is decided by the data-protection law that "
     "applies to the dataset and by the organisation's privacy officer, not by this tool.",
     "Pseudonyms are keyed (HMAC-SHA256): whoever holds the key can test guesses against them; keep the key secret "
