@@ -261,6 +261,41 @@ TEST(PersonalDataStage, SettingsErrorsNameTheSetting) {
   EXPECT_NE(err(Json{{"fields", {"prompt", "footnotes"}}}).find("footnotes"), std::string::npos);
 }
 
+// A made-up name (a given name from the shipped list and an invented
+// surname) in a chat turn, a candidate and metadata of one record: the same
+// keyed pseudonym everywhere, a different one for another name, never the name.
+TEST(PersonalDataStage, PseudonymisedNameAgreesAcrossTheRecord) {
+  const std::string name = "Rosalind Quillfeather";
+  Json rec{{"id", "n1"},
+           {"turns", Json::array({Json{{"role", "user"}, {"content", "Hello, my name is " + name + " and the drill is stuck."}}})},
+           {"answers", {"Dear " + name + ",\nplease bring it back.", "Hi Ethelind Ashcombe! Try the other bit."}},
+           {"pick", 0},
+           {"meta", {{"note", "Thanks,\n" + name}}}};
+  std::string in = WriteFile("pd_names.jsonl", rec.dump() + "\n");
+  Plan plan = testing::PlanFor({in}, Layout(), TempPath("pd_out_names"));
+  plan.threads = 1;
+  std::string key_path = WriteFile("pd_names_key.txt", "names-test-key-0123456789abcdef\n");
+  plan.stages["screen"] = Json{{"rules_dir", RulesDir()}, {"action_by_kind", {{"person-name", "pseudonymise"}}},
+                               {"key_file", key_path}};
+  auto r = RunScreen(plan);
+  ASSERT_TRUE(r.ok()) << r.status().message();
+  Json kept = KeptById(plan.output)["n1"];
+  std::string turn = kept["turns"][0]["content"], cand = kept["answers"][0], other = kept["answers"][1];
+  std::string note = kept["meta"]["note"];
+  auto token = [](const std::string& s) {
+    size_t p = s.find("[[pseudo:person-name:");
+    return p == std::string::npos ? std::string() : s.substr(p, std::string("[[pseudo:person-name:").size() + 14);
+  };
+  ASSERT_FALSE(token(turn).empty()) << turn;
+  EXPECT_EQ(token(turn), token(cand)) << cand;
+  EXPECT_EQ(token(turn), token(note)) << note;
+  ASSERT_FALSE(token(other).empty()) << other;
+  EXPECT_NE(token(turn), token(other));
+  std::string all = AllOutputBytes(plan.output);
+  EXPECT_EQ(all.find("Quillfeather"), std::string::npos);
+  EXPECT_EQ(all.find("Ashcombe"), std::string::npos);
+}
+
 TEST(PersonalDataStage, KeyFromEnvironment) {
   ::setenv("PREFSIFT_TEST_PSEUDO_KEY", "environment-key-0123456789", 1);
   Plan plan = MakePlan("env", Json{{"action", "pseudonymise"}, {"key_env", "PREFSIFT_TEST_PSEUDO_KEY"}});
