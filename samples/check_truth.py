@@ -187,44 +187,44 @@ def main():
 
     def value_ok(kind, v):
         c = v.replace(" ", "").replace("-", "")
-        if kind == "card_number":
+        if kind == "card-number":
             return std_luhn.is_valid(c)
-        if kind == "card_number_bad_luhn":
+        if kind == "card-number-bad-luhn":
             return not std_luhn.is_valid(c)
-        if kind == "iban":
+        if kind == "bank-account-iban":
             return std_iban.is_valid(v)
-        if kind == "iban_bad_check":
+        if kind == "bank-account-iban-bad-check":
             return not std_iban.is_valid(v)
-        if kind == "nl_bsn":
+        if kind == "dutch-citizen-service-number":
             return std_bsn.is_valid(v)
-        if kind == "es_dni":
+        if kind == "spanish-identity-number":
             return std_dni.is_valid(v)
-        if kind == "fr_nir":
+        if kind == "french-social-security-number":
             return std_nir.is_valid(v)
-        if kind == "in_aadhaar":
+        if kind == "indian-aadhaar-number":
             return std_aadhaar.is_valid(v)
-        if kind == "ipv4":
+        if kind == "ipv4-address":
             return any(ipaddress.ip_address(v) in n for n in DOC_V4)
-        if kind == "ipv6":
+        if kind == "ipv6-address":
             return ipaddress.ip_address(v) in DOC_V6
-        if kind == "mac":
+        if kind == "hardware-address":
             return int(v[:2], 16) & 0x02 == 0x02 and int(v[:2], 16) & 0x01 == 0   # locally administered, unicast
-        if kind.startswith("phone_"):
-            region = "US" if kind == "phone_us" else "GB"
+        if kind.startswith("phone-"):
+            region = "US" if kind == "phone-north-american" else "GB"
             num = phonenumbers.parse(v, region)
             nat = str(num.national_number)
-            if kind == "phone_us":
+            if kind == "phone-north-american":
                 return num.country_code == 1 and nat[3:6] == "555" and 100 <= int(nat[6:]) <= 199
             return num.country_code == 44 and (nat.startswith("7700900") or nat.startswith("2079460")
                                                or nat.startswith("1632960"))
-        if kind == "email":
+        if kind == "mailbox-address":
             dom = v.split("@")[1]
             return dom in ("example.com", "example.org", "example.net") or dom.endswith((".example", ".test")) or \
                 dom.endswith((".example.com", ".example.org", ".example.net"))
-        if kind == "ssn_never_issued":
+        if kind == "us-social-security-number-never-issued":
             a, g, s = v.split("-")
             return a in ("000", "666") or a >= "900" or g == "00" or s == "0000"
-        if kind == "version_string":
+        if kind == "version-string":
             try:
                 ipaddress.ip_address(v)
                 return False

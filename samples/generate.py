@@ -362,6 +362,22 @@ def b64url(b):
 ALNUM = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789"
 
 
+# Names of the planted kinds in truth.json: the screen's kind ids where one
+# fits (docs/personal-data.md, "Kind ids"), else plain words of our own.
+TRUTH_KIND = {
+    "email": "mailbox-address", "phone_uk_mobile": "phone-british-mobile",
+    "phone_uk_landline": "phone-british-landline", "phone_us": "phone-north-american", "card_number": "card-number",
+    "card_number_bad_luhn": "card-number-bad-luhn", "iban": "bank-account-iban",
+    "iban_bad_check": "bank-account-iban-bad-check", "us_ssn": "us-social-security-number-voided",
+    "ssn_never_issued": "us-social-security-number-never-issued", "nl_bsn": "dutch-citizen-service-number",
+    "es_dni": "spanish-identity-number", "fr_nir": "french-social-security-number",
+    "in_aadhaar": "indian-aadhaar-number", "ipv4": "ipv4-address", "ipv6": "ipv6-address", "mac": "hardware-address",
+    "private_key_pem": "private-key-block", "jwt": "signed-web-token",
+    "aws_access_key_id": "service-credential-amazon-web-services", "api_token": "labelled-secret-value",
+    "version_string": "version-string", "order_number": "order-number", "date": "date"
+}
+
+
 def make_personal_values(rng):
     """Return lists of (family, kind, value) for planted values and decoys."""
     vals = []
@@ -1675,7 +1691,8 @@ def make_truth(g, eval_items, ref_grams, L, malformed_truth, lines):
         c0 = text.index(x["value"])
         b0 = len(text[:c0].encode("utf-8"))
         e = {"file": it["file"] + ".jsonl", "id": it["id"], "line": it["line"], "field": field,
-             "candidate_index": ci, "pointer": ptr, "family": x["family"], "kind": x["kind"], "value": x["value"],
+             "candidate_index": ci, "pointer": ptr, "family": x["family"], "kind": TRUTH_KIND[x["kind"]],
+             "value": x["value"],
              "byte_start": b0, "byte_end": b0 + len(x["value"].encode("utf-8")), "char_start": c0,
              "char_end": c0 + len(x["value"])}
         (pd if x["status"] == "planted" else dec).append(e)

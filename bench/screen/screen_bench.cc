@@ -126,7 +126,7 @@ int main(int argc, char** argv) {
   for (const auto& t : texts) bytes += t.size();
   std::printf("texts=%zu bytes=%zu planted_items=%zu (%.1f%% of texts)\n", texts.size(), bytes, hits,
               100.0 * hits / texts.size());
-  const std::vector<std::string> packs = {"contact", "payment", "government", "network", "secrets"};
+  const std::vector<std::string> packs = {"contact", "payment", "government", "network", "secrets", "people"};
   auto all = LoadRulePacks(packs, PREFSIFT_RULES_DIR);
   if (!all.ok()) {
     std::fprintf(stderr, "%s\n", all.status().message().c_str());

@@ -61,10 +61,17 @@ std::string NormaliseForPseudonym(std::string_view value) {
     }
     return out;
   }
-  out.assign(value.data(), value.size());
-  for (char& c : out) {
-    if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+  // Other spans: ASCII-lower-cased, each run of ASCII white space made one
+  // space (so a name split over a line break or doubly spaced agrees).
+  for (char c : value) {
+    bool space = c == ' ' || c == '\n' || c == '\t' || c == '\r';
+    if (space) {
+      if (!out.empty() && out.back() != ' ') out.push_back(' ');
+      continue;
+    }
+    out.push_back(c >= 'A' && c <= 'Z' ? static_cast<char>(c - 'A' + 'a') : c);
   }
+  while (!out.empty() && out.back() == ' ') out.pop_back();
   return out;
 }
 
@@ -112,9 +119,9 @@ std::string ApplyActions(std::string_view text, const std::vector<Finding>& find
     out.append(text.substr(pos, f->begin - pos));
     std::string_view value = text.substr(f->begin, f->end - f->begin);
     if (f->action == Action::kPseudonymise && key != nullptr) {
-      out += Pseudonym(f->rule_id, value, *key);
+      out += Pseudonym(f->kind.empty() ? f->rule_id : f->kind, value, *key);
     } else {
-      out += MaskPlaceholder(f->rule_id);
+      out += MaskPlaceholder(f->kind.empty() ? f->rule_id : f->kind);
     }
     pos = f->end;
   }

@@ -1,8 +1,8 @@
 // What happens to a finding's span: placeholders, pseudonyms, previews.
 //
 // Formats (specified in docs/personal-data.md):
-//   mask          -> "[[masked:<rule id>]]"
-//   pseudonymise  -> "[[pseudo:<rule id>:<12 hex>]]", the hex being the first
+//   mask          -> "[[masked:<kind id>]]"
+//   pseudonymise  -> "[[pseudo:<kind id>:<12 hex>]]", the hex being the first
 //                    6 bytes of HMAC-SHA256(key, normalised value)
 //   flag, drop    -> text unchanged (drop: the caller rejects the record)
 // Preview: "<class>#<bytes>", e.g. "d#19": first character's class
@@ -46,11 +46,11 @@ std::array<uint8_t, 32> HmacSha256(std::string_view key, std::string_view messag
 
 // The value as compared for pseudonyms: a span of only digits and the
 // separators " -.()/+" keeps its digits (and a leading '+'); any other span
-// is ASCII-lowercased.
+// is ASCII-lowercased with each run of ASCII white space made one space.
 std::string NormaliseForPseudonym(std::string_view value);
 
-std::string MaskPlaceholder(std::string_view rule_id);
-std::string Pseudonym(std::string_view rule_id, std::string_view value, const PseudonymKey& key);
+std::string MaskPlaceholder(std::string_view kind);
+std::string Pseudonym(std::string_view kind, std::string_view value, const PseudonymKey& key);
 std::string MaskedPreview(std::string_view value);
 
 // Applies mask and pseudonymise actions; flag and drop leave the text as is.

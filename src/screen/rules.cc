@@ -3,6 +3,8 @@
 #include "screen/rules.h"
 
 #include <fstream>
+#include <map>
+#include <mutex>
 #include <set>
 #include <sstream>
 
@@ -22,17 +24,21 @@ int LineOfOffset(std::string_view text, size_t off) {
   return line;
 }
 
-// Line of the first `"id": "<id>"` in the file text (0 if not found).
-int LineOfRuleId(std::string_view text, const std::string& id) {
+// Line of the first `"<key>": "<id>"` at or after *from in the file text (0
+// if not found); *from moves past it, so rules sharing a kind get their own line.
+int LineOfRuleId(std::string_view text, const std::string& id, size_t* from = nullptr) {
   std::string quoted = "\"" + id + "\"";
-  size_t pos = 0;
+  size_t pos = from ? *from : 0;
   while ((pos = text.find(quoted, pos)) != std::string_view::npos) {
     size_t k = pos;
     while (k > 0 && (text[k - 1] == ' ' || text[k - 1] == '\t' || text[k - 1] == '\n' ||
                      text[k - 1] == '\r')) {
       --k;
     }
-    if (k > 0 && text[k - 1] == ':') return LineOfOffset(text, pos);
+    if (k > 0 && text[k - 1] == ':') {
+      if (from) *from = pos + quoted.size();
+      return LineOfOffset(text, pos);
+    }
     pos += quoted.size();
   }
   return 0;
@@ -62,34 +68,126 @@ Result<std::vector<std::string>> StringList(const json& j, const char* key, cons
   return out;
 }
 
-Status ParseRule(const json& j, std::string_view text, const std::string& file, Rule* r) {
-  if (!j.is_object()) return Status::Usage(file + ": every entry of 'rules' must be an object");
-  if (!j.contains("id") || !j.at("id").is_string() || j.at("id").get<std::string>().empty()) {
-    return Status::Usage(file + ": a rule has no string 'id'");
-  }
-  r->id = j.at("id").get<std::string>();
-  r->source_file = file;
-  r->source_line = LineOfRuleId(text, r->id);
-  const std::string where = Where(file, r->source_line, r->id);
+// Keys of the old rule format, each with what replaces it, so an old pack
+// fails with a message that names the new key.
+const char* RenamedRuleKey(const std::string& k) {
+  if (k == "id") return "'id' is now 'kind' (a kind id such as \"card-number\"; docs/personal-data.md, \"Kind ids\")";
+  if (k == "description") return "'description' is now 'about'";
+  if (k == "pattern") return "'pattern' is now 'shape'";
+  if (k == "validator") return "'validator' is now 'check' (checks are named by their algorithm, e.g. \"luhn\")";
+  if (k == "confidence") return "'confidence' is now 'certainty'";
+  if (k == "context") return "'context' is now 'nearby' (with 'reach', 'raise_with', 'raise_by', 'only_with', "
+                             "'never_with')";
+  if (k == "severity") return "'severity' is gone: overlapping findings are settled by 'certainty', then span "
+                              "length, then load order (docs/personal-data.md, \"Overlaps\")";
+  return nullptr;
+}
 
-  static const std::set<std::string> kKnown = {"id", "description", "pattern", "validator", "context",
-                                               "fields", "severity", "action", "confidence"};
+const char* RenamedNearbyKey(const std::string& k) {
+  if (k == "window") return "'window' is now 'nearby.reach'";
+  if (k == "boost_words") return "'boost_words' is now 'nearby.raise_with'";
+  if (k == "boost") return "'boost' is now 'nearby.raise_by'";
+  if (k == "required_words") return "'required_words' is now 'nearby.only_with'";
+  if (k == "deny_words") return "'deny_words' is now 'nearby.never_with'";
+  return nullptr;
+}
+
+// Kind ids and vendors: lower-case ASCII words joined by single hyphens.
+bool IsKindWord(const std::string& s) {
+  if (s.empty() || s.front() == '-' || s.back() == '-') return false;
+  for (size_t i = 0; i < s.size(); ++i) {
+    char c = s[i];
+    bool ok = (c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '-';
+    if (!ok || (c == '-' && s[i - 1] == '-')) return false;
+  }
+  return true;
+}
+
+// One word a line; '#' starts a comment line; blank lines skipped. Words are
+// ASCII-lower-cased. Lists are shared by every rule that names the same file.
+Result<std::shared_ptr<const WordList>> LoadWordList(const std::string& path, const std::string& where) {
+  static std::mutex mu;
+  static std::map<std::string, std::shared_ptr<const WordList>> cache;
+  std::lock_guard<std::mutex> lock(mu);
+  auto it = cache.find(path);
+  if (it != cache.end()) return it->second;
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return Status::Usage(where + "cannot read the word list " + path);
+  auto list = std::make_shared<WordList>();
+  std::string line;
+  while (std::getline(in, line)) {
+    while (!line.empty() && (line.back() == '\r' || line.back() == ' ')) line.pop_back();
+    if (line.empty() || line[0] == '#') continue;
+    for (char& c : line) {
+      if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+    }
+    list->insert(line);
+  }
+  if (list->empty()) return Status::Usage(where + "the word list " + path + " is empty");
+  cache[path] = list;
+  return std::shared_ptr<const WordList>(list);
+}
+
+Status ParseRule(const json& j, std::string_view text, const std::string& file, const std::string& family,
+                 size_t* cursor, Rule* r) {
+  if (!j.is_object()) return Status::Usage(file + ": every entry of 'rules' must be an object");
+  if (!j.contains("kind") || !j.at("kind").is_string() || j.at("kind").get<std::string>().empty()) {
+    if (j.contains("id")) {
+      std::string old = j.at("id").is_string() ? j.at("id").get<std::string>() : "?";
+      return Status::Usage(Where(file, j.at("id").is_string() ? LineOfRuleId(text, old) : 0, old) +
+                           RenamedRuleKey("id"));
+    }
+    return Status::Usage(file + ": a rule has no string 'kind'");
+  }
+  r->kind = j.at("kind").get<std::string>();
+  r->family = family;
+  r->source_file = file;
+  r->source_line = LineOfRuleId(text, r->kind, cursor);
+  if (j.contains("vendor")) {
+    if (!j.at("vendor").is_string() || !IsKindWord(j.at("vendor").get<std::string>())) {
+      return Status::Usage(Where(file, r->source_line, r->kind) +
+                           "'vendor' must be lower-case letters and digits joined by single hyphens");
+    }
+    r->vendor = j.at("vendor").get<std::string>();
+  }
+  if (j.contains("variant")) {
+    if (!j.at("variant").is_string() || !IsKindWord(j.at("variant").get<std::string>())) {
+      return Status::Usage(Where(file, r->source_line, r->kind) +
+                           "'variant' must be lower-case letters and digits joined by single hyphens");
+    }
+    if (!r->vendor.empty()) {
+      return Status::Usage(Where(file, r->source_line, r->kind) + "give either 'vendor' or 'variant', not both");
+    }
+    r->variant = j.at("variant").get<std::string>();
+  }
+  r->id = !r->vendor.empty() ? r->kind + "/" + r->vendor : !r->variant.empty() ? r->kind + "/" + r->variant : r->kind;
+  const std::string where = Where(file, r->source_line, r->id);
+  if (!IsKindWord(r->kind)) {
+    return Status::Usage(where + "'kind' must be lower-case letters and digits joined by single hyphens");
+  }
+
+  static const std::set<std::string> kKnown = {"kind", "vendor", "variant", "about", "shape", "check", "nearby",
+                                               "fields", "action", "certainty", "first_word_in", "not_in_span", "beside"};
   for (auto it = j.begin(); it != j.end(); ++it) {
-    if (!kKnown.count(it.key())) return Status::Usage(where + "unknown field '" + it.key() + "'");
+    if (kKnown.count(it.key())) continue;
+    if (const char* m = RenamedRuleKey(it.key())) return Status::Usage(where + m);
+    return Status::Usage(where + "unknown field '" + it.key() + "'");
   }
-  if (!j.contains("pattern") || !j.at("pattern").is_string() || j.at("pattern").get<std::string>().empty()) {
-    return Status::Usage(where + "'pattern' must be a non-empty string");
+  if (!j.contains("shape") || !j.at("shape").is_string() || j.at("shape").get<std::string>().empty()) {
+    return Status::Usage(where + "'shape' must be a non-empty string (an RE2 pattern)");
   }
-  r->pattern = j.at("pattern").get<std::string>();
-  if (j.contains("description")) {
-    if (!j.at("description").is_string()) return Status::Usage(where + "'description' must be a string");
-    r->description = j.at("description").get<std::string>();
+  r->shape = j.at("shape").get<std::string>();
+  if (j.contains("about")) {
+    if (!j.at("about").is_string()) return Status::Usage(where + "'about' must be a string");
+    r->about = j.at("about").get<std::string>();
   }
-  if (j.contains("validator")) {
-    if (!j.at("validator").is_string()) return Status::Usage(where + "'validator' must be a string");
-    r->validator = j.at("validator").get<std::string>();
-    if (FindValidator(r->validator) == nullptr) {
-      return Status::Usage(where + "unknown validator '" + r->validator + "'");
+  if (j.contains("check")) {
+    if (!j.at("check").is_string()) return Status::Usage(where + "'check' must be a string");
+    r->check = j.at("check").get<std::string>();
+    if (FindValidator(r->check) == nullptr) {
+      std::string m = where + "unknown check '" + r->check + "'";
+      if (const char* now = RenamedCheck(r->check)) m += " (renamed: use '" + std::string(now) + "')";
+      return Status::Usage(m);
     }
   }
   if (j.contains("fields")) {
@@ -104,15 +202,6 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
       else return Status::Usage(where + "unknown field kind '" + s + "' (prompt, candidates, metadata)");
     }
   }
-  if (j.contains("severity")) {
-    const json& s = j.at("severity");
-    std::string v = s.is_string() ? s.get<std::string>() : "";
-    if (v == "low") r->severity = Severity::kLow;
-    else if (v == "medium") r->severity = Severity::kMedium;
-    else if (v == "high") r->severity = Severity::kHigh;
-    else if (v == "critical") r->severity = Severity::kCritical;
-    else return Status::Usage(where + "'severity' must be low, medium, high or critical");
-  }
   if (j.contains("action")) {
     const json& a = j.at("action");
     std::string v = a.is_string() ? a.get<std::string>() : "";
@@ -122,49 +211,74 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
     else if (v == "drop") r->action = Action::kDrop;
     else return Status::Usage(where + "'action' must be flag, mask, pseudonymise or drop");
   }
-  if (j.contains("confidence")) {
-    const json& c = j.at("confidence");
+  if (j.contains("certainty")) {
+    const json& c = j.at("certainty");
     if (!c.is_number() || c.get<double>() < 0.0 || c.get<double>() > 1.0) {
-      return Status::Usage(where + "'confidence' must be a number in [0, 1]");
+      return Status::Usage(where + "'certainty' must be a number in [0, 1]");
     }
-    r->confidence = c.get<double>();
+    r->certainty = c.get<double>();
   }
-  if (j.contains("context")) {
-    const json& c = j.at("context");
-    if (!c.is_object()) return Status::Usage(where + "'context' must be an object");
-    static const std::set<std::string> kCtx = {"window", "boost_words", "boost", "required_words", "deny_words"};
+  if (j.contains("nearby")) {
+    const json& c = j.at("nearby");
+    if (!c.is_object()) return Status::Usage(where + "'nearby' must be an object");
+    static const std::set<std::string> kNear = {"reach", "raise_with", "raise_by", "only_with", "never_with"};
     for (auto it = c.begin(); it != c.end(); ++it) {
-      if (!kCtx.count(it.key())) return Status::Usage(where + "unknown context field '" + it.key() + "'");
+      if (kNear.count(it.key())) continue;
+      if (const char* m = RenamedNearbyKey(it.key())) return Status::Usage(where + m);
+      return Status::Usage(where + "unknown 'nearby' field '" + it.key() + "'");
     }
-    if (c.contains("window")) {
-      if (!c.at("window").is_number_integer() || c.at("window").get<int>() < 0 ||
-          c.at("window").get<int>() > 1000) {
-        return Status::Usage(where + "'context.window' must be an integer in [0, 1000]");
+    if (c.contains("reach")) {
+      if (!c.at("reach").is_number_integer() || c.at("reach").get<int>() < 0 || c.at("reach").get<int>() > 1000) {
+        return Status::Usage(where + "'nearby.reach' must be an integer in [0, 1000] (bytes on each side)");
       }
-      r->context.window = c.at("window").get<int>();
+      r->nearby.reach = c.at("reach").get<int>();
     }
-    if (c.contains("boost")) {
-      if (!c.at("boost").is_number() || c.at("boost").get<double>() < -1.0 || c.at("boost").get<double>() > 1.0) {
-        return Status::Usage(where + "'context.boost' must be a number in [-1, 1]");
+    if (c.contains("raise_by")) {
+      if (!c.at("raise_by").is_number() || c.at("raise_by").get<double>() < -1.0 ||
+          c.at("raise_by").get<double>() > 1.0) {
+        return Status::Usage(where + "'nearby.raise_by' must be a number in [-1, 1]");
       }
-      r->context.boost = c.at("boost").get<double>();
+      r->nearby.raise_by = c.at("raise_by").get<double>();
     }
-    auto b = StringList(c, "boost_words", where);
+    auto b = StringList(c, "raise_with", where);
     if (!b.ok()) return b.status();
-    auto q = StringList(c, "required_words", where);
+    auto q = StringList(c, "only_with", where);
     if (!q.ok()) return q.status();
-    auto d = StringList(c, "deny_words", where);
+    auto d = StringList(c, "never_with", where);
     if (!d.ok()) return d.status();
-    r->context.boost_words = std::move(b).value();
-    r->context.required_words = std::move(q).value();
-    r->context.deny_words = std::move(d).value();
+    r->nearby.raise_with = std::move(b).value();
+    r->nearby.only_with = std::move(q).value();
+    r->nearby.never_with = std::move(d).value();
+  }
+  if (j.contains("first_word_in")) {
+    if (!j.at("first_word_in").is_string() || j.at("first_word_in").get<std::string>().empty()) {
+      return Status::Usage(where + "'first_word_in' must be the path of a word list, relative to the pack's folder");
+    }
+    std::string rel = j.at("first_word_in").get<std::string>();
+    std::string dir = file.find('/') == std::string::npos ? "." : file.substr(0, file.find_last_of('/'));
+    std::string path = !rel.empty() && rel[0] == '/' ? rel : dir + "/" + rel;
+    auto list = LoadWordList(path, where);
+    if (!list.ok()) return list.status();
+    r->first_word_in = std::move(list).value();
+    r->first_word_in_file = rel;
+  }
+  if (j.contains("not_in_span")) {
+    auto b = StringList(j, "not_in_span", where);
+    if (!b.ok()) return b.status();
+    r->not_in_span = std::move(b).value();
+  }
+  if (j.contains("beside")) {
+    auto b = StringList(j, "beside", where);
+    if (!b.ok()) return b.status();
+    if (b.value().empty()) return Status::Usage(where + "'beside' must list at least one kind id");
+    r->beside = std::move(b).value();
   }
   // Compile once here so a bad pattern stops the run before anything is read.
   RE2::Options opt;
   opt.set_log_errors(false);
-  RE2 re(r->pattern, opt);
+  RE2 re(r->shape, opt);
   if (!re.ok()) {
-    return Status::Usage(where + "bad pattern: " + re.error());
+    return Status::Usage(where + "bad shape: " + re.error());
   }
   return Status::Ok();
 }
@@ -190,16 +304,6 @@ std::string_view ActionName(Action a) {
   return "?";
 }
 
-std::string_view SeverityName(Severity s) {
-  switch (s) {
-    case Severity::kLow: return "low";
-    case Severity::kMedium: return "medium";
-    case Severity::kHigh: return "high";
-    case Severity::kCritical: return "critical";
-  }
-  return "?";
-}
-
 Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name) {
   json doc;
   try {
@@ -215,14 +319,27 @@ Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_n
     return Status::Usage(source_name + ": a rule pack must be an object with a 'rules' array");
   }
   for (auto it = doc.begin(); it != doc.end(); ++it) {
-    if (it.key() != "pack" && it.key() != "description" && it.key() != "rules") {
+    if (it.key() == "description") {
+      return Status::Usage(source_name + ": top-level 'description' is now 'about'");
+    }
+    if (it.key() != "pack" && it.key() != "about" && it.key() != "rules") {
       return Status::Usage(source_name + ": unknown top-level field '" + it.key() + "'");
     }
   }
+  std::string family;
+  if (doc.contains("pack")) {
+    if (!doc.at("pack").is_string()) return Status::Usage(source_name + ": 'pack' must be a string");
+    family = doc.at("pack").get<std::string>();
+  } else {
+    std::string base = source_name.substr(source_name.find_last_of('/') + 1);
+    family = base.size() > 5 && base.compare(base.size() - 5, 5, ".json") == 0 ? base.substr(0, base.size() - 5)
+                                                                                 : base;
+  }
   RuleSet set;
+  size_t cursor = 0;
   for (const json& j : doc.at("rules")) {
     Rule r;
-    Status s = ParseRule(j, text, source_name, &r);
+    Status s = ParseRule(j, text, source_name, family, &cursor, &r);
     if (!s.ok()) return s;
     set.rules.push_back(std::move(r));
   }
@@ -248,7 +365,9 @@ Result<RuleSet> LoadRulePacks(const std::vector<std::string>& names_or_paths, co
     if (!pack.ok()) return pack.status();
     for (Rule& r : pack.value().rules) {
       if (!ids.insert(r.id).second) {
-        return Status::Usage(Where(path, r.source_line, r.id) + "rule id already defined by an earlier pack");
+        return Status::Usage(Where(path, r.source_line, r.id) +
+                             "this kind (and vendor) is already defined by an earlier rule; give the new rule a "
+                             "'vendor' or another 'kind'");
       }
       all.rules.push_back(std::move(r));
     }

@@ -9,7 +9,9 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <string>
+#include <unordered_set>
 #include <string_view>
 #include <vector>
 
@@ -24,35 +26,48 @@ inline constexpr int kFieldKindCount = 3;
 // What the caller should do with a finding's span.
 enum class Action : uint8_t { kFlag = 0, kMask = 1, kPseudonymise = 2, kDrop = 3 };
 
-enum class Severity : uint8_t { kLow = 0, kMedium = 1, kHigh = 2, kCritical = 3 };
-
 std::string_view FieldKindName(FieldKind f);   // "prompt" | "candidates" | "metadata"
 std::string_view ActionName(Action a);         // "flag" | "mask" | "pseudonymise" | "drop"
-std::string_view SeverityName(Severity s);     // "low" | "medium" | "high" | "critical"
 
-// Words looked for within `window` bytes on either side of a span: ASCII
-// case-insensitive, and only where they start a word (the byte before is not
-// an ASCII letter), so "tel" is found in "Tel.:" and "Telefon" but not "hotel".
-struct ContextRule {
-  int window = 40;
-  std::vector<std::string> boost_words;     // any present: confidence += boost
-  double boost = 0.0;
-  std::vector<std::string> required_words;  // non-empty and none present: no finding
-  std::vector<std::string> deny_words;      // any present: no finding
+// Words looked for within `reach` bytes on either side of a span (rule key
+// "nearby"): ASCII case-insensitive, and only where they start a word (the
+// byte before is not an ASCII letter), so "tel" is found in "Tel.:" and
+// "Telefon" but not "hotel".
+struct NearbyWords {
+  int reach = 40;
+  std::vector<std::string> raise_with;  // any present: certainty += raise_by
+  double raise_by = 0.0;
+  std::vector<std::string> only_with;   // non-empty and none present: no finding
+  std::vector<std::string> never_with;  // any present: no finding (a veto)
 };
 
+// A word list (rule key "first_word_in"): lower-cased words in a hash set.
+using WordList = std::unordered_set<std::string>;
+
 struct Rule {
-  std::string id;           // our own name, e.g. "contact.email"; unique in a RuleSet
-  std::string description;
-  std::string pattern;      // RE2 syntax, UTF-8
-  std::string validator;    // "" or a name known to validators.h
-  ContextRule context;
+  std::string kind;         // kind id, e.g. "card-number" (docs/personal-data.md, "Kind ids")
+  std::string vendor;       // "" or the issuer of a credential shape, e.g. "github"
+  std::string variant;      // "" or which of several rules of one kind, e.g. "salutation"
+  std::string id;           // the rule's name: kind, kind/vendor or kind/variant; unique in a RuleSet
+  std::string family;       // the pack's name ("contact", "payment", ...), for grouping
+  std::string about;        // one line for people
+  std::string shape;        // RE2 syntax, UTF-8; the span is capture group 1 if there is one, else the whole match
+  std::string check;        // "" or a check name known to validators.h
+  NearbyWords nearby;
   bool fields[kFieldKindCount] = {true, true, true};
-  Severity severity = Severity::kMedium;
   Action action = Action::kMask;
-  double confidence = 0.8;  // base confidence in [0, 1]
+  double certainty = 0.8;   // base certainty in [0, 1]; also the first key of the overlap order
+  // The span's first word (ASCII case-insensitive) must be in this list.
+  std::shared_ptr<const WordList> first_word_in;
+  std::string first_word_in_file;      // as written in the pack, for messages
+  // No word of the span may be one of these (lower-cased; e.g. "pepper" for a
+  // product built on a title, "library" for an organisation after "this is").
+  std::vector<std::string> not_in_span;
+  // Kept only if a finding of one of these kinds (of other rules) lies within
+  // nearby.reach bytes of the span. Evaluated after all other findings.
+  std::vector<std::string> beside;
   std::string source_file;  // where it was loaded from (for messages)
-  int source_line = 0;      // 1-based line of the rule's id in that file
+  int source_line = 0;      // 1-based line of the rule's kind in that file
 };
 
 struct RuleSet {

@@ -18,11 +18,12 @@ struct Screener::Impl {
     Rule rule;
     std::unique_ptr<RE2> re;
     ValidatorFn validator = nullptr;
+    bool group_span = false;  // the shape has a capture group: group 1 is the span
   };
   std::vector<Compiled> rules;
   std::unique_ptr<RE2::Set> sets[kFieldKindCount];
   std::vector<int> set_to_rule[kFieldKindCount];
-  double min_confidence = 0.0;
+  double certainty_floor = 0.0;
 };
 
 namespace {
@@ -87,11 +88,11 @@ bool AnyWordIn(const std::string& haystack_lower, const std::vector<std::string>
   return false;
 }
 
-// Returns false if the finding is refused by its context; else sets *conf.
-bool ApplyContext(const ContextRule& c, std::string_view t, size_t b, size_t e, double base, double* conf) {
+// Returns false if the finding is vetoed or lacks a word it needs; else sets *conf.
+bool ApplyNearby(const NearbyWords& c, std::string_view t, size_t b, size_t e, double base, double* conf) {
   *conf = base;
-  if (c.boost_words.empty() && c.required_words.empty() && c.deny_words.empty()) return true;
-  size_t w = static_cast<size_t>(c.window);
+  if (c.raise_with.empty() && c.only_with.empty() && c.never_with.empty()) return true;
+  size_t w = static_cast<size_t>(c.reach);
   size_t lo = b > w ? b - w : 0;
   size_t hi = std::min(t.size(), e + w);
   std::string around;
@@ -102,10 +103,10 @@ bool ApplyContext(const ContextRule& c, std::string_view t, size_t b, size_t e, 
   for (char& ch : around) {
     if (ch >= 'A' && ch <= 'Z') ch = static_cast<char>(ch - 'A' + 'a');
   }
-  if (!c.deny_words.empty() && AnyWordIn(around, c.deny_words)) return false;
-  if (!c.required_words.empty() && !AnyWordIn(around, c.required_words)) return false;
-  if (!c.boost_words.empty() && AnyWordIn(around, c.boost_words)) {
-    *conf = std::clamp(base + c.boost, 0.0, 1.0);
+  if (!c.never_with.empty() && AnyWordIn(around, c.never_with)) return false;
+  if (!c.only_with.empty() && !AnyWordIn(around, c.only_with)) return false;
+  if (!c.raise_with.empty() && AnyWordIn(around, c.raise_with)) {
+    *conf = std::clamp(base + c.raise_by, 0.0, 1.0);
   }
   return true;
 }
@@ -116,11 +117,42 @@ struct Candidate {
   double confidence;
 };
 
+// Is any word of the span (split at spaces, line breaks, hyphens and
+// apostrophes), ASCII-lower-cased, one of `words`?
+bool AnySpanWordIn(std::string_view span, const std::vector<std::string>& words) {
+  size_t i = 0;
+  while (i < span.size()) {
+    size_t j = i;
+    while (j < span.size() && span[j] != ' ' && span[j] != '\n' && span[j] != '\t' && span[j] != '-' &&
+           span[j] != '\'') {
+      ++j;
+    }
+    std::string w(span.substr(i, j - i));
+    for (char& ch : w) {
+      if (ch >= 'A' && ch <= 'Z') ch = static_cast<char>(ch - 'A' + 'a');
+    }
+    if (!w.empty() && std::find(words.begin(), words.end(), w) != words.end()) return true;
+    i = j + 1;
+  }
+  return false;
+}
+
+// The span's first word (up to a space or hyphen, or the whole span), ASCII-lower-cased.
+std::string FirstWord(std::string_view span) {
+  size_t n = 0;
+  while (n < span.size() && span[n] != ' ' && span[n] != '\n' && span[n] != '\t' && span[n] != '-') ++n;
+  std::string w(span.substr(0, n));
+  for (char& c : w) {
+    if (c >= 'A' && c <= 'Z') c = static_cast<char>(c - 'A' + 'a');
+  }
+  return w;
+}
+
 }  // namespace
 
 Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& options) {
   auto impl = std::make_shared<Impl>();
-  impl->min_confidence = options.min_confidence;
+  impl->certainty_floor = options.certainty_floor;
   RE2::Options ro;
   ro.set_log_errors(false);
   ro.set_max_mem(options.rule_max_mem);
@@ -133,18 +165,19 @@ Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& op
     const std::string where = r.source_file + ":" + std::to_string(r.source_line) + ": rule '" + r.id + "': ";
     Impl::Compiled c;
     c.rule = r;
-    c.re = std::make_unique<RE2>(r.pattern, ro);
-    if (!c.re->ok()) return Status::Usage(where + "bad pattern: " + c.re->error());
-    if (!r.validator.empty()) {
-      c.validator = FindValidator(r.validator);
-      if (c.validator == nullptr) return Status::Usage(where + "unknown validator '" + r.validator + "'");
+    c.re = std::make_unique<RE2>(r.shape, ro);
+    if (!c.re->ok()) return Status::Usage(where + "bad shape: " + c.re->error());
+    c.group_span = c.re->NumberOfCapturingGroups() >= 1;
+    if (!r.check.empty()) {
+      c.validator = FindValidator(r.check);
+      if (c.validator == nullptr) return Status::Usage(where + "unknown check '" + r.check + "'");
     }
     int idx = static_cast<int>(impl->rules.size());
     for (int f = 0; f < kFieldKindCount; ++f) {
       if (!r.fields[f]) continue;
       std::string err;
-      int id = impl->sets[f]->Add(r.pattern, &err);
-      if (id < 0) return Status::Usage(where + "bad pattern: " + err);
+      int id = impl->sets[f]->Add(r.shape, &err);
+      if (id < 0) return Status::Usage(where + "bad shape: " + err);
       impl->set_to_rule[f].push_back(idx);
     }
     impl->rules.push_back(std::move(c));
@@ -185,21 +218,27 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
   }
   std::sort(hits.begin(), hits.end());
 
-  std::vector<Candidate> cands;
+  std::vector<Candidate> cands, beside_cands;
   for (int h : hits) {
     const int ri = impl_->set_to_rule[f][static_cast<size_t>(h)];
     const Impl::Compiled& c = impl_->rules[static_cast<size_t>(ri)];
     size_t pos = 0;
-    re2::StringPiece m;
+    re2::StringPiece m[2];
+    const int nsub = c.group_span ? 2 : 1;
     while (pos <= text.size() &&
-           c.re->Match(text, pos, text.size(), RE2::UNANCHORED, &m, 1)) {
-      size_t b = static_cast<size_t>(m.data() - text.data());
-      size_t e = b + m.size();
+           c.re->Match(text, pos, text.size(), RE2::UNANCHORED, m, nsub)) {
+      size_t b = static_cast<size_t>(m[0].data() - text.data());
+      size_t e = b + m[0].size();
       if (e == b) {  // empty match: step one byte
         pos = b + 1;
         continue;
       }
       pos = e;
+      if (c.group_span) {  // the span is group 1; the rest of the match is the signal around it
+        if (m[1].data() == nullptr || m[1].empty()) continue;
+        b = static_cast<size_t>(m[1].data() - text.data());
+        e = b + m[1].size();
+      }
       if (NonAsciiNeighbourBlocks(text, b, e)) continue;
       if (c.validator != nullptr) {
         size_t e2 = e;
@@ -210,18 +249,22 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
         }
       }
       double conf;
-      if (!ApplyContext(c.rule.context, text, b, e, c.rule.confidence, &conf)) continue;
-      if (conf < impl_->min_confidence) continue;
+      if (c.rule.first_word_in && !c.rule.first_word_in->count(FirstWord(text.substr(b, e - b)))) continue;
+      if (!c.rule.not_in_span.empty() && AnySpanWordIn(text.substr(b, e - b), c.rule.not_in_span)) continue;
+      if (!ApplyNearby(c.rule.nearby, text, b, e, c.rule.certainty, &conf)) continue;
+      if (conf < impl_->certainty_floor) continue;
+      if (!c.rule.beside.empty()) {
+        beside_cands.push_back({b, e, ri, conf});
+        continue;
+      }
       cands.push_back({b, e, ri, conf});
     }
   }
-  if (cands.empty()) return out;
+  if (cands.empty() && beside_cands.empty()) return out;
 
-  // Overlap order: severity, length, rule order, start.
+  // Overlap order: certainty after nearby words, length, rule order, start.
   std::sort(cands.begin(), cands.end(), [&](const Candidate& x, const Candidate& y) {
-    const Rule& rx = impl_->rules[static_cast<size_t>(x.rule)].rule;
-    const Rule& ry = impl_->rules[static_cast<size_t>(y.rule)].rule;
-    if (rx.severity != ry.severity) return rx.severity > ry.severity;
+    if (x.confidence != y.confidence) return x.confidence > y.confidence;
     if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
     if (x.rule != y.rule) return x.rule < y.rule;
     return x.begin < y.begin;
@@ -237,6 +280,36 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
     }
     if (!overlaps) kept.push_back(c);
   }
+  // Rules with "beside": kept only next to a kept finding of a listed kind,
+  // and only where they overlap nothing already kept (so the order among
+  // them is the same overlap order).
+  if (!beside_cands.empty()) {
+    std::sort(beside_cands.begin(), beside_cands.end(), [](const Candidate& x, const Candidate& y) {
+      if (x.confidence != y.confidence) return x.confidence > y.confidence;
+      if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
+      if (x.rule != y.rule) return x.rule < y.rule;
+      return x.begin < y.begin;
+    });
+    const size_t n_first = kept.size();
+    for (const Candidate& c : beside_cands) {
+      const Rule& r = impl_->rules[static_cast<size_t>(c.rule)].rule;
+      const size_t reach = static_cast<size_t>(r.nearby.reach);
+      bool near = false, overlaps = false;
+      for (size_t i = 0; i < kept.size(); ++i) {
+        const Candidate& k = kept[i];
+        if (c.begin < k.end && k.begin < c.end) {
+          overlaps = true;
+          break;
+        }
+        if (i >= n_first) continue;
+        const std::string& kind = impl_->rules[static_cast<size_t>(k.rule)].rule.kind;
+        size_t gap = k.begin >= c.end ? k.begin - c.end : c.begin - k.end;
+        if (gap <= reach && std::find(r.beside.begin(), r.beside.end(), kind) != r.beside.end()) near = true;
+      }
+      if (near && !overlaps) kept.push_back(c);
+    }
+  }
+  if (kept.empty()) return out;
   std::sort(kept.begin(), kept.end(), [](const Candidate& x, const Candidate& y) { return x.begin < y.begin; });
   out.reserve(kept.size());
   for (const Candidate& k : kept) {
@@ -247,8 +320,8 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
     fd.begin = k.begin;
     fd.end = k.end;
     fd.action = r.action;
-    fd.severity = r.severity;
-    fd.confidence = k.confidence;
+    fd.certainty = k.confidence;
+    fd.kind = r.kind;
     fd.preview = MaskedPreview(text.substr(k.begin, k.end - k.begin));
     out.push_back(std::move(fd));
   }

@@ -4,9 +4,9 @@
 // Method: every active rule's pattern for a field kind is compiled into one
 // RE2::Set, so a text is scanned once; only the rules the Set reports are
 // run again (individual RE2 objects) to find their spans; each span is checked
-// by the rule's validator and context words; overlapping spans are resolved by
-// (1) higher severity, (2) longer span, (3) earlier rule in load order,
-// (4) earlier start.
+// by the rule's check and nearby words; overlapping spans are resolved by
+// (1) higher certainty (the rule's base certainty after nearby words),
+// (2) longer span, (3) earlier rule in load order, (4) earlier start.
 //
 // Word boundaries: patterns use RE2's \b, which is ASCII-only. After a match,
 // a span whose first/last byte is an ASCII letter or digit is also refused if
@@ -34,14 +34,14 @@
 namespace prefsift::screen {
 
 struct Finding {
-  std::string rule_id;
+  std::string rule_id;  // the rule's name: kind, or kind/vendor
   FieldKind field = FieldKind::kPrompt;
   size_t begin = 0;  // byte offsets into the scanned text, [begin, end)
   size_t end = 0;
   Action action = Action::kFlag;
-  Severity severity = Severity::kLow;
-  double confidence = 0.0;
+  double certainty = 0.0;
   std::string preview;  // MaskedPreview of the value; never the value itself
+  std::string kind;     // the kind id (placeholders name it); "" means rule_id
 };
 
 struct ScreenerOptions {
@@ -50,8 +50,8 @@ struct ScreenerOptions {
   int64_t set_max_mem = 64 << 20;
   // Memory budget of each rule's own RE2 object.
   int64_t rule_max_mem = 8 << 20;
-  // Findings below this confidence are not reported.
-  double min_confidence = 0.0;
+  // Findings below this certainty are not reported (plan: certainty_floor).
+  double certainty_floor = 0.0;
 };
 
 class Screener {

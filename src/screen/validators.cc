@@ -134,7 +134,7 @@ std::string_view Span(std::string_view t, size_t b, size_t e) { return t.substr(
 
 // Is [b, e) part of a checksum-valid IBAN that starts at most 40 bytes
 // earlier? Digit rules (card, Aadhaar, BSN) refuse such spans: the IBAN rule
-// reports the whole account number instead of a higher-severity fragment.
+// reports the whole account number instead of a fragment that a national-number rule would also accept.
 bool InsideValidIban(std::string_view t, size_t b, size_t e) {
   size_t lo = b > 40 ? b - 40 : 0;
   for (size_t p = b; p-- > lo;) {
@@ -262,29 +262,30 @@ constexpr char kFR[] = "FR";
 constexpr char kIN[] = "IN";
 constexpr char kJP[] = "JP";
 
-struct NamedValidator { std::string_view name; ValidatorFn fn; };
+// Checks are named by their algorithm (docs/personal-data.md, "Checks").
+struct NamedValidator { std::string_view name; ValidatorFn fn; std::string_view old_name; };
 constexpr NamedValidator kValidators[] = {
-    {"email", VEmail},
-    {"payment_card", VCard},
-    {"iban", VIban},
-    {"us_ssn", VSsn},
-    {"nl_bsn", VBsn},
-    {"es_dni", VDni},
-    {"fr_nir", VNir},
-    {"in_aadhaar", VAadhaar},
-    {"it_codice_fiscale", VCodiceFiscale},
-    {"ipv4", VIpv4},
-    {"ipv6", VIpv6},
-    {"mac", VMac},
-    {"jwt", VJwt},
-    {"high_entropy", VEntropy},
-    {"phone_e164", VPhoneE164},
-    {"phone_nanp", VPhoneNational<kUS>},
-    {"phone_gb", VPhoneNational<kGB>},
-    {"phone_de", VPhoneNational<kDE>},
-    {"phone_fr", VPhoneNational<kFR>},
-    {"phone_in", VPhoneNational<kIN>},
-    {"phone_jp", VPhoneNational<kJP>},
+    {"rfc5321-mailbox", VEmail, "email"},
+    {"luhn", VCard, "payment_card"},
+    {"iso7064-mod97-10", VIban, "iban"},
+    {"ssa-never-issued-ranges", VSsn, "us_ssn"},
+    {"eleven-test", VBsn, "nl_bsn"},
+    {"mod23-letter", VDni, "es_dni"},
+    {"mod97-complement-key", VNir, "fr_nir"},
+    {"verhoeff", VAadhaar, "in_aadhaar"},
+    {"odd-even-mod26-letter", VCodiceFiscale, "it_codice_fiscale"},
+    {"dotted-quad-octets", VIpv4, "ipv4"},
+    {"rfc4291-text-form", VIpv6, "ipv6"},
+    {"eui48-text-form", VMac, "mac"},
+    {"base64url-json-header", VJwt, "jwt"},
+    {"shannon-entropy", VEntropy, "high_entropy"},
+    {"e164-national-length", VPhoneE164, "phone_e164"},
+    {"nanp-leading-digits", VPhoneNational<kUS>, "phone_nanp"},
+    {"british-trunk-0-length", VPhoneNational<kGB>, "phone_gb"},
+    {"german-trunk-0-length", VPhoneNational<kDE>, "phone_de"},
+    {"french-trunk-0-length", VPhoneNational<kFR>, "phone_fr"},
+    {"indian-mobile-length", VPhoneNational<kIN>, "phone_in"},
+    {"japanese-trunk-0-length", VPhoneNational<kJP>, "phone_jp"},
 };
 
 }  // namespace
@@ -292,6 +293,13 @@ constexpr NamedValidator kValidators[] = {
 ValidatorFn FindValidator(std::string_view name) {
   for (const auto& v : kValidators) {
     if (v.name == name) return v.fn;
+  }
+  return nullptr;
+}
+
+const char* RenamedCheck(std::string_view old_name) {
+  for (const auto& v : kValidators) {
+    if (v.old_name == old_name) return v.name.data();
   }
   return nullptr;
 }

@@ -2,7 +2,7 @@
 // (checksums, reserved ranges, lengths, decodings). Pure functions of their
 // input, no state: safe from any thread.
 //
-// The engine calls a validator by name (Rule::validator) with the whole text
+// The engine calls a validator by name (Rule::check) with the whole text
 // and the span, so a validator may also look at the span's neighbours (e.g.
 // to refuse "1.2.3.4" inside the version string "1.2.3.4.5").
 #pragma once
@@ -17,8 +17,13 @@ namespace prefsift::screen {
 // too much, e.g. an IBAN followed by a capitalised word.
 using ValidatorFn = bool (*)(std::string_view text, size_t begin, size_t* end);
 
-// nullptr if `name` is not a known validator.
+// nullptr if `name` is not a known check (rule key "check"; checks are
+// named by their algorithm, e.g. "luhn", "iso7064-mod97-10", "verhoeff").
 ValidatorFn FindValidator(std::string_view name);
+
+// The current name of a check under its old, pre-rename name (e.g. "iban" ->
+// "iso7064-mod97-10"), or nullptr. Only for error messages.
+const char* RenamedCheck(std::string_view old_name);
 
 // The checks themselves, on a bare value (separators allowed where noted).
 bool LuhnValid(std::string_view digits);               // digits only; ISO/IEC 7812-1 Luhn

@@ -67,10 +67,13 @@ struct RecordHits {
 
 const char* const kCautions[] = {
     "The screen is an aid, not a guarantee and not legal advice: rule packs find values with a recognisable shape "
-    "(e-mail addresses, phone numbers, card numbers, IBANs, national identifiers, network addresses, secrets) and "
-    "miss what does not have one.",
-    "Names, postal addresses and free-text health, religious or other sensitive details are not reliably found by "
-    "patterns; review samples by hand before release.",
+    "(e-mail addresses, phone numbers, card numbers, IBANs, national identifiers, network addresses, secrets, and "
+    "names and postal addresses in the phrasings listed below) and miss what does not have one.",
+    "Names of people and postal addresses are found only where the text signals them (a self-introduction, greeting, "
+    "sign-off or title; a name beside an e-mail, phone or address; a US address with state and ZIP, a UK address "
+    "ending in a postcode): a name in a plain sentence, nicknames and other address formats are missed, and product "
+    "names built on a title can be masked. Free-text health, religious or other sensitive details are not found at "
+    "all; review samples by hand before release.",
     "Which data may be kept, masked, pseudonymised or must be removed is decided by the data-protection law that "
     "applies to the dataset and by the organisation's privacy officer, not by this tool.",
     "Pseudonyms are keyed (HMAC-SHA256): whoever holds the key can test guesses against them; keep the key secret "
@@ -119,7 +122,7 @@ struct Settings {
   std::string default_action;           // "" = each rule's own
   std::map<std::string, std::string> overrides;
   std::string key_source;               // "key_file", "key_env" or ""
-  double min_confidence = 0.0;
+  double certainty_floor = 0.0;
 };
 
 class PersonalDataStage : public Stage {
@@ -160,7 +163,7 @@ class PersonalDataStage : public Stage {
         hit.begin = static_cast<uint32_t>(f.begin);
         hit.end = static_cast<uint32_t>(f.end);
         hit.action = f.action;
-        hit.confidence = static_cast<float>(f.confidence);
+        hit.confidence = static_cast<float>(f.certainty);
         hit.text_hash = h;
         if (meta_pointer) hit.meta_pointer = *meta_pointer;
         hit.preview = f.preview;
@@ -218,7 +221,7 @@ class PersonalDataStage : public Stage {
       std::string list;
       for (const auto& id : ids) list += (list.empty() ? "" : ", ") + id;
       const Layout& L = st.plan().inputs[st.entries[st.records[i].entry].input].layout;
-      Json detail{{"rules", std::vector<std::string>(ids.begin(), ids.end())}, {"findings", r.hits.size()}};
+      Json detail{{"kinds", std::vector<std::string>(ids.begin(), ids.end())}, {"findings", r.hits.size()}};
       if (st.Reject(i, kStage, "personal_data",
                     "the record contains personal data that the screen is set to drop (" + list +
                         "); see " + kFindingsFile,
@@ -247,7 +250,7 @@ class PersonalDataStage : public Stage {
     for (const auto& [id, a] : settings_.overrides) overrides[id] = a;
     (*s)["action_overrides"] = std::move(overrides);
     (*s)["pseudonym_key"] = settings_.key_source.empty() ? "none" : "from " + settings_.key_source + " (never written)";
-    (*s)["min_confidence"] = settings_.min_confidence;
+    (*s)["certainty_floor"] = settings_.certainty_floor;
     (*s)["records_screened"] = std::min(per_record_.size(), st.records.size());
     (*s)["texts_screened"] = texts_.load();
     (*s)["records_with_findings"] = records_with_findings_;
@@ -296,14 +299,16 @@ class PersonalDataStage : public Stage {
         if (h.part == Part::kCandidate) j["candidate"] = h.index;
         if (h.part == Part::kTurn) j["turn"] = h.index;
         j["pointer"] = PointerOf(L, h);
-        j["rule"] = rules_.rules[h.rule].id;
+        j["kind"] = rules_.rules[h.rule].kind;
+        if (!rules_.rules[h.rule].vendor.empty()) j["vendor"] = rules_.rules[h.rule].vendor;
+        j["family"] = rules_.rules[h.rule].family;
         j["begin"] = h.begin;
         j["end"] = h.end;
         j["action"] = std::string(screen::ActionName(h.action));
         j["applied"] = r.drop ? "masked (record dropped)"
                        : h.action == Action::kFlag ? "none"
                        : h.action == Action::kMask ? "masked" : "pseudonymised";
-        j["confidence"] = std::round(static_cast<double>(h.confidence) * 1000.0) / 1000.0;
+        j["certainty"] = std::round(static_cast<double>(h.confidence) * 1000.0) / 1000.0;
         j["preview"] = h.preview;
         j["kept"] = !d.rejected;
         Status s = f.value()->Append(j.dump() + "\n");
@@ -331,6 +336,7 @@ class PersonalDataStage : public Stage {
         const Hit& h = r.hits[j];
         screen::Finding f;
         f.rule_id = rules_.rules[h.rule].id;
+        f.kind = rules_.rules[h.rule].kind;
         f.field = KindOf(h.part);
         f.begin = h.begin;
         f.end = h.end;
@@ -454,11 +460,17 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
       has_default = true;
       set.default_action = v.get<std::string>();
     } else if (k == "actions") {
-      if (!v.is_object()) return usage("stages.screen.actions: must be an object {\"<rule id>\": \"<action>\"}");
+      return usage("stages.screen.actions is now \"action_by_kind\": {\"<kind id>\": \"<action>\"}, keyed by kind "
+                   "ids such as \"mailbox-address\" (docs/personal-data.md, \"Kind ids\")");
+    } else if (k == "action_by_kind") {
+      if (!v.is_object()) {
+        return usage("stages.screen.action_by_kind: must be an object {\"<kind id>\": \"<action>\"}");
+      }
       for (auto a = v.begin(); a != v.end(); ++a) {
         Action act;
         if (!ParseAction(a.value(), &act)) {
-          return usage("stages.screen.actions." + a.key() + ": must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
+          return usage("stages.screen.action_by_kind." + a.key() +
+                       ": must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
         }
         overrides[a.key()] = act;
         set.overrides[a.key()] = a.value().get<std::string>();
@@ -486,13 +498,16 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
         if (!ok) return usage("stages.screen.fields: unknown field " + f.dump() + " (prompt, candidates, metadata)");
       }
     } else if (k == "min_confidence") {
+      return usage("stages.screen.min_confidence is now \"certainty_floor\" (findings whose certainty, after nearby "
+                   "words, is below it are not reported)");
+    } else if (k == "certainty_floor") {
       if (!v.is_number() || v.get<double>() < 0 || v.get<double>() > 1) {
-        return usage("stages.screen.min_confidence: must be a number in [0, 1]");
+        return usage("stages.screen.certainty_floor: must be a number in [0, 1]");
       }
-      set.min_confidence = v.get<double>();
+      set.certainty_floor = v.get<double>();
     } else {
       return usage("stages.screen: unknown setting \"" + k +
-                   "\" (known: packs, rules_dir, action, actions, key_file, key_env, fields, min_confidence)");
+                   "\" (known: packs, rules_dir, action, action_by_kind, key_file, key_env, fields, certainty_floor)");
     }
   }
   if (!key_file.empty() && !key_env.empty()) {
@@ -546,12 +561,16 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   for (auto& r : rules.rules) {
     if (has_default) r.action = default_action;
   }
+  // A key is a kind id (all its rules) or kind/vendor (one rule).
   for (const auto& [id, act] : overrides) {
-    auto it = std::find_if(rules.rules.begin(), rules.rules.end(), [&](const screen::Rule& r) { return r.id == id; });
-    if (it == rules.rules.end()) {
-      return usage("stages.screen.actions: no rule \"" + id + "\" in the loaded packs");
+    bool any = false;
+    for (auto& r : rules.rules) {
+      if (r.kind == id || r.id == id) {
+        r.action = act;
+        any = true;
+      }
     }
-    it->action = act;
+    if (!any) return usage("stages.screen.action_by_kind: no kind \"" + id + "\" in the loaded packs");
   }
   for (const auto& r : rules.rules) {
     if (r.action == Action::kPseudonymise) pseudo_rules.push_back(r.id);
@@ -585,7 +604,7 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
                  "environment variable holding it)");
   }
   screen::ScreenerOptions opts;
-  opts.min_confidence = set.min_confidence;
+  opts.certainty_floor = set.certainty_floor;
   auto built = screen::Screener::Build(rules, opts);
   if (!built.ok()) {
     *error = built.status();

@@ -12,7 +12,7 @@
 // WriteOutputs writes personal_data_findings.jsonl.
 //
 // Settings (plan "stages": {"screen": {...}}, docs/plan.md): packs, rules_dir,
-// action, actions, key_file, key_env, fields, min_confidence.
+// action, action_by_kind, key_file, key_env, fields, certainty_floor.
 // The pseudonym key is held in memory only; it is never written or logged.
 //
 // Thread-safety: Observe may run concurrently for distinct record indexes after

@@ -30,14 +30,9 @@ namespace {
 
 using Json = nlohmann::ordered_json;
 
-// Rule id prefix -> the family names used in samples/truth.json.
-std::string FamilyOfRule(const std::string& rule) {
-  std::string p = rule.substr(0, rule.find('.'));
-  if (p == "gov") return "government";
-  if (p == "net") return "network";
-  if (p == "secret") return "secrets";
-  return p;  // contact, payment
-}
+// A finding's family is its rule pack's name ("family" in the findings file),
+// which is the family name used in samples/truth.json.
+std::string FamilyOf(const Json& finding) { return finding["family"].get<std::string>(); }
 
 std::string Binary() { return PREFSIFT_BINARY; }
 
@@ -94,7 +89,7 @@ std::vector<Planted> Load(const char* key) {
 bool Matches(const Json& f, const Planted& p, bool same_family) {
   if (f["id"] != p.id || f["pointer"] != p.pointer || f["field"] != p.field) return false;
   if (p.cand >= 0 && (!f.contains("candidate") || f["candidate"] != p.cand)) return false;
-  if (same_family && FamilyOfRule(f["rule"]) != p.family) return false;
+  if (same_family && FamilyOf(f) != p.family) return false;
   size_t b = f["begin"], e = f["end"];
   return b < p.end && p.begin < e;
 }
@@ -119,10 +114,10 @@ TEST(PersonalDataE2E, RecallAndPrecisionPerFamilyOnPlantedValues) {
                        << p.end;
   }
   for (size_t i = 0; i < findings.size(); ++i) {
-    std::string fam = FamilyOfRule(findings[i]["rule"]);
+    std::string fam = FamilyOf(findings[i]);
     ++reported[fam];
     if (used[i]) ++true_pos[fam];
-    else std::cout << "[screen] unmatched finding " << findings[i].dump() << "\n";
+    else if (fam != "people") std::cout << "[screen] unmatched finding " << findings[i].dump() << "\n";
   }
   std::set<std::string> families;
   for (auto& [k, v] : total) families.insert(k);
@@ -134,6 +129,10 @@ TEST(PersonalDataE2E, RecallAndPrecisionPerFamilyOnPlantedValues) {
               << " found " << std::setw(3) << found[fam] << " recall " << std::fixed << std::setprecision(3) << recall
               << "  findings " << std::setw(3) << reported[fam] << " matched " << std::setw(3) << true_pos[fam]
               << " precision " << precision << "\n";
+    // The samples plant no names or postal addresses (family "people"); those
+    // kinds are scored on their own corpus (tests/screen/people_test.cc), so
+    // here their findings are printed, not gated.
+    if (total[fam] == 0 && fam == "people") continue;
     EXPECT_GE(recall, 0.99) << fam;
     EXPECT_GE(precision, 0.98) << fam;
   }
@@ -148,7 +147,7 @@ TEST(PersonalDataE2E, NoDecoyIsReported) {
     for (const auto& f : findings) {
       if (Matches(f, d, false)) {
         ++reported;
-        ADD_FAILURE() << "decoy " << d.family << " reported by " << f["rule"] << " in " << d.id << " " << d.pointer;
+        ADD_FAILURE() << "decoy " << d.family << " reported by " << f["kind"] << " in " << d.id << " " << d.pointer;
       }
     }
   }

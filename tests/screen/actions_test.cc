@@ -31,7 +31,7 @@ TEST(Actions, OffsetsStayRightWithSeveralReplacements) {
   ASSERT_TRUE(fs.ok());
   ASSERT_EQ(fs.value().size(), 3u);
   std::string out = ApplyActions(t, fs.value(), nullptr);
-  EXPECT_EQ(out, "a [[masked:contact.email]] b [[masked:net.ipv4]] c [[masked:contact.phone.e164]] d");
+  EXPECT_EQ(out, "a [[masked:mailbox-address]] b [[masked:ipv4-address]] c [[masked:phone-international-form]] d");
   // Same result when the findings arrive in reverse order.
   std::vector<Finding> rev(fs.value().rbegin(), fs.value().rend());
   EXPECT_EQ(ApplyActions(t, rev, nullptr), out);
@@ -39,30 +39,30 @@ TEST(Actions, OffsetsStayRightWithSeveralReplacements) {
 
 TEST(Actions, FlagAndDropKeepTextOverlapsSkipped) {
   std::string t = "0123456789";
-  Finding a{"r.a", FieldKind::kPrompt, 1, 4, Action::kMask, Severity::kLow, 1, ""};
-  Finding b{"r.b", FieldKind::kPrompt, 3, 6, Action::kMask, Severity::kLow, 1, ""};  // overlaps a
-  Finding c{"r.c", FieldKind::kPrompt, 6, 8, Action::kFlag, Severity::kLow, 1, ""};
-  Finding d{"r.d", FieldKind::kPrompt, 8, 10, Action::kDrop, Severity::kLow, 1, ""};
+  Finding a{"r.a", FieldKind::kPrompt, 1, 4, Action::kMask, 1, "", ""};
+  Finding b{"r.b", FieldKind::kPrompt, 3, 6, Action::kMask, 1, "", ""};  // overlaps a
+  Finding c{"r.c", FieldKind::kPrompt, 6, 8, Action::kFlag, 1, "", ""};
+  Finding d{"r.d", FieldKind::kPrompt, 8, 10, Action::kDrop, 1, "", ""};
   EXPECT_EQ(ApplyActions(t, {a, b, c, d}, nullptr), "0[[masked:r.a]]456789");
 }
 
 TEST(Actions, PseudonymsAreStableAndKeyed) {
   PseudonymKey k = TestKey();
-  std::string p1 = Pseudonym("contact.email", "Jane@Example.com", k);
-  std::string p2 = Pseudonym("contact.email", "jane@example.com", k);
+  std::string p1 = Pseudonym("mailbox-address", "Jane@Example.com", k);
+  std::string p2 = Pseudonym("mailbox-address", "jane@example.com", k);
   EXPECT_EQ(p1, p2);  // same value (ASCII case aside) => same token
-  EXPECT_EQ(Pseudonym("payment.card", "4111 1111 1111 1111", k), Pseudonym("payment.card", "4111-1111-1111-1111", k));
-  EXPECT_NE(Pseudonym("contact.email", "john@example.com", k), p1);
+  EXPECT_EQ(Pseudonym("card-number", "4111 1111 1111 1111", k), Pseudonym("card-number", "4111-1111-1111-1111", k));
+  EXPECT_NE(Pseudonym("mailbox-address", "john@example.com", k), p1);
   auto k2 = PseudonymKey::FromBytes("another-secret-key-0001");
   ASSERT_TRUE(k2.ok());
-  EXPECT_NE(Pseudonym("contact.email", "jane@example.com", k2.value()), p1);
-  EXPECT_EQ(p1.rfind("[[pseudo:contact.email:", 0), 0u);
-  EXPECT_EQ(p1.size(), std::string("[[pseudo:contact.email:]]").size() + 12);
+  EXPECT_NE(Pseudonym("mailbox-address", "jane@example.com", k2.value()), p1);
+  EXPECT_EQ(p1.rfind("[[pseudo:mailbox-address:", 0), 0u);
+  EXPECT_EQ(p1.size(), std::string("[[pseudo:mailbox-address:]]").size() + 12);
   // Applied in text: two occurrences give the same token.
   std::string t = "jane@example.com and JANE@example.com";
   std::vector<Finding> fs = {
-      {"contact.email", FieldKind::kPrompt, 0, 16, Action::kPseudonymise, Severity::kMedium, 1, ""},
-      {"contact.email", FieldKind::kPrompt, 21, 37, Action::kPseudonymise, Severity::kMedium, 1, ""}};
+      {"mailbox-address", FieldKind::kPrompt, 0, 16, Action::kPseudonymise, 1, "", ""},
+      {"mailbox-address", FieldKind::kPrompt, 21, 37, Action::kPseudonymise, 1, "", ""}};
   EXPECT_EQ(ApplyActions(t, fs, &k), p1 + " and " + p1);
   // Short keys are refused.
   EXPECT_FALSE(PseudonymKey::FromBytes("short").ok());

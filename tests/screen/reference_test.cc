@@ -69,9 +69,9 @@ TEST(Reference, ChecksumsIdenticalToStdnum) {
 TEST(Reference, PhonesAgreeWithPhonenumbers) {
   // python3-phonenumbers is_possible_number; target agreement >= 0.99 per form.
   static const std::map<std::string, std::string> kRule = {
-      {"E164", "contact.phone.e164"}, {"US", "contact.phone.nanp"}, {"GB", "contact.phone.gb"},
-      {"DE", "contact.phone.de"},     {"FR", "contact.phone.fr"},   {"IN", "contact.phone.in"},
-      {"JP", "contact.phone.jp"}};
+      {"E164", "phone-international-form"}, {"US", "phone-north-american-form"}, {"GB", "phone-british-national-form"},
+      {"DE", "phone-german-national-form"},     {"FR", "phone-french-national-form"},   {"IN", "phone-indian-mobile-form"},
+      {"JP", "phone-japanese-national-form"}};
   std::map<std::string, Tally> by_form;
   Tally all;
   for (const auto& row : ReadTsv("phones.tsv")) {
@@ -94,17 +94,17 @@ TEST(Reference, IpAddressesIdenticalToPythonIpaddress) {
   for (const auto& row : ReadTsv("ip.tsv")) {
     ASSERT_EQ(row.size(), 3u);
     if (row[0] == "4") {
-      v4.Add(RuleAcceptsWhole("net.ipv4", row[1]), row[2] == "1", row[1]);
+      v4.Add(RuleAcceptsWhole("ipv4-address", row[1]), row[2] == "1", row[1]);
     } else {
       // Pattern + our RFC 4291 parser must agree exactly with ipaddress. The
       // rule additionally refuses spans with fewer than two hex digits
       // ("::", "::9": loopback-like, mostly code), which ipaddress accepts.
-      bool ours = testing::PatternMatchesWhole("net.ipv6", row[1]) && Ipv6Valid(row[1]);
+      bool ours = testing::PatternMatchesWhole("ipv6-address", row[1]) && Ipv6Valid(row[1]);
       v6.Add(ours, row[2] == "1", row[1]);
       int hex = 0;
       for (char c : row[1]) hex += std::isxdigit(static_cast<unsigned char>(c)) ? 1 : 0;
       if (hex >= 2) {
-        EXPECT_EQ(RuleAcceptsWhole("net.ipv6", row[1]), ours) << row[1];
+        EXPECT_EQ(RuleAcceptsWhole("ipv6-address", row[1]), ours) << row[1];
       }
     }
   }
@@ -119,7 +119,7 @@ TEST(Reference, EmailAgreesWithValidatorIsEmail) {
   Tally t;
   for (const auto& row : ReadTsv("email.tsv")) {
     ASSERT_EQ(row.size(), 2u);
-    t.Add(RuleAcceptsWhole("contact.email", row[0]), row[1] == "1", row[0]);
+    t.Add(RuleAcceptsWhole("mailbox-address", row[0]), row[1] == "1", row[0]);
   }
   std::printf("%s rate %.4f\n", t.Report("email").c_str(), t.Rate());
   EXPECT_GE(t.Rate(), 0.99) << t.Report("email");

@@ -30,7 +30,7 @@ std::vector<std::vector<std::string>> ReadTsv(const std::string& name) {
 
 const RuleSet& AllPacks() {
   static const RuleSet* set = [] {
-    auto r = LoadRulePacks({"contact", "payment", "government", "network", "secrets"}, PREFSIFT_RULES_DIR);
+    auto r = LoadRulePacks({"contact", "payment", "government", "network", "secrets", "people"}, PREFSIFT_RULES_DIR);
     if (!r.ok()) throw std::runtime_error(r.status().message());
     return new RuleSet(std::move(r).value());
   }();
@@ -60,7 +60,7 @@ bool PatternMatchesWhole(const std::string& rule_id, const std::string& text) {
   if (!re) {
     RE2::Options o;
     o.set_log_errors(false);
-    re = std::make_unique<RE2>(r.pattern, o);
+    re = std::make_unique<RE2>(r.shape, o);
   }
   return RE2::FullMatch(text, *re);
 }
@@ -68,9 +68,9 @@ bool PatternMatchesWhole(const std::string& rule_id, const std::string& text) {
 bool RuleAcceptsWhole(const std::string& rule_id, const std::string& text) {
   const Rule& r = RuleById(rule_id);
   if (!PatternMatchesWhole(rule_id, text)) return false;
-  if (r.validator.empty()) return true;
+  if (r.check.empty()) return true;
   size_t end = text.size();
-  return FindValidator(r.validator)(text, 0, &end) && end == text.size();
+  return FindValidator(r.check)(text, 0, &end) && end == text.size();
 }
 
 }  // namespace prefsift::screen::testing
