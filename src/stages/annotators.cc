@@ -33,6 +33,7 @@ struct Settings {
   uint64_t min_shared = 20;
   bias::Correction correction = bias::Correction::kHolm;
   double alpha = 0.05;
+  double min_shortfall = 0.10;
   FlaggedPolicy flagged = FlaggedPolicy::kReport;
   std::string weight_field;
   bool reject_cycles = false;
@@ -149,6 +150,9 @@ class AnnotatorsStage : public Stage {
     an["tested"] = tested_;
     an["correction"] = bias::CorrectionName(s_.correction);
     an["alpha"] = s_.alpha;
+    an["min_shortfall"] = s_.min_shortfall;
+    an["rule"] = "a candidate for review agrees with the majority of the others significantly less often than the rest "
+                 "of the set (adjusted p <= alpha) and by at least min_shortfall";
     an["rate_of_the_rest"] = "agreement with the majority of the other annotators, pooled over every other annotator";
     an["policy"] = s_.flagged == FlaggedPolicy::kReport ? "report" : s_.flagged == FlaggedPolicy::kDrop ? "drop" : "weight";
     if (s_.flagged == FlaggedPolicy::kWeight) an["weight_field"] = s_.weight_field;
@@ -425,7 +429,7 @@ class AnnotatorsStage : public Stage {
     for (size_t k = 0; k < tested.size(); ++k) {
       AnnotatorRow& a = annotators_[tested[k]];
       a.p_adjusted = adj[k];
-      a.flagged = a.p_adjusted <= s_.alpha && a.rate < a.rest_rate;
+      a.flagged = a.p_adjusted <= s_.alpha && a.rate <= a.rest_rate - s_.min_shortfall;
       if (a.flagged) {
         a.weight = a.rest_rate > 0 ? std::clamp(a.rate / a.rest_rate, 0.0, 1.0) : 0.0;
         flagged_judgments_ += a.judgments;
@@ -639,6 +643,11 @@ std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error) {
       else return Fail(error, k, "must be \"holm\" or \"benjamini-hochberg\""), nullptr;
     } else if (k == "alpha") {
       if (!Number(error, v, k, 0, 1, &b.alpha)) return nullptr;
+    } else if (k == "min_shortfall") {
+      if (!v.is_number() || !(v.get<double>() >= 0 && v.get<double>() < 1)) {
+        return Fail(error, k, "must be a number in [0, 1)"), nullptr;
+      }
+      b.min_shortfall = v.get<double>();
     } else if (k == "flagged") {
       std::string c = v.is_string() ? v.get<std::string>() : "";
       if (c == "report") b.flagged = FlaggedPolicy::kReport;
@@ -664,7 +673,7 @@ std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error) {
       if (!Count(error, v, k, 1, UINT32_MAX, &b.min_gaps)) return nullptr;
     } else {
       *error = Status::Usage("stages.annotators: unknown setting \"" + k +
-                             "\" (known: bootstrap_replicates, confidence, min_shared, correction, alpha, flagged, "
+                             "\" (known: bootstrap_replicates, confidence, min_shared, correction, alpha, min_shortfall, flagged, "
                              "weight_field, cycles, rushed_fraction, session_gap_seconds, min_gaps)");
       return nullptr;
     }
