@@ -97,12 +97,17 @@ struct Rushed {
 
 class AnnotatorsStage : public Stage {
  public:
-  AnnotatorsStage(Settings s, uint64_t seed) : s_(std::move(s)), seed_(seed) {}
+  AnnotatorsStage(Settings s, uint64_t seed, bool timed) : s_(std::move(s)), seed_(seed), timed_layout_(timed) {}
   std::string name() const override { return "annotators"; }
-  void Reserve(size_t n) override { times_.reserve(n); }
-  void Grow(size_t n) override { times_.resize(n, kNaN); }
+  // Times are kept only when some input's layout has a timestamp (8 bytes a record).
+  void Reserve(size_t n) override {
+    if (timed_layout_) times_.reserve(n);
+  }
+  void Grow(size_t n) override {
+    if (timed_layout_) times_.resize(n, kNaN);
+  }
   void Observe(size_t r, const Record& rec, const RecordFacts&, const MatchText&) override {
-    if (!rec.timestamp) return;
+    if (!rec.timestamp || r >= times_.size()) return;
     auto t = ParseJudgmentTime(*rec.timestamp);
     times_[r] = t ? *t : -std::numeric_limits<double>::infinity();  // -inf: present but unreadable
   }
@@ -581,6 +586,7 @@ class AnnotatorsStage : public Stage {
 
   Settings s_;
   uint64_t seed_;
+  bool timed_layout_;
   std::vector<double> times_;  // seconds; NaN = no timestamp, -inf = unreadable
   std::vector<std::vector<Judgment>> units_;
   AgreementFigures overall_;
@@ -682,7 +688,9 @@ std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error) {
     *error = Status::Usage("stages.annotators.weight_field: required when \"flagged\" is \"weight\" (a JSON Pointer, e.g. \"/weight\")");
     return nullptr;
   }
-  return std::make_unique<AnnotatorsStage>(std::move(b), plan.seed);
+  bool timed = false;
+  for (const auto& in : plan.inputs) timed = timed || in.layout.has_timestamp;
+  return std::make_unique<AnnotatorsStage>(std::move(b), plan.seed, timed);
 }
 
 }  // namespace prefsift

@@ -5,6 +5,7 @@
 // and 6 were run once after the last change.
 #include <gtest/gtest.h>
 
+#include <map>
 #include <set>
 
 #include "annotator_scenario.h"
@@ -25,20 +26,24 @@ struct Outcome {
 };
 
 Outcome RunScenario(const AnnotatorScenario& sc, const std::string& tag, Json settings = Json::object(), unsigned threads = 2,
-            uint64_t seed = 11) {
+            uint64_t seed = 11, Json gate = Json::object(), Json* summary = nullptr, std::string* out_dir = nullptr) {
   std::string in = WriteFile("ann_" + tag + ".jsonl", sc.jsonl);
   std::string out = TempPath("ann_out_" + tag);
   Plan plan = PlanFor({in}, sc.layout, out);
   plan.stages["annotators"] = settings;
   plan.seed = seed;
   plan.threads = threads;
+  plan.gate = gate;
   PipelineOptions o;
   o.stages = {"annotators"};
   o.table = false;
   auto r = RunPipeline(plan, o, DefaultFileSystem(), stderr);
   EXPECT_TRUE(r.ok()) << r.status().message();
   Outcome oc;
-  oc.section = Json::parse(ReadFile(out + "/summary.json"))["stages"]["annotators"];
+  Json all = Json::parse(ReadFile(out + "/summary.json"));
+  oc.section = all["stages"]["annotators"];
+  if (summary) *summary = all;
+  if (out_dir) *out_dir = out;
   oc.findings = ReadJsonl(out + "/annotator_findings.jsonl");
   oc.rejects = ReadJsonl(out + "/rejects.jsonl");
   oc.kept = ReadJsonl(out + "/" + "kept.jsonl");
@@ -164,6 +169,41 @@ TEST(Annotators, SameOutputWhateverTheThreads) {
   Outcome c = RunScenario(sc, "seed", Json::object(), 2, 12);  // another plan seed: another bootstrap draw
   EXPECT_EQ(a.section["agreement"]["alpha"], c.section["agreement"]["alpha"]);
   EXPECT_NE(a.section["agreement"]["interval"], c.section["agreement"]["interval"]);
+}
+
+TEST(Annotators, GateChecksReportAndDatasheet) {
+  AnnotatorScenario sc = MakeAnnotatorScenario(1);
+  Json summary;
+  std::string out;
+  RunScenario(sc, "gate", Json::object(), 2, 11, Json{{"min_annotator_alpha", 0.3}, {"max_flagged_annotator_share", 0.05}},
+              &summary, &out);
+  std::map<std::string, Json> checks;
+  for (const auto& c : summary["gate"]["checks"]) checks[c["check"].get<std::string>()] = c;
+  ASSERT_EQ(checks.size(), 2u);
+  EXPECT_EQ(checks["min_annotator_alpha"]["verdict"], "pass");  // alpha 0.377 >= 0.3
+  EXPECT_NEAR(checks["min_annotator_alpha"]["value"].get<double>(), summary["stages"]["annotators"]["agreement"]["alpha"].get<double>(), 1e-6);
+  EXPECT_EQ(checks["max_flagged_annotator_share"]["verdict"], "fail");  // about 14% of judgments are by the two
+  EXPECT_EQ(summary["gate"]["verdict"], "fail");
+  const std::string html = ReadFile(out + "/report.html");
+  EXPECT_NE(html.find("<h2 id=\"annotators\">"), std::string::npos);
+  EXPECT_NE(html.find("candidates for review"), std::string::npos);
+  EXPECT_NE(html.find("<tr class=\"review\"><td>clicker</td>"), std::string::npos);
+  EXPECT_EQ(html.find("bad annotator"), std::string::npos);
+  const std::string sheet = ReadFile(out + "/datasheet.md");
+  const size_t collection = sheet.find("## 3. Collection process");
+  ASSERT_NE(collection, std::string::npos);
+  EXPECT_NE(sheet.find("Krippendorff's alpha (nominal)", collection), std::string::npos);
+  // The stage did not run: the gate says so instead of passing.
+  AnnotatorScenario small = MakeAnnotatorScenario(1, true, 30, 0, 0, 0.0);
+  std::string in = WriteFile("ann_gate_off.jsonl", small.jsonl);
+  Plan plan = PlanFor({in}, small.layout, TempPath("ann_gate_off"));
+  plan.gate = Json{{"min_annotator_alpha", 0.3}};
+  PipelineOptions o;
+  o.stages = {"exact"};
+  o.table = false;
+  ASSERT_TRUE(RunPipeline(plan, o, DefaultFileSystem(), stderr).ok());
+  Json s2 = Json::parse(ReadFile(TempPath("ann_gate_off") + "/summary.json"));
+  EXPECT_EQ(s2["gate"]["checks"][0]["verdict"], "not evaluated");
 }
 
 TEST(Annotators, SettingsErrorsNameTheKey) {
