@@ -116,8 +116,8 @@ std::string AnnotatorsSection(const Json& s) {
         o += std::string("<tr") + (flagged ? " class=\"review\"" : "") + "><td>" + Esc(Str(FindPath(r, {"annotator"}))) +
              "</td><td>" + Esc(Str(FindPath(r, {"judgments"}))) + "</td><td>" + Esc(Str(FindPath(r, {"shared_comparisons"}))) +
              "</td><td>" + Esc(Fixed(FindPath(r, {"rate"}))) + "</td><td>" + Esc(Fixed(FindPath(r, {"rate_of_the_rest"}))) +
-             "</td><td>" + Esc(Str(FindPath(r, {"p_adjusted"}))) + "</td><td>" + Esc(Str(FindPath(r, {"status"}))) +
-             "</td></tr>";
+             "</td><td>" + Esc(Str(FindPath(r, {"p_adjusted"}))) + "</td><td>" + (flagged ? "<strong>" : "") +
+             Esc(Str(FindPath(r, {"status"}))) + (flagged ? "</strong>" : "") + "</td></tr>";
       }
     }
     o += "</tbody></table>\n";
