@@ -241,6 +241,17 @@ class AnnotatorsStage : public Stage {
     return out.Write("annotator_findings.jsonl", body);
   }
 
+  // Agreement over every parsed record, whatever later stages decided.
+  Json AgreementOnly(const RunState& st) {
+    std::vector<size_t> recs(st.records.size());
+    std::iota(recs.begin(), recs.end(), size_t{0});
+    BuildUnits(st, recs);
+    Agreement(st);
+    Json j{{"comparisons_judged_twice_or_more", overall_.alpha.units}};
+    AgreementToJson(overall_, &j);
+    return j;
+  }
+
   bool Rewrites(size_t r) const override { return weighted_.count(r) > 0; }
 
   Status Rewrite(size_t r, const InputSpec&, Json* doc) const override {
@@ -691,6 +702,15 @@ std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error) {
   bool timed = false;
   for (const auto& in : plan.inputs) timed = timed || in.layout.has_timestamp;
   return std::make_unique<AnnotatorsStage>(std::move(b), plan.seed, timed);
+}
+
+Json BatchAgreement(const Plan& plan, const RunState& st) {
+  const Json& s = StageSettings(plan, "annotators");
+  if (s.contains("enabled") && s["enabled"].is_boolean() && !s["enabled"].get<bool>()) return nullptr;
+  Status err;
+  auto stage = MakeAnnotatorsStage(plan, &err);
+  if (!stage) return nullptr;
+  return static_cast<AnnotatorsStage*>(stage.get())->AgreementOnly(st);
 }
 
 }  // namespace prefsift

@@ -23,6 +23,8 @@
 // dropped ones; it reads every parsed record.
 #pragma once
 
+#include <nlohmann/json_fwd.hpp>
+
 #include <memory>
 
 #include "stages/stage.h"
@@ -30,5 +32,10 @@
 namespace prefsift {
 
 std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error);
+
+// Agreement only (alpha, interval, comparisons, raw rate) over every parsed
+// record of `st`, with the plan's annotators settings: for a store's batch
+// row (docs/store.md). Null when the stage is disabled or its settings are bad.
+nlohmann::ordered_json BatchAgreement(const Plan& plan, const RunState& st);
 
 }  // namespace prefsift
