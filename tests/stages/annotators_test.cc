@@ -206,6 +206,43 @@ TEST(Annotators, GateChecksReportAndDatasheet) {
   EXPECT_EQ(s2["gate"]["checks"][0]["verdict"], "not evaluated");
 }
 
+// Cycles from the pairwise layout and from rankings (implied pairs, majority per
+// pair), worked by hand.
+TEST(Annotators, CyclesFromPairwiseAndRankedLayouts) {
+  auto run = [](const std::string& tag, const std::string& data, const Json& layout) {
+    std::string in = WriteFile("ann_" + tag + ".jsonl", data);
+    std::string out = TempPath("ann_out_" + tag);
+    Plan plan = PlanFor({in}, layout, out);
+    PipelineOptions o;
+    o.stages = {"annotators"};
+    o.table = false;
+    EXPECT_TRUE(RunPipeline(plan, o, DefaultFileSystem(), stderr).ok());
+    return Json::parse(ReadFile(out + "/summary.json"))["stages"]["annotators"]["cycles"];
+  };
+  // Pairwise: mulch over straw, straw over bark, bark over mulch.
+  Json pw = run("pw",
+                R"({"id":"p1","prompt":"Best cover?","chosen":"Mulch","rejected":"Straw","who":"a"})" "\n"
+                R"({"id":"p2","prompt":"Best cover?","chosen":"Straw","rejected":"Bark","who":"b"})" "\n"
+                R"({"id":"p3","prompt":"Best cover?","chosen":"Bark","rejected":"Mulch","who":"c"})" "\n"
+                R"({"id":"p4","prompt":"Other?","chosen":"Yes","rejected":"No","who":"a"})" "\n",
+                Json{{"preset", "pairwise"}, {"annotator", "/who"}});
+  EXPECT_EQ(pw["prompts_with_cycle"], 1);
+  ASSERT_EQ(pw["listed"].size(), 1u);
+  EXPECT_EQ(pw["listed"][0]["judgments"], Json::array({"p1", "p2", "p3"}));
+  EXPECT_EQ(pw["listed"][0]["annotators"], Json::array({"a", "b", "c"}));
+  // Ranked: r1 ranks A > B > C (implies A>B, A>C, B>C); r2 and r3 put C over A,
+  // so the majority on {A, C} is C>A (2 to 1): A>B, B>C, C>A is a cycle. With
+  // only r2 the pair {A, C} is tied (no edge) and there is no cycle.
+  const std::string r1 = R"({"id":"r1","prompt":"Sow?","candidates":["A","B","C"],"ranks":[1,2,3],"who":"a"})" "\n";
+  const std::string r2 = R"({"id":"r2","prompt":"Sow?","candidates":["C","A"],"ranks":[1,2],"who":"b"})" "\n";
+  const std::string r3 = R"({"id":"r3","prompt":"Sow?","candidates":["A","C"],"ranks":[2,1],"who":"c"})" "\n";
+  Json rk = run("rk", r1 + r2 + r3, Json{{"preset", "ranked"}, {"annotator", "/who"}});
+  EXPECT_EQ(rk["prompts_with_cycle"], 1);
+  EXPECT_EQ(rk["listed"][0]["candidates_in_cycle"], 3);
+  Json tie = run("rk_tie", r1 + r2, Json{{"preset", "ranked"}, {"annotator", "/who"}});
+  EXPECT_EQ(tie["prompts_with_cycle"], 0);
+}
+
 TEST(Annotators, SettingsErrorsNameTheKey) {
   Plan plan;
   Status err;
