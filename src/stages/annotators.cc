@@ -131,7 +131,7 @@ class AnnotatorsStage : public Stage {
     Json& j = *out;
     j["records"] = records_;
     Json& ag = j["agreement"];
-    ag["value"] = "the chosen candidate (by identity, not slot); records whose top rank is tied are left out";
+    ag["judgment_value"] = "the chosen candidate (by identity, not slot); records whose top rank is tied are left out";
     ag["comparisons_judged_twice_or_more"] = overall_.alpha.units;
     ag["judgments_in_them"] = overall_.alpha.values;
     ag["records_with_tied_top"] = tied_top_;
