@@ -9,6 +9,7 @@ PKGS=(build-essential cmake ninja-build pkg-config git
   libre2-dev libxxhash-dev nlohmann-json3-dev libcli11-dev libgtest-dev libgmock-dev
   libsimdjson-dev libutf8proc-dev libsqlite3-dev libssl-dev zlib1g-dev libzstd-dev libbenchmark-dev
   zstd bzip2 python3 python3-stdnum python3-phonenumbers python3-scipy python3-sklearn python3-numpy
+  python3-nltk python3-statsmodels
   unicode-data
   chromium
   clang libclang-rt-14-dev)

@@ -239,6 +239,7 @@ int prefsift::Main(int argc, char** argv) {
   std::vector<Command> commands = {
       {"run", "Run the whole pipeline, usually from a plan file (--plan)", AllStageNames()},
       {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
+      {"annotators", "Annotator agreement, candidates for review, preference cycles and rushed judgments only", {"annotators"}},
       {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
       {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
       {"leakage", "Train/evaluation leakage against the plan's evaluation sets only", {"leakage"}},

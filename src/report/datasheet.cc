@@ -1,6 +1,7 @@
 // The datasheet; see datasheet.h and docs/datasheet.md.
 #include "report/datasheet.h"
 
+#include "report/annotator_facts.h"
 #include "report/json_find.h"
 
 #include <nlohmann/json.hpp>
@@ -261,6 +262,7 @@ Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json&
     js["answers"] = std::move(answers);
     if (std::string(sec.key) == "composition") js["from_the_run"] = CompositionFacts(summary);
     if (std::string(sec.key) == "preprocessing") js["from_the_run"] = PreprocessingFacts(plan_stages, summary);
+    if (std::string(sec.key) == "collection") js["from_the_run"] = CollectionFacts(summary);  // annotator_facts.h
     sections.push_back(std::move(js));
   }
   d["sections"] = std::move(sections);

@@ -31,6 +31,10 @@ const CheckSpec kChecks[] = {
     {"min_position_p_adjusted", false, "smallest adjusted p of the chosen-slot tests (stage bias)", "bias"},
     {"max_shortcut_accuracy", true, "held-out accuracy of the surface-feature shortcut audit (stage bias)", "bias"},
     {"require_split_checks", false, "split checks passed (stage split)", "split"},
+    {"min_annotator_alpha", false,
+     "Krippendorff's alpha over comparisons judged by two or more annotators (stage annotators)", "annotators"},
+    {"max_flagged_annotator_share", true,
+     "share of judgments from annotators who are candidates for review (stage annotators)", "annotators"},
 };
 
 const char* StageOfCheck(const std::string& key) {
@@ -202,6 +206,14 @@ Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extra
                                !StageRan(summary, "bias")    ? "stage bias did not run"
                                : !acc || !acc->is_number() ? "the audit did not run (too few comparisons?)"
                                                            : ""));
+    } else if (key == "min_annotator_alpha" || key == "max_flagged_annotator_share") {
+      const bool alpha = key == "min_annotator_alpha";
+      const Json* v = alpha ? Find(summary, {"stages", "annotators", "agreement", "alpha"})
+                            : Find(summary, {"stages", "annotators", "annotators", "flagged_judgment_share"});
+      checks.push_back(Verdict(key, "", spec.what, Num(v), thr, spec.at_most,
+                               !StageRan(summary, "annotators") ? "stage annotators did not run"
+                               : !v || !v->is_number()          ? "no comparison was judged by two or more annotators"
+                                                                : ""));
     } else if (key == "require_split_checks") {
       if (!thr.get<bool>()) continue;
       const Json* passed = Find(summary, {"stages", "split", "checks", "passed"});

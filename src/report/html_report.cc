@@ -1,6 +1,7 @@
 // report.html; see html_report.h and docs/report.md.
 #include "report/html_report.h"
 
+#include "report/annotator_facts.h"
 #include "report/json_find.h"
 
 #include <nlohmann/json.hpp>
@@ -454,6 +455,7 @@ std::string RenderHtmlReport(const Json& s, const Json& sheet) {
     h += LedgerChart(s) + SplitChart(s) + SlotChart(s) + LengthChart(s) + ClusterChart(s) + PersonalChart(s) + LeakChart(s);
     h += "</div>\n";
   }
+  h += AnnotatorsSection(s);  // report/annotator_facts.h
   h += "<div class=\"caution\"><strong>Personal data.</strong> " + Esc(kPersonalDataCaution) + "</div>\n";
   if (whole) {
     h += "<p class=\"small\">Details: store-summary.json (every figure), datasheet.md (the seven datasheet sections and "

@@ -1,3 +1,4 @@
+#include "stages/annotators.h"
 #include "stages/bias.h"
 #include "stages/exact_dups.h"
 #include "stages/leakage.h"
@@ -10,6 +11,7 @@ namespace prefsift {
 
 const std::vector<StageInfo>& AllStages() {
   static const std::vector<StageInfo> kStages = {
+      {"annotators", "annotator agreement beyond chance (Krippendorff's alpha), annotators who disagree with the rest, preference cycles, rushed judgments", &MakeAnnotatorsStage},
       {"exact", "exact duplicate comparisons, label conflicts, degenerate comparisons", &MakeExactDupsStage},
       {"near", "near-duplicate prompts (MinHash + LSH clusters), near-identical candidates", &MakeNearDupsStage},
       {"leakage", "train/evaluation leakage: exact, word n-gram and near-duplicate matches of evaluation prompts", &MakeLeakageStage},

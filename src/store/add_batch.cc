@@ -22,6 +22,7 @@
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
 #include "sketch/union_find.h"
+#include "stages/annotators.h"
 #include "stages/exact_dups.h"
 #include "stages/pipeline.h"
 #include "stages/stage.h"
@@ -188,6 +189,7 @@ class StoreCompanion : public RunCompanion {
       if (Status s = NearJoin(st); !s.ok()) return s;
     }
     if (!group_done_) return Status::Usage("store: the split stage did not run; a store needs it");
+    agreement_ = BatchAgreement(plan_, st);  // this batch's annotator agreement (docs/annotators.md)
     return Write(st);
   }
 
@@ -780,7 +782,7 @@ class StoreCompanion : public RunCompanion {
                 {"store_group_conflicts", conflict_records_}, {"group_conflict_components", conflicts_.size()},
                 {"records_joined_first", joined_.size()}, {"records_inheriting_a_split", inherited_},
                 {"new_groups", new_groups_}, {"stored_clusters_merged", clusters_merged_},
-                {"stored_groups_merged", groups_merged_}};
+                {"stored_groups_merged", groups_merged_}, {"annotator_agreement", agreement_}};
   }
 
  private:
@@ -789,6 +791,7 @@ class StoreCompanion : public RunCompanion {
   SplitView view_;
   ConflictPolicy policy_;
   int64_t batch_, first_seq_;
+  Json agreement_;
   std::vector<std::string> order_;
   bool exact_done_ = false, near_done_ = false, group_done_ = false;
   // Per record.

@@ -15,7 +15,7 @@ foreach(f IN LISTS generated)
                   RESULT_VARIABLE diff)
   if(NOT diff EQUAL 0)
     message(FATAL_ERROR "fixture ${f} differs from the committed copy; regenerate with "
-                        "/usr/bin/python3 tests/reference/stats_reference.py tests/data/stats")
+                        "/usr/bin/python3 ${SCRIPT} tests/data/stats")
   endif()
 endforeach()
 message(STATUS "${generated}: identical")

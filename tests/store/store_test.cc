@@ -289,6 +289,14 @@ TEST_F(StoreTest, HistorySummaryAndDigestsAgreeWithPython) {
   for (const auto& s : sum["splits"]) kept += s["records"].get<uint64_t>();
   EXPECT_EQ(kept, sum["totals"]["kept"].get<uint64_t>());
   EXPECT_EQ(IntegrityCheck(Store()), "ok");
+  // Per batch annotator agreement (docs/annotators.md): the batch row holds the
+  // same alpha and interval as that batch's own summary.json.
+  for (int b = 0; b < 2; ++b) {
+    Json own = Json::parse(Slurp(dir_ + "/out" + std::to_string(b + 1) + "/summary.json"))["stages"]["annotators"]["agreement"];
+    const Json& row = sum["batches"][b]["counts"]["annotator_agreement"];
+    EXPECT_EQ(row["alpha"], own["alpha"]) << "batch " << b + 1;
+    EXPECT_EQ(row["interval"], own["interval"]) << "batch " << b + 1;
+  }
 }
 
 TEST_F(StoreTest, SameBatchTwiceIsANoOpAndOtherSettingsAreRefused) {
