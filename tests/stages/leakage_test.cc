@@ -253,7 +253,8 @@ TEST(LeakIndex, NgramIgnoresPunctuationAndCase) {
   f.index->CheckPrompt("Q: What is the BEST way to store saved bean seed, over winter... so that it still?", false, &out);
   ASSERT_EQ(out.size(), 1u);
   EXPECT_EQ(out[0].detector, LeakDetector::kNgram);
-  EXPECT_EQ(std::string(out[0].span), "what is the best way to store saved bean seed over winter so");
+  // The span is the covered part of the evaluation item (normalised words).
+  EXPECT_EQ(std::string(out[0].span), "what is the best way to store saved bean seed over winter so that it still");
 }
 
 TEST(LeakIndex, NearJaccardAndEmbeddedContainment) {
@@ -312,7 +313,7 @@ TEST(LeakIndex, ReferenceAnswers) {
   ASSERT_EQ(out.size(), 1u);
   EXPECT_EQ(out[0].detector, LeakDetector::kAnswer);
   EXPECT_EQ(out[0].candidate, 1);
-  EXPECT_STREQ(out[0].measure, "ngram");
+  EXPECT_STREQ(out[0].measure, "coverage");
   out.clear();
   f.index->CheckAnswer(kEval20, 0, &out);
   ASSERT_EQ(out.size(), 1u);
