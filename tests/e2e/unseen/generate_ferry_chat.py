@@ -94,7 +94,14 @@ DETAILS = [
     "Last time the staff member at {port} said case {code} would be fixed by {date}.",
     "Our car registration ends in {code} and it is a {colour} {vehicle}.",
 ]
+# Share of each channel's picks that go to the longest answer (the planted
+# length shortcut; tuned on seed 1 for a lift of about 8 points over the
+# expected rate).
+LONGEST_PICK = {"phone": 1.0, "app": 0.0, "web": 0.0}
 EXTRA_WORDS = ["quickly", "really", "today", "again", "still", "also", "now", "please"]
+
+
+USED_REFS = set()
 
 
 def fill(tpl, rng, fixed=None):
@@ -104,8 +111,12 @@ def fill(tpl, rng, fixed=None):
         while "{" + key + "}" in out:
             if key in fixed:
                 v = fixed[key]
-            elif key == "ref":
-                v = "HF" + str(rng.randint(10000, 99999))
+            elif key == "ref":  # booking references are unique, as real ones are
+                while True:
+                    v = "HF" + str(rng.randint(10000, 99999))
+                    if v not in USED_REFS:
+                        USED_REFS.add(v)
+                        break
             elif key == "code":
                 v = rng.choice("ABCDEFGH") + str(rng.randint(100, 999))
             else:
@@ -197,7 +208,7 @@ def main():
 
     records = []
     truth = {"seed": args.seed, "leaks": [], "near_dups": [], "template_only": 0,
-             "first_slot_raters": sorted(first_slot_raters), "longest_answer_channel": "phone"}
+             "first_slot_raters": sorted(first_slot_raters), "longest_answer_pick": LONGEST_PICK}
 
     def comparison(prompt, rid, forced_answer=None):
         b = rng.choices([2, 3, 4], weights=[0.4, 0.35, 0.25])[0]
@@ -211,7 +222,7 @@ def main():
         pick = rng.randrange(b)
         if rater in first_slot_raters and rng.random() < 0.6:
             pick = 0
-        elif channel == "phone" and rng.random() < 0.5:
+        elif rng.random() < LONGEST_PICK[channel]:
             pick = max(range(b), key=lambda i: (len(answers[i].split()), -i))
         rec = {"id": rid, "question": prompt, "answers": answers, "picked": pick, "rater": rater,
                "channel": channel}
