@@ -43,7 +43,25 @@ bool IsPunctCodepoint(utf8proc_int32_t cp) {
          cat == UTF8PROC_CATEGORY_PO;
 }
 
-// Folds white space and optionally removes punctuation, walking code points.
+// The ASCII character a look-alike punctuation mark stands for, or 0: single
+// quotes and apostrophes, double quotes, hyphens and dashes, the minus sign.
+// (Full-width forms and the ellipsis are already ASCII after NFKC.)
+char LookAlikeAscii(utf8proc_int32_t cp) {
+  switch (cp) {
+    case 0x2018: case 0x2019: case 0x201A: case 0x201B: case 0x2032: case 0x2035: case 0x02BC:
+      return '\'';
+    case 0x201C: case 0x201D: case 0x201E: case 0x201F: case 0x2033: case 0x2036: case 0x00AB: case 0x00BB:
+      return '"';
+    case 0x2010: case 0x2011: case 0x2012: case 0x2013: case 0x2014: case 0x2015: case 0x2212: case 0xFE58:
+    case 0xFE63: case 0x2E3A: case 0x2E3B:
+      return '-';
+    default:
+      return 0;
+  }
+}
+
+// Folds white space, folds look-alike punctuation to ASCII and optionally
+// removes punctuation, walking code points.
 std::string FoldSpaceAndPunct(std::string_view s, bool strip_punct) {
   std::string out;
   out.reserve(s.size());
@@ -73,7 +91,9 @@ std::string FoldSpaceAndPunct(std::string_view s, bool strip_punct) {
     } else {
       if (pending_space) out.push_back(' ');
       pending_space = false;
-      out.append(s.data() + i, len);
+      const char ascii = cp >= 0 ? LookAlikeAscii(cp) : 0;
+      if (ascii) out.push_back(ascii);
+      else out.append(s.data() + i, len);
     }
     i += len;
   }

@@ -4,6 +4,10 @@
 //   1. Unicode NFKC with full case folding, dropping default-ignorable code
 //      points (utf8proc: STABLE|COMPOSE|COMPAT|CASEFOLD|IGNORE). Pure-ASCII
 //      text takes an exact fast path (ASCII lowercase).
+//   1b. Look-alike punctuation becomes ASCII: curly and low single quotes,
+//      primes and the modifier apostrophe become ', curly/low double quotes,
+//      double primes and guillemets become ", hyphen and dash variants and the
+//      minus sign become - (NFKC already maps full-width forms and the ellipsis).
 //   2. Optional: remove punctuation (Unicode general categories Pc Pd Ps Pe Pi Pf Po).
 //   3. Whitespace folding: every run of Unicode white space (categories Zs Zl
 //      Zp and the ASCII controls TAB LF VT FF CR) becomes one U+0020; leading

@@ -1,7 +1,10 @@
 // Word and code-point shingling; see shingles.h.
 #include "sketch/shingles.h"
 
+#include <utf8proc.h>
+
 #include <algorithm>
+#include <array>
 #include <cstring>
 
 #define XXH_INLINE_ALL
@@ -55,20 +58,102 @@ char32_t DecodeOne(std::string_view text, size_t i, size_t* len) {
   return cp;
 }
 
+// ASCII classes as a table (the common case); the rest via WordClassOf.
+struct AsciiWordClasses {
+  std::array<WordClass, 128> c{};
+  AsciiWordClasses() {
+    for (int b = 0; b < 128; ++b) c[static_cast<size_t>(b)] = WordClassOf(static_cast<char32_t>(b));
+  }
+};
+
+// Class of the code point at text[i] (ASCII by table); *len its bytes.
+inline WordClass ClassAt(std::string_view text, size_t i, size_t* len) {
+  static const AsciiWordClasses k;
+  const auto b = static_cast<unsigned char>(text[i]);
+  if (b < 0x80) {
+    *len = 1;
+    return k.c[b];
+  }
+  const char32_t cp = DecodeOne(text, i, len);
+  return cp == 0xFFFD && *len == 1 ? WordClass::kOther : WordClassOf(cp);
+}
+
+inline bool IsWordish(WordClass c) {
+  return c == WordClass::kLetter || c == WordClass::kNumeric || c == WordClass::kExtendNumLet;
+}
+
+// Calls f(start, end) for every word segment (byte offsets) of `text`, in
+// order: UAX #29 rules WB4 (Extend and Format attach to what precedes),
+// WB5-WB7 (letters, and letters joined by MidLetter/MidNumLet), WB8-WB12
+// (digits, letters with digits, digits joined by MidNum/MidNumLet), WB13a/b
+// (ExtendNumLet), WB999 (everything else breaks). Segments without a letter,
+// digit or no-space-script character are not words and are skipped.
+template <typename F>
+void ForEachWord(std::string_view text, F&& f) {
+  const size_t size = text.size();
+  size_t i = 0;
+  // Skips Extend/Format code points from j; returns the next position.
+  auto skip_extend = [&](size_t j) {
+    while (j < size) {
+      size_t l;
+      if (ClassAt(text, j, &l) != WordClass::kExtend) break;
+      j += l;
+    }
+    return j;
+  };
+  while (i < size) {
+    size_t len;
+    const WordClass c = ClassAt(text, i, &len);
+    if (c == WordClass::kIdeo) {
+      const size_t end = skip_extend(i + len);
+      f(i, end);
+      i = end;
+      continue;
+    }
+    if (!IsWordish(c)) {
+      i += len;
+      continue;
+    }
+    const size_t start = i;
+    WordClass prev = c;  // class of the last word character
+    bool has_alnum = c != WordClass::kExtendNumLet;
+    i = skip_extend(i + len);
+    while (i < size) {
+      size_t l1;
+      const WordClass n1 = ClassAt(text, i, &l1);
+      if (IsWordish(n1)) {
+        prev = n1;
+        has_alnum = has_alnum || n1 != WordClass::kExtendNumLet;
+        i = skip_extend(i + l1);
+        continue;
+      }
+      const bool mid_letter = n1 == WordClass::kMidLetter || n1 == WordClass::kMidNumLet;
+      const bool mid_num = n1 == WordClass::kMidNum || n1 == WordClass::kMidNumLet;
+      if ((prev == WordClass::kLetter && mid_letter) || (prev == WordClass::kNumeric && mid_num)) {
+        const size_t j = skip_extend(i + l1);
+        if (j < size) {
+          size_t l2;
+          const WordClass n2 = ClassAt(text, j, &l2);
+          if (n2 == prev) {  // WB6/WB7 (letter mid letter), WB11/WB12 (digit mid digit)
+            i = skip_extend(j + l2);
+            continue;
+          }
+        }
+      }
+      break;
+    }
+    if (has_alnum) f(start, i);
+  }
+}
+
 void AppendWordShingles(std::string_view text, int n, uint64_t seed,
                         std::vector<uint64_t>* out) {
   thread_local std::vector<uint64_t> word_hashes;
   word_hashes.clear();
   const uint64_t word_seed = seed ^ kWordSeedTweak;
-  const size_t size = text.size();
-  size_t i = 0;
-  while (i < size) {
-    while (i < size && IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
-    if (i >= size) break;
-    const size_t start = i;
-    while (i < size && !IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
-    word_hashes.push_back(XXH3_64bits_withSeed(text.data() + start, i - start, word_seed));
-  }
+  ForEachWord(text, [&](size_t start, size_t end) {
+    word_hashes.push_back(XXH3_64bits_withSeed(text.data() + start, end - start, word_seed));
+  });
   const uint64_t gram_seed = seed ^ kGramSeedTweak;
   const size_t un = static_cast<size_t>(n);
   if (word_hashes.size() < un) {
@@ -112,27 +197,58 @@ void SortUnique(std::vector<uint64_t>* v) {
 
 }  // namespace
 
+WordClass WordClassOf(char32_t cp) {
+  if (cp < 0x80) {
+    const auto b = static_cast<unsigned char>(cp);
+    if ((b >= 'a' && b <= 'z') || (b >= 'A' && b <= 'Z')) return WordClass::kLetter;
+    if (b >= '0' && b <= '9') return WordClass::kNumeric;
+    if (IsSpaceByte(b) || b == ' ') return WordClass::kSpace;
+    switch (b) {
+      case '\'': case '.': return WordClass::kMidNumLet;
+      case ':': return WordClass::kMidLetter;
+      case ',': case ';': return WordClass::kMidNum;
+      case '_': return WordClass::kExtendNumLet;
+      default: return WordClass::kOther;
+    }
+  }
+  switch (cp) {  // UAX #29 table 3 (Word_Break property values), the punctuation listed there
+    case 0x2018: case 0x2019: case 0x2024: case 0xFE52: case 0xFF07: case 0xFF0E:
+      return WordClass::kMidNumLet;
+    case 0x00B7: case 0x0387: case 0x055F: case 0x05F4: case 0x2027: case 0xFE13: case 0xFE55: case 0xFF1A:
+      return WordClass::kMidLetter;
+    case 0x037E: case 0x0589: case 0x060C: case 0x060D: case 0x066C: case 0x07F8: case 0x2044: case 0xFE10:
+    case 0xFE14: case 0xFE50: case 0xFE54: case 0xFF0C: case 0xFF1B:
+      return WordClass::kMidNum;
+    default: break;
+  }
+  if (cp > 0x10FFFF) return WordClass::kOther;
+  if (IsWhitespaceCp(cp)) return WordClass::kSpace;
+  switch (utf8proc_category(static_cast<utf8proc_int32_t>(cp))) {
+    case UTF8PROC_CATEGORY_LU: case UTF8PROC_CATEGORY_LL: case UTF8PROC_CATEGORY_LT:
+    case UTF8PROC_CATEGORY_LM: case UTF8PROC_CATEGORY_LO: case UTF8PROC_CATEGORY_NL:
+      return IsNoSpaceScript(cp) ? WordClass::kIdeo : WordClass::kLetter;
+    case UTF8PROC_CATEGORY_ND:
+      return IsNoSpaceScript(cp) ? WordClass::kIdeo : WordClass::kNumeric;
+    case UTF8PROC_CATEGORY_MN: case UTF8PROC_CATEGORY_ME: case UTF8PROC_CATEGORY_MC: case UTF8PROC_CATEGORY_CF:
+      return WordClass::kExtend;
+    case UTF8PROC_CATEGORY_PC:
+      return WordClass::kExtendNumLet;
+    case UTF8PROC_CATEGORY_ZS: case UTF8PROC_CATEGORY_ZL: case UTF8PROC_CATEGORY_ZP:
+      return WordClass::kSpace;
+    default:
+      return WordClass::kOther;
+  }
+}
+
 std::vector<std::string_view> Words(std::string_view text) {
   std::vector<std::string_view> words;
-  size_t i = 0;
-  while (i < text.size()) {
-    while (i < text.size() && IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
-    if (i >= text.size()) break;
-    const size_t start = i;
-    while (i < text.size() && !IsSpaceByte(static_cast<unsigned char>(text[i]))) ++i;
-    words.push_back(text.substr(start, i - start));
-  }
+  ForEachWord(text, [&](size_t start, size_t end) { words.push_back(text.substr(start, end - start)); });
   return words;
 }
 
 size_t CountWords(std::string_view text) {
   size_t count = 0;
-  bool in_word = false;
-  for (char c : text) {
-    const bool space = IsSpaceByte(static_cast<unsigned char>(c));
-    if (!space && !in_word) ++count;
-    in_word = !space;
-  }
+  ForEachWord(text, [&](size_t, size_t) { ++count; });
   return count;
 }
 

@@ -2,8 +2,10 @@
 //
 // Input is UTF-8 text that was normalised elsewhere (NFKC + casefold + runs of
 // whitespace folded to one space). This unit only splits and hashes:
-//   * word mode: words are maximal runs of bytes other than ASCII whitespace;
-//     a shingle is n consecutive words (word n-gram).
+//   * word mode: words are the word segments of Unicode's word-boundary rules
+//     (UAX #29, the subset in WordSegments below); punctuation, symbols and
+//     white space between them are not words, so "changed ." and "changed."
+//     give the same words. A shingle is n consecutive words (word n-gram).
 //   * character mode: a shingle is n consecutive Unicode code points (the
 //     UTF-8 is decoded here; a malformed byte decodes to U+FFFD). Meant for
 //     scripts written without spaces between words (Han, Kana, Hangul, Thai,
@@ -44,8 +46,19 @@ struct ShingleOptions {
   uint64_t seed = 0x70726566u;  // "pref"
 };
 
-// Words of `text`: maximal runs of bytes other than ' ', '\t', '\n', '\r',
-// '\v', '\f'. The views point into `text`.
+// Word-boundary class of a code point, the subset of UAX #29's Word_Break
+// property that WordSegments uses (docs/normalisation.md). Letters of scripts
+// written without spaces (IsNoSpaceScript) are kIdeo: each is a word alone.
+enum class WordClass : uint8_t {
+  kOther, kLetter, kNumeric, kMidLetter, kMidNum, kMidNumLet, kExtendNumLet, kExtend, kSpace, kIdeo
+};
+WordClass WordClassOf(char32_t cp);
+
+// Words of `text`: the segments of UAX #29 word boundaries (rules WB4-WB13b
+// without the Hebrew, Katakana, emoji and regional-indicator rules) that hold
+// a letter or a digit. "don't", "3.5", "e.g" and "snake_case" are one word each;
+// "a.b." gives "a.b". The views point into `text`; invalid UTF-8 bytes are
+// kOther.
 std::vector<std::string_view> Words(std::string_view text);
 
 // Number of words, as Words(text).size() but without allocating.

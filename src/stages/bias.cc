@@ -355,14 +355,16 @@ std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, Status* error) {
           if (!rd.Count(pv, key, 2, &f)) return nullptr;
           if (f > 100) return rd.Fail(key, "must be at most 100"), nullptr;
           b.audit.folds = static_cast<int>(f);
-        } else if (p.key() == "threshold") {
-          if (!rd.Number(pv, key, 0, 1, false, false, &b.audit.threshold)) return nullptr;
+        } else if (p.key() == "alpha") {
+          if (!rd.Number(pv, key, 0, 1, true, false, &b.audit.alpha)) return nullptr;
+        } else if (p.key() == "min_lift") {
+          if (!rd.Number(pv, key, 0, 1, false, false, &b.audit.min_lift)) return nullptr;
         } else if (p.key() == "l2") {
           if (!rd.Number(pv, key, 0, 1e12, false, false, &b.audit.l2)) return nullptr;
         } else if (p.key() == "min_records") {
           if (!rd.Count(pv, key, 2, &b.audit.min_records)) return nullptr;
         } else {
-          return rd.Unknown(key, "folds, threshold, l2, min_records"), nullptr;
+          return rd.Unknown(key, "folds, alpha, min_lift, l2, min_records"), nullptr;
         }
       }
     } else {

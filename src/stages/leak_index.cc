@@ -61,6 +61,57 @@ std::string JoinWords(const std::vector<std::string_view>& words, size_t from, s
   return out;
 }
 
+// Documents a gram must be in to be template text; UINT64_MAX when off.
+uint64_t TemplateCut(const LeakSettings& s, uint64_t docs) {
+  if (s.template_min_docs == 0) return UINT64_MAX;
+  return std::max<uint64_t>(s.template_min_docs,
+                            static_cast<uint64_t>(std::ceil(s.template_share * static_cast<double>(docs) - 1e-9)));
+}
+
+// Marks the grams of `idx` frequent among its own items, or (when given)
+// among `train_docs` training documents.
+void MarkTemplate(const LeakSettings& s, NgramIndex* idx, uint64_t items, const std::vector<uint32_t>* train_df,
+                  uint64_t train_docs) {
+  std::vector<uint8_t> flags(idx->grams(), 0);
+  const uint64_t eval_cut = TemplateCut(s, items), train_cut = TemplateCut(s, train_docs);
+  for (uint32_t id = 0; id < idx->grams(); ++id) {
+    flags[id] = idx->EvalFrequency(id) >= eval_cut || (train_df && (*train_df)[id] >= train_cut);
+  }
+  idx->SetTemplate(std::move(flags));
+}
+
+// The passing coverage hits of `ids` under the rule, best first (all of them
+// when `all`, else only the best).
+std::vector<CoverageHit> Passing(const LeakSettings& s, const NgramIndex& idx, std::span<const uint32_t> ids, bool all) {
+  auto hits = idx.Coverage(ids);
+  std::vector<CoverageHit> out;
+  for (const auto& h : hits) {
+    const bool pass = s.rule == NgramRule::kCoverage ? h.covered > 0 && h.coverage() >= s.min_coverage - 1e-12
+                                                     : h.shared >= s.min_shared;
+    if (pass) out.push_back(h);
+  }
+  auto better = [&](const CoverageHit& a, const CoverageHit& b) {
+    if (s.rule == NgramRule::kCoverage && a.coverage() != b.coverage()) return a.coverage() > b.coverage();
+    if (a.shared != b.shared) return a.shared > b.shared;
+    return a.item < b.item;
+  };
+  std::sort(out.begin(), out.end(), better);
+  if (!all && out.size() > 1) out.resize(1);
+  return out;
+}
+
+LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, const std::string& item_text) {
+  LeakFinding f;
+  f.detector = LeakDetector::kNgram;
+  f.item = h.item;
+  f.shared = h.shared;
+  f.score = s.rule == NgramRule::kCoverage ? static_cast<float>(h.coverage()) : static_cast<float>(h.shared);
+  f.measure = s.rule == NgramRule::kCoverage ? "coverage" : "ngram";
+  auto words = sketch::Words(item_text);
+  f.span = JoinWords(words, h.first_word, h.end_word - h.first_word, s.max_span_words);
+  return f;
+}
+
 }  // namespace
 
 const char* LeakDetectorName(LeakDetector d) {
@@ -97,6 +148,12 @@ Result<LeakSettings> ParseLeakSettings(const Json& j, const std::string& base_di
     } else if (k == "max_span_words") {
       st = ParseInt(v, w, 1, 200, &num);
       s.max_span_words = static_cast<uint32_t>(num);
+    } else if (k == "template_share") {
+      st = ParseUnit(v, w, &s.template_share);
+    } else if (k == "template_min_docs") {
+      st = ParseInt(v, w, 0, 1000000000, &num);
+      if (st.ok() && num == 1) st = Status::Usage(w + ": must be 0 (off) or at least 2");
+      s.template_min_docs = static_cast<uint32_t>(num);
     } else {
       int d = -1;
       for (int i = 0; i < kLeakDetectors; ++i) {
@@ -104,7 +161,8 @@ Result<LeakSettings> ParseLeakSettings(const Json& j, const std::string& base_di
       }
       if (d < 0) {
         return Status::Usage(where + ": unknown setting \"" + k +
-                             "\" (known: eval_sets, exact, ngram, near, answers, examples, max_span_words)");
+                             "\" (known: eval_sets, exact, ngram, near, answers, examples, max_span_words, template_share, "
+                             "template_min_docs)");
       }
       if (v.is_string()) {  // shorthand: "drop", "flag" or "off"
         if (v.get<std::string>() == "off") {
@@ -136,6 +194,14 @@ Result<LeakSettings> ParseLeakSettings(const Json& j, const std::string& base_di
           s.min_shared = static_cast<uint32_t>(num);
         } else if (d == 1 && key == "strip_punctuation") {
           st = ParseBool(x, wk, &s.strip_punctuation);
+        } else if (d == 1 && key == "rule") {
+          const std::string r = x.is_string() ? x.get<std::string>() : "";
+          if (r == "coverage") s.rule = NgramRule::kCoverage;
+          else if (r == "any") s.rule = NgramRule::kAny;
+          else st = Status::Usage(wk + ": must be \"coverage\" or \"any\"");
+        } else if (d == 1 && key == "min_coverage") {
+          st = ParseUnit(x, wk, &s.min_coverage);
+          if (st.ok() && s.min_coverage == 0) st = Status::Usage(wk + ": must be above 0 (use \"rule\": \"any\")");
         } else if (d == 2 && key == "jaccard") {
           st = ParseUnit(x, wk, &s.jaccard);
         } else if (d == 2 && key == "containment") {
@@ -150,7 +216,8 @@ Result<LeakSettings> ParseLeakSettings(const Json& j, const std::string& base_di
           st = ParseInt(x, wk, 1, 1000, &num);
           s.min_eval_shingles = static_cast<uint32_t>(num);
         } else {
-          const char* known = d == 1   ? "enabled, policy, n, min_eval_words, min_shared, strip_punctuation"
+          const char* known = d == 1   ? "enabled, policy, n, min_eval_words, min_shared, strip_punctuation, rule, "
+                                         "min_coverage"
                               : d == 2 ? "enabled, policy, jaccard, containment, shingle_words, slots, min_eval_shingles"
                                        : "enabled, policy";
           st = Status::Usage(w + ": unknown setting \"" + key + "\" (known: " + known + ")");
@@ -182,11 +249,15 @@ void LeakSettingsToJson(const LeakSettings& s, int resolved_n, Json* out) {
   ngram["min_eval_words"] = s.min_eval_words;
   ngram["min_shared"] = s.min_shared;
   ngram["strip_punctuation"] = s.strip_punctuation;
+  ngram["rule"] = s.rule == NgramRule::kCoverage ? "coverage" : "any";
+  ngram["min_coverage"] = s.min_coverage;
   near["jaccard"] = s.jaccard;
   near["containment"] = s.containment;
   near["shingle_words"] = s.shingle_words;
   near["slots"] = s.num_slots;
   near["min_eval_shingles"] = s.min_eval_shingles;
+  (*out)["template_share"] = s.template_share;
+  (*out)["template_min_docs"] = s.template_min_docs;
   (*out)["exact"] = std::move(exact);
   (*out)["ngram"] = std::move(ngram);
   (*out)["near"] = std::move(near);
@@ -206,10 +277,18 @@ struct LeakIndex::Impl {
   sketch::ShingleOptions shingle;
   sketch::MinHashParams minhash;
   sketch::Banding banding;
-  std::vector<std::vector<uint64_t>> sets;
+  std::vector<std::vector<uint64_t>> sets;       // whole shingle sets (Jaccard, spans)
+  std::vector<std::vector<uint64_t>> near_sets;  // without template shingles (containment)
   std::vector<uint8_t> sigs;
   HashPostings bands, prefixes;
+  std::vector<std::string> gram_text;   // normalised evaluation prompts (spans)
+  std::vector<uint32_t> prompt_train_df;  // after SetTrainingFrequencies
+  uint64_t prompt_docs = 0;
+  uint32_t near_template_shingles = 0;
   // answers
+  std::vector<std::string> ref_text;
+  std::vector<uint32_t> answer_train_df;
+  uint64_t answer_docs = 0;
   std::vector<uint32_t> ref_items;
   std::vector<Hash128> ref_hash;
   HashPostings ref_exact;
@@ -239,6 +318,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     word_counts[i] = static_cast<uint32_t>(sketch::CountWords(gram_text[i]));
   }
   m.n = settings.ngram_n == 0 ? AutoNgramLength(word_counts) : settings.ngram_n;
+  m.gram_text = gram_text;
   if (settings.enabled[0]) {
     std::vector<std::pair<uint64_t, uint32_t>> e;
     m.prompt_hash.resize(items);
@@ -252,7 +332,10 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
   no.n = m.n;
   no.min_eval_words = settings.min_eval_words;
   no.min_shared = settings.min_shared;
-  if (settings.enabled[1]) m.ngram = std::make_unique<NgramIndex>(gram_text, no);
+  if (settings.enabled[1]) {
+    m.ngram = std::make_unique<NgramIndex>(gram_text, no);
+    MarkTemplate(settings, m.ngram.get(), items, nullptr, 0);
+  }
   if (settings.enabled[2]) {
     m.shingle.mode = sketch::ShingleMode::kAuto;
     m.shingle.word_n = settings.shingle_words;
@@ -267,30 +350,51 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     m.sigs.resize(items * K);
     std::vector<std::pair<uint64_t, uint32_t>> band_entries, prefix_entries;
     std::vector<uint64_t> keys(m.banding.bands);
+    // Template shingles (in many evaluation items) are set aside for
+    // containment: signatures keep the whole set, the prefix filter and the
+    // containment test use the rest. This also keeps the prefix filter's
+    // candidate lists short when every item shares stock text.
+    for (uint32_t i = 0; i < items; ++i) m.sets[i] = sketch::Shingles(gram_text[i], m.shingle);
+    std::vector<uint64_t> template_shingles;
+    {
+      std::vector<uint64_t> all;
+      for (const auto& set : m.sets) all.insert(all.end(), set.begin(), set.end());
+      std::sort(all.begin(), all.end());
+      const uint64_t cut = TemplateCut(settings, items);
+      for (size_t a = 0; a < all.size();) {
+        size_t b = a;
+        while (b < all.size() && all[b] == all[a]) ++b;
+        if (b - a >= cut) template_shingles.push_back(all[a]);
+        a = b;
+      }
+      m.near_template_shingles = static_cast<uint32_t>(template_shingles.size());
+    }
+    m.near_sets.resize(items);
     for (uint32_t i = 0; i < items; ++i) {
-      m.sets[i] = sketch::Shingles(gram_text[i], m.shingle);
       auto sig = sketch::Sign(m.sets[i], m.minhash);
+      auto& informative = m.near_sets[i];
+      std::set_difference(m.sets[i].begin(), m.sets[i].end(), template_shingles.begin(), template_shingles.end(),
+                          std::back_inserter(informative));
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
       sketch::Compact(sig, compact);
       if (settings.jaccard > 0) {
         sketch::BandKeys(compact, m.banding, kBandSeed, keys);
         for (uint64_t k : keys) band_entries.emplace_back(k, i);
       }
-      const size_t s = m.sets[i].size();
+      const size_t s = informative.size();
       if (settings.containment > 0 && s >= settings.min_eval_shingles) {
         // Prefix filter: containment >= c needs ceil(c*s) shared shingles, so
         // one of any s - ceil(c*s) + 1 of them; index the smallest hashes.
         size_t need = static_cast<size_t>(std::ceil(settings.containment * static_cast<double>(s) - 1e-9));
         need = std::max<size_t>(need, 1);
         size_t p = s - need + 1;
-        for (size_t q = 0; q < p; ++q) prefix_entries.emplace_back(m.sets[i][q], i);
+        for (size_t q = 0; q < p; ++q) prefix_entries.emplace_back(informative[q], i);
       }
     }
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
   }
   if (settings.enabled[3]) {
-    std::vector<std::string> ref_text;
     std::vector<std::pair<uint64_t, uint32_t>> e;
     for (uint32_t i = 0; i < items; ++i) {
       if (corpus.items[i].reference.empty()) continue;
@@ -298,10 +402,11 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.ref_items.push_back(i);
       m.ref_hash.push_back(HashBytes(NormalizeForMatch(corpus.items[i].reference, norm)));
       e.emplace_back(m.ref_hash.back().lo, r);
-      ref_text.push_back(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
+      m.ref_text.push_back(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
     }
     m.ref_exact.Build(std::move(e));
-    m.ref_ngram = std::make_unique<NgramIndex>(ref_text, no);
+    m.ref_ngram = std::make_unique<NgramIndex>(m.ref_text, no);
+    MarkTemplate(settings, m.ref_ngram.get(), m.ref_items.size(), nullptr, 0);
   }
   return idx;
 }
@@ -316,7 +421,7 @@ void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<
 }
 
 void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text, bool all_items,
-                            std::vector<LeakFinding>* out) const {
+                            std::vector<LeakFinding>* out, bool with_ngram) const {
   const Impl& m = *impl_;
   const LeakSettings& s = settings_;
   std::string gram_store;
@@ -336,27 +441,10 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
       if (!all_items) break;
     }
   }
-  if (s.enabled[1]) {
-    std::vector<NgramHit> hits;
-    if (all_items) {
-      hits = m.ngram->MatchAll(gram_text);
-    } else {
-      NgramHit h;
-      if (m.ngram->MatchBest(gram_text, &h)) hits.push_back(h);
-    }
-    if (!hits.empty()) {
-      auto words = sketch::Words(gram_text);
-      for (const auto& h : hits) {
-        LeakFinding f;
-        f.detector = LeakDetector::kNgram;
-        f.item = h.item;
-        f.score = static_cast<float>(h.shared);
-        f.shared = h.shared;
-        f.measure = h.short_item ? "whole_item" : "ngram";
-        f.span = JoinWords(words, h.start_word, h.words, s.max_span_words);
-        out->push_back(std::move(f));
-      }
-    }
+  if (s.enabled[1] && with_ngram) {
+    std::vector<uint32_t> ids;
+    m.ngram->CollectIds(gram_text, &ids);
+    for (const auto& h : Passing(s, *m.ngram, ids, all_items)) out->push_back(GramFinding(s, h, m.gram_text[h.item]));
   }
   if (s.enabled[2]) {
     thread_local std::vector<uint64_t> ordered;
@@ -385,7 +473,7 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     cand.erase(std::unique(cand.begin(), cand.end()), cand.end());
     std::vector<LeakFinding> found;
     for (uint32_t item : cand) {
-      const auto& e = m.sets[item];
+      const auto& e = m.near_sets[item];
       double j = 0, c = 0;
       bool jok = false, cok = false;
       if (s.jaccard > 0) {
@@ -459,7 +547,7 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
 }
 
 void LeakIndex::CheckAnswer(std::string_view answer, std::string_view exact_text, int candidate,
-                            std::vector<LeakFinding>* out) const {
+                            std::vector<LeakFinding>* out, bool with_ngram) const {
   const Impl& m = *impl_;
   if (!settings_.enabled[3] || m.ref_items.empty()) return;
   Hash128 h = HashBytes(exact_text);
@@ -475,21 +563,124 @@ void LeakIndex::CheckAnswer(std::string_view answer, std::string_view exact_text
     out->push_back(std::move(f));
     return;
   }
+  if (!with_ngram) return;
   std::string gram_store;
   if (!m.same_norm) gram_store = NormalizeForMatch(answer, m.gram_norm);
   const std::string_view gram_text = m.same_norm ? exact_text : std::string_view(gram_store);
-  NgramHit hit;
-  if (!m.ref_ngram->MatchBest(gram_text, &hit)) return;
+  std::vector<uint32_t> ids;
+  m.ref_ngram->CollectIds(gram_text, &ids);
   LeakFinding f;
-  f.detector = LeakDetector::kAnswer;
-  f.item = m.ref_items[hit.item];
-  f.measure = hit.short_item ? "whole_item" : "ngram";
-  f.score = static_cast<float>(hit.shared);
-  f.shared = hit.shared;
-  f.candidate = candidate;
-  auto words = sketch::Words(gram_text);
-  f.span = JoinWords(words, hit.start_word, hit.words, settings_.max_span_words);
-  out->push_back(std::move(f));
+  if (MatchAnswerGrams(ids, candidate, &f)) out->push_back(std::move(f));
+}
+
+uint32_t LeakIndex::PromptGrams() const { return impl_->ngram ? impl_->ngram->grams() : 0; }
+uint32_t LeakIndex::AnswerGrams() const { return impl_->ref_ngram ? impl_->ref_ngram->grams() : 0; }
+
+void LeakIndex::CollectPromptGrams(std::string_view prompt, std::string_view exact_text,
+                                   std::vector<uint32_t>* ids) const {
+  const Impl& m = *impl_;
+  ids->clear();
+  if (!m.ngram) return;
+  if (m.same_norm) {
+    m.ngram->CollectIds(exact_text, ids);
+  } else {
+    m.ngram->CollectIds(NormalizeForMatch(prompt, m.gram_norm), ids);
+  }
+}
+
+void LeakIndex::CollectAnswerGrams(std::string_view answer, std::string_view exact_text,
+                                   std::vector<uint32_t>* ids) const {
+  const Impl& m = *impl_;
+  ids->clear();
+  if (!m.ref_ngram) return;
+  if (m.same_norm) {
+    m.ref_ngram->CollectIds(exact_text, ids);
+  } else {
+    m.ref_ngram->CollectIds(NormalizeForMatch(answer, m.gram_norm), ids);
+  }
+}
+
+void LeakIndex::SetTrainingFrequencies(std::vector<uint32_t> prompt_df, uint64_t prompts,
+                                       std::vector<uint32_t> answer_df, uint64_t answers) {
+  Impl& m = *impl_;
+  if (m.ngram) {
+    m.prompt_train_df = std::move(prompt_df);
+    m.prompt_docs = prompts;
+    MarkTemplate(settings_, m.ngram.get(), corpus_.items.size(), &m.prompt_train_df, prompts);
+  }
+  if (m.ref_ngram) {
+    m.answer_train_df = std::move(answer_df);
+    m.answer_docs = answers;
+    MarkTemplate(settings_, m.ref_ngram.get(), m.ref_items.size(), &m.answer_train_df, answers);
+  }
+}
+
+bool LeakIndex::MatchPromptGrams(std::span<const uint32_t> ids, LeakFinding* f) const {
+  const Impl& m = *impl_;
+  if (!m.ngram) return false;
+  auto hits = Passing(settings_, *m.ngram, ids, false);
+  if (hits.empty()) return false;
+  *f = GramFinding(settings_, hits[0], m.gram_text[hits[0].item]);
+  return true;
+}
+
+bool LeakIndex::MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, LeakFinding* f) const {
+  const Impl& m = *impl_;
+  if (!m.ref_ngram) return false;
+  auto hits = Passing(settings_, *m.ref_ngram, ids, false);
+  if (hits.empty()) return false;
+  *f = GramFinding(settings_, hits[0], m.ref_text[hits[0].item]);
+  f->detector = LeakDetector::kAnswer;
+  f->item = m.ref_items[hits[0].item];
+  f->candidate = candidate;
+  return true;
+}
+
+void LeakIndex::TemplateJson(uint32_t limit, Json* out) const {
+  const Impl& m = *impl_;
+  auto list = [&](const NgramIndex& idx, const std::vector<uint32_t>& train_df, uint64_t train_docs,
+                  uint64_t eval_docs, const std::vector<std::string>& texts, Json* sec) {
+    std::vector<uint32_t> ids;
+    for (uint32_t id = 0; id < idx.grams(); ++id) {
+      if (idx.IsTemplate(id)) ids.push_back(id);
+    }
+    auto df = [&](uint32_t id) { return id < train_df.size() ? train_df[id] : 0u; };
+    std::sort(ids.begin(), ids.end(), [&](uint32_t a, uint32_t b) {
+      if (df(a) != df(b)) return df(a) > df(b);
+      if (idx.EvalFrequency(a) != idx.EvalFrequency(b)) return idx.EvalFrequency(a) > idx.EvalFrequency(b);
+      return a < b;
+    });
+    (*sec)["grams_set_aside"] = ids.size();
+    (*sec)["grams_indexed"] = idx.grams();
+    (*sec)["training_documents"] = train_docs;
+    (*sec)["training_cut"] = TemplateCut(settings_, train_docs) == UINT64_MAX ? Json(nullptr)
+                                                                              : Json(TemplateCut(settings_, train_docs));
+    (*sec)["evaluation_documents"] = eval_docs;
+    (*sec)["evaluation_cut"] = TemplateCut(settings_, eval_docs) == UINT64_MAX ? Json(nullptr)
+                                                                               : Json(TemplateCut(settings_, eval_docs));
+    (*sec)["template_only_items"] = idx.TemplateOnlyItems();
+    Json top = Json::array();
+    for (size_t k = 0; k < ids.size() && k < limit; ++k) {
+      const uint32_t id = ids[k];
+      auto words = sketch::Words(texts[idx.ExampleItem(id)]);
+      top.push_back(Json{{"text", JoinWords(words, idx.ExampleWord(id), idx.GramWords(id), idx.GramWords(id))},
+                         {"training_documents", df(id)}, {"evaluation_items", idx.EvalFrequency(id)}});
+    }
+    (*sec)["most_frequent"] = std::move(top);
+  };
+  Json j = Json::object();
+  if (m.ngram) {
+    Json sec;
+    list(*m.ngram, m.prompt_train_df, m.prompt_docs, corpus_.items.size(), m.gram_text, &sec);
+    j["ngram"] = std::move(sec);
+  }
+  if (m.ref_ngram) {
+    Json sec;
+    list(*m.ref_ngram, m.answer_train_df, m.answer_docs, m.ref_items.size(), m.ref_text, &sec);
+    j["answers"] = std::move(sec);
+  }
+  if (settings_.enabled[2]) j["near"] = Json{{"shingles_set_aside", m.near_template_shingles}};
+  *out = std::move(j);
 }
 
 }  // namespace prefsift

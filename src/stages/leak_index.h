@@ -3,8 +3,12 @@
 //
 //   exact  the normalised prompt (core/normalize.h, the plan's options) hashes
 //          (XXH3-128) to the same value as an evaluation prompt;
-//   ngram  a shared word n-gram (stages/ngram_overlap.h, Brown et al. 2020),
-//          on text normalised with punctuation removed by default;
+//   ngram  word n-grams (stages/ngram_overlap.h) on text normalised with
+//          punctuation removed by default; grams frequent among evaluation
+//          items or training prompts are template text and set aside; the
+//          default rule "coverage" needs the training prompt to cover at
+//          least min_coverage of the item's informative tokens, the rule
+//          "any" one shared informative gram (Brown et al. 2020);
 //   near   MinHash Jaccard estimate >= "jaccard", found by LSH banding over
 //          the evaluation signatures (sketch/), or containment of the
 //          evaluation item's shingle set in the training prompt's >=
@@ -21,6 +25,7 @@
 
 #include <cstdint>
 #include <memory>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -36,16 +41,26 @@ inline constexpr int kLeakDetectors = 4;
 const char* LeakDetectorName(LeakDetector d);  // "exact", "ngram", "near", "answer"
 
 enum class LeakPolicy { kDrop, kFlag };
+enum class NgramRule { kCoverage, kAny };
 
 struct LeakSettings {
   std::vector<EvalSetSpec> eval_sets;
   bool enabled[kLeakDetectors] = {true, true, true, false};
   LeakPolicy policy[kLeakDetectors] = {LeakPolicy::kDrop, LeakPolicy::kDrop, LeakPolicy::kDrop, LeakPolicy::kDrop};
   // ngram (also used for answers)
-  int ngram_n = 13;            // 0 = "auto" (AutoNgramLength over the evaluation prompts)
+  int ngram_n = 10;            // 0 = "auto" (AutoNgramLength over the evaluation prompts)
   int min_eval_words = 3;
   uint32_t min_shared = 1;
   bool strip_punctuation = true;
+  NgramRule rule = NgramRule::kCoverage;
+  double min_coverage = 0.7;     // coverage rule: share of the item's informative tokens
+  // Template text: a gram (or near shingle) found in at least
+  // max(template_min_docs, template_share * documents) training prompts
+  // (candidate answers, for the answer detector) or evaluation items is set
+  // aside. template_min_docs 0 turns this off; template_share 0 leaves
+  // only the count.
+  double template_share = 0.0;
+  uint32_t template_min_docs = 10;
   // near
   double jaccard = 0.8;        // 0 disables the Jaccard test
   double containment = 0.8;    // 0 disables the containment test
@@ -69,7 +84,7 @@ void LeakSettingsToJson(const LeakSettings& s, int resolved_n, nlohmann::ordered
 struct LeakFinding {
   LeakDetector detector = LeakDetector::kExact;
   uint32_t item = 0;          // index into EvalCorpus::items
-  float score = 1;            // exact 1; ngram: shared grams; near: the similarity
+  float score = 1;            // exact 1; ngram: coverage (rule "any": shared grams); near: the similarity
   uint32_t shared = 0;        // ngram: distinct shared grams
   const char* measure = "";   // near: "jaccard" or "containment"; ngram: "ngram" or "whole_item"
   int candidate = -1;         // answers: candidate index
@@ -84,6 +99,23 @@ class LeakIndex {
                                                   const NormalizeOptions& norm);
   ~LeakIndex();
 
+  // Two-phase n-gram detection (the pipeline stage): in pass 1 collect the
+  // ids of the evaluation grams each training prompt (candidate answer)
+  // holds and count their document frequencies; then SetTrainingFrequencies
+  // once, then Match*Grams. REQUIRES for Collect*: `normalized` as in CheckPrompt.
+  uint32_t PromptGrams() const;   // 0 when the ngram detector is off
+  uint32_t AnswerGrams() const;   // 0 when the answer detector is off
+  void CollectPromptGrams(std::string_view prompt, std::string_view normalized, std::vector<uint32_t>* ids) const;
+  void CollectAnswerGrams(std::string_view answer, std::string_view normalized, std::vector<uint32_t>* ids) const;
+  // Not thread-safe: call once, between pass 1 and any Match*Grams.
+  void SetTrainingFrequencies(std::vector<uint32_t> prompt_df, uint64_t prompts, std::vector<uint32_t> answer_df,
+                              uint64_t answers);
+  bool MatchPromptGrams(std::span<const uint32_t> ids, LeakFinding* f) const;
+  bool MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, LeakFinding* f) const;
+  // summary.json: the grams set aside as template text (the most frequent
+  // `limit` of each detector, with counts) and the totals.
+  void TemplateJson(uint32_t limit, nlohmann::ordered_json* out) const;
+
   // Findings for one training prompt: per enabled detector, the best item, or
   // with `all_items` every matching item. Appends to *out in detector order.
   void CheckPrompt(std::string_view prompt, bool all_items, std::vector<LeakFinding>* out) const;
@@ -92,10 +124,11 @@ class LeakIndex {
   void CheckAnswer(std::string_view answer, int candidate, std::vector<LeakFinding>* out) const;
   // The same, when the caller already has NormalizeForMatch(text, norm) with
   // the `norm` given to Build (the pipeline's MatchText), so it is not made again.
+  // `with_ngram` false leaves the n-gram part out (the two-phase caller).
   void CheckPrompt(std::string_view prompt, std::string_view normalized, bool all_items,
-                   std::vector<LeakFinding>* out) const;
+                   std::vector<LeakFinding>* out, bool with_ngram = true) const;
   void CheckAnswer(std::string_view answer, std::string_view normalized, int candidate,
-                   std::vector<LeakFinding>* out) const;
+                   std::vector<LeakFinding>* out, bool with_ngram = true) const;
 
   const EvalCorpus& corpus() const { return corpus_; }
   const LeakSettings& settings() const { return settings_; }

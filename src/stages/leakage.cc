@@ -2,6 +2,8 @@
 
 #include <nlohmann/json.hpp>
 
+#include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <filesystem>
 
@@ -28,27 +30,85 @@ const char* ReasonOf(LeakDetector d) {
 class LeakageStage : public Stage {
  public:
   LeakageStage(std::unique_ptr<EvalCorpus> corpus, std::unique_ptr<LeakIndex> index)
-      : corpus_(std::move(corpus)), index_(std::move(index)) {}
+      : corpus_(std::move(corpus)), index_(std::move(index)) {
+    if (index_->PromptGrams()) prompt_df_ = std::make_unique<std::atomic<uint32_t>[]>(index_->PromptGrams());
+    if (index_->AnswerGrams()) answer_df_ = std::make_unique<std::atomic<uint32_t>[]>(index_->AnswerGrams());
+  }
   std::string name() const override { return "leakage"; }
 
-  void Reserve(size_t n) override { findings_.reserve(n); }
+  void Reserve(size_t n) override {
+    findings_.reserve(n);
+    grams_.reserve(n);
+  }
   void Grow(size_t n) override {
     if (findings_.size() < n) findings_.resize(n);
+    if (grams_.size() < n) grams_.resize(n);
   }
 
   void Observe(size_t record, const Record& rec, const RecordFacts&, const MatchText& text) override {
     std::vector<LeakFinding> f;
-    if (rec.prompt_is_chat) {
-      index_->CheckPrompt(rec.UserPromptText(), text.user_prompt(), false, &f);
-    } else {
-      index_->CheckPrompt(rec.prompt, text.user_prompt(), false, &f);
+    const std::string user_text = rec.prompt_is_chat ? rec.UserPromptText() : std::string();
+    const std::string_view raw = rec.prompt_is_chat ? std::string_view(user_text) : std::string_view(rec.prompt);
+    index_->CheckPrompt(raw, text.user_prompt(), false, &f, /*with_ngram=*/false);
+    RecordGrams g;
+    thread_local std::vector<uint32_t> ids;
+    if (prompt_df_) {
+      index_->CollectPromptGrams(raw, text.user_prompt(), &ids);
+      for (uint32_t id : ids) prompt_df_[id].fetch_add(1, std::memory_order_relaxed);
+      g.prompt = ids;
     }
+    bool answer_found = false;
     for (size_t c = 0; c < rec.candidates.size() && c < text.candidates.size(); ++c) {
-      size_t before = f.size();
-      index_->CheckAnswer(rec.candidates[c], text.candidates[c], static_cast<int>(c), &f);
-      if (f.size() > before) break;  // one answer finding a record is enough
+      if (!answer_found) {
+        size_t before = f.size();
+        index_->CheckAnswer(rec.candidates[c], text.candidates[c], static_cast<int>(c), &f, /*with_ngram=*/false);
+        answer_found = f.size() > before;  // one answer finding a record is enough
+      }
+      if (answer_df_) {
+        index_->CollectAnswerGrams(rec.candidates[c], text.candidates[c], &ids);
+        for (uint32_t id : ids) answer_df_[id].fetch_add(1, std::memory_order_relaxed);
+        if (!ids.empty()) {
+          g.answer.insert(g.answer.end(), ids.begin(), ids.end());
+          g.answer_ends.push_back({static_cast<uint32_t>(c), static_cast<uint32_t>(g.answer.size())});
+        }
+      }
     }
+    answer_docs_.fetch_add(rec.candidates.size(), std::memory_order_relaxed);
     findings_[record] = std::move(f);
+    grams_[record] = std::move(g);
+  }
+
+  // The n-gram and answer findings, once the training frequencies are known.
+  void DecideGrams(size_t records) {
+    const uint32_t pg = index_->PromptGrams(), ag = index_->AnswerGrams();
+    std::vector<uint32_t> pdf(pg), adf(ag);
+    for (uint32_t i = 0; i < pg; ++i) pdf[i] = prompt_df_[i].load();
+    for (uint32_t i = 0; i < ag; ++i) adf[i] = answer_df_[i].load();
+    index_->SetTrainingFrequencies(std::move(pdf), records, std::move(adf), answer_docs_.load());
+    for (size_t r = 0; r < records && r < grams_.size(); ++r) {
+      RecordGrams& g = grams_[r];
+      auto& fs = findings_[r];
+      LeakFinding f;
+      if (!g.prompt.empty() && index_->MatchPromptGrams(g.prompt, &f)) {
+        // After exact (detector order: exact, ngram, near, answer).
+        auto at = std::find_if(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector != LeakDetector::kExact; });
+        fs.insert(at, std::move(f));
+      }
+      const bool have_answer = std::any_of(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector == LeakDetector::kAnswer; });
+      uint32_t from = 0;
+      for (const auto& [cand, end] : g.answer_ends) {
+        if (have_answer) break;
+        LeakFinding a;
+        if (index_->MatchAnswerGrams(std::span<const uint32_t>(g.answer.data() + from, end - from), static_cast<int>(cand), &a)) {
+          fs.push_back(std::move(a));
+          break;
+        }
+        from = end;
+      }
+      g = RecordGrams();
+    }
+    grams_.clear();
+    grams_.shrink_to_fit();
   }
 
   Json FindingJson(const LeakFinding& f) const {
@@ -58,7 +118,9 @@ class LeakageStage : public Stage {
     j["eval_set"] = corpus_->sets[item.set].spec.name;
     j["eval_item"] = item.id;
     j["measure"] = f.measure;
-    if (f.detector == LeakDetector::kNear) j["score"] = std::round(f.score * 1000.0) / 1000.0;
+    if (f.detector == LeakDetector::kNear || std::string(f.measure) == "coverage") {
+      j["score"] = std::round(f.score * 1000.0) / 1000.0;
+    }
     if (f.shared) j["shared_grams"] = f.shared;
     if (f.candidate >= 0) j["candidate"] = f.candidate;
     j["span"] = f.span;
@@ -68,6 +130,7 @@ class LeakageStage : public Stage {
   Status Decide(RunState& st) override {
     const LeakSettings& s = index_->settings();
     records_ = st.records.size();
+    DecideGrams(st.records.size());
     for (size_t r = 0; r < st.records.size() && r < findings_.size(); ++r) {
       const auto& fs = findings_[r];
       if (fs.empty()) continue;
@@ -87,8 +150,10 @@ class LeakageStage : public Stage {
                                ? "candidate " + std::to_string(drop->candidate) + " matches the reference answer of"
                                : "the prompt matches";
         std::string how = drop->detector == LeakDetector::kExact   ? "exactly after normalisation"
-                          : drop->detector == LeakDetector::kNgram ? (std::string(drop->measure) == "whole_item"
-                                                                          ? "containing the whole (short) item"
+                          : drop->detector == LeakDetector::kNgram ? (std::string(drop->measure) == "coverage"
+                                                                          ? "covering " + std::to_string(static_cast<int>(std::floor(drop->score * 100 + 1e-6))) +
+                                                                                "% of the item's non-template words with shared word " +
+                                                                                std::to_string(index_->ngram_n()) + "-grams"
                                                                           : "sharing a word " + std::to_string(index_->ngram_n()) + "-gram")
                           : drop->detector == LeakDetector::kNear  ? std::string("by MinHash ") + drop->measure
                                                                    : std::string("(") + drop->measure + ")";
@@ -124,6 +189,9 @@ class LeakageStage : public Stage {
     Json det;
     LeakSettingsToJson(s, index_->ngram_n(), &det);
     (*sec)["detectors"] = std::move(det);
+    Json tmpl;
+    index_->TemplateJson(20, &tmpl);
+    (*sec)["template_text"] = std::move(tmpl);
     (*sec)["records_checked"] = records_;
     (*sec)["contaminated_records"] = contaminated_.size();
     (*sec)["contaminated_rate"] = records_ ? double(contaminated_.size()) / double(records_) : 0.0;
@@ -182,6 +250,15 @@ class LeakageStage : public Stage {
  private:
   std::unique_ptr<EvalCorpus> corpus_;
   std::unique_ptr<LeakIndex> index_;
+  // Per record: the evaluation gram ids its prompt and candidates hold (pass
+  // 1), dropped in Decide. answer_ends: (candidate, end offset in `answer`).
+  struct RecordGrams {
+    std::vector<uint32_t> prompt, answer;
+    std::vector<std::pair<uint32_t, uint32_t>> answer_ends;
+  };
+  std::vector<RecordGrams> grams_;
+  std::unique_ptr<std::atomic<uint32_t>[]> prompt_df_, answer_df_;
+  std::atomic<uint64_t> answer_docs_{0};
   std::vector<std::vector<LeakFinding>> findings_;
   std::vector<size_t> contaminated_;
   std::vector<std::string> actions_;

@@ -37,8 +37,11 @@ int AutoNgramLength(std::vector<uint32_t> word_counts) {
 NgramIndex::NgramIndex(std::span<const std::string> texts, const NgramOptions& options) : options_(options) {
   long_ = new Table;
   short_ = new Table;
+  ids_ = new Table;
   std::vector<std::pair<uint64_t, uint32_t>> long_entries, short_entries;
   std::vector<uint64_t> grams;
+  std::vector<std::vector<uint64_t>> item_hashes(texts.size());
+  std::vector<uint32_t> item_len(texts.size(), 0);
   const auto long_opts = WordGrams(options_.n, options_.seed);
   for (uint32_t i = 0; i < texts.size(); ++i) {
     size_t words = sketch::CountWords(texts[i]);
@@ -53,20 +56,151 @@ NgramIndex::NgramIndex(std::span<const std::string> texts, const NgramOptions& o
       short_entries.emplace_back(grams[0], i);
       short_lengths_.push_back(static_cast<int>(words));
       ++short_items_;
+      item_hashes[i] = grams;
+      item_len[i] = static_cast<uint32_t>(words);
       continue;
     }
     sketch::AppendShingles(texts[i], long_opts, &grams);
     for (uint64_t g : grams) long_entries.emplace_back(g, i);
+    item_hashes[i] = grams;
+    item_len[i] = static_cast<uint32_t>(options_.n);
   }
   std::sort(short_lengths_.begin(), short_lengths_.end());
   short_lengths_.erase(std::unique(short_lengths_.begin(), short_lengths_.end()), short_lengths_.end());
   long_->postings.Build(std::move(long_entries));
   short_->postings.Build(std::move(short_entries));
+  // Gram ids: distinct hashes in ascending order (deterministic).
+  std::vector<uint64_t> all;
+  for (const auto& h : item_hashes) all.insert(all.end(), h.begin(), h.end());
+  std::sort(all.begin(), all.end());
+  all.erase(std::unique(all.begin(), all.end()), all.end());
+  std::vector<std::pair<uint64_t, uint32_t>> id_entries;
+  id_entries.reserve(all.size());
+  for (uint32_t id = 0; id < all.size(); ++id) id_entries.emplace_back(all[id], id);
+  ids_->postings.Build(std::move(id_entries));
+  const size_t g = all.size();
+  eval_df_.assign(g, 0);
+  example_item_.assign(g, UINT32_MAX);
+  example_word_.assign(g, 0);
+  gram_words_.assign(g, 0);
+  item_grams_.resize(texts.size());
+  std::vector<std::pair<uint32_t, uint32_t>> id_item;
+  for (uint32_t i = 0; i < texts.size(); ++i) {
+    auto& ids = item_grams_[i];
+    ids.reserve(item_hashes[i].size());
+    for (uint32_t p = 0; p < item_hashes[i].size(); ++p) {
+      const uint32_t id = static_cast<uint32_t>(std::lower_bound(all.begin(), all.end(), item_hashes[i][p]) - all.begin());
+      ids.push_back(id);
+      id_item.emplace_back(id, i);
+      if (example_item_[id] == UINT32_MAX) {
+        example_item_[id] = i;
+        example_word_[id] = p;
+        gram_words_[id] = item_len[i];
+      }
+    }
+  }
+  std::sort(id_item.begin(), id_item.end());
+  id_item.erase(std::unique(id_item.begin(), id_item.end()), id_item.end());
+  gram_item_start_.assign(g + 1, 0);
+  gram_items_.reserve(id_item.size());
+  for (const auto& [id, item] : id_item) {
+    ++eval_df_[id];
+    gram_items_.push_back(item);
+  }
+  for (size_t id = 0; id < g; ++id) gram_item_start_[id + 1] = gram_item_start_[id] + eval_df_[id];
+  SetTemplate(std::vector<uint8_t>(g, 0));
+}
+
+void NgramIndex::SetTemplate(std::vector<uint8_t> flags) {
+  template_ = std::move(flags);
+  item_informative_.assign(item_grams_.size(), 0);
+  for (size_t i = 0; i < item_grams_.size(); ++i) {
+    const auto& ids = item_grams_[i];
+    if (ids.empty()) continue;
+    const uint32_t len = gram_words_[ids[0]];
+    // Union of [p, p + len) over informative grams, counted in one sweep.
+    uint32_t covered = 0, reach = 0;
+    for (uint32_t p = 0; p < ids.size(); ++p) {
+      if (template_[ids[p]]) continue;
+      const uint32_t end = p + len;
+      covered += end - std::max(reach, p);
+      reach = end;
+    }
+    item_informative_[i] = covered;
+  }
+}
+
+uint32_t NgramIndex::TemplateOnlyItems() const {
+  uint32_t n = 0;
+  for (size_t i = 0; i < item_grams_.size(); ++i) n += !item_grams_[i].empty() && item_informative_[i] == 0;
+  return n;
+}
+
+void NgramIndex::CollectIds(std::string_view text, std::vector<uint32_t>* ids) const {
+  ids->clear();
+  thread_local std::vector<uint64_t> grams;
+  const size_t words = sketch::CountWords(text);
+  const size_t n = static_cast<size_t>(options_.n);
+  auto add = [&]() {
+    for (uint64_t h : grams) {
+      auto f = ids_->postings.Find(h);
+      if (!f.empty()) ids->push_back(f[0]);
+    }
+  };
+  if (long_->postings.entries() && words >= n) {
+    grams.clear();
+    sketch::AppendShingles(text, WordGrams(options_.n, options_.seed), &grams);
+    add();
+  }
+  for (int k : short_lengths_) {
+    if (static_cast<size_t>(k) > words) break;
+    grams.clear();
+    sketch::AppendShingles(text, WordGrams(k, options_.seed), &grams);
+    add();
+  }
+  std::sort(ids->begin(), ids->end());
+  ids->erase(std::unique(ids->begin(), ids->end()), ids->end());
+}
+
+std::vector<CoverageHit> NgramIndex::Coverage(std::span<const uint32_t> ids) const {
+  std::vector<uint32_t> items;
+  for (uint32_t id : ids) {
+    if (template_[id]) continue;
+    for (uint32_t k = gram_item_start_[id]; k < gram_item_start_[id + 1]; ++k) items.push_back(gram_items_[k]);
+  }
+  std::sort(items.begin(), items.end());
+  items.erase(std::unique(items.begin(), items.end()), items.end());
+  std::vector<CoverageHit> hits;
+  for (uint32_t item : items) {
+    const auto& g = item_grams_[item];
+    const uint32_t len = gram_words_[g[0]];
+    CoverageHit h;
+    h.item = item;
+    h.informative = item_informative_[item];
+    uint32_t reach = 0;
+    bool first = true;
+    std::vector<uint32_t> seen;
+    for (uint32_t p = 0; p < g.size(); ++p) {
+      if (template_[g[p]] || !std::binary_search(ids.begin(), ids.end(), g[p])) continue;
+      seen.push_back(g[p]);
+      if (first) h.first_word = p;
+      first = false;
+      const uint32_t end = p + len;
+      h.covered += end - std::max(reach, p);
+      reach = end;
+    }
+    h.end_word = reach;
+    std::sort(seen.begin(), seen.end());
+    h.shared = static_cast<uint32_t>(std::unique(seen.begin(), seen.end()) - seen.begin());
+    hits.push_back(h);
+  }
+  return hits;
 }
 
 NgramIndex::~NgramIndex() {
   delete long_;
   delete short_;
+  delete ids_;
 }
 
 uint64_t NgramIndex::indexed_grams() const { return long_->postings.entries() + short_->postings.entries(); }

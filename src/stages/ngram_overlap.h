@@ -12,8 +12,17 @@
 // it contains all k words contiguously, in order (the whole item). Items with
 // fewer than min_eval_words words are not indexed (counted in skipped()).
 //
-// Thread-safety: an NgramIndex is immutable after construction; Match* may be
-// called concurrently.
+// Template text and coverage (docs/leakage.md, "Template text"): every
+// distinct indexed gram has an id. CollectIds lists the ids a training text
+// contains, so a caller can count each gram's document frequency among
+// training texts; EvalFrequency is its frequency among evaluation items.
+// After SetTemplate marks the frequent grams, Coverage measures, per item,
+// the share of the item's tokens that its informative (not template) grams
+// cover and that the training text's informative grams also cover.
+//
+// Thread-safety: an NgramIndex is immutable after construction except for
+// SetTemplate, which must not run concurrently with anything else; Match*,
+// CollectIds and Coverage may be called concurrently.
 #pragma once
 
 #include <cstdint>
@@ -39,6 +48,16 @@ struct NgramHit {
   bool short_item = false;  // matched by the short-example rule
 };
 
+struct CoverageHit {
+  uint32_t item = 0;
+  uint32_t covered = 0;        // item tokens covered by informative grams the text shares
+  uint32_t informative = 0;    // item tokens covered by any informative gram of the item
+  uint32_t shared = 0;         // distinct informative grams shared
+  uint32_t first_word = 0;     // first covered token of the item
+  uint32_t end_word = 0;       // one past the last covered token
+  double coverage() const { return informative ? double(covered) / double(informative) : 0.0; }
+};
+
 // N as in Brown et al.'s overlap study (from memory, unverified): the 5th
 // percentile of the evaluation items' word counts (nearest rank), clamped to
 // [8, 13]. Returns 13 for an empty input.
@@ -60,6 +79,26 @@ class NgramIndex {
   // false when there is none.
   bool MatchBest(std::string_view text, NgramHit* hit) const;
 
+  // Distinct indexed grams (ids 0 .. grams()-1) and, for each, the number of
+  // evaluation items holding it, an item holding it and where (for a
+  // readable form), and its length in words.
+  uint32_t grams() const { return static_cast<uint32_t>(eval_df_.size()); }
+  uint32_t EvalFrequency(uint32_t id) const { return eval_df_[id]; }
+  uint32_t ExampleItem(uint32_t id) const { return example_item_[id]; }
+  uint32_t ExampleWord(uint32_t id) const { return example_word_[id]; }
+  uint32_t GramWords(uint32_t id) const { return gram_words_[id]; }
+  // Sorted, distinct ids of the indexed grams that `text` contains.
+  void CollectIds(std::string_view text, std::vector<uint32_t>* ids) const;
+  // Marks grams as template text (flags[id] != 0); recomputes each item's
+  // informative tokens. REQUIRES: flags.size() == grams().
+  void SetTemplate(std::vector<uint8_t> flags);
+  bool IsTemplate(uint32_t id) const { return !template_.empty() && template_[id]; }
+  // Items whose informative grams are all set aside: never matched by Coverage.
+  uint32_t TemplateOnlyItems() const;
+  // Per item sharing at least one informative gram with `ids` (sorted,
+  // distinct): the coverage figures, ascending by item.
+  std::vector<CoverageHit> Coverage(std::span<const uint32_t> ids) const;
+
   const NgramOptions& options() const { return options_; }
   uint64_t indexed_grams() const;   // distinct (gram, item) entries
   uint32_t short_items() const { return short_items_; }
@@ -72,6 +111,12 @@ class NgramIndex {
   uint32_t short_items_ = 0, skipped_items_ = 0;
   Table* long_ = nullptr;
   Table* short_ = nullptr;
+  Table* ids_ = nullptr;                         // gram hash -> id
+  std::vector<uint32_t> eval_df_, example_item_, example_word_, gram_words_;
+  std::vector<uint32_t> gram_item_start_, gram_items_;  // id -> items (CSR)
+  std::vector<std::vector<uint32_t>> item_grams_;       // per item: gram id at each start word
+  std::vector<uint32_t> item_informative_;
+  std::vector<uint8_t> template_;
 };
 
 }  // namespace prefsift

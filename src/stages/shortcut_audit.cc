@@ -2,10 +2,13 @@
 
 #include <nlohmann/json.hpp>
 
+#include <algorithm>
 #include <cmath>
+#include <map>
 #include <set>
 
 #include "stats/choice_model.h"
+#include "stats/hypothesis_tests.h"
 
 namespace prefsift::bias {
 namespace {
@@ -48,6 +51,7 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   std::vector<char> varies(dim, 0);
   std::set<uint64_t> groups;
   double chance = 0;
+  std::map<uint32_t, std::vector<uint64_t>> slot_counts;  // B -> chosen slot counts (slot layouts)
   for (size_t r : records) {
     const RecordFacts& f = st.records[r];
     const int c = PreferredIndex(f);
@@ -79,6 +83,27 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
     group_of.push_back(g);
     groups.insert(g);
     chance += 1.0 / static_cast<double>(cands.size());
+    auto& sc = slot_counts[static_cast<uint32_t>(cands.size())];
+    sc.resize(cands.size(), 0);
+    if (HasSlots(f)) ++sc[moved ? (*moved)[static_cast<size_t>(c)] : static_cast<size_t>(c)];
+  }
+  // Expected rate per B: a model that always named the most common slot
+  // would reach that slot's share; below that, 1/B.
+  std::vector<stats::BernoulliGroup> chance_groups;
+  {
+    std::map<uint32_t, uint64_t> n_by_b;
+    for (const auto& cmp : comparisons) ++n_by_b[static_cast<uint32_t>(cmp.size() / dim)];
+    double expected = 0;
+    for (const auto& [b, n] : n_by_b) {
+      const auto& sc = slot_counts[b];
+      const uint64_t top = sc.empty() ? 0 : *std::max_element(sc.begin(), sc.end());
+      const double rate = std::max(1.0 / b, static_cast<double>(top) / static_cast<double>(n));
+      a.chance_by_b.push_back({b, n, rate});
+      chance_groups.push_back({n, rate});
+      expected += static_cast<double>(n) * rate;
+    }
+    a.uniform_chance = comparisons.empty() ? 0.0 : chance / static_cast<double>(comparisons.size());
+    chance = expected;
   }
   // Features that never differ between the candidates of one comparison
   // carry no information (their weight is not identified): left out, listed.
@@ -146,7 +171,20 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   a.message = f.message;
   a.iterations = f.iterations;
   a.training_accuracy = stats::ChoiceAccuracy(data, f.weights);
-  a.flagged = a.heldout_accuracy > o.threshold;
+  a.lift = a.heldout_accuracy - a.chance_accuracy;
+  a.correct = static_cast<uint64_t>(std::llround(a.heldout_accuracy * static_cast<double>(a.comparisons)));
+  const auto tail = stats::PoissonBinomialSf(a.correct, chance_groups);
+  a.p_value = tail.p;
+  a.exact_test = tail.exact;
+  a.flagged = a.p_value < o.alpha && a.lift >= o.min_lift;
+  for (size_t k = 0; k < a.features.size() && k < a.std_errors.size(); ++k) {
+    if (!(a.std_errors[k] > 0)) continue;
+    const double z = a.weights[k] / a.std_errors[k];
+    if (std::fabs(z) >= 1.96) a.carriers.push_back({a.features[k], a.weights[k], z});
+  }
+  std::sort(a.carriers.begin(), a.carriers.end(), [](const AuditResult::Carrier& x, const AuditResult::Carrier& y) {
+    return std::fabs(x.z) != std::fabs(y.z) ? std::fabs(x.z) > std::fabs(y.z) : x.feature < y.feature;
+  });
   return a;
 }
 
@@ -157,15 +195,29 @@ void AuditToJson(const AuditResult& a, const AuditOptions& o, Json* out) {
     j["skipped"] = a.skipped;
     j["heldout_accuracy"] = nullptr;
     j["flagged"] = false;
-    j["threshold"] = o.threshold;
+    j["alpha"] = o.alpha;
+    j["min_lift"] = o.min_lift;
     j["comparisons"] = a.comparisons;
     j["features_not_varying"] = a.not_varying;
     return;
   }
   j["heldout_accuracy"] = a.heldout_accuracy;
   j["flagged"] = a.flagged;
-  j["threshold"] = o.threshold;
   j["chance_accuracy"] = a.chance_accuracy;
+  j["uniform_chance"] = a.uniform_chance;
+  j["lift"] = a.lift;
+  j["p_value"] = a.p_value;
+  j["test"] = a.exact_test ? "one-sided, exact Poisson-binomial over the expected rates"
+                           : "one-sided, normal approximation to the Poisson-binomial over the expected rates";
+  j["correct"] = a.correct;
+  j["alpha"] = o.alpha;
+  j["min_lift"] = o.min_lift;
+  Json by_b = Json::array();
+  for (const auto& g : a.chance_by_b) by_b.push_back(Json{{"b", g.b}, {"comparisons", g.n}, {"expected_rate", g.rate}});
+  j["chance_by_b"] = std::move(by_b);
+  Json carriers = Json::array();
+  for (const auto& c : a.carriers) carriers.push_back(Json{{"feature", c.feature}, {"weight", c.weight}, {"z", c.z}});
+  j["shortcut_features"] = std::move(carriers);
   j["comparisons"] = a.comparisons;
   j["prompt_groups"] = a.prompt_groups;
   j["folds"] = o.folds;

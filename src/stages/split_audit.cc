@@ -255,7 +255,9 @@ Result<AuditOutcome> RunSplitAudit(const AuditOptions& o, FileSystem* fs) {
   Json det;
   LeakSettingsToJson(settings, idx.ngram_n(), &det);
   det.erase("answers");
-  for (auto it = det.begin(); it != det.end(); ++it) it.value().erase("policy");
+  for (auto it = det.begin(); it != det.end(); ++it) {
+    if (it.value().is_object()) it.value().erase("policy");
+  }
   summary["detectors"] = std::move(det);
   Json twins_by = Json::object();
   for (int d = 0; d < 3; ++d) twins_by[LeakDetectorName(static_cast<LeakDetector>(d))] = out.by_detector[d];

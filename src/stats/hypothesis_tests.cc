@@ -128,4 +128,46 @@ Result<ChiSquareResult> ChiSquareGoodnessOfFit(const std::vector<uint64_t>& coun
   return r;
 }
 
+PoissonBinomialTail PoissonBinomialSf(uint64_t k, const std::vector<BernoulliGroup>& groups, uint64_t exact_limit) {
+  PoissonBinomialTail t;
+  uint64_t total = 0;
+  double var = 0;
+  for (const auto& g : groups) {
+    total += g.n;
+    t.mean += static_cast<double>(g.n) * g.p;
+    var += static_cast<double>(g.n) * g.p * (1 - g.p);
+  }
+  t.sd = std::sqrt(var);
+  if (k == 0) {
+    t.p = 1.0;
+    return t;
+  }
+  if (k > total) {
+    t.p = 0.0;
+    return t;
+  }
+  if (total > exact_limit) {
+    t.exact = false;
+    t.p = t.sd > 0 ? 1.0 - NormalCdf((static_cast<double>(k) - 0.5 - t.mean) / t.sd)
+                   : (static_cast<double>(k) <= t.mean ? 1.0 : 0.0);
+    return t;
+  }
+  std::vector<double> pmf{1.0};
+  for (const auto& g : groups) {
+    if (g.n == 0) continue;
+    std::vector<double> b(g.n + 1);
+    for (uint64_t j = 0; j <= g.n; ++j) b[j] = BinomPmf(j, g.n, g.p);
+    std::vector<double> next(pmf.size() + g.n, 0.0);
+    for (size_t a = 0; a < pmf.size(); ++a) {
+      if (pmf[a] == 0) continue;
+      for (size_t j = 0; j < b.size(); ++j) next[a + j] += pmf[a] * b[j];
+    }
+    pmf = std::move(next);
+  }
+  double tail = 0;
+  for (size_t s = pmf.size(); s-- > k;) tail += pmf[s];  // small terms first
+  t.p = std::min(1.0, tail);
+  return t;
+}
+
 }  // namespace prefsift::stats

@@ -44,4 +44,27 @@ ChiSquareResult ChiSquareUniform(const std::vector<uint64_t>& counts);
 Result<ChiSquareResult> ChiSquareGoodnessOfFit(const std::vector<uint64_t>& counts,
                                                const std::vector<double>& expected);
 
+// One group of independent Bernoulli trials with the same success
+// probability: n trials, probability p.
+struct BernoulliGroup {
+  uint64_t n = 0;
+  double p = 0.0;
+};
+
+struct PoissonBinomialTail {
+  double p = 1.0;       // P(S >= k)
+  bool exact = true;    // false: normal approximation
+  double mean = 0.0;    // E[S] = sum n p
+  double sd = 0.0;      // sqrt(sum n p (1 - p))
+};
+
+// Upper tail P(S >= k) of S = the number of successes in independent
+// Bernoulli trials whose probabilities come in groups (the Poisson-binomial
+// distribution with few distinct probabilities). Exact by convolving the
+// groups' binomial pmfs when the trials number at most `exact_limit`; above
+// that the normal approximation with continuity correction,
+// 1 - Phi((k - 0.5 - mean) / sd). REQUIRES: every p in [0, 1].
+PoissonBinomialTail PoissonBinomialSf(uint64_t k, const std::vector<BernoulliGroup>& groups,
+                                      uint64_t exact_limit = 20000);
+
 }  // namespace prefsift::stats

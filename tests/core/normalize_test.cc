@@ -104,6 +104,18 @@ TEST(Normalize, AsciiFastPathAgreesOnRandomText) {
   }
 }
 
+// Look-alike punctuation (code points from the Unicode charts, General
+// Punctuation block U+2000-U+206F): matching text does not depend on which
+// quote, apostrophe or dash was typed. The ellipsis U+2026 and full-width
+// forms are NFKC compatibility mappings (UnicodeData.txt decomposition).
+TEST(Normalize, LookAlikePunctuation) {
+  EXPECT_EQ(NormalizeForMatch("Don\u2019t \u201CRenew\u201D \u2013 now\u2026"), "don't \"renew\" - now...");
+  EXPECT_EQ(NormalizeForMatch("Don\u2019t \u201CRenew\u201D \u2013 now\u2026"),
+            NormalizeForMatch("DON'T \"renew\" - now..."));
+  EXPECT_EQ(NormalizeForMatch("a\u2014b\u2212c\u2010d"), "a-b-c-d");
+  EXPECT_EQ(NormalizeForMatch("\uFF02quote\uFF02\uFF0E"), "\"quote\".");  // full width
+}
+
 TEST(Normalize, PunctuationStripping) {
   NormalizeOptions o;
   o.strip_punctuation = true;

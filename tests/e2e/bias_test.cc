@@ -67,7 +67,17 @@ TEST(BiasE2E, ShortcutAuditVerdictInSummary) {
   ASSERT_TRUE(a["ran"].get<bool>()) << a.dump();
   EXPECT_TRUE(a["heldout_accuracy"].is_number());
   EXPECT_TRUE(a["flagged"].is_boolean());
-  EXPECT_FALSE(a["flagged"].get<bool>());  // biases are planted in a minority of records
+  // The samples plant a length bias on the phone line and position-biased
+  // volunteers. Judged against each comparison's expected rate (max(1/B, top
+  // slot share)), the held-out accuracy is about 6.5 points above it, far
+  // beyond chance (one-sided Poisson-binomial test), so the audit flags it,
+  // with the answer length carrying the shortcut. (Before the audit was judged
+  // against chance, a fixed accuracy threshold of 0.60 let this pass.)
+  EXPECT_TRUE(a["flagged"].get<bool>()) << a.dump();
+  EXPECT_GE(a["lift"].get<double>(), 0.05);
+  EXPECT_LT(a["p_value"].get<double>(), 1e-6);
+  ASSERT_FALSE(a["shortcut_features"].empty());
+  EXPECT_EQ(a["shortcut_features"][0]["feature"], "log1p_words");
   EXPECT_TRUE(a["fit"]["converged"].get<bool>());
 }
 

@@ -12,6 +12,12 @@ written into each fixture header.
 
 Sources per fixture:
   binomtest.tsv   scipy.stats.binomtest(k, n, p, alternative='two-sided').pvalue
+  poisson_binomial.tsv  P(S >= k) for S a sum of independent binomials
+                  Binomial(n_g, p_g) (the shortcut audit's test): exact as
+                  the tail of numpy.convolve of scipy.stats.binom.pmf arrays
+                  for at most 20,000 trials; above that
+                  scipy.stats.norm.sf((k - 0.5 - mean) / sd), the normal
+                  approximation with continuity correction.
   chisquare.tsv   scipy.stats.chisquare(f_obs, f_exp)
   spearman.tsv    scipy.stats.spearmanr(x, y) (average ranks for ties) and
                   scipy.stats.kendalltau(x, y).correlation (tau-b)
@@ -72,6 +78,40 @@ def binomtest_cases():
         pv = scipy.stats.binomtest(k, n, p, alternative="two-sided").pvalue
         lines.append([str(k), str(n), r(p), r(pv)])
     write("binomtest.tsv", lines, "k n p pvalue(two-sided)")
+
+
+def poisson_binomial_cases():
+    rng = np.random.default_rng(20261202)
+    lines = []
+    cases = [([(400, 0.5831), (350, 0.3919), (250, 0.3)], None),   # mixed B = 2, 3, 4 as in the audit
+             ([(10, 0.5)], 7), ([(10, 0.5)], 0), ([(3, 0.5), (2, 1 / 3)], 5), ([(1, 0.25)], 1),
+             ([(30000, 0.5), (20000, 1 / 3)], None)]
+    for _ in range(60):
+        groups = []
+        for b in (2, 3, 4, 5):
+            if rng.random() < 0.8:
+                n = int(rng.choice([rng.integers(1, 40), rng.integers(40, 2000), rng.integers(2000, 12000)]))
+                groups.append((n, max(1.0 / b, float(rng.uniform(1.0 / b, 1.0 / b + 0.15)))))
+        if groups:
+            cases.append((groups, None))
+    for groups, k in cases:
+        mean = sum(n * p for n, p in groups)
+        sd = sum(n * p * (1 - p) for n, p in groups) ** 0.5
+        total = sum(n for n, _ in groups)
+        if k is None:
+            k = int(min(total, max(0, round(mean + rng.normal(1.5, 1.5) * sd))))
+        if total <= 20000:
+            pmf = np.array([1.0])
+            for n, p in groups:
+                pmf = np.convolve(pmf, scipy.stats.binom.pmf(np.arange(n + 1), n, p))
+            tail = float(np.sum(pmf[k:][::-1])) if k > 0 else 1.0
+            exact = 1
+        else:
+            tail = float(scipy.stats.norm.sf((k - 0.5 - mean) / sd)) if k > 0 else 1.0
+            exact = 0
+        desc = ",".join("%d:%s" % (n, r(p)) for n, p in groups)
+        lines.append([desc, str(k), str(exact), r(min(1.0, tail))])
+    write("poisson_binomial.tsv", lines, "groups(n:p,...) k exact P(S>=k)")
 
 
 def chisquare_cases():
@@ -230,6 +270,7 @@ def choice_bk(name, seed, n, d, l2, bmin, bmax):
 def main():
     os.makedirs(OUT, exist_ok=True)
     binomtest_cases()
+    poisson_binomial_cases()
     chisquare_cases()
     spearman_cases()
     multitest_cases()

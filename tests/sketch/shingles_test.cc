@@ -9,7 +9,9 @@
 
 #include <gtest/gtest.h>
 
+#include <cstdio>
 #include <fstream>
+#include <map>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -37,6 +39,100 @@ std::vector<std::vector<std::string>> ReadTsv(const std::string& name) {
     rows.push_back(fields);
   }
   return rows;
+}
+
+// UAX #29 word boundaries, checked against the Unicode Consortium's
+// WordBreakTest.txt (Unicode 15.0, Debian's unicode-data package,
+// /usr/share/unicode/auxiliary/WordBreakTest.txt). Each line gives code
+// points with the boundaries between them and, in its comment, each code
+// point's Word_Break property. We implement the rules for the properties
+// below (docs/normalisation.md); lines with any other property (Hebrew_Letter,
+// Katakana, CR, LF, Newline, ZWJ, ExtPict, RI) are skipped and counted. For
+// every checked line, our word segments equal the file's segments that hold an
+// ALetter or Numeric code point, and our class of every code point agrees
+// with the file's property.
+TEST(Words, MatchWordBreakTestForSupportedProperties) {
+  std::ifstream in("/usr/share/unicode/auxiliary/WordBreakTest.txt");
+  if (!in.good()) GTEST_SKIP() << "unicode-data's WordBreakTest.txt is not installed";
+  const std::map<std::string, WordClass> supported = {
+      {"ALetter", WordClass::kLetter},        {"Numeric", WordClass::kNumeric},
+      {"MidLetter", WordClass::kMidLetter},   {"MidNum", WordClass::kMidNum},
+      {"MidNumLet", WordClass::kMidNumLet},   {"Single_Quote", WordClass::kMidNumLet},
+      {"ExtendNumLet", WordClass::kExtendNumLet}, {"Extend_FE", WordClass::kExtend},
+      {"Format_FE", WordClass::kExtend},      {"Other", WordClass::kOther},
+      {"Double_Quote", WordClass::kOther},    {"WSegSpace", WordClass::kSpace}};
+  size_t checked = 0, skipped = 0;
+  std::string line;
+  while (std::getline(in, line)) {
+    if (line.empty() || line[0] == '#') continue;
+    const size_t hash = line.find('#');
+    const std::string rule = line.substr(0, hash), comment = line.substr(hash);
+    std::vector<std::string> props;
+    for (size_t p = comment.find('('); p != std::string::npos; p = comment.find('(', p + 1)) {
+      props.push_back(comment.substr(p + 1, comment.find(')', p) - p - 1));
+    }
+    // Segments: code points between "÷" marks; "×" joins.
+    std::vector<std::vector<char32_t>> segments(1);
+    std::vector<char32_t> cps;
+    std::istringstream tok(rule);
+    std::string t;
+    while (tok >> t) {
+      if (t == "\xC3\xB7") {
+        if (!segments.back().empty()) segments.emplace_back();
+      } else if (t != "\xC3\x97") {
+        cps.push_back(static_cast<char32_t>(std::stoul(t, nullptr, 16)));
+        segments.back().push_back(cps.back());
+      }
+    }
+    bool ok = props.size() == cps.size();
+    for (size_t k = 0; ok && k < cps.size(); ++k) {
+      auto it = supported.find(props[k]);
+      ok = it != supported.end() && WordClassOf(cps[k]) == it->second;
+    }
+    if (!ok) {
+      ++skipped;
+      continue;
+    }
+    auto utf8 = [](const std::vector<char32_t>& v) {
+      std::string s;
+      for (char32_t cp : v) {
+        if (cp < 0x80) s.push_back(static_cast<char>(cp));
+        else if (cp < 0x800) { s.push_back(char(0xC0 | (cp >> 6))); s.push_back(char(0x80 | (cp & 0x3F))); }
+        else if (cp < 0x10000) { s.push_back(char(0xE0 | (cp >> 12))); s.push_back(char(0x80 | ((cp >> 6) & 0x3F))); s.push_back(char(0x80 | (cp & 0x3F))); }
+        else { s.push_back(char(0xF0 | (cp >> 18))); s.push_back(char(0x80 | ((cp >> 12) & 0x3F))); s.push_back(char(0x80 | ((cp >> 6) & 0x3F))); s.push_back(char(0x80 | (cp & 0x3F))); }
+      }
+      return s;
+    };
+    std::vector<std::string> expected;
+    for (const auto& seg : segments) {
+      bool word = false;
+      for (char32_t cp : seg) word = word || WordClassOf(cp) == WordClass::kLetter || WordClassOf(cp) == WordClass::kNumeric;
+      if (word) expected.push_back(utf8(seg));
+    }
+    const std::string text = utf8(cps);
+    std::vector<std::string> got;
+    for (auto w : Words(text)) got.emplace_back(w);
+    EXPECT_EQ(got, expected) << line;
+    EXPECT_EQ(CountWords(text), expected.size()) << line;
+    ++checked;
+  }
+  // 999 of the file's 1,823 lines use only the supported properties (Unicode 15.0).
+  EXPECT_GE(checked, 999u) << "skipped " << skipped;
+  std::printf("WordBreakTest.txt: %zu lines checked, %zu skipped (unsupported properties)\n", checked, skipped);
+}
+
+TEST(Words, PunctuationSpacingDoesNotChangeWords) {
+  // Our own examples: the spacing of punctuation and its presence between
+  // words do not change the words.
+  EXPECT_EQ(Words("nothing changed ."), Words("nothing changed."));
+  EXPECT_EQ(Words("yes , we tried ! twice"), Words("yes, we tried! twice"));
+  const auto w = Words("don't stop: 3.5 kg, e.g. the_end");
+  ASSERT_EQ(w.size(), 6u);
+  EXPECT_EQ(w[0], "don't");
+  EXPECT_EQ(w[3], "kg");
+  EXPECT_EQ(w[2], "3.5");
+  EXPECT_EQ(w[4], "e.g");
+  EXPECT_EQ(w[5], "the_end");
 }
 
 TEST(Words, SplitsOnAsciiWhitespace) {
@@ -129,9 +225,10 @@ TEST(Shingles, CharacterModeOnCjkCountsCodePointGrams) {
   const std::string text = "我们今天去公园散步";
   ShingleOptions opts;  // auto -> chars
   EXPECT_EQ(Shingles(text, opts).size(), 5u);
-  // Word mode would see a single "word": one shingle for the whole text.
+  // Word mode splits each Han character off as a word of its own (UAX #29
+  // leaves ideographs unjoined, rule WB999): the same 5 grams, over words.
   opts.mode = ShingleMode::kWords;
-  EXPECT_EQ(Shingles(text, opts).size(), 1u);
+  EXPECT_EQ(Shingles(text, opts).size(), 5u);
 }
 
 TEST(Shingles, ShortTextIsOneShingle) {

@@ -253,7 +253,8 @@ TEST(LeakIndex, NgramIgnoresPunctuationAndCase) {
   f.index->CheckPrompt("Q: What is the BEST way to store saved bean seed, over winter... so that it still?", false, &out);
   ASSERT_EQ(out.size(), 1u);
   EXPECT_EQ(out[0].detector, LeakDetector::kNgram);
-  EXPECT_EQ(std::string(out[0].span), "what is the best way to store saved bean seed over winter so");
+  // The span is the covered part of the evaluation item (normalised words).
+  EXPECT_EQ(std::string(out[0].span), "what is the best way to store saved bean seed over winter so that it still");
 }
 
 TEST(LeakIndex, NearJaccardAndEmbeddedContainment) {
@@ -312,7 +313,7 @@ TEST(LeakIndex, ReferenceAnswers) {
   ASSERT_EQ(out.size(), 1u);
   EXPECT_EQ(out[0].detector, LeakDetector::kAnswer);
   EXPECT_EQ(out[0].candidate, 1);
-  EXPECT_STREQ(out[0].measure, "ngram");
+  EXPECT_STREQ(out[0].measure, "coverage");
   out.clear();
   f.index->CheckAnswer(kEval20, 0, &out);
   ASSERT_EQ(out.size(), 1u);
@@ -477,6 +478,55 @@ TEST(SplitAudit, TwoHandMadeFiles) {
   auto summary = Json::parse(ReadFile(o.out + "/audit.json"));
   EXPECT_EQ(summary["heldout_with_train_twin"], 2);
   EXPECT_NE(r.value().table.find("LEAKAGE FOUND"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace prefsift
+
+namespace prefsift {
+namespace {
+
+// Worked example of the coverage rule (ours, counted by hand): a 20-word item,
+// n = 5, so 16 grams starting at words 0..15. The grams starting at 0..3 are
+// set aside as template text (they cover words 0..7); the informative grams
+// start at 4..15 and cover words 4..19: 16 informative words. A training text
+// holding words 8..19 shares the grams starting at 8..15, which cover words
+// 8..19: coverage 12/16 = 0.75, with 8 distinct shared informative grams.
+TEST(NgramCoverage, WorkedExampleWithTemplateGrams) {
+  std::vector<std::string> w;
+  for (int i = 0; i < 20; ++i) w.push_back("w" + std::to_string(i));
+  auto join = [&](int from, int to) {
+    std::string s;
+    for (int i = from; i < to; ++i) s += (i > from ? " " : "") + w[static_cast<size_t>(i)];
+    return s;
+  };
+  NgramOptions o;
+  o.n = 5;
+  std::vector<std::string> items = {join(0, 20)};
+  NgramIndex idx(items, o);
+  ASSERT_EQ(idx.grams(), 16u);
+  std::vector<uint32_t> stock;
+  idx.CollectIds(join(0, 8), &stock);  // the grams starting at 0..3
+  ASSERT_EQ(stock.size(), 4u);
+  std::vector<uint8_t> flags(idx.grams(), 0);
+  for (uint32_t id : stock) flags[id] = 1;
+  idx.SetTemplate(flags);
+  std::vector<uint32_t> ids;
+  idx.CollectIds("a message ending with " + join(8, 20), &ids);
+  auto hits = idx.Coverage(ids);
+  ASSERT_EQ(hits.size(), 1u);
+  EXPECT_EQ(hits[0].informative, 16u);
+  EXPECT_EQ(hits[0].covered, 12u);
+  EXPECT_DOUBLE_EQ(hits[0].coverage(), 0.75);
+  EXPECT_EQ(hits[0].shared, 8u);
+  EXPECT_EQ(hits[0].first_word, 8u);
+  EXPECT_EQ(hits[0].end_word, 20u);
+  // A text holding only the template words shares no informative gram.
+  idx.CollectIds("hello " + join(0, 8) + " thanks", &ids);
+  EXPECT_TRUE(idx.Coverage(ids).empty());
+  // Everything set aside: the item is template-only.
+  idx.SetTemplate(std::vector<uint8_t>(idx.grams(), 1));
+  EXPECT_EQ(idx.TemplateOnlyItems(), 1u);
 }
 
 }  // namespace

@@ -242,9 +242,12 @@ TEST(NearDups, TextWithoutSpacesUsesCodePointShingles) {
   ASSERT_EQ(clusters.size(), 1u);
   EXPECT_NEAR(clusters[0]["min_similarity"].get<double>(), 35.0 / 37.0, 1e-6);
   EXPECT_EQ(NearSummary(out)["shingle_modes"]["chars"], 2);
+  // Forced word shingles: UAX #29 leaves each ideograph a word of its own
+  // (rule WB999), so word 5-grams are the same grams and the same similarity.
   plan.stages["near"] = Json{{"verify", "exact"}, {"shingle", "words"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  EXPECT_EQ(ReadJsonl(out + "/clusters.jsonl").size(), 0u);
+  ASSERT_EQ(ReadJsonl(out + "/clusters.jsonl").size(), 1u);
+  EXPECT_NEAR(ReadJsonl(out + "/clusters.jsonl")[0]["min_similarity"].get<double>(), 35.0 / 37.0, 1e-6);
   EXPECT_EQ(NearSummary(out)["shingle_modes"]["words"], 2);
 }
 
@@ -334,7 +337,8 @@ TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
   mid1[11] = "differs";  // 10 each, 9 shared, J = 9/11 = 0.818 < 0.9
   std::string data = Line("n1", Join(WordList("pa", 20)), Join(long0), Join(long1)) +
                      Line("n2", Join(WordList("pb", 20)), Join(mid0), Join(mid1)) +
-                     // one word each: compared as 1-grams, "yes." vs "yes!" share nothing
+                     // one word each: punctuation is not a word (UAX #29), so "yes." and "yes!"
+                     // are the same 1-gram: similarity 1
                      Line("n3", Join(WordList("pc", 20)), "Yes.", "Yes!") +
                      // the same text after normalisation: similarity 1
                      Line("n4", Join(WordList("pd", 20)), "In May", "in  MAY", 1);
@@ -343,30 +347,33 @@ TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());  // default: flag, 0.9, 3-grams
   auto flagged = ReadJsonl(out + "/near_identical.jsonl");
-  ASSERT_EQ(flagged.size(), 2u);
+  ASSERT_EQ(flagged.size(), 3u);
   EXPECT_EQ(flagged[0]["id"], "n1");
   EXPECT_EQ(flagged[0]["action"], "flagged");
   EXPECT_NEAR(flagged[0]["pairs"][0]["similarity"].get<double>(), 27.0 / 29.0, 1e-6);
-  EXPECT_EQ(flagged[1]["id"], "n4");
+  EXPECT_EQ(flagged[1]["id"], "n3");
+  EXPECT_EQ(flagged[2]["id"], "n4");
   EXPECT_DOUBLE_EQ(flagged[1]["pairs"][0]["similarity"].get<double>(), 1.0);
+  EXPECT_DOUBLE_EQ(flagged[2]["pairs"][0]["similarity"].get<double>(), 1.0);
   EXPECT_TRUE(RejectsById(out).empty());
   Json s = NearSummary(out);
-  EXPECT_EQ(s["near_identical_candidates"]["records"], 2);
+  EXPECT_EQ(s["near_identical_candidates"]["records"], 3);
   EXPECT_EQ(s["near_identical_candidates"]["rejected"], 0);
 
   plan.stages["near"] = Json{{"candidates", "reject"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
   auto rejects = RejectsById(out);
-  ASSERT_EQ(rejects.size(), 2u);
+  ASSERT_EQ(rejects.size(), 3u);
   EXPECT_EQ(rejects["n1"]["reason"], "near_identical_candidates");
   EXPECT_EQ(rejects["n1"]["detail"]["candidates"], Json::array({0, 1}));
+  EXPECT_EQ(rejects["n3"]["reason"], "near_identical_candidates");
   EXPECT_EQ(rejects["n4"]["reason"], "near_identical_candidates");
-  EXPECT_EQ(NearSummary(out)["near_identical_candidates"]["rejected"], 2);
+  EXPECT_EQ(NearSummary(out)["near_identical_candidates"]["rejected"], 3);
 
   // A lower threshold also catches n2 (0.818); "off" checks nothing.
   plan.stages["near"] = Json{{"candidate_threshold", 0.8}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  EXPECT_EQ(ReadJsonl(out + "/near_identical.jsonl").size(), 3u);
+  EXPECT_EQ(ReadJsonl(out + "/near_identical.jsonl").size(), 4u);
   plan.stages["near"] = Json{{"candidates", "off"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
   EXPECT_EQ(ReadJsonl(out + "/near_identical.jsonl").size(), 0u);

@@ -106,3 +106,46 @@ TEST(ChiSquare, Errors) {
 
 }  // namespace
 }  // namespace prefsift::stats
+
+namespace prefsift::stats {
+namespace {
+using testing::ParseDouble;
+using testing::ReadFixture;
+using testing::Split;
+
+// The shortcut audit's test against scipy 1.10.1 (tests/data/stats/
+// poisson_binomial.tsv, made by tests/reference/stats_reference.py): the exact
+// tail by convolving scipy.stats.binom.pmf arrays, and above 20,000 trials
+// scipy.stats.norm.sf with continuity correction.
+TEST(PoissonBinomial, MatchesScipyReference) {
+  const auto rows = ReadFixture("poisson_binomial.tsv");
+  ASSERT_GE(rows.size(), 50u);
+  int exact = 0, approx = 0;
+  for (const auto& row : rows) {
+    std::vector<BernoulliGroup> groups;
+    for (const auto& g : Split(row[0], ',')) {
+      const auto parts = Split(g, ':');
+      groups.push_back({static_cast<uint64_t>(std::stoull(parts[0])), ParseDouble(parts[1])});
+    }
+    const uint64_t k = std::stoull(row[1]);
+    const auto t = PoissonBinomialSf(k, groups);
+    EXPECT_EQ(t.exact, row[2] == "1") << row[0];
+    const double want = ParseDouble(row[3]);
+    // Summation order differs from numpy's; relative 1e-9 or absolute 1e-13.
+    EXPECT_TRUE(std::fabs(t.p - want) <= std::max(1e-9 * want, 1e-13)) << row[0] << " k=" << k << ": got " << t.p
+                                                                       << " want " << want;
+    (t.exact ? exact : approx) += 1;
+  }
+  EXPECT_GT(exact, 40);
+  EXPECT_GT(approx, 0);
+}
+
+// Worked example (ours): one group of 10 fair coins, P(S >= 7) = 176/1024.
+TEST(PoissonBinomial, FairCoins) {
+  EXPECT_NEAR(PoissonBinomialSf(7, {{10, 0.5}}).p, 176.0 / 1024.0, 1e-15);
+  EXPECT_DOUBLE_EQ(PoissonBinomialSf(0, {{10, 0.5}}).p, 1.0);
+  EXPECT_DOUBLE_EQ(PoissonBinomialSf(11, {{10, 0.5}}).p, 0.0);
+}
+
+}  // namespace
+}  // namespace prefsift::stats

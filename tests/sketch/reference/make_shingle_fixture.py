@@ -41,11 +41,85 @@ BASES = [
     "短い",
     "",
     "café naïve straße ﬁnal — “quotes” and emoji 🙂 in the middle of words",
+    "it's 3.5 kg, isn't it ? yes : e.g. snake_case and 1,000,000 items .",
+    "IT'S 3.5 KG , ISN'T IT? YES: E.G. SNAKE_CASE AND 1,000,000 ITEMS.",
 ]
 
 
+MID_NUM_LET = set("'.\u2018\u2019\u2024\ufe52\uff07\uff0e")
+MID_LETTER = set(":\u00b7\u0387\u055f\u05f4\u2027\ufe13\ufe55\uff1a")
+MID_NUM = set(",;\u037e\u0589\u060c\u060d\u066c\u07f8\u2044\ufe10\ufe14\ufe50\ufe54\uff0c\uff1b")
+
+
+def wclass(ch):
+    """Word_Break class, the subset of UAX #29 (Unicode Standard Annex 29,
+    section 4.1, table 3) that prefsift uses, from unicodedata categories."""
+    if ch in MID_NUM_LET:
+        return "MidNumLet"
+    if ch in MID_LETTER:
+        return "MidLetter"
+    if ch in MID_NUM:
+        return "MidNum"
+    cat = unicodedata.category(ch)
+    if ch.isspace() or cat in ("Zs", "Zl", "Zp"):
+        return "Space"
+    if cat[0] == "L" or cat in ("Nl", "Nd"):
+        if unicodedata.name(ch, "").startswith(NO_SPACE_NAMES):
+            return "Ideo"
+        return "Numeric" if cat == "Nd" else "Letter"
+    if cat in ("Mn", "Me", "Mc", "Cf"):
+        return "Extend"
+    if cat == "Pc":
+        return "ExtendNumLet"
+    return "Other"
+
+
 def words(text):
-    return [w for w in SPACE.split(text) if w]
+    """UAX #29 word segments holding a letter, digit or no-space-script
+    character: rules WB4-WB13b without the Hebrew, Katakana, emoji and
+    regional-indicator rules."""
+    # WB4: Extend/Format attach to what precedes; drop them for classification.
+    units = []  # (class, text)
+    for ch in text:
+        c = wclass(ch)
+        if c == "Extend" and units:
+            units[-1] = (units[-1][0], units[-1][1] + ch)
+        else:
+            units.append((c, ch))
+    out = []
+    i = 0
+    wordish = ("Letter", "Numeric", "ExtendNumLet")
+    while i < len(units):
+        c, t = units[i]
+        if c == "Ideo":
+            out.append(t)
+            i += 1
+            continue
+        if c not in wordish:
+            i += 1
+            continue
+        buf = t
+        prev = c
+        alnum = c != "ExtendNumLet"
+        i += 1
+        while i < len(units):
+            n1 = units[i][0]
+            if n1 in wordish:
+                buf += units[i][1]
+                prev = n1
+                alnum = alnum or n1 != "ExtendNumLet"
+                i += 1
+                continue
+            ok_mid = (prev == "Letter" and n1 in ("MidLetter", "MidNumLet")) or \
+                     (prev == "Numeric" and n1 in ("MidNum", "MidNumLet"))
+            if ok_mid and i + 1 < len(units) and units[i + 1][0] == prev:
+                buf += units[i][1] + units[i + 1][1]
+                i += 2
+                continue
+            break
+        if alnum:
+            out.append(buf)
+    return out
 
 
 def word_grams(text):
