@@ -428,6 +428,10 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
 }  // namespace
 
 Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
+  // The run's wall-clock start and duration for the provenance (finish.h:
+  // replaced by SOURCE_DATE_EPOCH in the reproducible mode).
+  const auto wall_start = std::chrono::system_clock::now();
+  const auto steady_start = std::chrono::steady_clock::now();
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
   if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
   // Stages, in pipeline order.
@@ -505,7 +509,10 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (options.companion) stage_ptrs.push_back(options.companion);
   Json summary = BuildSummary(plan, st, stage_ptrs, written);
   timer.Mark("summary");
-  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed);  // gate and provenance
+  RunClock clock;
+  clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
+  clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
+  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed, clock);  // gate and provenance
   if (!s.ok()) return s;
   timer.Mark("gate and provenance");
   outcome.gate_failed = st.gate_failed;
