@@ -58,6 +58,7 @@ struct CommonOptions {
   bool quiet = false;
   bool timings = false;
   bool progress = false;
+  double progress_seconds = 5;
   long long seed = -1;
   StageOptions stage;  // the stages' essential settings (cli/stage_options.h)
   // Input limits (docs/hardening.md); 0 = the plan's value or the default.
@@ -81,6 +82,8 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_flag("--progress", o->progress,
                 "When stderr is not a terminal (logs, CI), print a progress line every 5 seconds (on a terminal "
                 "the line is always shown)");
+  cmd->add_option("--progress-seconds", o->progress_seconds, "Seconds between those lines (default 5)")
+      ->check(CLI::NonNegativeNumber);
   // Input limits override the plan's limits.* (a record over one is rejected with its reason).
   CLI::Option_group* lim = cmd->add_option_group("Limits", "Input limits (plan: limits.*); over a limit = reject");
   lim->add_option("--max-line-bytes", o->max_line_bytes, "Longest input line in bytes (default 64 MiB)");
@@ -155,6 +158,7 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
   opts.stages = stages;
   opts.progress = !o.quiet && ::isatty(2);
   opts.progress_lines = !o.quiet && o.progress;
+  opts.progress_seconds = o.progress_seconds;
   opts.table = !o.quiet;
   opts.timings = o.timings;
   auto outcome = RunPipeline(plan.value(), opts, DefaultFileSystem(), stderr);

@@ -384,9 +384,9 @@ std::string DatasheetMarkdown(const Json& d) {
   const Json& p = d["provenance"];
   if (p.contains("tool")) {
     const Json t = At(p, "time");
-    m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + "); run " +
-         "started " + Cell(At(t, "utc")) + " (" + Cell(At(t, "source")) + ")";
-    if (t.contains("duration_seconds")) m += ", took " + Cell(t["duration_seconds"]) + " s";
+    m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + "), dated " +
+         Cell(At(t, "utc")) + " (" + Cell(At(t, "source")) + ")";
+    if (t.contains("duration_seconds")) m += "; the run took " + Cell(t["duration_seconds"]) + " s";
     m += ".\n\n";
   }
   m += GateTable(d["gate"]);

@@ -93,11 +93,13 @@ class PhaseTimer {
 // and, when the inputs' total size is known (every input uncompressed), the
 // percentage and the time left at the pass's rate so far. On a terminal it is
 // one line rewritten twice a second; for logs and CI (`--progress`) a new line
-// every five seconds. Never written to an output file.
+// every few seconds (5 by default). Never written to an output file.
 class Progress {
  public:
-  Progress(bool terminal, bool lines, std::FILE* log, uint64_t total_bytes)
-      : terminal_(terminal), lines_(lines && !terminal), log_(log), total_(total_bytes) {
+  Progress(bool terminal, bool lines, double every_s, std::FILE* log, uint64_t total_bytes)
+      : terminal_(terminal), lines_(lines && !terminal), every_(std::chrono::milliseconds(terminal ? 500 :
+                                                               static_cast<long long>(every_s * 1000))),
+        log_(log), total_(total_bytes) {
     Phase("reading");
   }
   // Starts a pass: counts restart.
@@ -113,7 +115,7 @@ class Progress {
   void Tick(const std::string& input, uint64_t lines, uint64_t bytes) {
     if (!terminal_ && !lines_) return;
     auto now = std::chrono::steady_clock::now();
-    if (now - last_ < std::chrono::milliseconds(terminal_ ? 500 : 5000)) return;
+    if (now - last_ < every_) return;
     last_ = now;
     const double s = std::chrono::duration<double>(now - start_).count();
     char buf[320];
@@ -121,7 +123,8 @@ class Progress {
                           static_cast<unsigned long long>(lines), static_cast<double>(bytes) / 1e6, s);
     const double f = total_ > 0 ? static_cast<double>(done_bytes_ + bytes) / static_cast<double>(total_) : 0;
     if (f > 0 && f <= 1 && n > 0 && static_cast<size_t>(n) < sizeof buf) {
-      std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass, about %.0f s left", 100 * f, s * (1 - f) / f);
+      if (f < 0.01) std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass", 100 * f);  // too early for a rate
+      else std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass, about %.0f s left", 100 * f, s * (1 - f) / f);
     }
     if (terminal_) std::fprintf(log_, "\r%-100s", buf);
     else std::fprintf(log_, "progress: %s\n", buf);
@@ -135,6 +138,7 @@ class Progress {
 
  private:
   bool terminal_, lines_;
+  std::chrono::milliseconds every_;
   std::FILE* log_;
   uint64_t total_;
   const char* verb_ = "reading";
@@ -510,7 +514,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
 
   ThreadPool pool(plan.threads);  // 0: one per hardware thread
   RunState st(plan);
-  Progress progress(options.progress, options.progress_lines, log, InputBytes(plan));
+  Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
   PhaseTimer timer(options.timings, log);
   Status s = Observe(plan, st, stages, fs, pool, progress);
   progress.Done();
