@@ -570,11 +570,14 @@ std::string ReviewSection(const Json& s) {
   // The shortcut audit, from whatever fields it reports.
   o += "<h3>Shortcut audit</h3>\n";
   if (const Json* sa = Find(*bias, {"shortcut_audit"}); sa && sa->is_object()) {
-    const double acc = D(*sa, "heldout_accuracy", -1), chance = D(*sa, "chance_accuracy", -1);
+    const double acc = D(*sa, "heldout_accuracy", -1);
+    double chance = D(*sa, "chance_accuracy", D(*sa, "chance", -1));
+    if (chance < 0 && V(*sa, "chance").is_object()) chance = D(V(*sa, "chance"), "accuracy", -1);
     if (acc >= 0 && chance >= 0) {
       o += "<p id=\"shortcut-verdict\">A classifier that sees only surface features (length, lists, code, slot, …) "
            "picks the chosen answer with held-out accuracy <strong>" + Num(100 * acc, 1) + "%</strong> against " +
            Num(100 * chance, 1) + "% by chance" +
+           (V(*sa, "p").is_number() ? " (p = " + FmtP(D(*sa, "p")) + ")" : std::string()) +
            (sa->contains("threshold") ? ", threshold " + Num(100 * D(*sa, "threshold"), 1) + "%" : std::string()) +
            ": " + (True(*sa, "flagged") ? "<strong>flagged</strong>" : "not flagged") + ".</p>\n";
     }
