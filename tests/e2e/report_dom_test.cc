@@ -67,7 +67,10 @@ Page Load(const std::string& html_path, const std::string& tag) {
       " --log-net-log=" + base + "/netlog.json --enable-logging=stderr --v=0";
   const std::string url = "file://" + std::filesystem::absolute(html_path).string();
   Page page;
-  page.exit = Shell("(timeout 90 /usr/bin/chromium" + flags + " --dump-dom " + url + " 2>" + base + "/log.txt)", &page.dom);
+  // Chromium now and then gives no output on a loaded machine: one retry.
+  for (int attempt = 0; attempt < 2 && page.dom.find("</html>") == std::string::npos; ++attempt) {
+    page.exit = Shell("(timeout 90 /usr/bin/chromium" + flags + " --dump-dom " + url + " 2>" + base + "/log.txt)", &page.dom);
+  }
   std::ifstream log(base + "/log.txt");
   for (std::string line; std::getline(log, line);) {
     if (line.find(":CONSOLE") != std::string::npos) page.console.push_back(line);
