@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Installs everything prefsift needs to build, test and run its demo on Debian 12.
 # Safe to run again; needs root (or sudo). clang + libclang-rt-14-dev: libFuzzer
-# targets in fuzz/ (scripts/fuzz.sh). chromium: the report.html test in tests/e2e.
+# targets in fuzz/ (scripts/fuzz.sh). chromium: the report.html tests in tests/e2e.
+# python3-colorspacious: the report palette check (tests/reference/palette_cvd.py).
 set -euo pipefail
 SUDO=""
 if [ "$(id -u)" -ne 0 ]; then SUDO="sudo"; fi
@@ -10,6 +11,7 @@ PKGS=(build-essential cmake ninja-build pkg-config git
   libsimdjson-dev libutf8proc-dev libsqlite3-dev libssl-dev zlib1g-dev libzstd-dev libbenchmark-dev
   zstd bzip2 python3 python3-stdnum python3-phonenumbers python3-scipy python3-sklearn python3-numpy
   python3-nltk python3-statsmodels
+  python3-colorspacious
   unicode-data
   chromium
   clang libclang-rt-14-dev)

@@ -6,11 +6,13 @@
 
 #include <unistd.h>
 
+#include <algorithm>
 #include <cstdio>
 #include <iostream>
 #include <tuple>
 
 #include "cli/exit_codes.h"
+#include "cli/stage_options.h"
 #include "core/limits.h"
 #include "core/plan.h"
 #include "io/file_system.h"
@@ -41,7 +43,10 @@ struct CommonOptions {
   unsigned threads = 0;
   bool quiet = false;
   bool timings = false;
+  bool progress = false;
+  double progress_seconds = 5;
   long long seed = -1;
+  StageOptions stage;  // the stages' essential settings (cli/stage_options.h)
   // Input limits (docs/hardening.md); 0 = the plan's value or the default.
   size_t max_line_bytes = 0, max_depth = 0, max_candidates = 0, max_text_bytes = 0;
   double max_reject_share = 0;
@@ -61,6 +66,11 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
   cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
   cmd->add_flag("--timings", o->timings, "Print the wall time of each phase and stage on stderr (not in any output file)");
+  cmd->add_flag("--progress", o->progress,
+                "When stderr is not a terminal (logs, CI), print a progress line every 5 seconds (on a terminal "
+                "the line is always shown)");
+  cmd->add_option("--progress-seconds", o->progress_seconds, "Seconds between those lines (default 5)")
+      ->check(CLI::NonNegativeNumber);
   // Input limits override the plan's limits.* (a record over one is rejected with its reason).
   CLI::Option_group* lim = cmd->add_option_group("Limits", "Input limits (plan: limits.*); over a limit = reject");
   lim->add_option("--max-line-bytes", o->max_line_bytes, "Longest input line in bytes (default 64 MiB)");
@@ -114,6 +124,7 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
   } else if (!o.layout.empty() || !o.fields.empty()) {
     return Status::Usage("--layout and --field apply to inputs named on the command line; none were given");
   }
+  if (Status s = ApplyStageOptions(o.stage, &plan); !s.ok()) return s;
   if (!o.out.empty()) plan.output = o.out;
   if (o.overwrite) plan.overwrite = true;
   if (o.strict) plan.strict = true;
@@ -134,20 +145,28 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
   return plan;
 }
 
-int RunWith(const CommonOptions& o, const std::vector<std::string>& stages) {
+// A usage error about a plan setting, with its place in the plan file.
+std::string PlanMessage(const CommonOptions& o, const Status& s) {
+  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(o.plan_path, s.message()) : s.message();
+}
+
+int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, const std::string& command) {
   auto plan = BuildPlan(o);
-  if (!plan.ok()) {
-    std::fprintf(stderr, "prefsift: %s\n", plan.status().message().c_str());
-    return ExitFor(plan.status());
+  Status can = plan.ok() ? CheckStageCanWork(plan.value(), stages, command) : plan.status();
+  if (!can.ok()) {
+    std::fprintf(stderr, "prefsift: %s\n", can.message().c_str());
+    return ExitFor(can);
   }
   PipelineOptions opts;
   opts.stages = stages;
   opts.progress = !o.quiet && ::isatty(2);
+  opts.progress_lines = !o.quiet && o.progress;
+  opts.progress_seconds = o.progress_seconds;
   opts.table = !o.quiet;
   opts.timings = o.timings;
   auto outcome = RunPipeline(plan.value(), opts, DefaultFileSystem(), stderr);
   if (!outcome.ok()) {
-    std::fprintf(stderr, "prefsift: %s\n", outcome.status().message().c_str());
+    std::fprintf(stderr, "prefsift: %s\n", PlanMessage(o, outcome.status()).c_str());
     return ExitFor(outcome.status());
   }
   if (!o.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
@@ -194,6 +213,38 @@ int RunAudit(AuditCli a) {
   return a.gate && outcome.value().leak_found ? kExitGate : kExitOk;
 }
 
+// Levenshtein distance (insertions, deletions, substitutions; Levenshtein 1966).
+size_t EditDistance(const std::string& a, const std::string& b) {
+  std::vector<size_t> row(b.size() + 1);
+  for (size_t j = 0; j <= b.size(); ++j) row[j] = j;
+  for (size_t i = 1; i <= a.size(); ++i) {
+    size_t diag = row[0];
+    row[0] = i;
+    for (size_t j = 1; j <= b.size(); ++j) {
+      size_t up = row[j];
+      row[j] = std::min({row[j] + 1, row[j - 1] + 1, diag + (a[i - 1] == b[j - 1] ? 0 : 1)});
+      diag = up;
+    }
+  }
+  return row[b.size()];
+}
+
+// " (did you mean \"run\"?)" for the nearest name within a third of the
+// typed length (at least 2 edits), or a prefix match; else "".
+std::string SuggestionFor(const std::string& typed, const std::vector<std::string>& names) {
+  std::string best;
+  size_t best_d = std::max<size_t>(2, typed.size() / 3) + 1;
+  for (const auto& n : names) {
+    size_t d = EditDistance(typed, n);
+    if (n.rfind(typed, 0) == 0 && typed.size() >= 2) d = std::min<size_t>(d, 1);
+    if (d < best_d) {
+      best_d = d;
+      best = n;
+    }
+  }
+  return best.empty() ? "" : " (did you mean \"" + best + "\"?)";
+}
+
 std::vector<std::string> AllStageNames() {
   std::vector<std::string> names;
   for (const auto& s : AllStages()) names.push_back(s.name);
@@ -230,28 +281,41 @@ int prefsift::Main(int argc, char** argv) {
   app.set_version_flag("--version", std::string("prefsift ") + PREFSIFT_VERSION + " (" + PREFSIFT_REVISION + ")");
   app.require_subcommand(1);
 
-  // One table of record-reading subcommands: name, help, stages it runs.
+  // One table of record-reading subcommands: name, help, stages it runs, an example.
   struct Command {
     const char* name;
     const char* help;
     std::vector<std::string> stages;
+    const char* example;
   };
   std::vector<Command> commands = {
-      {"run", "Run the whole pipeline, usually from a plan file (--plan)", AllStageNames()},
-      {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {}},
-      {"annotators", "Annotator agreement, candidates for review, preference cycles and rushed judgments only", {"annotators"}},
-      {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"}},
-      {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"}},
-      {"leakage", "Train/evaluation leakage against the plan's evaluation sets only", {"leakage"}},
-      {"screen", "Personal-data screen only: find, mask, pseudonymise or drop (rule packs in rules/)", {"screen"}},
-      {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"}},
-      {"split", "Group-aware stable splits only (records tied by prompt, near-duplicate cluster, thread)", {"split"}},
+      {"run", "Run the whole pipeline, usually from a plan file (--plan)", AllStageNames(),
+       "prefsift run --plan samples/demo-plan.json --out demo-out\n"
+       "  prefsift run prefs.jsonl --layout pairwise --eval heldout.txt --out out --progress"},
+      {"check", "Read and validate the inputs only: malformed records to rejects.jsonl", {},
+       "prefsift check data.jsonl --field prompt=/question --field candidates=/answers --field choice=/picked -o out"},
+      {"annotators", "Annotator agreement, candidates for review, preference cycles and rushed judgments only",
+       {"annotators"}, "prefsift annotators prefs.jsonl --layout choice --field annotator=/rater -o out"},
+      {"dedup", "Exact duplicates, label conflicts and degenerate comparisons only", {"exact"},
+       "prefsift dedup prefs.jsonl --layout pairwise --conflicts drop-all -o out"},
+      {"near", "Near-duplicate prompts (MinHash + LSH clusters) and near-identical candidates only", {"near"},
+       "prefsift near prefs.jsonl --layout pairwise --threshold 0.7 -o out"},
+      {"leakage", "Train/evaluation leakage against evaluation sets (--eval or the plan's) only", {"leakage"},
+       "prefsift leakage prefs.jsonl --layout pairwise --eval heldout.txt --eval staff.jsonl:/question -o out"},
+      {"screen", "Personal-data screen only: find, mask, pseudonymise or drop (rule packs in rules/)", {"screen"},
+       "prefsift screen prefs.jsonl --layout pairwise --rules contact --rules payment -o out"},
+      {"bias", "Position and length bias statistics, optional rebalancing, shortcut audit only", {"bias"},
+       "prefsift bias prefs.jsonl --layout choice --alpha 0.01 -o out"},
+      {"split", "Group-aware stable splits only (records tied by prompt, near-duplicate cluster, thread)", {"split"},
+       "prefsift split prefs.jsonl --layout pairwise --split train=0.9 --split test=0.1 -o out"},
   };
   std::vector<CommonOptions> options(commands.size());
   std::vector<CLI::App*> subs;
   for (size_t i = 0; i < commands.size(); ++i) {
     CLI::App* sub = app.add_subcommand(commands[i].name, commands[i].help);
     AddCommon(sub, &options[i]);
+    AddStageOptions(sub, commands[i].stages, &options[i].stage);
+    sub->footer(std::string("\nExample:\n  ") + commands[i].example + "\n");
     subs.push_back(sub);
   }
   AuditCli audit;
@@ -265,11 +329,24 @@ int prefsift::Main(int argc, char** argv) {
   audit_cmd->add_option("--heldout", audit.heldout, "A held-out (validation or test) file (repeatable)")->required();
   audit_cmd->add_flag("--by-annotator", audit.by_annotator, "Also report annotators who appear on both sides");
   audit_cmd->add_flag("--gate", audit.gate, "Exit with code 4 if any leakage is found");
+  audit_cmd->footer("\nExample:\n  prefsift audit --train train.jsonl --heldout test.jsonl --layout pairwise -o audit-out\n");
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
+  layouts->footer("\nExample:\n  prefsift layouts\n");
 #ifdef PREFSIFT_HAVE_STORE
   auto store_commands = AddStoreCommands(&app);
 #endif
 
+  app.footer("\nExample:\n  prefsift run --plan samples/demo-plan.json --out demo-out\n"
+             "Each command's --help has an example of its own (prefsift dedup --help).\n");
+  // An unknown command is named, with the nearest one (CLI11 would only say
+  // that a subcommand is required).
+  std::vector<std::string> names;
+  for (const CLI::App* sub : app.get_subcommands({})) names.push_back(sub->get_name());
+  if (argc > 1 && argv[1][0] != '-' && std::find(names.begin(), names.end(), argv[1]) == names.end()) {
+    std::fprintf(stderr, "prefsift: unknown command \"%s\"%s; see prefsift --help\n", argv[1],
+                 SuggestionFor(argv[1], names).c_str());
+    return 2;
+  }
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -296,7 +373,7 @@ int prefsift::Main(int argc, char** argv) {
   if (int rc = store_commands->RunIfParsed(); rc >= 0) return rc;
 #endif
   for (size_t i = 0; i < commands.size(); ++i) {
-    if (subs[i]->parsed()) return RunWith(options[i], commands[i].stages);
+    if (subs[i]->parsed()) return RunWith(options[i], commands[i].stages, commands[i].name);
   }
   return 2;
 }

@@ -79,11 +79,14 @@ class Commands : public StoreCommands {
     add_ = app->add_subcommand("add", "Add a batch to a growing store: dedup against it, inherit stored splits (docs/store.md)");
     AddBatchArgs(add_, &add_args_, true);
     add_->add_option("--wait", wait_s_, "Seconds to wait while another run writes the store (default 30), then exit 3");
+    add_->footer("\nExample:\n  prefsift add --store lantern.db --plan samples/store-plan.json --out round1-out round1.jsonl\n");
     history_ = app->add_subcommand("history", "List a store's batches with their digests and counts");
     history_->add_option("--store", store_, "The store file")->required();
+    history_->footer("\nExample:\n  prefsift history --store lantern.db\n");
     summary_ = app->add_subcommand("store-summary", "Cumulative summary JSON of a whole store (all batches)");
     summary_->add_option("--store", store_, "The store file")->required();
     summary_->add_option("-o,--out", summary_out_, "Write the JSON here (atomically) instead of stdout");
+    summary_->footer("\nExample:\n  prefsift store-summary --store lantern.db --out lantern-summary.json\n");
     report_ = app->add_subcommand("store-report",
                                   "Datasheet and HTML report of a whole store (all batches) into a new folder");
     report_->add_option("--store", report_store_, "The store file (default: the plan's \"store\")");
@@ -91,13 +94,16 @@ class Commands : public StoreCommands {
                         "Output folder: store-summary.json, datasheet.md, datasheet.json, report.html")->required();
     report_->add_option("-p,--plan", report_plan_, "A plan whose \"provenance\" answers the datasheet's questions");
     report_->add_flag("--overwrite", report_overwrite_, "Replace an existing output folder (atomically, at the end)");
+    report_->footer("\nExample:\n  prefsift store-report --store lantern.db --out lantern-report\n");
     sign_ = app->add_subcommand("shard-sign", "Near-duplicate signatures and band keys of one shard (for `merge`)");
     AddBatchArgs(sign_, &sign_args_, false);
+    sign_->footer("\nExample:\n  prefsift shard-sign --plan samples/store-plan.json --out shard1 part1.jsonl\n");
     merge_ = app->add_subcommand("merge", "Cluster near-duplicates over several shards' signatures.jsonl files");
     merge_->add_option("files", merge_files_, "signatures.jsonl files from `shard-sign`, in shard order")->required();
     merge_->add_option("-o,--out", merge_out_, "Output folder (clusters.jsonl, merge.json)")->required();
     merge_->add_flag("--overwrite", merge_overwrite_, "Replace an existing output folder");
     merge_->add_option("--threads", merge_threads_, "Worker threads; results do not depend on it");
+    merge_->footer("\nExample:\n  prefsift merge shard1/signatures.jsonl shard2/signatures.jsonl --out merged\n");
   }
 
   int RunIfParsed() override {

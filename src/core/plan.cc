@@ -1,6 +1,8 @@
 #include "core/plan.h"
 
 #include <algorithm>
+#include <cctype>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <set>
@@ -97,7 +99,11 @@ Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std:
   static const std::set<std::string> kKeys = {"inputs", "layouts", "output", "overwrite", "strict", "seed", "threads",
                                               "limits", "normalize", "stages", "provenance", "gate", "store", "$comment"};
   for (auto it = j.begin(); it != j.end(); ++it) {
-    if (!kKeys.count(it.key())) return Status::Usage(where + ": unknown key \"" + it.key() + "\"");
+    if (!kKeys.count(it.key())) {
+      return Status::Usage(where + "." + it.key() +
+                           ": unknown key (known: inputs, layouts, output, overwrite, strict, seed, threads, limits, "
+                           "normalize, stages, provenance, gate, store)");
+    }
   }
   Plan plan;
   Json layouts = j.value("layouts", Json::object());
@@ -112,7 +118,7 @@ Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std:
       }
       for (auto it = in.begin(); it != in.end(); ++it) {
         if (it.key() != "path" && it.key() != "name" && it.key() != "layout") {
-          return Status::Usage(w + ": unknown key \"" + it.key() + "\" (known: path, name, layout)");
+          return Status::Usage(w + "." + it.key() + ": unknown key (known: path, name, layout)");
         }
       }
       Json spec = in.value("layout", Json::object());
@@ -179,6 +185,152 @@ Result<Plan> PlanFromJson(const Json& j, const std::string& base_dir, const std:
   return plan;
 }
 
+namespace {
+
+// Line and column (1-based) of a byte offset.
+std::string LineColumn(const std::string& text, size_t offset) {
+  size_t line = 1, col = 1;
+  for (size_t i = 0; i < offset && i < text.size(); ++i) {
+    if (text[i] == '\n') {
+      ++line;
+      col = 1;
+    } else if ((static_cast<unsigned char>(text[i]) & 0xC0) != 0x80) {
+      ++col;  // count code points, not bytes
+    }
+  }
+  return std::to_string(line) + ":" + std::to_string(col);
+}
+
+// The byte offset of a key path ("inputs[0].layout", "stages.near") in a plan
+// text (JSON with comments): the key of an object member, the start of an
+// array element. npos when absent or when the text cannot be scanned.
+size_t FindKeyPath(const std::string& t, const std::string& target) {
+  struct Level {
+    bool array;
+    size_t index;
+    std::string key;  // object: the current member's key
+    std::string path;
+  };
+  std::vector<Level> stack;
+  size_t i = 0;
+  auto skip = [&] {
+    for (;;) {
+      while (i < t.size() && std::isspace(static_cast<unsigned char>(t[i]))) ++i;
+      if (t.compare(i, 2, "//") == 0) {
+        while (i < t.size() && t[i] != '\n') ++i;
+      } else if (t.compare(i, 2, "/*") == 0) {
+        size_t e = t.find("*/", i + 2);
+        i = e == std::string::npos ? t.size() : e + 2;
+      } else {
+        return;
+      }
+    }
+  };
+  auto read_string = [&]() -> std::string {  // at '"'; returns the raw content
+    size_t from = ++i;
+    while (i < t.size() && t[i] != '"') i += t[i] == '\\' ? 2 : 1;
+    return t.substr(from, std::min(i++, t.size()) - from);
+  };
+  auto child_path = [&](const Level& l) {
+    if (l.array) return l.path + "[" + std::to_string(l.index) + "]";
+    return l.path.empty() ? l.key : l.path + "." + l.key;
+  };
+  bool expect_key = false;
+  while (true) {
+    skip();
+    if (i >= t.size()) return std::string::npos;
+    char c = t[i];
+    if (expect_key) {
+      if (c == '}') {
+        expect_key = false;
+        continue;
+      }
+      if (c != '"') return std::string::npos;
+      size_t at = i;
+      stack.back().key = read_string();
+      if (child_path(stack.back()) == target) return at;
+      skip();
+      if (i >= t.size() || t[i] != ':') return std::string::npos;
+      ++i;
+      expect_key = false;
+      continue;
+    }
+    if (c == '}' || c == ']') {
+      stack.pop_back();
+      ++i;
+    } else if (c == ',') {
+      ++i;
+      if (stack.empty()) return std::string::npos;
+      if (stack.back().array) {
+        ++stack.back().index;
+        if (child_path(stack.back()) == target) {
+          skip();
+          return i;
+        }
+      } else {
+        expect_key = true;
+      }
+      continue;
+    } else {
+      // A value starts here.
+      std::string path = stack.empty() ? "" : child_path(stack.back());
+      if (c == '{' || c == '[') {
+        stack.push_back(Level{c == '[', 0, "", path});
+        ++i;
+        if (c == '{') {
+          expect_key = true;
+        } else {
+          skip();
+          if (i < t.size() && t[i] != ']' && child_path(stack.back()) == target) return i;
+        }
+        continue;
+      }
+      if (c == '"') read_string();
+      else while (i < t.size() && !std::strchr(",}] \t\r\n/", t[i])) ++i;
+    }
+    if (stack.empty()) return std::string::npos;
+  }
+}
+
+// A sentence about the character at a JSON syntax error (our own words).
+std::string SyntaxProblem(const std::string& text, size_t offset) {
+  if (offset >= text.size()) return "the file ends before the plan is complete (a missing } or ]?)";
+  char c = text[offset];
+  std::string what = std::isprint(static_cast<unsigned char>(c)) ? std::string("'") + c + "'" : "a control character";
+  if (c == '}' || c == ']') return "unexpected " + what + " (a comma before it, or a missing value?)";
+  if (c == '"') return "unexpected " + what + " (a missing comma or colon before it?)";
+  if (c == '\'') return "unexpected " + what + " (JSON strings use double quotes)";
+  return "unexpected " + what + " (strings need double quotes; true, false and null are lower case; "
+         "no comma after the last item)";
+}
+
+}  // namespace
+
+std::string PlaceInPlanFile(const std::string& plan_path, const std::string& message) {
+  if (plan_path.empty()) return message;
+  size_t colon = message.find(": ");
+  if (colon == std::string::npos || colon == 0) return message;
+  std::string key = message.substr(0, colon);
+  for (char ch : key) {
+    if (!std::isalnum(static_cast<unsigned char>(ch)) && !std::strchr("_$.[]*-", ch)) return message;
+  }
+  std::ifstream f(plan_path, std::ios::binary);
+  if (!f) return message;
+  std::stringstream ss;
+  ss << f.rdbuf();
+  const std::string text = ss.str();
+  // The deepest part of the path that the file has ("gate.max_x" is there even
+  // when the error is about one of its members).
+  for (std::string k = key; !k.empty();) {
+    size_t at = FindKeyPath(text, k);
+    if (at != std::string::npos) return plan_path + ":" + LineColumn(text, at) + ": " + message;
+    size_t cut = k.find_last_of(".[");
+    if (cut == std::string::npos) break;
+    k.resize(cut);
+  }
+  return plan_path + ": " + message;
+}
+
 Result<Plan> LoadPlanFile(const std::string& path) {
   std::ifstream f(path, std::ios::binary);
   if (!f) return Status::Usage("cannot read the plan file " + path);
@@ -189,21 +341,22 @@ Result<Plan> LoadPlanFile(const std::string& path) {
   try {
     j = Json::parse(text, nullptr, true, /*ignore_comments=*/true);
   } catch (const nlohmann::json::parse_error& e) {
-    // e.byte is the 1-based offset of the error; turn it into line:column.
-    size_t line = 1, col = 1;
-    for (size_t i = 0; i + 1 < e.byte && i < text.size(); ++i) {
-      if (text[i] == '\n') { ++line; col = 1; } else { ++col; }
-    }
-    return Status::Usage(path + ":" + std::to_string(line) + ":" + std::to_string(col) +
-                         ": the plan is not valid JSON (" + e.what() + ")");
-  } catch (const nlohmann::json::exception& e) {
-    // Not a syntax error but still unreadable, e.g. a number too large for a
-    // double (out_of_range.406).
-    return Status::Usage(path + ": the plan is not valid JSON (" + e.what() + ")");
+    // e.byte is the 1-based offset of the error; the sentence is our own.
+    const size_t at = e.byte > 0 ? e.byte - 1 : 0;
+    return Status::Usage(path + ":" + LineColumn(text, at) + ": the plan is not valid JSON: " + SyntaxProblem(text, at));
+  } catch (const nlohmann::json::exception&) {
+    // Not a syntax error but still unreadable: a number too large for a double.
+    return Status::Usage(path + ": the plan is not valid JSON: a number is too large (beyond 1.8e308)");
   }
   std::string base = std::filesystem::path(path).parent_path().string();
   auto plan = PlanFromJson(j, base, path);
-  if (!plan.ok()) return plan.status();
+  if (!plan.ok()) {
+    // "plan.json.inputs[0].layout: ..." -> "plan.json:4:6: inputs[0].layout: ..."
+    std::string m = plan.status().message();
+    if (m.compare(0, path.size() + 1, path + ".") == 0) m = m.substr(path.size() + 1);
+    else if (m.compare(0, path.size() + 2, path + ": ") == 0) return Status::Usage(m);
+    return Status::Usage(PlaceInPlanFile(path, m));
+  }
   plan.value().plan_path = path;
   plan.value().plan_digest = Sha256Hex(text);
   return plan;

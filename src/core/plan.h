@@ -41,7 +41,15 @@ struct Plan {
 };
 
 // Reads a plan file. Errors name the file and the key at fault.
+// Errors name the place in the file and the key path in the plan's own terms:
+// "plan.json:4:6: inputs[0].layout: ...", or "plan.json:2:11: the plan is not
+// valid JSON: ..." (never the JSON library's own wording).
 Result<Plan> LoadPlanFile(const std::string& path);
+
+// `message` starting with a key path of the plan ("stages.near.threshold: ...",
+// as stage settings report them) gets the file, line and column of that key
+// in the plan file in front; other messages come back unchanged.
+std::string PlaceInPlanFile(const std::string& plan_path, const std::string& message);
 
 // Parses plan JSON already in memory; `base_dir` resolves relative paths and
 // `where` names the source in errors.

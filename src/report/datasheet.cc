@@ -6,8 +6,11 @@
 
 #include <nlohmann/json.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <string>
+#include <vector>
 
 namespace prefsift {
 
@@ -274,15 +277,103 @@ Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json&
 
 namespace {
 
+std::string Number(double v) {
+  char b[48];
+  if (v == std::floor(v) && std::fabs(v) < 1e15) {
+    std::snprintf(b, sizeof b, "%.0f", std::fabs(v));
+    std::string s = b, o;
+    for (size_t i = 0; i < s.size(); ++i) {
+      if (i && (s.size() - i) % 3 == 0) o += ',';
+      o += s[i];
+    }
+    return (v < 0 ? "-" : "") + o;
+  }
+  if (v != 0 && std::fabs(v) < 0.001) std::snprintf(b, sizeof b, "%.3g", v);
+  else std::snprintf(b, sizeof b, "%.4g", v);
+  return b;
+}
+
+// Any value as prose, never raw JSON: numbers with separators, arrays of
+// scalars joined with " / ", objects as "key: value" pairs (nested keys dotted).
+std::string Prose(const Json& v, const std::string& prefix = "") {
+  if (v.is_null()) return "none";
+  if (v.is_boolean()) return v.get<bool>() ? "yes" : "no";
+  if (v.is_number()) return Number(v.get<double>());
+  if (v.is_string()) return v.get<std::string>();
+  std::string o;
+  if (v.is_array()) {
+    bool scalars = true;
+    for (const auto& e : v) scalars = scalars && !e.is_structured();
+    for (const auto& e : v) o += (o.empty() ? "" : scalars ? " / " : "; ") + (scalars ? Prose(e) : "(" + Prose(e) + ")");
+    return o.empty() ? "none" : o;
+  }
+  for (auto it = v.begin(); it != v.end(); ++it) {
+    if (it.value().is_object() && !it.value().empty()) {
+      o += (o.empty() ? "" : "; ") + Prose(it.value(), prefix + it.key() + ".");
+    } else {
+      o += (o.empty() ? "" : "; ") + prefix + it.key() + ": " + Prose(it.value());
+    }
+  }
+  return o.empty() ? "none" : o;
+}
+
+// A table cell: prose with pipes escaped and line breaks folded.
 std::string Cell(const Json& v) {
-  std::string s = v.is_string() ? v.get<std::string>() : v.dump();
-  std::string out;
+  std::string s = Prose(v), out;
   for (char c : s) {
     if (c == '|') out += "\\|";
     else if (c == '\n') out += ' ';
     else out += c;
   }
   return out;
+}
+
+// An array of objects as a Markdown table (columns: the union of keys).
+std::string ObjectTable(const Json& arr) {
+  std::vector<std::string> keys;
+  for (const auto& e : arr) {
+    if (!e.is_object()) continue;
+    for (auto it = e.begin(); it != e.end(); ++it) {
+      if (std::find(keys.begin(), keys.end(), it.key()) == keys.end()) keys.push_back(it.key());
+    }
+  }
+  if (keys.empty()) return Cell(arr) + "\n";
+  std::string m = "|";
+  for (const auto& k : keys) m += " " + k + " |";
+  m += "\n|";
+  for (size_t i = 0; i < keys.size(); ++i) m += "---|";
+  m += "\n";
+  for (const auto& e : arr) {
+    m += "|";
+    for (const auto& k : keys) m += " " + (e.is_object() && e.contains(k) ? Cell(e[k]) : std::string()) + " |";
+    m += "\n";
+  }
+  return m;
+}
+
+std::string GateTable(const Json& g) {
+  std::string m;
+  if (!g.is_object()) return "**Gate verdict: " + Cell(g) + "**\n\n";
+  m += "**Gate verdict: " + Cell(At(g, "verdict")) + "**";
+  if (g.contains("failed")) {
+    m += " (" + Cell(At(g, "passed")) + " passed, " + Cell(At(g, "failed")) + " failed, " + Cell(At(g, "not_evaluated")) +
+         " not evaluated)";
+  }
+  m += ".\n\n";
+  if (g.contains("checks") && g["checks"].is_array() && !g["checks"].empty()) {
+    m += "| check | scope | value | threshold | verdict |\n|---|---|---|---|---|\n";
+    for (const auto& c : g["checks"]) {
+      const Json value = At(c, "value");
+      std::string v = value.is_null() ? "not evaluated: " + Cell(At(c, "reason"))
+                      : At(c, "threshold").is_boolean() && value.is_number() ? (value.get<double>() != 0 ? "yes" : "no")
+                                                                             : Cell(value);
+      m += "| " + Cell(At(c, "check")) + " | " + (c.contains("scope") ? Cell(c["scope"]) : "") + " | " + v + " | " +
+           Cell(At(c, "threshold")) + " | " + Cell(At(c, "verdict")) + " |\n";
+    }
+    m += "\n";
+  }
+  if (g.contains("note")) m += "Gate note: " + Cell(g["note"]) + ".\n\n";
+  return m;
 }
 
 }  // namespace
@@ -294,25 +385,13 @@ std::string DatasheetMarkdown(const Json& d) {
   if (d.contains("scope")) m += "**Scope:** " + Cell(d["scope"]) + "\n\n";
   const Json& p = d["provenance"];
   if (p.contains("tool")) {
-    m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + ") at " +
-         Cell(p["time"]["utc"]) + " (" + Cell(p["time"]["source"]) + ").\n\n";
+    const Json t = At(p, "time");
+    m += "Written by prefsift " + Cell(p["tool"]["version"]) + " (revision " + Cell(p["tool"]["revision"]) + "), dated " +
+         Cell(At(t, "utc")) + " (" + Cell(At(t, "source")) + ")";
+    if (t.contains("duration_seconds")) m += "; the run took " + Cell(t["duration_seconds"]) + " s";
+    m += ".\n\n";
   }
-  const Json& g = d["gate"];
-  if (g.is_object() && g.contains("note")) {
-    m += "**Gate verdict: " + Cell(g["verdict"]) + "** (" + Cell(g["note"]) + ")\n\n";
-  } else if (g.is_object()) {
-    m += "**Gate verdict: " + Cell(g["verdict"]) + "** (" + Cell(g["passed"]) + " passed, " + Cell(g["failed"]) +
-         " failed, " + Cell(g["not_evaluated"]) + " not evaluated).\n\n";
-    if (g.contains("checks") && !g["checks"].empty()) {
-      m += "| check | scope | value | threshold | verdict |\n|---|---|---|---|---|\n";
-      for (const auto& c : g["checks"]) {
-        m += "| " + Cell(c["check"]) + " | " + (c.contains("scope") ? Cell(c["scope"]) : "") + " | " +
-             (c["value"].is_null() ? Cell(c.value("reason", "")) : Cell(c["value"])) + " | " + Cell(c["threshold"]) +
-             " | " + Cell(c["verdict"]) + " |\n";
-      }
-      m += "\n";
-    }
-  }
+  m += GateTable(d["gate"]);
   m += "> **Personal data.** " + Cell(d["personal_data_caution"]) + "\n\n";
   for (const auto& sec : d["sections"]) {
     m += "## " + Cell(sec["number"]) + ". " + Cell(sec["title"]) + "\n\n";
@@ -332,7 +411,19 @@ std::string DatasheetMarkdown(const Json& d) {
           m += "| " + Cell(e["stage"]) + " | " + Cell(e["settings_in_plan"]) + " | " + Cell(e["rejected"]) + " | " +
                Cell(e["rejected_by_reason"]) + " |\n";
         }
-        m += "\nSplits: " + Cell(f["splits"]) + "\n";
+        const Json sp = At(f, "splits");
+        if (sp.is_object()) {
+          m += "\nSplits (records tied by " + Cell(At(sp, "tie_by")) + "; " + Cell(At(sp, "assignment")) + "):\n\n";
+          if (At(sp, "splits").is_array()) m += ObjectTable(sp["splits"]);
+          if (At(sp, "checks").is_object()) {
+            m += "\nSplit checks:\n\n| check | value |\n|---|---|\n";
+            for (auto it = sp["checks"].begin(); it != sp["checks"].end(); ++it) {
+              m += "| " + it.key() + " | " + Cell(it.value()) + " |\n";
+            }
+          }
+        } else {
+          m += "\nSplits: " + Cell(sp) + "\n";
+        }
         if (f.contains("normalisation")) m += "\nText normalisation: " + Cell(f["normalisation"]) + "\n";
       }
       m += "\n";
@@ -343,7 +434,8 @@ std::string DatasheetMarkdown(const Json& d) {
   for (const char* k : {"store", "store_content_sha256", "plan_sha256", "seed", "summary_json_sha256"}) {
     if (p.contains(k)) m += std::string("| ") + k + " | " + Cell(p[k]) + " |\n";
   }
-  if (p.contains("rule_packs")) m += "| rule packs | " + Cell(p["rule_packs"]) + " |\n";
+  if (p.contains("rule_packs") && !p["rule_packs"].is_array()) m += "| rule packs | " + Cell(p["rule_packs"]) + " |\n";
+  if (p.contains("rule_packs") && p["rule_packs"].is_array()) m += "\nRule packs:\n\n" + ObjectTable(p["rule_packs"]);
   m += "\n| file | bytes | SHA-256 |\n|---|---|---|\n";
   if (p.contains("inputs")) {
     for (const auto& f : p["inputs"]) m += "| input: " + Cell(f["path"]) + " | " + Cell(f["bytes"]) + " | " + Cell(f["sha256"]) + " |\n";

@@ -4,6 +4,9 @@
 #include <nlohmann/json.hpp>
 
 #include <algorithm>
+#include <cmath>
+#include <map>
+#include <set>
 #include <cstdlib>
 #include <ctime>
 #include <filesystem>
@@ -15,6 +18,7 @@
 #include "report/datasheet.h"
 #include "report/gate.h"
 #include "report/html_report.h"
+#include "report/json_find.h"
 
 namespace prefsift {
 
@@ -69,65 +73,144 @@ std::vector<std::string> OutputFiles(const OutputDir& out) {
   return names;
 }
 
-Json RunTime() {
-  const char* sde = std::getenv("SOURCE_DATE_EPOCH");
-  std::time_t t = 0;
-  std::string source;
-  if (sde && *sde) {
-    char* end = nullptr;
-    long long v = std::strtoll(sde, &end, 10);
-    if (end && *end == '\0' && v >= 0) {
-      t = static_cast<std::time_t>(v);
-      source = "SOURCE_DATE_EPOCH";
-    }
-  }
-  if (source.empty()) {
-    // No clock time by default: the same inputs, plan and seed must give
-    // byte-identical outputs. SOURCE_DATE_EPOCH stamps a run time on request.
-    return Json{{"utc", "time not recorded"},
-                {"source", "set SOURCE_DATE_EPOCH (seconds since 1970, UTC) to record one; without it reruns stay "
-                           "byte-identical"}};
-  }
+std::string Utc(std::time_t t) {
   std::tm tm{};
   gmtime_r(&t, &tm);
   char buf[32];
   std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
-  return Json{{"utc", buf}, {"source", source}};
+  return buf;
 }
 
-// Personal-data findings left in kept records with no action applied.
-long long RemainingFindings(FileSystem* fs, const OutputDir& out, const Json& summary) {
-  if (!summary.contains("stages") || !summary["stages"].contains("screen")) return -1;
-  const Json& sec = summary["stages"]["screen"];
-  std::string name = sec.contains("findings_file") && sec["findings_file"].is_string()
-                         ? sec["findings_file"].get<std::string>() : "personal_data_findings.jsonl";
-  auto f = fs->OpenRead(out.StagingPath(name));
-  if (!f.ok()) return -1;
-  std::string all, buf(1 << 16, '\0');
+Json RunTime(const RunClock& clock) {
+  const char* sde = std::getenv("SOURCE_DATE_EPOCH");
+  if (sde && *sde) {
+    char* end = nullptr;
+    long long v = std::strtoll(sde, &end, 10);
+    if (end && *end == '\0' && v >= 0) {
+      // The reproducible mode: a fixed time and no duration, so the same
+      // inputs, plan and seed give byte-identical outputs.
+      return Json{{"utc", Utc(static_cast<std::time_t>(v))},
+                  {"source", "SOURCE_DATE_EPOCH (reproducible mode: no duration recorded)"}};
+    }
+  }
+  std::time_t start = clock.start_unix_seconds >= 0 ? static_cast<std::time_t>(clock.start_unix_seconds)
+                                                    : std::time(nullptr);
+  Json t{{"utc", Utc(start)},
+         {"source", "wall clock; set SOURCE_DATE_EPOCH for byte-identical reruns"}};
+  if (clock.seconds >= 0) t["duration_seconds"] = std::round(clock.seconds * 1000) / 1000;
+  return t;
+}
+
+// Calls fn(line) for every line of a file; false when it cannot be read.
+template <typename Fn>
+bool ForEachLine(FileSystem* fs, const std::string& path, Fn fn) {
+  auto f = fs->OpenRead(path);
+  if (!f.ok()) return false;
+  std::string carry, buf(1 << 16, '\0');
   for (;;) {
     auto n = f.value()->Read(buf.data(), buf.size());
-    if (!n.ok()) return -1;
+    if (!n.ok()) return false;
     if (n.value() == 0) break;
-    all.append(buf.data(), n.value());
+    carry.append(buf.data(), n.value());
+    size_t pos = 0;
+    for (size_t nl; (nl = carry.find('\n', pos)) != std::string::npos; pos = nl + 1) {
+      fn(std::string_view(carry).substr(pos, nl - pos));
+    }
+    carry.erase(0, pos);
   }
+  if (!carry.empty()) fn(std::string_view(carry));
+  return true;
+}
+
+// The string value of the first `"key":"` in a line, or "" (rejects.jsonl
+// writes input, file, line, id, stage and reason before the record, and any
+// quote inside a string value is escaped, so the first match is the key).
+std::string FirstString(std::string_view line, std::string_view key) {
+  std::string pat = "\"" + std::string(key) + "\":\"";
+  size_t at = line.find(pat);
+  if (at == std::string_view::npos) return "";
+  size_t from = at + pat.size(), to = line.find('"', from);
+  return to == std::string_view::npos ? "" : std::string(line.substr(from, to - from));
+}
+
+std::string Text(const Json& j, const char* key) {
+  return j.is_object() && j.contains(key) && j[key].is_string() ? j[key].get<std::string>() : "";
+}
+
+// The masked form of a finding: its kind, place and preview; never the value.
+Json MaskedFinding(const Json& f) {
+  std::string kind = Text(f, "kind").empty() ? Text(f, "rule") : Text(f, "kind");
+  std::string preview = Text(f, "preview").empty() ? Text(f, "masked") : Text(f, "preview");
+  Json m{{"kind", kind}, {"pointer", Text(f, "pointer")}, {"preview", preview}};
+  if (f.contains("applied")) m["applied"] = f["applied"];
+  return m;
+}
+
+// One example per stage and reason from rejects.jsonl (the first in file
+// order), one per personal-data kind from the findings file, and the count of
+// findings left in kept records with no action (-1: unknown). Examples never
+// carry record text: the place, the reason's sentence, and for records with
+// personal-data findings the findings' masked forms.
+struct Examples {
+  Json rejects = Json::array();
+  Json personal_data = Json::array();
+  long long remaining_findings = -1;
+};
+
+Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summary) {
+  Examples ex;
+  std::set<std::pair<std::string, std::string>> seen;
+  std::map<std::pair<std::string, uint64_t>, size_t> example_of;  // (input, line) -> index in ex.rejects
+  ForEachLine(fs, out.StagingPath("rejects.jsonl"), [&](std::string_view line) {
+    std::string stage = FirstString(line, "stage"), reason = FirstString(line, "reason");
+    if (stage.empty() || !seen.insert({stage, reason}).second) return;
+    Json j = Json::parse(line, nullptr, false);
+    if (!j.is_object()) return;
+    Json e{{"stage", stage}, {"reason", reason}, {"input", Text(j, "input")}};
+    e["line"] = j.contains("line") ? j["line"] : Json(nullptr);
+    e["id"] = j.contains("id") ? j["id"] : Json(nullptr);
+    if (!Text(j, "field").empty()) e["field"] = Text(j, "field");
+    e["message"] = Text(j, "message");
+    if (j.contains("line") && j["line"].is_number_unsigned()) {
+      example_of[{Text(j, "input"), j["line"].get<uint64_t>()}] = ex.rejects.size();
+    }
+    ex.rejects.push_back(std::move(e));
+  });
+  const Json* sec = FindPath(summary, {"stages", "screen"});
+  if (!sec) return ex;
+  std::string name = Text(*sec, "findings_file").empty() ? "personal_data_findings.jsonl" : Text(*sec, "findings_file");
+  std::set<std::string> kinds_seen;
   long long left = 0;
-  size_t pos = 0;
-  while (pos < all.size()) {
-    size_t nl = all.find('\n', pos);
-    if (nl == std::string::npos) nl = all.size();
-    Json j = Json::parse(std::string_view(all).substr(pos, nl - pos), nullptr, false);
-    pos = nl + 1;
-    if (!j.is_object()) continue;
+  bool ok = ForEachLine(fs, out.StagingPath(name), [&](std::string_view line) {
+    Json j = Json::parse(line, nullptr, false);
+    if (!j.is_object()) return;
     bool kept = j.contains("kept") && j["kept"].is_boolean() && j["kept"].get<bool>();
     bool none = j.contains("applied") && j["applied"] == "none";
     if (kept && none) ++left;
-  }
-  return left;
+    Json masked = MaskedFinding(j);
+    if (j.contains("line") && j["line"].is_number_unsigned()) {
+      auto it = example_of.find({Text(j, "input"), j["line"].get<uint64_t>()});
+      if (it != example_of.end()) {
+        Json& e = ex.rejects[it->second];
+        if (!e.contains("masked")) e["masked"] = Json::array();
+        e["masked"].push_back(masked);
+      }
+    }
+    if (kinds_seen.insert(masked["kind"].get<std::string>()).second) {
+      Json k = masked;
+      k["input"] = Text(j, "input");
+      k["line"] = j.contains("line") ? j["line"] : Json(nullptr);
+      k["id"] = j.contains("id") ? j["id"] : Json(nullptr);
+      ex.personal_data.push_back(std::move(k));
+    }
+  });
+  ex.remaining_findings = ok ? left : -1;
+  return ex;
 }
 
 }  // namespace
 
-Json ProvenanceTime() { return RunTime(); }
+Json ProvenanceTime(const RunClock& clock) { return RunTime(clock); }
 
 Json ToolInfo() { return Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}}; }
 
@@ -138,20 +221,26 @@ Status ValidateFinishPlan(const Plan& plan) {
 }
 
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, bool* gate_failed,
-                     const std::vector<std::string>& command_stages) {
+                     const std::vector<std::string>& command_stages, const RunClock& clock) {
+  Examples ex = CollectExamples(fs, out, *summary);
   GateExtras extras;
-  extras.remaining_personal_data = RemainingFindings(fs, out, *summary);
+  extras.remaining_personal_data = ex.remaining_findings;
   bool failed = false;
   const bool defaulted = !plan.gate_given && plan.gate.empty();  // a plan built in code may set plan.gate
   (*summary)["gate"] = EvaluateGate(defaulted ? DefaultGate() : plan.gate, *summary, extras, &failed, defaulted,
                                    &command_stages);
   *gate_failed = failed;
+  (*summary)["examples"] = Json{
+      {"note", "one rejected record per stage and reason (the first in rejects.jsonl) and one finding per "
+               "personal-data kind: place, reason and masked forms only, never record text"},
+      {"rejects", std::move(ex.rejects)},
+      {"personal_data", std::move(ex.personal_data)}};
 
   Json p;
   p["tool"] = ToolInfo();
   p["plan_sha256"] = plan.plan_digest.empty() ? Json("no plan file (command line only)") : Json(plan.plan_digest);
   p["seed"] = plan.seed;
-  p["time"] = RunTime();
+  p["time"] = RunTime(clock);
   // Every input and output is hashed on its own thread (SHA-256 is the cost:
   // gigabytes at about 1.5 GB/s a core), then listed in plan / file order.
   std::vector<std::string> paths;

@@ -3,12 +3,15 @@
 // time), then the datasheet (datasheet.md, datasheet.json) and the HTML report
 // (report.html). docs/gate.md, docs/datasheet.md, docs/report.md.
 //
-// Time: SOURCE_DATE_EPOCH (seconds since 1970, UTC) when set, so reruns are
-// byte-identical; when unset no time is recorded (the outputs stay identical).
+// Time: the wall-clock start of the run and its duration; or, in the
+// reproducible mode, SOURCE_DATE_EPOCH (seconds since 1970, UTC) as the start
+// and no duration, so reruns are byte-identical (docs/datasheet.md).
 // Thread-safety: one run owns these calls.
 #pragma once
 
 #include <nlohmann/json_fwd.hpp>
+
+#include <cstdint>
 
 #include "core/plan.h"
 #include "core/status.h"
@@ -20,16 +23,27 @@ namespace prefsift {
 // Usage errors for the plan's "gate" and "provenance" objects, before any work.
 Status ValidateFinishPlan(const Plan& plan);
 
-// Adds "gate" and "provenance" to the summary; *gate_failed is set when a gate
-// check fails. Hashes every input file and every file already in `out`.
-// REQUIRES: every output file except summary.json is written and closed.
-// `command_stages`: the stages the command runs (gate checks of others are skipped).
-Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
-                     bool* gate_failed, const std::vector<std::string>& command_stages);
+// When a run started (wall clock, seconds since 1970) and how long it has
+// taken so far; negative when unknown (then "now" is the start).
+struct RunClock {
+  int64_t start_unix_seconds = -1;
+  double seconds = -1;
+};
 
-// The provenance time: SOURCE_DATE_EPOCH as UTC text when set, otherwise
-// "time not recorded" (so outputs stay byte-identical). {"utc", "source"}.
-nlohmann::ordered_json ProvenanceTime();
+// Adds "gate", "examples" (one reject per stage and reason, one finding per
+// personal-data kind, masked) and "provenance" to the summary; *gate_failed is
+// set when a gate check fails. Hashes every input file and every file already
+// in `out`. `command_stages`: the stages the command runs (gate checks of
+// others are skipped). REQUIRES: every output file except summary.json is
+// written and closed.
+Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
+                     bool* gate_failed, const std::vector<std::string>& command_stages,
+                     const RunClock& clock = RunClock());
+
+// The provenance time, {"utc", "source"[, "duration_seconds"]}: with
+// SOURCE_DATE_EPOCH set, that time and no duration (the reproducible mode);
+// otherwise the clock's start (or now) and its duration when known.
+nlohmann::ordered_json ProvenanceTime(const RunClock& clock = RunClock());
 
 // This build of prefsift: {"name", "version", "revision"}.
 nlohmann::ordered_json ToolInfo();

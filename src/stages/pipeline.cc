@@ -91,30 +91,75 @@ class PhaseTimer {
   std::chrono::steady_clock::time_point last_;
 };
 
+// The progress line on the log: lines and megabytes read in the current pass,
+// and, when the inputs' total size is known (every input uncompressed), the
+// percentage and the time left at the pass's rate so far. On a terminal it is
+// one line rewritten twice a second; for logs and CI (`--progress`) a new line
+// every few seconds (5 by default). Never written to an output file.
 class Progress {
  public:
-  Progress(bool on, std::FILE* log) : on_(on), log_(log), start_(std::chrono::steady_clock::now()), last_(start_) {}
-  void Tick(const std::string& what, uint64_t lines, uint64_t bytes) {
-    if (!on_) return;
+  Progress(bool terminal, bool lines, double every_s, std::FILE* log, uint64_t total_bytes)
+      : terminal_(terminal), lines_(lines && !terminal), every_(std::chrono::milliseconds(terminal ? 500 :
+                                                               static_cast<long long>(every_s * 1000))),
+        log_(log), total_(total_bytes) {
+    Phase("reading");
+  }
+  // Starts a pass: counts restart.
+  void Phase(const char* verb) {
+    verb_ = verb;
+    start_ = last_ = std::chrono::steady_clock::now();
+    done_bytes_ = 0;
+  }
+  // The size is unknown once an input turns out to be compressed (the reader
+  // counts decompressed bytes).
+  void Compressed() { total_ = 0; }
+  void InputDone(uint64_t bytes) { done_bytes_ += bytes; }
+  void Tick(const std::string& input, uint64_t lines, uint64_t bytes) {
+    if (!terminal_ && !lines_) return;
     auto now = std::chrono::steady_clock::now();
-    if (now - last_ < std::chrono::milliseconds(500)) return;
+    if (now - last_ < every_) return;
     last_ = now;
-    double s = std::chrono::duration<double>(now - start_).count();
-    std::fprintf(log_, "\r%s: %llu lines, %.1f MB, %.0f s   ", what.c_str(), static_cast<unsigned long long>(lines),
-                 static_cast<double>(bytes) / 1e6, s);
+    const double s = std::chrono::duration<double>(now - start_).count();
+    char buf[320];
+    int n = std::snprintf(buf, sizeof buf, "%s %s: %llu lines, %.1f MB, %.0f s", verb_, input.c_str(),
+                          static_cast<unsigned long long>(lines), static_cast<double>(bytes) / 1e6, s);
+    const double f = total_ > 0 ? static_cast<double>(done_bytes_ + bytes) / static_cast<double>(total_) : 0;
+    if (f > 0 && f <= 1 && n > 0 && static_cast<size_t>(n) < sizeof buf) {
+      if (f < 0.01) std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass", 100 * f);  // too early for a rate
+      else std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass, about %.0f s left", 100 * f, s * (1 - f) / f);
+    }
+    if (terminal_) std::fprintf(log_, "\r%-100s", buf);
+    else std::fprintf(log_, "progress: %s\n", buf);
     std::fflush(log_);
     shown_ = true;
   }
   void Done() {
-    if (shown_) std::fprintf(log_, "\r%60s\r", "");
+    if (shown_ && terminal_) std::fprintf(log_, "\r%100s\r", "");
+    shown_ = false;
   }
 
  private:
-  bool on_;
+  bool terminal_, lines_;
+  std::chrono::milliseconds every_;
   std::FILE* log_;
+  uint64_t total_;
+  const char* verb_ = "reading";
   std::chrono::steady_clock::time_point start_, last_;
+  uint64_t done_bytes_ = 0;
   bool shown_ = false;
 };
+
+// The inputs' total size on disk; 0 when one cannot be measured.
+uint64_t InputBytes(const Plan& plan) {
+  uint64_t total = 0;
+  for (const auto& in : plan.inputs) {
+    std::error_code ec;
+    uint64_t n = std::filesystem::file_size(in.path, ec);
+    if (ec) return 0;
+    total += n;
+  }
+  return total;
+}
 
 // One chunk of lines as read from an input: the texts are copies (the line
 // reader's views are transient), so the next chunk can be read while this one
@@ -264,6 +309,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     LineReader& reader = *opened.value();
     stats.compression = CompressionName(reader.compression());
     std::map<std::string, IngestTally> tallies;
+    if (reader.compression() != Compression::kNone) progress.Compressed();
     std::vector<std::unique_ptr<RecordReader>> parsers;
     for (unsigned t = 0; t < pool.size(); ++t) {
       parsers.push_back(std::make_unique<RecordReader>(spec.layout, plan.limits));
@@ -330,8 +376,11 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         if (rec_of[i] == SIZE_MAX) return;
         for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
       });
-      progress.Tick("reading " + spec.name, stats.lines, raw.bytes_read);
-      if (eof) break;
+      progress.Tick(spec.name, stats.lines, raw.bytes_read);
+      if (eof) {
+        progress.InputDone(raw.bytes_read);
+        break;
+      }
     }
     BaseEvidence evidence;
     for (const auto& r : parsers) evidence.Add(r->base_evidence());
@@ -426,7 +475,8 @@ class BatchedWriter {
 };
 
 Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-             OutputDir& out, std::map<std::string, uint64_t>* written) {
+             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress) {
+  progress.Phase("writing");
   std::map<std::string, std::unique_ptr<WritableFile>> files;
   auto file = [&](const std::string& name) -> Result<WritableFile*> {
     auto it = files.find(name);
@@ -452,12 +502,16 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
     auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes);
     if (!opened.ok()) return opened.status();
     auto& reader = opened.value();
-    for (;;) {
+    for (uint64_t n = 0;; ++n) {
       std::string_view line;
       uint64_t no = 0;
       auto next = reader->Read(&line, &no);
       if (!next.ok()) return next.status();
-      if (next.value() == LineReader::Next::kEnd) break;
+      if (next.value() == LineReader::Next::kEnd) {
+        progress.InputDone(reader->bytes_read());
+        break;
+      }
+      if ((n & 4095) == 0) progress.Tick(plan.inputs[in].name, no, reader->bytes_read());
       if (next.value() == LineReader::Next::kLine && IsBlank(line)) continue;
       if (cursor >= st.entries.size() || st.entries[cursor].input != in || st.entries[cursor].line != no) {
         return Status::Input(plan.inputs[in].path + " changed while prefsift was reading it (line " +
@@ -546,6 +600,10 @@ std::vector<ReadPath> PathsReadBy(const Plan& plan) {
 }
 
 Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
+  // The run's wall-clock start and duration for the provenance (finish.h:
+  // replaced by SOURCE_DATE_EPOCH in the reproducible mode).
+  const auto wall_start = std::chrono::system_clock::now();
+  const auto steady_start = std::chrono::steady_clock::now();
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
   if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
   // Stages, in pipeline order.
@@ -562,7 +620,11 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
     bool known = false;
     for (const auto& info : AllStages()) known = known || it.key() == info.name;
-    if (!known) return Status::Usage("plan: unknown stage \"" + it.key() + "\" under \"stages\"");
+    if (!known) {
+      std::string names;
+      for (const auto& info : AllStages()) names += std::string(names.empty() ? "" : ", ") + info.name;
+      return Status::Usage("stages." + it.key() + ": unknown stage (known: " + names + ")");
+    }
   }
   if (Status fs_ok = ValidateFinishPlan(plan); !fs_ok.ok()) return fs_ok;
   {
@@ -578,7 +640,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
 
   ThreadPool pool(plan.threads);  // 0: one per hardware thread
   RunState st(plan);
-  Progress progress(options.progress, log);
+  Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
   PhaseTimer timer(options.timings, log);
   Status s = Observe(plan, st, stages, fs, pool, progress);
   progress.Done();
@@ -593,7 +655,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (options.companion) s = options.companion->Decide(st);
   if (!s.ok()) return s;
   std::map<std::string, uint64_t> written;
-  s = Apply(plan, st, stages, fs, *out.value(), &written);
+  s = Apply(plan, st, stages, fs, *out.value(), &written, progress);
+  progress.Done();
   if (!s.ok()) return s;
   timer.Mark("apply (pass 2)");
   for (auto& stage : stages) {
@@ -631,7 +694,10 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (options.companion) stage_ptrs.push_back(options.companion);
   Json summary = BuildSummary(plan, st, stage_ptrs, written);
   timer.Mark("summary");
-  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed, options.stages);  // gate and provenance
+  RunClock clock;
+  clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
+  clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
+  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed, options.stages, clock);  // gate and provenance
   if (!s.ok()) return s;
   timer.Mark("gate and provenance");
   outcome.gate_failed = st.gate_failed;

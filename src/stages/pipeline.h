@@ -18,7 +18,9 @@ class RunCompanion;
 
 struct PipelineOptions {
   std::vector<std::string> stages;  // stage names to run, in any order; run in pipeline order
-  bool progress = false;            // a progress line on `log` (use when it is a terminal)
+  bool progress = false;            // a progress line on `log`, rewritten in place (use when it is a terminal)
+  bool progress_lines = false;      // else one progress line every few seconds (logs, CI; `--progress`)
+  double progress_seconds = 5;      // the interval of those lines
   bool table = true;                // the ledger table on `log` at the end
   bool timings = false;             // wall seconds per phase and stage on `log` (diagnostics only)
   RunCompanion* companion = nullptr;  // optional (src/store): see RunCompanion in stages/stage.h

@@ -110,6 +110,9 @@ TEST(Pipeline, FailedWriteLeavesNoOutput) {
 }
 
 TEST(Pipeline, ThreadCountDoesNotChangeOutputs) {
+  // The reproducible mode: without it the provenance holds the wall-clock
+  // start and duration (docs/datasheet.md).
+  ::setenv("SOURCE_DATE_EPOCH", "1775000000", 1);
   std::string data;
   for (int i = 0; i < 20000; ++i) {
     int p = i % 7000;
@@ -130,6 +133,7 @@ TEST(Pipeline, ThreadCountDoesNotChangeOutputs) {
   for (const char* f : {"/kept.jsonl", "/rejects.jsonl", "/summary.json", "/conflicts.jsonl"}) {
     EXPECT_EQ(ReadFile(outs[0] + f), ReadFile(outs[1] + f)) << f;
   }
+  ::unsetenv("SOURCE_DATE_EPOCH");
 }
 
 TEST(Pipeline, ExistingOutputNotOverwrittenUnasked) {
