@@ -198,12 +198,20 @@ TEST(Annotators, GateChecksReportAndDatasheet) {
   std::string in = WriteFile("ann_gate_off.jsonl", small.jsonl);
   Plan plan = PlanFor({in}, small.layout, TempPath("ann_gate_off"));
   plan.gate = Json{{"min_annotator_alpha", 0.3}};
+  plan.stages["annotators"] = Json{{"enabled", false}};  // switched off in the plan
+  plan.overwrite = true;
   PipelineOptions o;
-  o.stages = {"exact"};
+  o.stages = {"exact", "annotators"};
   o.table = false;
   ASSERT_TRUE(RunPipeline(plan, o, DefaultFileSystem(), stderr).ok());
   Json s2 = Json::parse(ReadFile(TempPath("ann_gate_off") + "/summary.json"));
   EXPECT_EQ(s2["gate"]["checks"][0]["verdict"], "not evaluated");
+  // A command that does not run the stage at all skips its checks instead.
+  o.stages = {"exact"};
+  ASSERT_TRUE(RunPipeline(plan, o, DefaultFileSystem(), stderr).ok());
+  s2 = Json::parse(ReadFile(TempPath("ann_gate_off") + "/summary.json"));
+  EXPECT_TRUE(s2["gate"]["checks"].empty()) << s2["gate"].dump();
+  EXPECT_EQ(s2["gate"]["skipped"][0]["check"], "min_annotator_alpha");
 }
 
 // Cycles from the pairwise layout and from rankings (implied pairs, majority per
