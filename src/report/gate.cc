@@ -31,6 +31,9 @@ const CheckSpec kChecks[] = {
     {"min_position_p_adjusted", false, "smallest adjusted p of the chosen-slot tests (stage bias)", "bias"},
     {"max_shortcut_accuracy", true, "held-out accuracy of the surface-feature shortcut audit (stage bias)", "bias"},
     {"require_split_checks", false, "split checks passed (stage split)", "split"},
+    {"max_shortcut_lift", true,
+     "held-out accuracy of the shortcut audit above each comparison's chance rate, when significant (stage bias)",
+     "bias"},
     {"min_annotator_alpha", false,
      "Krippendorff's alpha over comparisons judged by two or more annotators (stage annotators)", "annotators"},
     {"max_flagged_annotator_share", true,
@@ -214,6 +217,17 @@ Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extra
                                !StageRan(summary, "annotators") ? "stage annotators did not run"
                                : !v || !v->is_number()          ? "no comparison was judged by two or more annotators"
                                                                 : ""));
+    } else if (key == "max_shortcut_lift") {
+      // Judged against chance (docs/bias.md): the lift counts only when the
+      // audit's own test found it significant; otherwise the value is 0.
+      const Json* lift = Find(summary, {"stages", "bias", "shortcut_audit", "lift"});
+      const Json* flagged = Find(summary, {"stages", "bias", "shortcut_audit", "flagged"});
+      double v = Num(lift);
+      if (v == v && flagged && flagged->is_boolean() && !flagged->get<bool>()) v = std::min(v, 0.0);
+      checks.push_back(Verdict(key, "", spec.what, v, thr, spec.at_most,
+                               !StageRan(summary, "bias")      ? "stage bias did not run"
+                               : !lift || !lift->is_number() ? "the audit did not run (too few comparisons?)"
+                                                             : ""));
     } else if (key == "require_split_checks") {
       if (!thr.get<bool>()) continue;
       const Json* passed = Find(summary, {"stages", "split", "checks", "passed"});

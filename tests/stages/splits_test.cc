@@ -399,3 +399,26 @@ TEST(Documents, DatasheetHasSevenSectionsAndRerunsAreByteIdentical) {
 
 }  // namespace
 }  // namespace prefsift
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+// max_shortcut_lift counts the audit's lift over chance only when its own test
+// flagged it (docs/gate.md); an unflagged lift is 0.
+TEST(Gate, ShortcutLiftAgainstChance) {
+  bool failed = false;
+  Json s{{"ledger", {{"records_in", 10}, {"kept", 10}}},
+         {"stages", {{"bias", {{"shortcut_audit", {{"lift", 0.08}, {"flagged", true}}}}}}}};
+  Json g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, {}, &failed);
+  EXPECT_TRUE(failed);
+  EXPECT_EQ(g["checks"][0]["value"], 0.08);
+  s["stages"]["bias"]["shortcut_audit"]["flagged"] = false;
+  g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, {}, &failed);
+  EXPECT_FALSE(failed);
+  EXPECT_EQ(g["checks"][0]["value"], 0.0);
+}
+
+}  // namespace
+}  // namespace prefsift
