@@ -541,7 +541,8 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   for (auto& r : rules.rules) {
     if (has_default) r.action = default_action;
   }
-  for (const auto& [id, act] : overrides) {
+  for (const auto& [id_binding, act] : overrides) {
+    const std::string& id = id_binding;  // clang 14 cannot capture a structured binding in a lambda
     auto it = std::find_if(rules.rules.begin(), rules.rules.end(), [&](const screen::Rule& r) { return r.id == id; });
     if (it == rules.rules.end()) {
       return usage("stages.screen.actions: no rule \"" + id + "\" in the loaded packs");
