@@ -103,6 +103,9 @@ def main():
            b"\n\xef\xbb\xbf{}\n" + b"[" * 200 + b"\n")
     write("malformed", [0x00, 0x10], b"\xef\xbb\xbf" + bad)
     write("crlf", [0x10, 0x10], choice_lines().replace("\n", "\r\n").encode())
+    # Tight limits (max_line_bytes 512): a line of 600 digits and a line of 628 spaces are records
+    # (line_too_long), not blank lines.
+    write("tight_long_lines", [0x80, 0x00], choice_lines().encode() + b"0" * 600 + b"\n" + b" " * 628 + b"\n")
 
 
 if __name__ == "__main__":
