@@ -24,7 +24,7 @@ using namespace prefsift::testing;  // NOLINT
 using Json = nlohmann::ordered_json;
 
 std::string CorpusDir() {
-  return (std::filesystem::path(__FILE__).parent_path() / ".." / "data" / "malformed").lexically_normal().string();
+  return (std::filesystem::path(PREFSIFT_TEST_SOURCE_DIR) / "tests" / "data" / "malformed").string();
 }
 
 size_t CountLines(const std::string& path) {

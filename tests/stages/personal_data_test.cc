@@ -36,7 +36,7 @@ const char* kIp = "203.0.113.7";
 
 // The repository's rules/ folder, found from this file's path.
 std::string RulesDir() {
-  return (std::filesystem::path(__FILE__).parent_path().parent_path().parent_path() / "rules").string();
+  return (std::filesystem::path(PREFSIFT_TEST_SOURCE_DIR) / "rules").string();
 }
 
 // Three records in a custom layout with chat prompts and metadata.
