@@ -280,10 +280,11 @@ std::string Base64Decode(const std::string& in) {
 
 // Parses one rejects.jsonl line. The pipeline writes the head with nlohmann
 // and appends a parsed record as its raw bytes (`,"record":<line>}`). JSON
-// allows numbers beyond a double (e.g. 1e400, RFC 8259 section 6) and simdjson
-// accepts them in fields the layout does not read, but nlohmann refuses them
-// (out_of_range.406). For such a line the head is parsed alone and the raw
-// record returned in *raw_record, to be compared with the input line.
+// allows numbers beyond a double (e.g. 1e400, RFC 8259 section 6), which
+// nlohmann refuses (out_of_range.406). The record reader rejects such a line as
+// not_json today, so it is kept as record_text; should a parsed record ever
+// hold one, the head is parsed alone and the raw record returned in
+// *raw_record, to be compared with the input line.
 bool ParseReject(const std::string& line, Json* j, std::string* raw_record) {
   try {
     *j = Json::parse(line);
