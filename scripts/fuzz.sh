@@ -2,7 +2,7 @@
 # Builds the libFuzzer targets in fuzz/ with clang (AddressSanitizer +
 # UndefinedBehaviorSanitizer + libFuzzer) into build-fuzz and runs each target
 # for a set time. Usage: scripts/fuzz.sh [SECONDS_PER_TARGET] [TARGET...]
-# (default 60 s; targets: record_reader rule_pack validators plan).
+# (default 60 s; targets: record_reader rule_pack validators plan pipeline).
 # Prints executions and findings per target; exits 1 if any target found a
 # crash, leak, timeout or sanitizer report (the reproducer is kept in
 # build-fuzz/findings/<target>/). Needs clang and libclang-rt-14-dev
@@ -12,7 +12,7 @@ cd "$(dirname "$0")/.."
 secs="${1:-60}"
 shift || true
 targets=("$@")
-if [ "${#targets[@]}" -eq 0 ]; then targets=(record_reader rule_pack validators plan); fi
+if [ "${#targets[@]}" -eq 0 ]; then targets=(record_reader rule_pack validators plan pipeline); fi
 CC_BIN="${PREFSIFT_FUZZ_CC:-clang}"
 CXX_BIN="${PREFSIFT_FUZZ_CXX:-clang++}"
 if ! command -v "$CXX_BIN" >/dev/null; then
@@ -25,7 +25,7 @@ cmake -S . -B "$build" -G Ninja -DCMAKE_BUILD_TYPE=Release \
   -DCMAKE_C_COMPILER="$CC_BIN" -DCMAKE_CXX_COMPILER="$CXX_BIN" \
   -DCMAKE_C_FLAGS="$flags" -DCMAKE_CXX_FLAGS="$flags" \
   -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined" \
-  -DPREFSIFT_FUZZ=ON -DPREFSIFT_ONLY="core;screen" >/dev/null || exit 2
+  -DPREFSIFT_FUZZ=ON -DPREFSIFT_ONLY="core;io;sketch;screen;stats;stages;report" >/dev/null || exit 2
 cmake --build "$build" -j"$(nproc)" --target $(printf 'fuzz_%s ' "${targets[@]}") || exit 2
 
 status=0

@@ -1,5 +1,6 @@
 // Worked examples and published reserved values for the validators.
-// Sources are named beside each check; tags as in methods.md section 8.
+// Sources are named beside each check. [V]: checked against the named source;
+// "from memory": not checked against it.
 #include <gtest/gtest.h>
 
 #include "screen/validators.h"
@@ -14,7 +15,8 @@ TEST(Luhn, PublishedWorkedExample) {
 }
 
 TEST(PaymentCard, TestCardNumbers) {
-  // Published test card numbers (list from memory; validity computed, methods.md 8).
+  // Published test card numbers (list from memory); their Luhn validity checked with python3-stdnum 1.18
+  // (stdnum.luhn.is_valid), as is the invalidity of 4111111111111112.
   EXPECT_TRUE(PaymentCardValid("4111111111111111"));
   EXPECT_TRUE(PaymentCardValid("5555555555554444"));
   EXPECT_TRUE(PaymentCardValid("378282246310005"));

@@ -3,7 +3,8 @@
 // Outside reference: Leskovec, Rajaraman & Ullman, Mining of Massive Datasets,
 // sec. 3.4.2 [V]: P(candidate) = 1 - (1 - s^r)^b; Fig. 3.8 table for b = 20,
 // r = 5 [V, as reproduced]; threshold approximately (1/b)^(1/r), b = 16, r = 4
-// -> 1/2 [V]. Values marked "computed" are from that formula in methods.md.
+// -> 1/2 [V]. Values marked "computed" are that formula evaluated in Python
+// (/usr/bin/python3: 1 - (1 - s**r)**b).
 #include "sketch/lsh.h"
 
 #include <gtest/gtest.h>
@@ -34,7 +35,8 @@ TEST(SCurve, WorkedExamples) {
   // more than 0.5" [V], computed 0.5493.
   EXPECT_NEAR(ApproxThreshold({16, 4}), 0.5, 1e-12);
   EXPECT_NEAR(ApproxThreshold({20, 5}), 0.5493, 0.0001);
-  // Computed in methods.md: b = 16, r = 4, s = 0.5 -> 0.64393; b = 40, r = 5.
+  // Computed (Python, the book's formula): b = 16, r = 4, s = 0.5 -> 0.6439258695482072; b = 40, r = 5:
+  // s = 0.25 -> 0.038327752962634465, 0.5 -> 0.7191537556638458, 0.75 -> 0.9999803191845236.
   EXPECT_NEAR(CandidateProbability(0.5, {16, 4}), 0.64393, 0.000005);
   EXPECT_NEAR(CandidateProbability(0.25, {40, 5}), 0.038328, 0.0000005);
   EXPECT_NEAR(CandidateProbability(0.5, {40, 5}), 0.719154, 0.0000005);

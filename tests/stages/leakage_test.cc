@@ -115,7 +115,9 @@ TEST(NgramOverlap, ShortExampleRule) {
 }
 
 TEST(NgramOverlap, AutoLength) {
-  // methods.md sec. 4 (from memory, unverified): 5th percentile 6 -> N = 8; 20 -> N = 13.
+  // Brown et al. 2020, "Language Models are Few-Shot Learners", arXiv:2005.14165, appendix C: N = the 5th
+  // percentile of the example lengths in words, at least 8 and at most 13 (from memory, unverified). So a 5th
+  // percentile of 6 words gives N = 8 (the lower clamp) and one of 20 gives N = 13 (the upper clamp).
   std::vector<uint32_t> a(100, 30);
   for (int i = 0; i < 5; ++i) a[i] = 6;
   EXPECT_EQ(AutoNgramLength(a), 8);
@@ -246,9 +248,13 @@ TEST(LeakIndex, NgramIgnoresPunctuationAndCase) {
   s.enabled[0] = s.enabled[2] = false;
   auto f = MakeIndex({kEval20}, s);
   std::vector<LeakFinding> out;
+  // Punctuation removal deletes the hyphen (Unicode category Pd, docs/normalisation.md), so "bean-seed" becomes
+  // the one word "beanseed": the prompt's words are "q what is the best way to store saved beanseed over winter so
+  // that it still", whose longest run shared with the item is 8 words ("what ... saved"), under 13. A known miss
+  // of word n-grams on joined words: nothing is found.
   f.index->CheckPrompt("Q: What is the BEST way to store saved bean-seed, over winter... so that it still?", false, &out);
-  // "bean-seed" loses its hyphen ("beanseed"), so the 13 words up to "bean" plus ... must still give one 13-gram:
-  // "what is the best way to store saved beanseed over winter so that" differs; check the plain case instead.
+  EXPECT_TRUE(out.empty()) << out.size() << " finding(s), first span: " << (out.empty() ? "" : std::string(out[0].span));
+  // The same words with a space instead of the hyphen share the 13-gram "what ... so".
   out.clear();
   f.index->CheckPrompt("Q: What is the BEST way to store saved bean seed, over winter... so that it still?", false, &out);
   ASSERT_EQ(out.size(), 1u);

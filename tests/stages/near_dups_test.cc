@@ -5,7 +5,7 @@
 //    [V, abstract]). The test texts use distinct words (or distinct code points), so every n-gram is
 //    distinct and the Jaccard of a planted edit is worked out by hand in the comment beside it.
 //  - LSH S-curve P = 1 - (1 - s^r)^b and Fig. 3.8 (b = 20, r = 5) of Leskovec, Rajaraman & Ullman,
-//    Mining of Massive Datasets, sec. 3.4.2 [V] (values copied in shared/notes/methods.md section 1).
+//    Mining of Massive Datasets, sec. 3.4.2 [V].
 #include <gtest/gtest.h>
 
 #include <cmath>

@@ -377,7 +377,7 @@ TEST(Documents, DatasheetHasSevenSectionsAndRerunsAreByteIdentical) {
       ASSERT_EQ(ds["sections"].size(), 7u);
       std::vector<std::string> titles;
       for (const auto& s : ds["sections"]) titles.push_back(s["title"]);
-      // Gebru et al. 2018/2021, the seven sections [V] (methods.md section 7).
+      // Gebru et al., "Datasheets for Datasets", arXiv:1803.09010 (2018; CACM 2021): the seven sections [V].
       EXPECT_EQ(titles, (std::vector<std::string>{"Motivation", "Composition", "Collection process",
                                                   "Preprocessing, cleaning and labelling", "Uses", "Distribution",
                                                   "Maintenance"}));

@@ -1,6 +1,6 @@
 // Tests of src/stats/hypothesis_tests against scipy.stats (fixtures written by
 // tests/reference/stats_reference.py with Debian's python3-scipy 1.10.1) and
-// the computed reference values in methods.md section 6.
+// worked values computed with that scipy (quoted beside each check).
 #include "stats/hypothesis_tests.h"
 
 #include <cmath>
@@ -23,12 +23,12 @@ void ExpectClose(double got, double want, const std::string& what) {
       << what << ": got " << got << " want " << want;
 }
 
-// methods.md section 6, "computed reference values (check with scipy.stats)".
-// The values there are rounded; scipy 1.10.1 gives the full values in the fixture.
+// Worked values from scipy.stats.binomtest(k, n, 0.5).pvalue (Debian's
+// python3-scipy 1.10.1), rounded here; the fixture holds the full values.
 TEST(BinomTest, MethodsWorkedValues) {
-  EXPECT_NEAR(BinomTestTwoSided(550, 1000, 0.5), 0.001731, 5e-7);  // methods.md §6
-  EXPECT_NEAR(BinomTestTwoSided(530, 1000, 0.5), 0.0620, 5e-5);    // methods.md §6
-  EXPECT_NEAR(BinomTestTwoSided(60, 100, 0.5), 0.05689, 5e-6);     // methods.md §6
+  EXPECT_NEAR(BinomTestTwoSided(550, 1000, 0.5), 0.001731, 5e-7);  // scipy: 0.0017305360849763024
+  EXPECT_NEAR(BinomTestTwoSided(530, 1000, 0.5), 0.0620, 5e-5);    // scipy: 0.06202319509836348
+  EXPECT_NEAR(BinomTestTwoSided(60, 100, 0.5), 0.05689, 5e-6);     // scipy: 0.05688793364098088
   // scipy.stats.binomtest(550, 1000).pvalue = 0.0017305360849763024 (scipy 1.10.1).
   ExpectClose(BinomTestTwoSided(550, 1000, 0.5), 0.0017305360849763024, "550/1000");
 }
@@ -62,7 +62,8 @@ TEST(SignTest, IsBinomialOnNonTies) {
 }
 
 TEST(ChiSquare, MethodsWorkedValue) {
-  // methods.md §6: counts [300, 250, 230, 220] -> chi2 15.2, df 3, p 0.001653.
+  // scipy.stats.chisquare([300, 250, 230, 220]) (python3-scipy 1.10.1): statistic 15.2,
+  // p 0.0016534710516881654; df = 4 - 1 (Pearson's test against a uniform distribution).
   const ChiSquareResult r = ChiSquareUniform({300, 250, 230, 220});
   EXPECT_NEAR(r.statistic, 15.2, 1e-12);
   EXPECT_EQ(r.df, 3);
