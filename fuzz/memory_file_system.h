@@ -122,6 +122,10 @@ class MemoryFileSystem : public FileSystem {
     std::lock_guard<std::mutex> lock(mu_);
     return files_.count(path) || dirs_.count(path);
   }
+  bool IsDirectory(const std::string& path) override {
+    std::lock_guard<std::mutex> lock(mu_);
+    return dirs_.count(path) > 0;
+  }
 
  private:
   class Reader : public ReadableFile {

@@ -43,10 +43,11 @@ TEST(SplitsReport, DemoWritesSplitsDatasheetReportAndGate) {
   // The samples plant volunteers with a position bias (samples/truth.json "bias.position.biased_annotators"), so the
   // chosen-slot test must fail the demo's min_position_p_adjusted = 0.01 and nothing else (docs/gate.md, "Demo").
   ASSERT_FALSE(Truth()["bias"]["position"]["biased_annotators"].empty());
-  EXPECT_EQ(failed, std::vector<std::string>{"min_position_p_adjusted"});
+  // The planted length preference on the phone line must fail max_shortcut_lift (docs/gate.md, "Demo").
+  EXPECT_EQ(failed, (std::vector<std::string>{"min_position_p_adjusted", "max_shortcut_lift"}));
   EXPECT_EQ(s["gate"]["verdict"], "fail");
-  EXPECT_EQ(s["gate"]["failed"], 1);
-  EXPECT_EQ(s["gate"]["passed"], 7);
+  EXPECT_EQ(s["gate"]["failed"], 2);
+  EXPECT_EQ(s["gate"]["passed"], 6);
   EXPECT_EQ(s["stages"]["split"]["checks"]["groups_spanning_splits"], 0);
   EXPECT_EQ(s["stages"]["split"]["checks"]["passed"], true);
   Json ds = Json::parse(ReadFile(out + "/datasheet.json"));
