@@ -18,9 +18,10 @@ using Json = nlohmann::ordered_json;
 
 const char* const kPersonalDataCaution =
     "The personal-data screen is an aid, not a guarantee and not legal advice. It finds patterned data (e-mail "
-    "addresses, phone numbers, card and account numbers, identifiers with checksums, network addresses, keys). It does "
-    "not reliably find names, postal addresses, or free-text mentions of health, religion, politics or other special "
-    "categories. Whether this dataset may be used, shared or kept is for the applicable law and your privacy officer "
+    "addresses, phone numbers, card and account numbers, identifiers with checksums, network addresses, keys), and "
+    "person names and postal addresses only where the text signals them (a self-introduction, greeting, sign-off or "
+    "title; a street line or postcode in a known format), so it misses many of those. It does not find free-text "
+    "mentions of health, religion, politics or other special categories. Whether this dataset may be used, shared or kept is for the applicable law and your privacy officer "
     "to decide.";
 
 namespace {
