@@ -5,6 +5,8 @@
 // Pure functions and plain structs; thread-safe.
 #pragma once
 
+#include "core/random.h"
+
 #include <cstdint>
 #include <string>
 #include <string_view>
@@ -42,11 +44,6 @@ inline int PreferredIndex(const RecordFacts& f) { return f.shape == JudgmentShap
 // give independent streams; the same id gets the same value wherever its line is.
 uint64_t SeededHash(uint64_t seed, std::string_view purpose, std::string_view id);
 
-// splitmix64 step (Steele, Lea & Flood 2014, from memory): advances *state and
-// returns the next output.
-uint64_t SplitMix64(uint64_t* state);
-
-// Uniform integer in [0, bound) by rejection (no modulo bias). REQUIRES: bound >= 1.
-uint64_t UniformBelow(uint64_t* state, uint64_t bound);
+// SplitMix64 and UniformBelow: core/random.h.
 
 }  // namespace prefsift::bias

@@ -1,5 +1,7 @@
 #include "stats/agreement.h"
 
+#include "core/random.h"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -10,22 +12,7 @@ namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-uint64_t SplitMix(uint64_t* s) {
-  uint64_t z = (*s += 0x9E3779B97F4A7C15ULL);
-  z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
-  z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
-  return z ^ (z >> 31);
-}
-
-uint64_t Below(uint64_t* s, uint64_t bound) {
-  if (bound <= 1) return 0;
-  const uint64_t limit = UINT64_MAX - UINT64_MAX % bound;
-  uint64_t r;
-  do {
-    r = SplitMix(s);
-  } while (r >= limit);
-  return r % bound;
-}
+uint64_t Below(uint64_t* s, uint64_t bound) { return UniformBelow(s, bound); }
 
 // Per unit: the diagonal sum of its coincidences (sum_c n_uc (n_uc - 1) / (m_u - 1))
 // and its per-category value counts, accumulated into `nc`.

@@ -18,6 +18,7 @@
 #include <numeric>
 #include <utility>
 
+#include "core/random.h"
 #include "core/thread_pool.h"
 
 namespace prefsift::stats {
@@ -430,21 +431,15 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
   return fit;
 }
 
-// splitmix64 (Steele, Lea & Flood 2014): the seed-to-stream generator.
-uint64_t SplitMix64(uint64_t& state) {
-  uint64_t z = (state += 0x9e3779b97f4a7c15ULL);
-  z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-  z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-  return z ^ (z >> 31);
-}
-
-// Uniform integer in [0, bound) by rejection (no modulo bias).
+// Uniform integer in [0, bound) by rejection (no modulo bias). Unlike
+// UniformBelow it draws once even when bound is 1, which the fold shuffles'
+// streams depend on (changing it would change every fit).
 uint64_t Below(uint64_t bound, uint64_t& state) {
   const uint64_t limit = std::numeric_limits<uint64_t>::max() -
                          std::numeric_limits<uint64_t>::max() % bound;
   uint64_t r;
   do {
-    r = SplitMix64(state);
+    r = SplitMix64(&state);
   } while (r >= limit);
   return r % bound;
 }
