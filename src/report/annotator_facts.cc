@@ -5,26 +5,13 @@
 #include <cmath>
 #include <cstdio>
 
+#include "report/html_escape.h"
 #include "report/json_find.h"
 
 namespace prefsift {
 namespace {
 
 using Json = nlohmann::ordered_json;
-
-std::string Esc(const std::string& s) {
-  std::string o;
-  for (char c : s) {
-    switch (c) {
-      case '&': o += "&amp;"; break;
-      case '<': o += "&lt;"; break;
-      case '>': o += "&gt;"; break;
-      case '"': o += "&quot;"; break;
-      default: o += c;
-    }
-  }
-  return o;
-}
 
 std::string Str(const Json* j) {
   if (!j || j->is_null()) return "n/a";

@@ -2,6 +2,7 @@
 #include "report/html_report.h"
 
 #include "report/annotator_facts.h"
+#include "report/html_escape.h"
 #include "report/json_find.h"
 
 #include <nlohmann/json.hpp>
@@ -23,20 +24,6 @@ using Json = nlohmann::ordered_json;
 namespace {
 
 const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
-
-std::string Esc(const std::string& s) {
-  std::string o;
-  for (char c : s) {
-    switch (c) {
-      case '&': o += "&amp;"; break;
-      case '<': o += "&lt;"; break;
-      case '>': o += "&gt;"; break;
-      case '"': o += "&quot;"; break;
-      default: o += c;
-    }
-  }
-  return o;
-}
 
 std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.is_null() ? "" : j.dump(); }
 
