@@ -50,7 +50,7 @@
 
 #include "core/plan.h"
 #include "fuzz/memory_file_system.h"
-#include "stages/pipeline.h"
+#include "pipeline/pipeline.h"
 
 #ifndef PREFSIFT_FUZZ_RULES_DIR
 #error "PREFSIFT_FUZZ_RULES_DIR must name the source tree's rules/ folder"

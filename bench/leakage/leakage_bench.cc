@@ -9,7 +9,7 @@
 #include <random>
 #include <thread>
 
-#include "stages/leak_index.h"
+#include "stages/leakage/leak_index.h"
 
 int main(int argc, char** argv) {
   using namespace prefsift;  // NOLINT: benchmark main

@@ -18,8 +18,8 @@
 #include "io/file_system.h"
 #include "io/signal_cleanup.h"
 #include "prefsift_version.h"
-#include "stages/pipeline.h"
-#include "stages/split_audit.h"
+#include "pipeline/pipeline.h"
+#include "audit/split_audit.h"
 #include "stages/stage.h"
 #ifdef PREFSIFT_HAVE_STORE
 #include "cli/store_commands.h"  // growing stores (docs/store.md)

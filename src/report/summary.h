@@ -9,7 +9,7 @@
 #include <string>
 #include <vector>
 
-#include "stages/run_state.h"
+#include "core/run_state.h"
 #include "stages/stage.h"
 
 namespace prefsift {

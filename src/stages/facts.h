@@ -9,7 +9,7 @@
 
 #include "core/normalize.h"
 #include "core/record.h"
-#include "stages/run_state.h"
+#include "core/run_state.h"
 
 namespace prefsift {
 

@@ -1,10 +1,10 @@
-#include "stages/annotators.h"
-#include "stages/bias.h"
-#include "stages/exact_dups.h"
-#include "stages/leakage.h"
-#include "stages/near_dups.h"
-#include "stages/personal_data.h"
-#include "stages/splits.h"
+#include "stages/annotators/annotators_stage.h"
+#include "stages/bias/bias_stage.h"
+#include "stages/exact/exact_stage.h"
+#include "stages/leakage/leakage_stage.h"
+#include "stages/near/near_stage.h"
+#include "stages/screen/screen_stage.h"
+#include "stages/split/split_stage.h"
 #include "stages/stage.h"
 
 namespace prefsift {

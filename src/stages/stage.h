@@ -18,7 +18,7 @@
 
 #include "core/record.h"
 #include "core/status.h"
-#include "stages/run_state.h"
+#include "core/run_state.h"
 
 namespace prefsift {
 

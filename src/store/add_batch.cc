@@ -22,9 +22,9 @@
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
 #include "sketch/union_find.h"
-#include "stages/annotators.h"
-#include "stages/exact_dups.h"
-#include "stages/pipeline.h"
+#include "stages/annotators/annotators_stage.h"
+#include "stages/exact/exact_stage.h"
+#include "pipeline/pipeline.h"
 #include "stages/stage.h"
 #include "store/store_db.h"
 
@@ -65,7 +65,7 @@ int64_t BandRow(uint64_t key) { return static_cast<int64_t>(key >> 33); }
 std::string Hex16(std::string_view blob) { return ToHex(FromBlob(blob)).substr(0, 16); }
 
 // The split stage's settings as far as the store needs them. Defaults follow
-// src/stages/splits.cc (splits train 0.8 / valid 0.1 / test 0.1; tie_by
+// src/stages/split/split_stage.cc (splits train 0.8 / valid 0.1 / test 0.1; tie_by
 // prompt, near, thread); the split stage validates the values itself.
 struct SplitView {
   std::vector<std::string> names{"train", "valid", "test"};

@@ -11,7 +11,7 @@
 #include "io/output_dir.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
-#include "stages/pipeline.h"
+#include "pipeline/pipeline.h"
 #include "stages/stage.h"
 
 namespace prefsift::store {

@@ -76,7 +76,7 @@ Json Row(const std::string& name, double ratio, const Json& m) {
 }
 
 // The split section: the configured splits in order with their target
-// ratios (defaults as in src/stages/splits.cc), measured over the store.
+// ratios (defaults as in src/stages/split/split_stage.cc), measured over the store.
 Json SplitSection(const Json& cum) {
   Json config = Get(Get(cum, "settings"), "split");
   std::vector<std::pair<std::string, double>> targets = {{"train", 0.8}, {"valid", 0.1}, {"test", 0.1}};

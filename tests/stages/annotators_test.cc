@@ -10,8 +10,8 @@
 
 #include "annotator_scenario.h"
 #include "run_helpers.h"
-#include "stages/annotator_time.h"
-#include "stages/annotators.h"
+#include "stages/annotators/annotator_time.h"
+#include "stages/annotators/annotators_stage.h"
 #include "stats/agreement.h"
 
 namespace prefsift {

@@ -11,7 +11,7 @@
 #include "core/normalize.h"
 #include "run_helpers.h"
 #include "stages/facts.h"
-#include "stages/run_state.h"
+#include "core/run_state.h"
 
 namespace prefsift {
 namespace {

@@ -16,10 +16,10 @@
 
 #include "io/file_system.h"
 #include "run_helpers.h"
-#include "stages/eval_index.h"
-#include "stages/leak_index.h"
-#include "stages/ngram_overlap.h"
-#include "stages/split_audit.h"
+#include "stages/leakage/eval_index.h"
+#include "stages/leakage/leak_index.h"
+#include "stages/leakage/ngram_overlap.h"
+#include "audit/split_audit.h"
 
 namespace prefsift {
 namespace {

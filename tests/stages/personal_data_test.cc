@@ -15,7 +15,7 @@
 
 #include "screen/rules.h"
 #include "screen/screener.h"
-#include "stages/personal_data.h"
+#include "stages/screen/screen_stage.h"
 #include "io/file_system.h"
 #include "stages/run_helpers.h"
 

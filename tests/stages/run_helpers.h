@@ -12,7 +12,7 @@
 #include <string>
 #include <vector>
 
-#include "stages/pipeline.h"
+#include "pipeline/pipeline.h"
 
 namespace prefsift::testing {
 

@@ -13,7 +13,7 @@
 #include "report/datasheet.h"
 #include "report/gate.h"
 #include "run_helpers.h"
-#include "stages/splits.h"
+#include "stages/split/split_stage.h"
 
 namespace prefsift {
 namespace {

@@ -12,7 +12,7 @@
 #include <string_view>
 #include <vector>
 
-#include "stages/run_state.h"
+#include "core/run_state.h"
 
 namespace prefsift::bias {
 

@@ -1,4 +1,4 @@
-#include "stages/shortcut_audit.h"
+#include "stages/bias/shortcut_audit.h"
 
 #include <nlohmann/json.hpp>
 

@@ -1,9 +1,9 @@
 // Split audit: checks existing train / held-out files (made by prefsift or
 // not) for leakage across the split, without changing them.
 //
-// Every held-out file is indexed as an evaluation set (stages/eval_index.h,
+// Every held-out file is indexed as an evaluation set (src/stages/leakage/eval_index.h,
 // preference format), the training file is read once and each training
-// prompt is checked by the leakage detectors (stages/leak_index.h: exact,
+// prompt is checked by the leakage detectors (src/stages/leakage/leak_index.h: exact,
 // word n-gram, near-duplicate; every matching item, not just the best), so
 // each held-out record gets the list of its training twins. Groups that
 // appear on both sides are also reported: threads, the layout's group field,
@@ -22,7 +22,7 @@
 #include "core/plan.h"
 #include "core/record_reader.h"
 #include "core/status.h"
-#include "stages/leak_index.h"
+#include "stages/leakage/leak_index.h"
 
 namespace prefsift {
 

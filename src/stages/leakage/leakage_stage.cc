@@ -1,4 +1,4 @@
-#include "stages/leakage.h"
+#include "stages/leakage/leakage_stage.h"
 
 #include <nlohmann/json.hpp>
 
@@ -10,7 +10,7 @@
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
-#include "stages/leak_index.h"
+#include "stages/leakage/leak_index.h"
 
 namespace prefsift {
 namespace {

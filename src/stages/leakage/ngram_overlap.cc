@@ -1,10 +1,10 @@
-#include "stages/ngram_overlap.h"
+#include "stages/leakage/ngram_overlap.h"
 
 #include <algorithm>
 #include <map>
 
 #include "sketch/shingles.h"
-#include "stages/hash_postings.h"
+#include "stages/leakage/hash_postings.h"
 
 namespace prefsift {
 

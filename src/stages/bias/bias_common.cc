@@ -1,4 +1,4 @@
-#include "stages/bias_common.h"
+#include "stages/bias/bias_common.h"
 
 #include <xxhash.h>
 

@@ -32,7 +32,7 @@
 
 #include "core/normalize.h"
 #include "core/status.h"
-#include "stages/eval_index.h"
+#include "stages/leakage/eval_index.h"
 
 namespace prefsift {
 

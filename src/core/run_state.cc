@@ -1,4 +1,4 @@
-#include "stages/run_state.h"
+#include "core/run_state.h"
 
 namespace prefsift {
 

@@ -1,4 +1,4 @@
-#include "stages/exact_dups.h"
+#include "stages/exact/exact_stage.h"
 
 #include <nlohmann/json.hpp>
 

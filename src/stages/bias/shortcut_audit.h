@@ -18,8 +18,8 @@
 #include <string>
 #include <vector>
 
-#include "stages/bias_common.h"
-#include "stages/run_state.h"
+#include "stages/bias/bias_common.h"
+#include "core/run_state.h"
 
 namespace prefsift::bias {
 

@@ -1,4 +1,4 @@
-#include "stages/personal_data.h"
+#include "stages/screen/screen_stage.h"
 
 #include <nlohmann/json.hpp>
 

@@ -1,5 +1,5 @@
 // Group-aware, stable splits; see splits.h and docs/splits.md.
-#include "stages/splits.h"
+#include "stages/split/split_stage.h"
 
 #include <nlohmann/json.hpp>
 

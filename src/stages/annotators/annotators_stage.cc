@@ -1,4 +1,4 @@
-#include "stages/annotators.h"
+#include "stages/annotators/annotators_stage.h"
 
 #include <nlohmann/json.hpp>
 
@@ -11,9 +11,9 @@
 
 #include "core/json_pointer.h"
 #include "io/output_dir.h"
-#include "stages/annotator_time.h"
-#include "stages/bias_common.h"
-#include "stages/exact_dups.h"
+#include "stages/annotators/annotator_time.h"
+#include "stages/bias/bias_common.h"
+#include "stages/exact/exact_stage.h"
 #include "stats/agreement.h"
 #include "stats/hypothesis_tests.h"
 #include "stats/preference_graph.h"

@@ -1,4 +1,4 @@
-#include "stages/eval_index.h"
+#include "stages/leakage/eval_index.h"
 
 #include <nlohmann/json.hpp>
 

@@ -1,4 +1,4 @@
-#include "stages/annotator_time.h"
+#include "stages/annotators/annotator_time.h"
 
 #include <cmath>
 #include <cstdint>

@@ -1,4 +1,4 @@
-#include "stages/pipeline.h"
+#include "pipeline/pipeline.h"
 
 #include <nlohmann/json.hpp>
 
@@ -19,7 +19,7 @@
 #include "report/finish.h"
 #include "report/summary.h"
 #include "stages/facts.h"
-#include "stages/personal_data.h"
+#include "stages/screen/screen_stage.h"
 #include "stages/stage.h"
 
 namespace prefsift {

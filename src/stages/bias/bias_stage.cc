@@ -1,14 +1,14 @@
-#include "stages/bias.h"
+#include "stages/bias/bias_stage.h"
 
 #include <nlohmann/json.hpp>
 
 #include <algorithm>
 #include <cmath>
 
-#include "stages/bias_common.h"
-#include "stages/bias_length.h"
-#include "stages/bias_position.h"
-#include "stages/shortcut_audit.h"
+#include "stages/bias/bias_common.h"
+#include "stages/bias/bias_length.h"
+#include "stages/bias/bias_position.h"
+#include "stages/bias/shortcut_audit.h"
 #include "stats/surface_features.h"
 
 namespace prefsift {

@@ -1,4 +1,4 @@
-#include "stages/near_dups.h"
+#include "stages/near/near_stage.h"
 
 #include <nlohmann/json.hpp>
 

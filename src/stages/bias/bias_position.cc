@@ -1,4 +1,4 @@
-#include "stages/bias_position.h"
+#include "stages/bias/bias_position.h"
 
 #include <nlohmann/json.hpp>
 

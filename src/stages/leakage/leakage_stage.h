@@ -2,7 +2,7 @@
 // candidate answer) matches an item of a user-named evaluation set.
 //
 // The evaluation sets are read and indexed once, when the stage is made
-// (stages/eval_index.h, stages/leak_index.h). Observe checks each record's
+// (src/stages/leakage/eval_index.h, src/stages/leakage/leak_index.h). Observe checks each record's
 // prompt (Record::UserPromptText) and keeps only the findings; Decide applies
 // each detector's policy: "drop" rejects the record (reasons eval_leak_exact,
 // eval_leak_ngram, eval_leak_near, eval_leak_answer), "flag" keeps it. Every

@@ -1,4 +1,4 @@
-#include "stages/split_audit.h"
+#include "audit/split_audit.h"
 
 #include <nlohmann/json.hpp>
 

@@ -1,4 +1,4 @@
-#include "stages/bias_length.h"
+#include "stages/bias/bias_length.h"
 
 #include <nlohmann/json.hpp>
 

@@ -1,4 +1,4 @@
-#include "stages/leak_index.h"
+#include "stages/leakage/leak_index.h"
 
 #include <nlohmann/json.hpp>
 
@@ -10,8 +10,8 @@
 #include "sketch/minhash.h"
 #include "sketch/set_similarity.h"
 #include "sketch/shingles.h"
-#include "stages/hash_postings.h"
-#include "stages/ngram_overlap.h"
+#include "stages/leakage/hash_postings.h"
+#include "stages/leakage/ngram_overlap.h"
 
 namespace prefsift {
 namespace {
