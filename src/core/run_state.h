@@ -85,17 +85,7 @@ class RunState {
   std::vector<Decision> decisions;     // one per entry
   std::vector<std::string> split_names{"kept"};
 
-  // Shared between stages (filled by the stage named, read by later ones).
-  std::vector<int64_t> near_cluster;   // near: cluster id per record (smallest member index), -1 = none
-  bool gate_failed = false;            // gate: set when any gate check fails
-
-  // Store support (src/store, docs/store.md); empty/false in a plain run.
-  // near_share: set by a store before near decides; near then copies its
-  // compact signatures (near_slots bytes a record) and banding here.
-  bool near_share = false;
-  std::vector<uint8_t> near_signatures;
-  uint32_t near_slots = 0, near_bands = 0, near_rows = 0;
-  double near_threshold = 0;
+  // Store support (src/store, docs/store.md); empty in a plain run.
   // prior_split: per record, the split index it inherits from a store (-1 =
   // none); filled before split decides, split gives the record's group that split.
   std::vector<int32_t> prior_split;

@@ -17,10 +17,12 @@
 #include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "report/finish.h"
+#include "report/gate.h"
 #include "report/summary.h"
 #include "stages/facts.h"
 #include "stages/screen/screen_stage.h"
 #include "stages/stage.h"
+#include "stages/stage_context.h"
 
 namespace prefsift {
 namespace {
@@ -389,6 +391,25 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
   return Status::Ok();
 }
 
+// Counts every entry's decision into its input's figures and the run's.
+RunOutcome CountLedger(RunState& st) {
+  RunOutcome outcome;
+  for (size_t i = 0; i < st.entries.size(); ++i) {
+    InputStats& is = st.inputs[st.entries[i].input];
+    if (st.decisions[i].rejected) {
+      ++is.rejected;
+      ++is.rejected_by_reason[std::string(st.decisions[i].reason)];
+      ++outcome.rejected;
+    } else {
+      ++is.kept;
+      ++outcome.kept;
+    }
+  }
+  outcome.entries = st.entries.size();
+  for (const auto& is : st.inputs) outcome.blank_lines += is.blank_lines;
+  return outcome;
+}
+
 std::string OutputName(const Plan& plan, const std::string& split, uint32_t input) {
   bool same_layout = true;
   for (const auto& in : plan.inputs) same_layout = same_layout && in.layout_key == plan.inputs[0].layout_key;
@@ -646,14 +667,30 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   progress.Done();
   if (!s.ok()) return s;
   timer.Mark("observe (pass 1)");
+  StageResults results;
+  results.want_signatures = options.want_signatures;
+  StageContext ctx{plan, fs, st, results, options.prior};
   for (auto& stage : stages) {
-    if (options.companion) s = options.companion->Between(stage->name(), st);  // store support (docs/store.md)
-    if (s.ok()) s = stage->Decide(st);
+    if (options.companion) s = options.companion->Between(stage->name(), ctx);  // store support (docs/store.md)
+    if (s.ok()) s = stage->Decide(ctx);
     if (!s.ok()) return s;
     timer.Mark("decide " + stage->name());
   }
-  if (options.companion) s = options.companion->Decide(st);
+  if (options.companion) s = options.companion->Decide(ctx);
   if (!s.ok()) return s;
+  RunOutcome outcome = CountLedger(st);
+  // The gate: the last decide step, over typed figures, before anything is written.
+  GateFigures figures;
+  figures.records_in = outcome.entries;
+  figures.kept = outcome.kept;
+  for (const auto& is : st.inputs) figures.parsed += is.records;
+  for (auto& stage : stages) {
+    figures.stages_ran.insert(stage->name());
+    stage->Figures(st, &figures);
+  }
+  if (options.companion) figures.stages_ran.insert(options.companion->name());
+  const Json gate = DecideGate(plan, figures, options.stages, &outcome.gate_failed);
+  timer.Mark("gate");
   std::map<std::string, uint64_t> written;
   s = Apply(plan, st, stages, fs, *out.value(), &written, progress);
   progress.Done();
@@ -666,21 +703,6 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (options.companion) s = options.companion->WriteOutputs(st, *out.value());
   if (!s.ok()) return s;
   timer.Mark("stage outputs");
-  RunOutcome outcome;
-  for (size_t i = 0; i < st.entries.size(); ++i) {
-    InputStats& is = st.inputs[st.entries[i].input];
-    if (st.decisions[i].rejected) {
-      ++is.rejected;
-      ++is.rejected_by_reason[std::string(st.decisions[i].reason)];
-      ++outcome.rejected;
-    } else {
-      ++is.kept;
-      ++outcome.kept;
-    }
-  }
-  outcome.entries = st.entries.size();
-  outcome.gate_failed = st.gate_failed;
-  for (const auto& is : st.inputs) outcome.blank_lines += is.blank_lines;
   // The ledger invariant: every entry is in exactly one output.
   uint64_t out_lines = 0;
   for (const auto& [name, n] : written) out_lines += n;
@@ -689,18 +711,25 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
                             std::to_string(outcome.kept) + ", rejected " + std::to_string(outcome.rejected) +
                             ", lines written " + std::to_string(out_lines) + "); nothing was written");
   }
-  std::vector<const Stage*> stage_ptrs;
-  for (auto& stage : stages) stage_ptrs.push_back(stage.get());
-  if (options.companion) stage_ptrs.push_back(options.companion);
-  Json summary = BuildSummary(plan, st, stage_ptrs, written);
+  std::vector<std::pair<std::string, Json>> sections;
+  for (auto& stage : stages) {
+    Json sec = Json::object();
+    stage->Report(st, &sec);
+    sections.emplace_back(stage->name(), std::move(sec));
+  }
+  if (options.companion) {
+    Json sec = Json::object();
+    options.companion->Report(st, &sec);
+    sections.emplace_back(options.companion->name(), std::move(sec));
+  }
+  Json summary = BuildSummary(plan, st, sections, written);
   timer.Mark("summary");
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
-  s = FinishSummary(plan, fs, *out.value(), &summary, &st.gate_failed, options.stages, clock);  // gate and provenance
+  s = FinishSummary(plan, fs, *out.value(), &summary, gate, clock);  // examples and provenance
   if (!s.ok()) return s;
-  timer.Mark("gate and provenance");
-  outcome.gate_failed = st.gate_failed;
+  timer.Mark("provenance");
   s = out.value()->Write("summary.json", summary.dump(2) + "\n");
   if (s.ok()) s = WriteDocuments(plan, fs, *out.value(), summary);  // datasheet.md/json, report.html
   if (!s.ok()) return s;

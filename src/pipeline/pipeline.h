@@ -14,6 +14,7 @@
 
 namespace prefsift {
 
+class PriorData;
 class RunCompanion;
 
 struct PipelineOptions {
@@ -24,6 +25,8 @@ struct PipelineOptions {
   bool table = true;                // the ledger table on `log` at the end
   bool timings = false;             // wall seconds per phase and stage on `log` (diagnostics only)
   RunCompanion* companion = nullptr;  // optional (src/store): see RunCompanion in stages/stage.h
+  const PriorData* prior = nullptr;   // optional prior data for the stages (a store; stages/prior_data.h)
+  bool want_signatures = false;       // the near stage publishes its signatures (NearSignatures) for the caller
   std::vector<ReadPath> also_reads;   // paths beyond the plan's that the output must not touch (e.g. the store)
 };
 

@@ -147,14 +147,12 @@ Json MaskedFinding(const Json& f) {
 }
 
 // One example per stage and reason from rejects.jsonl (the first in file
-// order), one per personal-data kind from the findings file, and the count of
-// findings left in kept records with no action (-1: unknown). Examples never
+// order) and one per personal-data kind from the findings file. Examples never
 // carry record text: the place, the reason's sentence, and for records with
 // personal-data findings the findings' masked forms.
 struct Examples {
   Json rejects = Json::array();
   Json personal_data = Json::array();
-  long long remaining_findings = -1;
 };
 
 Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summary) {
@@ -180,13 +178,9 @@ Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summa
   if (!sec) return ex;
   std::string name = Text(*sec, "findings_file").empty() ? "personal_data_findings.jsonl" : Text(*sec, "findings_file");
   std::set<std::string> kinds_seen;
-  long long left = 0;
-  bool ok = ForEachLine(fs, out.StagingPath(name), [&](std::string_view line) {
+  ForEachLine(fs, out.StagingPath(name), [&](std::string_view line) {
     Json j = Json::parse(line, nullptr, false);
     if (!j.is_object()) return;
-    bool kept = j.contains("kept") && j["kept"].is_boolean() && j["kept"].get<bool>();
-    bool none = j.contains("applied") && j["applied"] == "none";
-    if (kept && none) ++left;
     Json masked = MaskedFinding(j);
     if (j.contains("line") && j["line"].is_number_unsigned()) {
       auto it = example_of.find({Text(j, "input"), j["line"].get<uint64_t>()});
@@ -204,7 +198,6 @@ Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summa
       ex.personal_data.push_back(std::move(k));
     }
   });
-  ex.remaining_findings = ok ? left : -1;
   return ex;
 }
 
@@ -220,16 +213,10 @@ Status ValidateFinishPlan(const Plan& plan) {
   return ValidateProvenance(plan.provenance);
 }
 
-Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, bool* gate_failed,
-                     const std::vector<std::string>& command_stages, const RunClock& clock) {
+Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, const Json& gate,
+                     const RunClock& clock) {
   Examples ex = CollectExamples(fs, out, *summary);
-  GateExtras extras;
-  extras.remaining_personal_data = ex.remaining_findings;
-  bool failed = false;
-  const bool defaulted = !plan.gate_given && plan.gate.empty();  // a plan built in code may set plan.gate
-  (*summary)["gate"] = EvaluateGate(defaulted ? DefaultGate() : plan.gate, *summary, extras, &failed, defaulted,
-                                   &command_stages);
-  *gate_failed = failed;
+  (*summary)["gate"] = gate;
   (*summary)["examples"] = Json{
       {"note", "one rejected record per stage and reason (the first in rejects.jsonl) and one finding per "
                "personal-data kind: place, reason and masked forms only, never record text"},

@@ -30,15 +30,13 @@ struct RunClock {
   double seconds = -1;
 };
 
-// Adds "gate", "examples" (one reject per stage and reason, one finding per
-// personal-data kind, masked) and "provenance" to the summary; *gate_failed is
-// set when a gate check fails. Hashes every input file and every file already
-// in `out`. `command_stages`: the stages the command runs (gate checks of
-// others are skipped). REQUIRES: every output file except summary.json is
-// written and closed.
+// Adds "gate" (decided before pass 2: DecideGate in report/gate.h),
+// "examples" (one reject per stage and reason, one finding per personal-data
+// kind, masked) and "provenance" to the summary. Hashes every input file and
+// every file already in `out`. REQUIRES: every output file except
+// summary.json is written and closed.
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
-                     bool* gate_failed, const std::vector<std::string>& command_stages,
-                     const RunClock& clock = RunClock());
+                     const nlohmann::ordered_json& gate, const RunClock& clock = RunClock());
 
 // The provenance time, {"utc", "source"[, "duration_seconds"]}: with
 // SOURCE_DATE_EPOCH set, that time and no duration (the reproducible mode);

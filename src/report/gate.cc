@@ -1,8 +1,6 @@
 // The gate; see gate.h and docs/gate.md.
 #include "report/gate.h"
 
-#include "report/json_find.h"
-
 #include <nlohmann/json.hpp>
 
 #include <algorithm>
@@ -47,14 +45,6 @@ const char* StageOfCheck(const std::string& key) {
   return "";
 }
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
-
-bool StageRan(const Json& summary, const char* stage) { return Find(summary, {"stages", stage}) != nullptr; }
-
-double Num(const Json* j) {
-  return j && j->is_number() ? j->get<double>() : std::numeric_limits<double>::quiet_NaN();
-}
-
 Json Verdict(const std::string& key, const std::string& scope, const std::string& what, double value,
              const Json& threshold, bool at_most, const std::string& why_not) {
   Json c;
@@ -65,7 +55,7 @@ Json Verdict(const std::string& key, const std::string& scope, const std::string
   if (!why_not.empty() || std::isnan(value)) {
     c["value"] = nullptr;
     c["verdict"] = "not evaluated";
-    c["reason"] = why_not.empty() ? "no figure in summary.json" : why_not;
+    c["reason"] = why_not.empty() ? "no figure" : why_not;
     return c;
   }
   c["value"] = std::round(value * 1e6) / 1e6;
@@ -119,6 +109,12 @@ Status ValidateGate(const Json& gate) {
   return Status::Ok();
 }
 
+Json DecideGate(const Plan& plan, const GateFigures& figures, const std::vector<std::string>& command_stages,
+                bool* failed) {
+  const bool defaulted = !plan.gate_given && plan.gate.empty();  // a plan built in code may set plan.gate
+  return EvaluateGate(defaulted ? DefaultGate() : plan.gate, figures, failed, defaulted, &command_stages);
+}
+
 const Json& DefaultGate() {
   // Small on purpose: what any reviewer wants whatever the data. Bias
   // thresholds depend on the data and are left to the plan.
@@ -129,110 +125,83 @@ const Json& DefaultGate() {
   return k;
 }
 
-Json EvaluateGate(const Json& gate, const Json& summary, const GateExtras& extras, bool* failed, bool defaulted,
+Json EvaluateGate(const Json& gate, const GateFigures& f, bool* failed, bool defaulted,
                   const std::vector<std::string>* command_stages) {
+  const auto ran = [&](const char* stage) { return f.stages_ran.count(stage) > 0; };
+  const auto value = [](const std::optional<double>& v) { return v ? *v : std::nan(""); };
   Json checks = Json::array();
   for (const auto& spec : kChecks) {
     if (!gate.contains(spec.key)) continue;
     const Json& thr = gate[spec.key];
     const std::string key = spec.key;
     if (key == "min_kept_share") {
-      double in = Num(Find(summary, {"ledger", "records_in"})), kept = Num(Find(summary, {"ledger", "kept"}));
+      const double in = static_cast<double>(f.records_in), kept = static_cast<double>(f.kept);
       checks.push_back(Verdict(key, "", spec.what, in > 0 ? kept / in : std::nan(""), thr, spec.at_most,
                                in > 0 ? "" : "no input records"));
     } else if (key == "max_label_conflict_rate") {
-      if (!StageRan(summary, "exact")) {
+      if (!ran("exact")) {
         checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most, "stage exact did not run"));
         continue;
       }
-      double parsed = 0;
-      if (const Json* ins = Find(summary, {"inputs"}); ins && ins->is_array()) {
-        for (const auto& in : *ins) parsed += Num(Find(in, {"parsed"}));
-      }
-      double conf = Num(Find(summary, {"stages", "exact", "label_conflicts", "records"}));
+      const double parsed = static_cast<double>(f.parsed);
+      const double conf = static_cast<double>(f.label_conflict_records);
       checks.push_back(Verdict(key, "", spec.what, parsed > 0 ? conf / parsed : std::nan(""), thr, spec.at_most,
                                parsed > 0 ? "" : "no parsed records"));
     } else if (key == "max_leakage_rate") {
-      const Json* by_set = Find(summary, {"stages", "leakage", "by_set"});
-      if (!by_set || !by_set->is_object() || by_set->empty()) {
+      if (f.leakage_by_set.empty()) {
         checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most,
-                                 StageRan(summary, "leakage") ? "no evaluation sets" : "stage leakage did not run"));
+                                 ran("leakage") ? "no evaluation sets" : "stage leakage did not run"));
         continue;
       }
       // All contaminated records dropped -> nothing leaks into the output.
-      const Json* flagged = Find(summary, {"stages", "leakage", "flagged"});
-      bool all_dropped = flagged && flagged->is_number() && flagged->get<double>() == 0;
-      for (auto it = by_set->begin(); it != by_set->end(); ++it) {
-        double rate = 0;
-        for (auto d = it.value().begin(); d != it.value().end(); ++d) rate = std::max(rate, Num(Find(d.value(), {"rate"})));
+      for (const auto& set : f.leakage_by_set) {
         Json t = thr;
         if (thr.is_object()) {
-          if (thr.contains(it.key())) t = thr[it.key()];
+          if (thr.contains(set.name)) t = thr[set.name];
           else if (thr.contains("*")) t = thr["*"];
           else continue;
         }
-        checks.push_back(Verdict(key, it.key(), spec.what, all_dropped ? 0.0 : rate, t, spec.at_most, ""));
+        checks.push_back(Verdict(key, set.name, spec.what, f.leakage_none_flagged ? 0.0 : set.rate, t, spec.at_most, ""));
       }
     } else if (key == "max_personal_data_findings") {
-      checks.push_back(Verdict(key, "", spec.what, static_cast<double>(extras.remaining_personal_data), thr,
-                               spec.at_most,
-                               !StageRan(summary, "screen")           ? "stage screen did not run"
-                               : extras.remaining_personal_data < 0 ? "findings file not readable"
-                                                                    : ""));
+      const long long left = f.personal_data_left ? *f.personal_data_left : -1;
+      checks.push_back(Verdict(key, "", spec.what, static_cast<double>(left), thr, spec.at_most,
+                               !ran("screen")           ? "stage screen did not run"
+                               : !f.personal_data_left ? "the screen gave no count"
+                                                        : ""));
     } else if (key == "min_position_p_adjusted") {
-      const Json* pos = Find(summary, {"stages", "bias", "position"});
-      if (!pos) {
+      if (!f.position_ran) {
         checks.push_back(Verdict(key, "", spec.what, 0, thr, spec.at_most, "stage bias did not run"));
         continue;
       }
-      double minp = std::numeric_limits<double>::infinity();
-      std::string scope = "chosen-slot tests by number of candidates";
-      const Json* after = Find(*pos, {"rebalance", "after"});
-      const Json* en = Find(*pos, {"rebalance", "enabled"});
-      if (en && en->is_boolean() && en->get<bool>() && after && after->is_array() && !after->empty()) {
-        scope = "after position rebalancing (unadjusted p)";
-        for (const auto& t : *after) {
-          double p = Num(Find(t, {"p"}));
-          if (p == p) minp = std::min(minp, p);
-        }
-      } else if (const Json* tests = Find(*pos, {"by_candidates"}); tests && tests->is_array()) {
-        for (const auto& t : *tests) {
-          double p = Num(Find(t, {"p_adjusted"}));
-          if (p == p) minp = std::min(minp, p);
-        }
-      }
-      checks.push_back(Verdict(key, scope, spec.what, std::isinf(minp) ? std::nan("") : minp, thr, spec.at_most,
-                               std::isinf(minp) ? "no position test had data" : ""));
+      checks.push_back(Verdict(key, f.position_scope, spec.what, value(f.min_position_p), thr, spec.at_most,
+                               f.min_position_p ? "" : "no position test had data"));
     } else if (key == "max_shortcut_accuracy") {
-      const Json* acc = Find(summary, {"stages", "bias", "shortcut_audit", "heldout_accuracy"});
-      checks.push_back(Verdict(key, "", spec.what, Num(acc), thr, spec.at_most,
-                               !StageRan(summary, "bias")    ? "stage bias did not run"
-                               : !acc || !acc->is_number() ? "the audit did not run (too few comparisons?)"
-                                                           : ""));
+      checks.push_back(Verdict(key, "", spec.what, value(f.shortcut_accuracy), thr, spec.at_most,
+                               !ran("bias")             ? "stage bias did not run"
+                               : !f.shortcut_accuracy ? "the audit did not run (too few comparisons?)"
+                                                      : ""));
     } else if (key == "min_annotator_alpha" || key == "max_flagged_annotator_share") {
       const bool alpha = key == "min_annotator_alpha";
-      const Json* v = alpha ? Find(summary, {"stages", "annotators", "agreement", "alpha"})
-                            : Find(summary, {"stages", "annotators", "annotators", "flagged_judgment_share"});
-      checks.push_back(Verdict(key, "", spec.what, Num(v), thr, spec.at_most,
-                               !StageRan(summary, "annotators") ? "stage annotators did not run"
-                               : !v || !v->is_number()          ? "no comparison was judged by two or more annotators"
-                                                                : ""));
+      const std::optional<double>& v = alpha ? f.annotator_alpha : f.flagged_annotator_share;
+      checks.push_back(Verdict(key, "", spec.what, value(v), thr, spec.at_most,
+                               !ran("annotators") ? "stage annotators did not run"
+                               : !v               ? "no comparison was judged by two or more annotators"
+                                                  : ""));
     } else if (key == "max_shortcut_lift") {
       // Judged against chance (docs/bias.md): the lift counts only when the
       // audit's own test found it significant; otherwise the value is 0.
-      const Json* lift = Find(summary, {"stages", "bias", "shortcut_audit", "lift"});
-      const Json* flagged = Find(summary, {"stages", "bias", "shortcut_audit", "flagged"});
-      double v = Num(lift);
-      if (v == v && flagged && flagged->is_boolean() && !flagged->get<bool>()) v = std::min(v, 0.0);
+      double v = value(f.shortcut_lift);
+      if (v == v && !f.shortcut_flagged) v = std::min(v, 0.0);
       checks.push_back(Verdict(key, "", spec.what, v, thr, spec.at_most,
-                               !StageRan(summary, "bias")      ? "stage bias did not run"
-                               : !lift || !lift->is_number() ? "the audit did not run (too few comparisons?)"
-                                                             : ""));
+                               !ran("bias")         ? "stage bias did not run"
+                               : !f.shortcut_lift ? "the audit did not run (too few comparisons?)"
+                                                  : ""));
     } else if (key == "require_split_checks") {
       if (!thr.get<bool>()) continue;
-      const Json* passed = Find(summary, {"stages", "split", "checks", "passed"});
-      checks.push_back(Verdict(key, "", spec.what, passed && passed->is_boolean() ? (passed->get<bool>() ? 1.0 : 0.0) : 0,
-                               thr, spec.at_most, passed ? "" : "stage split did not run"));
+      const auto& passed = f.split_checks_passed;
+      checks.push_back(Verdict(key, "", spec.what, passed ? (*passed ? 1.0 : 0.0) : 0, thr, spec.at_most,
+                               passed ? "" : "stage split did not run"));
     }
   }
   Json skipped = Json::array();

@@ -1,5 +1,6 @@
 // The gate: pass/fail thresholds from the plan's "gate" object, evaluated on
-// summary.json after every stage has decided (docs/gate.md).
+// the typed figures of the run (core/gate_figures.h) after every stage has
+// decided and before pass 2 writes anything (docs/gate.md).
 //
 // Each check gives a value, its threshold and a verdict: "pass", "fail" or
 // "not evaluated" (its stage did not run or gave no figure; not a pass).
@@ -16,6 +17,8 @@
 #include <string>
 #include <vector>
 
+#include "core/gate_figures.h"
+#include "core/plan.h"
 #include "core/status.h"
 
 namespace prefsift {
@@ -23,15 +26,14 @@ namespace prefsift {
 // Checks the gate object's keys and value types (usage errors name the key).
 Status ValidateGate(const nlohmann::ordered_json& gate);
 
-// Counts the plan cannot read from summary.json alone (read from files).
-struct GateExtras {
-  // Personal-data findings left in kept records with no action applied;
-  // -1 when unknown (the screen stage did not run).
-  long long remaining_personal_data = -1;
-};
-
 // The checks a plan without a "gate" section gets (docs/gate.md, "Default gate").
 const nlohmann::ordered_json& DefaultGate();
+
+// The plan's gate (or the default gate when the plan has none) over the run's
+// figures; *failed is set when it fails the run. `command_stages`: the stages
+// the command runs. REQUIRES: ValidateGate(plan.gate).ok().
+nlohmann::ordered_json DecideGate(const Plan& plan, const GateFigures& figures,
+                                  const std::vector<std::string>& command_stages, bool* failed);
 
 // Evaluates the gate; returns the "gate" section. `*failed` is set when any
 // check fails, or when one was not evaluated and on_incomplete is "fail".
@@ -39,8 +41,8 @@ const nlohmann::ordered_json& DefaultGate();
 // `command_stages`: the stages the command runs (null = all); a check of a
 // stage the command does not run is skipped, not "not evaluated".
 // REQUIRES: ValidateGate(gate).ok().
-nlohmann::ordered_json EvaluateGate(const nlohmann::ordered_json& gate, const nlohmann::ordered_json& summary,
-                                    const GateExtras& extras, bool* failed, bool defaulted = false,
+nlohmann::ordered_json EvaluateGate(const nlohmann::ordered_json& gate, const GateFigures& figures, bool* failed,
+                                    bool defaulted = false,
                                     const std::vector<std::string>* command_stages = nullptr);
 
 }  // namespace prefsift

@@ -6,7 +6,7 @@ namespace prefsift {
 
 using Json = nlohmann::ordered_json;
 
-Json BuildSummary(const Plan& plan, const RunState& st, const std::vector<const Stage*>& stages,
+Json BuildSummary(const Plan& plan, const RunState& st, const std::vector<std::pair<std::string, Json>>& stage_sections,
                   const std::map<std::string, uint64_t>& written) {
   Json s;
   s["tool"] = ToolInfo();
@@ -65,11 +65,7 @@ Json BuildSummary(const Plan& plan, const RunState& st, const std::vector<const 
   if (!plan.plan_digest.empty()) settings["plan_sha256"] = plan.plan_digest;
   s["settings"] = settings;
   Json sections = Json::object();
-  for (const Stage* stage : stages) {
-    Json sec = Json::object();
-    stage->Report(st, &sec);
-    sections[stage->name()] = sec;
-  }
+  for (const auto& [name, sec] : stage_sections) sections[name] = sec;
   s["stages"] = sections;
   return s;
 }

@@ -16,9 +16,11 @@
 #include <memory>
 #include <string>
 
+#include "core/gate_figures.h"
 #include "core/record.h"
 #include "core/status.h"
 #include "core/run_state.h"
+#include "stages/stage_context.h"
 
 namespace prefsift {
 
@@ -37,7 +39,12 @@ class Stage {
   // `text` holds the record's normalised texts (facts.h), valid during the call only.
   virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/,
                        const MatchText& /*text*/) {}
-  virtual Status Decide(RunState& state) = 0;
+  // Decides over the facts of every record (rejects, groups, splits), publishes
+  // its typed results (stages/stage_results.h) and fills its gate figures.
+  virtual Status Decide(StageContext& ctx) = 0;
+  // The stage's figures for the gate (core/gate_figures.h), after every stage
+  // has decided and before pass 2: typed values, never read back from JSON.
+  virtual void Figures(const RunState& /*state*/, GateFigures* /*figures*/) const {}
   virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
   virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }
   virtual bool Rewrites(size_t /*record*/) const { return false; }
@@ -52,7 +59,7 @@ class Stage {
 // stage (summary section under its name). Not in the registry.
 class RunCompanion : public Stage {
  public:
-  virtual Status Between(const std::string& next_stage, RunState& state) = 0;
+  virtual Status Between(const std::string& next_stage, StageContext& ctx) = 0;
 };
 
 struct StageInfo {

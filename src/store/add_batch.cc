@@ -162,8 +162,9 @@ class StoreCompanion : public RunCompanion {
   }
   std::string name() const override { return "store"; }
 
-  Status Between(const std::string& next, RunState& st) override {
-    st.near_share = true;
+  Status Between(const std::string& next, StageContext& ctx) override {
+    RunState& st = ctx.run;
+    Capture(ctx);
     if (!exact_done_ && After(next, "exact")) {
       exact_done_ = true;
       if (Status s = ExactCheck(st); !s.ok()) return s;
@@ -179,7 +180,9 @@ class StoreCompanion : public RunCompanion {
     return Status::Ok();
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
+    Capture(ctx);
     if (!exact_done_) {
       exact_done_ = true;
       if (Status s = ExactCheck(st); !s.ok()) return s;
@@ -229,6 +232,12 @@ class StoreCompanion : public RunCompanion {
   }
 
  private:
+  // The near stage's typed results, once it has decided (null before, or when it does not run).
+  void Capture(const StageContext& ctx) {
+    near_ = ctx.results.Find<NearClusters>();
+    sig_ = ctx.results.Find<NearSignatures>();
+  }
+
   bool After(const std::string& next, const std::string& stage) const {
     if (next.empty()) return true;
     auto a = std::find(order_.begin(), order_.end(), next), b = std::find(order_.begin(), order_.end(), stage);
@@ -286,11 +295,11 @@ class StoreCompanion : public RunCompanion {
     const size_t n = st.records.size();
     for (size_t i = 0; i < n; ++i) cluster_[i] = Seq(i);
     comp_of_.assign(n, -1);
-    if (st.near_slots == 0) return Status::Ok();  // the near stage did not run
-    if (st.near_threshold < 0) return Status::Usage("store: stages.near.verify \"exact\" is not supported with a store");
-    const uint32_t K = st.near_slots;
-    banding_ = sketch::Banding{st.near_bands, st.near_rows};
-    Json nb{{"slots", K}, {"bands", banding_.bands}, {"rows", banding_.rows}, {"threshold", st.near_threshold}};
+    if (!sig_) return Status::Ok();  // the near stage did not run
+    if (sig_->threshold < 0) return Status::Usage("store: stages.near.verify \"exact\" is not supported with a store");
+    const uint32_t K = sig_->slots;
+    banding_ = sketch::Banding{sig_->bands, sig_->rows};
+    Json nb{{"slots", K}, {"bands", banding_.bands}, {"rows", banding_.rows}, {"threshold", sig_->threshold}};
     auto stored_nb = db_->Meta("near_banding");
     if (!stored_nb.ok()) return stored_nb.status();
     if (!stored_nb.value().empty() && stored_nb.value() != nb.dump()) {
@@ -298,7 +307,7 @@ class StoreCompanion : public RunCompanion {
                            stored_nb.value() + "; a store keeps one configuration");
     }
     near_banding_json_ = nb.dump();
-    const float threshold = static_cast<float>(st.near_threshold);
+    const float threshold = static_cast<float>(sig_->threshold);
     const uint64_t seed = sketch::ClusterOptions{}.band_seed;
     auto qb = db_->Prepare("SELECT seq FROM bands WHERE bkey = ?");
     auto qs = db_->Prepare("SELECT s.sig, r.cluster FROM signatures s JOIN records r ON r.seq = s.seq WHERE s.seq = ?");
@@ -309,7 +318,7 @@ class StoreCompanion : public RunCompanion {
     band_keys_.assign(n * banding_.bands, 0);
     for (size_t i = 0; i < n; ++i) {
       if (!stored_ok_[i]) continue;  // every record the near stage clustered (kept after exact)
-      std::span<const uint8_t> sig(st.near_signatures.data() + i * K, K);
+      std::span<const uint8_t> sig(sig_->bytes.data() + i * K, K);
       std::span<uint64_t> keys(band_keys_.data() + i * banding_.bands, banding_.bands);
       sketch::BandKeys(sig, banding_, seed, keys);
       std::set<int64_t> cands;
@@ -347,8 +356,8 @@ class StoreCompanion : public RunCompanion {
     }
     sketch::UnionFind uf(next);
     for (size_t i = 0; i < n; ++i) {
-      if (stored_ok_[i] && st.near_cluster.size() == n && st.near_cluster[i] >= 0) {
-        uf.Union(static_cast<uint32_t>(i), static_cast<uint32_t>(st.near_cluster[i]));
+      if (stored_ok_[i] && near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) {
+        uf.Union(static_cast<uint32_t>(i), static_cast<uint32_t>(near_->cluster[i]));
       }
     }
     std::set<uint32_t> matched;
@@ -370,7 +379,7 @@ class StoreCompanion : public RunCompanion {
       if (!stored_ok_[i]) continue;
       auto it = comp_index.find(uf.Find(static_cast<uint32_t>(i)));
       if (it == comp_index.end()) {
-        if (st.near_cluster.size() == n && st.near_cluster[i] >= 0) cluster_[i] = Seq(static_cast<size_t>(st.near_cluster[i]));
+        if (near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) cluster_[i] = Seq(static_cast<size_t>(near_->cluster[i]));
         continue;
       }
       comp_of_[i] = it->second;
@@ -491,8 +500,8 @@ class StoreCompanion : public RunCompanion {
         if (Status s = lookup(i, kTiePrompt, Blob(f.prompt_hash)); !s.ok()) return s;
       }
       if (view_.tie[kTieNear]) {
-        if (st.near_cluster.size() == n && st.near_cluster[i] >= 0) {
-          auto [it, fresh] = by_near.try_emplace(st.near_cluster[i], i);
+        if (near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) {
+          auto [it, fresh] = by_near.try_emplace(near_->cluster[i], i);
           if (!fresh) uf0.Union(it->second, i);
         }
         if (comp_of_.size() == n && comp_of_[i] >= 0) {
@@ -705,8 +714,8 @@ class StoreCompanion : public RunCompanion {
     for (auto* p : {&ir, &is, &ib, &it}) {
       if (!p->ok()) return p->status();
     }
-    const bool near_ran = st.near_slots > 0;
-    const uint32_t K = st.near_slots;
+    const bool near_ran = sig_ != nullptr;
+    const uint32_t K = sig_->slots;
     size_t half = 0;
     std::vector<std::pair<int64_t, int64_t>> bands;  // (band key, seq)
     for (size_t i = 0; i < n; ++i) {
@@ -730,7 +739,7 @@ class StoreCompanion : public RunCompanion {
       }
       ++stored_;
       if (near_ran) {
-        is.value()->Bind(1, Seq(i)).BindBlob(2, st.near_signatures.data() + i * K, K);
+        is.value()->Bind(1, Seq(i)).BindBlob(2, sig_->bytes.data() + i * K, K);
         if (Status s = is.value()->Run(); !s.ok()) return s;
         for (uint32_t b = 0; b < banding_.bands; ++b) bands.emplace_back(BandRow(band_keys_[i * banding_.bands + b]), Seq(i));
       }
@@ -786,6 +795,8 @@ class StoreCompanion : public RunCompanion {
   }
 
  private:
+  const NearClusters* near_ = nullptr;      // the near stage's typed results (Capture)
+  const NearSignatures* sig_ = nullptr;
   StoreDb* db_;
   const Plan& plan_;
   SplitView view_;
@@ -947,6 +958,7 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   popts.progress = options.progress;
   popts.table = options.table;
   popts.companion = &companion;
+  popts.want_signatures = true;  // the store keeps the near stage's signatures
   popts.also_reads.push_back({path, "store"});
   // The batch row goes in from the companion's facts after the run; the
   // output folder is committed inside RunPipeline, the store right after.

@@ -52,13 +52,11 @@ bool FromHex(const std::string& s, std::vector<uint8_t>* out) {
 class SignatureWriter : public RunCompanion {
  public:
   std::string name() const override { return "shard"; }
-  Status Between(const std::string&, RunState& st) override {
-    st.near_share = true;
-    return Status::Ok();
-  }
-  Status Decide(RunState& st) override {
-    if (st.near_slots == 0) return Status::Usage("shard-sign: the near stage is disabled in the plan");
-    if (st.near_threshold < 0) return Status::Usage("shard-sign: stages.near.verify \"exact\" is not supported");
+  Status Between(const std::string&, StageContext&) override { return Status::Ok(); }
+  Status Decide(StageContext& ctx) override {
+    sig_ = ctx.results.Find<NearSignatures>();  // published because the caller asked (want_signatures)
+    if (!sig_) return Status::Usage("shard-sign: the near stage is disabled in the plan");
+    if (sig_->threshold < 0) return Status::Usage("shard-sign: stages.near.verify \"exact\" is not supported");
     return Status::Ok();
   }
   void Report(const RunState&, Json* s) const override {
@@ -68,14 +66,14 @@ class SignatureWriter : public RunCompanion {
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
     auto f = out.Create("signatures.jsonl");
     if (!f.ok()) return f.status();
-    const uint32_t K = st.near_slots;
-    sketch::Banding banding{st.near_bands, st.near_rows};
+    const uint32_t K = sig_->slots;
+    sketch::Banding banding{sig_->bands, sig_->rows};
     Json head{{"prefsift_signatures", 1}, {"slots", K}, {"bands", banding.bands}, {"rows", banding.rows},
-              {"threshold", st.near_threshold}, {"band_seed", Hex64(sketch::ClusterOptions{}.band_seed)}};
+              {"threshold", sig_->threshold}, {"band_seed", Hex64(sketch::ClusterOptions{}.band_seed)}};
     Status s = f.value()->Append(head.dump() + "\n");
     std::vector<uint64_t> keys(banding.bands);
     for (size_t i = 0; i < st.records.size() && s.ok(); ++i) {
-      std::span<const uint8_t> sig(st.near_signatures.data() + i * K, K);
+      std::span<const uint8_t> sig(sig_->bytes.data() + i * K, K);
       sketch::BandKeys(sig, banding, sketch::ClusterOptions{}.band_seed, keys);
       Json bands = Json::array();
       for (uint64_t k : keys) bands.push_back(Hex64(k));
@@ -91,6 +89,7 @@ class SignatureWriter : public RunCompanion {
 
  private:
   mutable uint64_t signed_ = 0;
+  const NearSignatures* sig_ = nullptr;  // the near stage's, published on request
 };
 
 }  // namespace
@@ -101,6 +100,7 @@ Status ShardSign(const Plan& plan, FileSystem* fs, std::FILE* log, bool table) {
   o.stages = {"near"};
   o.table = table;
   o.companion = &writer;
+  o.want_signatures = true;
   auto r = RunPipeline(plan, o, fs, log);
   return r.ok() ? Status::Ok() : r.status();
 }

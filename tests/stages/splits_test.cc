@@ -247,27 +247,33 @@ TEST(Splits, DominantScript) {
 
 // ----- the gate -----
 
-Json SummaryWith(bool with_bias) {
-  Json s;
-  s["ledger"] = Json{{"records_in", 100}, {"kept", 80}, {"rejected", 20}};
-  s["inputs"] = Json::array({Json{{"parsed", 100}}});
-  s["stages"]["exact"] = Json{{"label_conflicts", {{"comparisons", 2}, {"records", 5}}}};
+// The run's typed figures (core/gate_figures.h): 100 records in, 80 kept,
+// 5 in label conflicts; with_bias adds two position tests and the audit.
+GateFigures FiguresWith(bool with_bias) {
+  GateFigures f;
+  f.records_in = 100;
+  f.kept = 80;
+  f.parsed = 100;
+  f.stages_ran = {"exact"};
+  f.label_conflict_records = 5;
   if (with_bias) {
-    s["stages"]["bias"]["position"]["by_candidates"] =
-        Json::array({Json{{"p_adjusted", 0.2}}, Json{{"p_adjusted", 0.004}}});
-    s["stages"]["bias"]["shortcut_audit"]["heldout_accuracy"] = 0.55;
+    f.stages_ran.insert("bias");
+    f.position_ran = true;
+    f.position_scope = "chosen-slot tests by number of candidates";
+    f.min_position_p = 0.004;  // the smaller of 0.2 and 0.004
+    f.shortcut_accuracy = 0.55;
   }
-  return s;
+  return f;
 }
 
 TEST(Gate, Verdicts) {
   bool failed = false;
   // All pass.
-  Json g = EvaluateGate(Json{{"min_kept_share", 0.8}, {"max_label_conflict_rate", 0.05}}, SummaryWith(false), {}, &failed);
+  Json g = EvaluateGate(Json{{"min_kept_share", 0.8}, {"max_label_conflict_rate", 0.05}}, FiguresWith(false), &failed);
   EXPECT_FALSE(failed);
   EXPECT_EQ(g["verdict"], "pass");  // 0.8 >= 0.8 and 0.05 <= 0.05: thresholds are inclusive
   // Position: the smallest adjusted p (0.004) against 0.01 fails.
-  g = EvaluateGate(Json{{"min_position_p_adjusted", 0.01}, {"max_shortcut_accuracy", 0.6}}, SummaryWith(true), {}, &failed);
+  g = EvaluateGate(Json{{"min_position_p_adjusted", 0.01}, {"max_shortcut_accuracy", 0.6}}, FiguresWith(true), &failed);
   EXPECT_TRUE(failed);
   EXPECT_EQ(g["checks"][0]["value"], 0.004);
   EXPECT_EQ(g["checks"][0]["verdict"], "fail");
@@ -276,7 +282,7 @@ TEST(Gate, Verdicts) {
   // fails the run unless the plan says on_incomplete: pass.
   Json four{{"max_shortcut_accuracy", 0.6}, {"max_leakage_rate", 0.01}, {"max_personal_data_findings", 0},
             {"require_split_checks", true}};
-  g = EvaluateGate(four, SummaryWith(false), {}, &failed);
+  g = EvaluateGate(four, FiguresWith(false), &failed);
   EXPECT_TRUE(failed);
   EXPECT_EQ(g["verdict"], "incomplete");
   EXPECT_EQ(g["fails_the_run"], true);
@@ -284,36 +290,35 @@ TEST(Gate, Verdicts) {
   for (const auto& c : g["checks"]) EXPECT_EQ(c["verdict"], "not evaluated") << c.dump();
   four["on_incomplete"] = "pass";
   ASSERT_TRUE(ValidateGate(four).ok());
-  g = EvaluateGate(four, SummaryWith(false), {}, &failed);
+  g = EvaluateGate(four, FiguresWith(false), &failed);
   EXPECT_FALSE(failed);
   EXPECT_EQ(g["verdict"], "incomplete");
   EXPECT_FALSE(ValidateGate(Json{{"on_incomplete", "maybe"}}).ok());
   // The default gate skips what did not run instead of failing on it.
-  g = EvaluateGate(DefaultGate(), SummaryWith(false), {}, &failed, /*defaulted=*/true);
+  g = EvaluateGate(DefaultGate(), FiguresWith(false), &failed, /*defaulted=*/true);
   EXPECT_FALSE(failed) << g.dump();
   EXPECT_EQ(g["default_gate"], true);
   EXPECT_EQ(g["skipped"].size(), 3u) << g.dump();
-  // Remaining personal data from the findings file.
-  Json s = SummaryWith(false);
-  s["stages"]["screen"] = Json::object();
-  GateExtras ex;
-  ex.remaining_personal_data = 2;
-  g = EvaluateGate(Json{{"max_personal_data_findings", 1}}, s, ex, &failed);
+  // Personal-data findings left in kept records (the screen stage's figure).
+  GateFigures s = FiguresWith(false);
+  s.stages_ran.insert("screen");
+  s.personal_data_left = 2;
+  g = EvaluateGate(Json{{"max_personal_data_findings", 1}}, s, &failed);
   EXPECT_TRUE(failed);
   EXPECT_EQ(g["checks"][0]["value"], 2);
   // An empty gate.
-  g = EvaluateGate(Json::object(), s, ex, &failed);
+  g = EvaluateGate(Json::object(), s, &failed);
   EXPECT_FALSE(failed);
   EXPECT_EQ(g["verdict"], "no checks");
 }
 
 TEST(Gate, LeakagePerSetWithDefault) {
-  Json s = SummaryWith(false);
-  s["stages"]["leakage"] = Json{{"flagged", 3},
-                                {"by_set", {{"a", {{"exact", {{"rate", 0.01}}}, {"ngram", {{"rate", 0.03}}}}},
-                                            {"b", {{"exact", {{"rate", 0.0}}}}}}}};
+  GateFigures s = FiguresWith(false);
+  s.stages_ran.insert("leakage");
+  s.leakage_by_set = {{"a", 0.03}, {"b", 0.0}};  // a: the larger of its detectors' rates (0.01, 0.03)
+  s.leakage_none_flagged = false;
   bool failed = false;
-  Json g = EvaluateGate(Json{{"max_leakage_rate", {{"a", 0.02}, {"*", 0.0}}}}, s, {}, &failed);
+  Json g = EvaluateGate(Json{{"max_leakage_rate", {{"a", 0.02}, {"*", 0.0}}}}, s, &failed);
   EXPECT_TRUE(failed);
   ASSERT_EQ(g["checks"].size(), 2u);
   EXPECT_EQ(g["checks"][0]["scope"], "a");
@@ -321,8 +326,8 @@ TEST(Gate, LeakagePerSetWithDefault) {
   EXPECT_EQ(g["checks"][0]["verdict"], "fail");
   EXPECT_EQ(g["checks"][1]["verdict"], "pass");
   // Everything found was dropped: nothing leaks into the output.
-  s["stages"]["leakage"]["flagged"] = 0;
-  g = EvaluateGate(Json{{"max_leakage_rate", 0.0}}, s, {}, &failed);
+  s.leakage_none_flagged = true;
+  g = EvaluateGate(Json{{"max_leakage_rate", 0.0}}, s, &failed);
   EXPECT_FALSE(failed);
 }
 
@@ -409,13 +414,16 @@ using Json = nlohmann::ordered_json;
 // flagged it (docs/gate.md); an unflagged lift is 0.
 TEST(Gate, ShortcutLiftAgainstChance) {
   bool failed = false;
-  Json s{{"ledger", {{"records_in", 10}, {"kept", 10}}},
-         {"stages", {{"bias", {{"shortcut_audit", {{"lift", 0.08}, {"flagged", true}}}}}}}};
-  Json g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, {}, &failed);
+  GateFigures s;
+  s.records_in = s.kept = 10;
+  s.stages_ran = {"bias"};
+  s.shortcut_lift = 0.08;
+  s.shortcut_flagged = true;
+  Json g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, &failed);
   EXPECT_TRUE(failed);
   EXPECT_EQ(g["checks"][0]["value"], 0.08);
-  s["stages"]["bias"]["shortcut_audit"]["flagged"] = false;
-  g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, {}, &failed);
+  s.shortcut_flagged = false;
+  g = EvaluateGate(Json{{"max_shortcut_lift", 0.05}}, s, &failed);
   EXPECT_FALSE(failed);
   EXPECT_EQ(g["checks"][0]["value"], 0.0);
 }

@@ -112,7 +112,8 @@ class AnnotatorsStage : public Stage {
     times_[r] = t ? *t : -std::numeric_limits<double>::infinity();  // -inf: present but unreadable
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     std::vector<size_t> recs;
     for (size_t r = 0; r < st.records.size(); ++r) {
       if (st.IsKept(r)) recs.push_back(r);
@@ -125,6 +126,13 @@ class AnnotatorsStage : public Stage {
     FindRushed(st, recs);
     ApplyPolicies(st);
     return Status::Ok();
+  }
+
+  void Figures(const RunState&, GateFigures* g) const override {
+    // The same values as summary.json's (rounded as there).
+    if (!std::isnan(overall_.alpha.alpha)) g->annotator_alpha = std::round(overall_.alpha.alpha * 1e6) / 1e6;
+    g->flagged_annotator_share =
+        std::round((records_ ? static_cast<double>(flagged_judgments_) / records_ : 0.0) * 1e6) / 1e6;
   }
 
   void Report(const RunState& st, Json* out) const override {

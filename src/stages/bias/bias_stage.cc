@@ -50,7 +50,8 @@ class BiasStage : public Stage {
     }
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     std::vector<size_t> kept;
     for (size_t r = 0; r < st.records.size(); ++r) {
       if (st.IsKept(r)) kept.push_back(r);
@@ -108,6 +109,29 @@ class BiasStage : public Stage {
     }
     records_out_ = kept.size();
     return Status::Ok();
+  }
+
+  void Figures(const RunState&, GateFigures* g) const override {
+    g->position_ran = true;
+    double minp = std::numeric_limits<double>::infinity();
+    g->position_scope = "chosen-slot tests by number of candidates";
+    if (s_.rebalance_position && !position_after_.overall.empty()) {
+      g->position_scope = "after position rebalancing (unadjusted p)";
+      for (const auto& t : position_after_.overall) {
+        if (t.p == t.p) minp = std::min(minp, t.p);
+      }
+    } else {
+      for (const auto& t : position_before_.overall) {
+        if (t.tested && t.p_adjusted == t.p_adjusted) minp = std::min(minp, t.p_adjusted);
+      }
+    }
+    if (!std::isinf(minp)) g->min_position_p = minp;
+    const AuditResult& a = any_rebalance_ ? audit_after_ : audit_before_;
+    if (a.ran) {
+      g->shortcut_accuracy = a.heldout_accuracy;
+      g->shortcut_lift = a.lift;
+      g->shortcut_flagged = a.flagged;
+    }
   }
 
   void Report(const RunState&, Json* out) const override {

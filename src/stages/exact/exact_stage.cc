@@ -27,7 +27,8 @@ class ExactDupsStage : public Stage {
   explicit ExactDupsStage(ConflictPolicy p) : policy_(p) {}
   std::string name() const override { return "exact"; }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     const size_t n = st.records.size();
     // 1. Degenerate comparisons.
     for (size_t i = 0; i < n; ++i) {
@@ -137,6 +138,8 @@ class ExactDupsStage : public Stage {
     judged_pairs_ = all_pairs;
     return Status::Ok();
   }
+
+  void Figures(const RunState&, GateFigures* g) const override { g->label_conflict_records = conflict_records_; }
 
   void Report(const RunState&, Json* s) const override {
     (*s)["conflict_policy"] = policy_ == ConflictPolicy::kKeepMajority ? "keep-majority"

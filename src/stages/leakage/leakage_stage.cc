@@ -127,7 +127,8 @@ class LeakageStage : public Stage {
     return j;
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     const LeakSettings& s = index_->settings();
     records_ = st.records.size();
     DecideGrams(st.records.size());
@@ -178,6 +179,32 @@ class LeakageStage : public Stage {
     return Status::Ok();
   }
 
+  // Contaminated records with at least one finding of detector d against set si.
+  uint64_t RecordsWith(size_t si, int d) const {
+    uint64_t count = 0;
+    for (size_t r : contaminated_) {
+      for (const auto& f : findings_[r]) {
+        if (static_cast<int>(f.detector) != d || corpus_->items[f.item].set != si) continue;
+        ++count;
+        break;
+      }
+    }
+    return count;
+  }
+
+  void Figures(const RunState&, GateFigures* g) const override {
+    const LeakSettings& s = index_->settings();
+    g->leakage_none_flagged = flagged_ == 0;
+    for (size_t si = 0; si < corpus_->sets.size(); ++si) {
+      double rate = 0;
+      for (int d = 0; d < kLeakDetectors; ++d) {
+        if (!s.enabled[d]) continue;
+        rate = std::max(rate, records_ ? double(RecordsWith(si, d)) / double(records_) : 0.0);
+      }
+      g->leakage_by_set.push_back({corpus_->sets[si].spec.name, rate});
+    }
+  }
+
   void Report(const RunState& st, Json* sec) const override {
     const LeakSettings& s = index_->settings();
     Json sets = Json::array();
@@ -203,16 +230,14 @@ class LeakageStage : public Stage {
       Json per = Json::object();
       for (int d = 0; d < kLeakDetectors; ++d) {
         if (!s.enabled[d]) continue;
-        uint64_t count = 0;
+        const uint64_t count = RecordsWith(si, d);
         Json examples = Json::array();
         for (size_t r : contaminated_) {
+          if (examples.size() >= s.examples) break;
           for (const auto& f : findings_[r]) {
             if (static_cast<int>(f.detector) != d || corpus_->items[f.item].set != si) continue;
-            ++count;
-            if (examples.size() < s.examples) {
-              examples.push_back(Json{{"id", st.records[r].id}, {"eval_item", corpus_->items[f.item].id},
-                                      {"span", f.span}});
-            }
+            examples.push_back(Json{{"id", st.records[r].id}, {"eval_item", corpus_->items[f.item].id},
+                                    {"span", f.span}});
             break;
           }
         }
@@ -269,7 +294,7 @@ class LeakageStage : public Stage {
 class NoEvalSetsStage : public Stage {
  public:
   std::string name() const override { return "leakage"; }
-  Status Decide(RunState&) override { return Status::Ok(); }
+  Status Decide(StageContext&) override { return Status::Ok(); }
   void Report(const RunState&, Json* sec) const override {
     (*sec)["skipped"] = "no evaluation sets: name them under stages.leakage.eval_sets (docs/leakage.md)";
   }

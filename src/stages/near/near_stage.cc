@@ -248,16 +248,19 @@ class NearDupsStage : public Stage {
     }
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     const size_t n = st.records.size();
     records_signed_ = n;
-    st.near_cluster.assign(n, -1);
-    if (st.near_share) {  // store support (src/store, docs/store.md): matching against stored signatures
-      st.near_signatures = signatures_;
-      st.near_slots = s_.slots;
-      st.near_bands = banding_.bands;
-      st.near_rows = banding_.rows;
-      st.near_threshold = s_.exact ? -1.0 : s_.threshold;  // -1: "verify": "exact", which a store refuses
+    cluster_of_.assign(n, -1);
+    if (ctx.results.want_signatures) {  // a store keeps them (src/store, docs/store.md)
+      NearSignatures sig;
+      sig.bytes = signatures_;
+      sig.slots = s_.slots;
+      sig.bands = banding_.bands;
+      sig.rows = banding_.rows;
+      sig.threshold = s_.exact ? -1.0 : s_.threshold;  // -1: "verify": "exact", which a store refuses
+      ctx.results.Publish(std::move(sig));
     }
     std::vector<size_t> kept;  // records still kept after earlier stages, input order
     for (size_t i = 0; i < n; ++i) {
@@ -309,9 +312,10 @@ class NearDupsStage : public Stage {
         if (pos[root] < 0) continue;
         ClusterOut& co = clusters_[static_cast<size_t>(pos[root])];
         co.members.push_back(kept[j]);
-        st.near_cluster[kept[j]] = static_cast<int64_t>(co.id);
+        cluster_of_[kept[j]] = static_cast<int64_t>(co.id);
       }
     }
+    ctx.results.Publish(NearClusters{cluster_of_});
     for (const auto& co : clusters_) {
       records_in_clusters_ += co.members.size();
       largest_ = std::max<uint64_t>(largest_, co.members.size());
@@ -445,7 +449,7 @@ class NearDupsStage : public Stage {
       Json j;
       j["id"] = st.records[i].id;
       j["action"] = d.rejected && d.stage == "near" && d.reason == "near_identical_candidates" ? "rejected" : "flagged";
-      j["cluster"] = st.near_cluster[i] >= 0 ? Json(st.near_cluster[i]) : Json(nullptr);
+      j["cluster"] = cluster_of_[i] >= 0 ? Json(cluster_of_[i]) : Json(nullptr);
       j["pairs"] = std::move(pairs);
       s = g.value()->Append(j.dump() + "\n");
       if (!s.ok()) return s;
@@ -463,6 +467,7 @@ class NearDupsStage : public Stage {
   sketch::Banding banding_;
   // Per record (Observe).
   std::vector<uint8_t> signatures_;                  // K bytes a record
+  std::vector<int64_t> cluster_of_;                   // per record: its cluster id (smallest member), -1 = none
   std::vector<uint8_t> chars_mode_;                  // 1 = code-point shingles
   std::vector<std::vector<uint64_t>> sets_;          // "verify": "exact" only
   std::vector<std::vector<CandidatePair>> cand_pairs_;

@@ -189,7 +189,8 @@ class PersonalDataStage : public Stage {
     if (out.drop) out.rewrite = true;
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     {
       std::lock_guard<std::mutex> lock(error_mu_);
       if (error_record_ != SIZE_MAX) {
@@ -278,6 +279,18 @@ class PersonalDataStage : public Stage {
     Json cautions = Json::array();
     for (const char* c : kCautions) cautions.push_back(c);
     (*s)["cautions"] = std::move(cautions);
+  }
+
+  // Findings left in kept records with no action applied (the gate's figure;
+  // "applied": "none" and "kept": true in the findings file).
+  void Figures(const RunState& st, GateFigures* g) const override {
+    long long left = 0;
+    for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
+      const RecordHits& r = per_record_[i];
+      if (r.hits.empty() || r.drop || st.decisions[st.records[i].entry].rejected) continue;
+      for (const Hit& h : r.hits) left += h.action == Action::kFlag ? 1 : 0;
+    }
+    g->personal_data_left = left;
   }
 
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {

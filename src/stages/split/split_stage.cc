@@ -129,13 +129,15 @@ class SplitStage : public Stage {
     script_[i] = DominantScriptOf(rec.UserPromptText());
   }
 
-  Status Decide(RunState& st) override {
+  Status Decide(StageContext& ctx) override {
+    RunState& st = ctx.run;
     const size_t n = st.records.size();
     std::vector<uint32_t> kept;
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
     }
-    near_available_ = st.near_cluster.size() == n;
+    const NearClusters* near = ctx.results.Find<NearClusters>();
+    near_available_ = near && near->cluster.size() == n;
     sketch::UnionFind uf(static_cast<uint32_t>(n));
     std::vector<uint8_t> tie_bits(n, 0);  // per record: which tie kinds joined it
     auto join = [&](Tie t, uint32_t a, uint32_t b) {
@@ -152,8 +154,8 @@ class SplitStage : public Stage {
         auto [it, fresh] = by_prompt.try_emplace(f.prompt_hash, i);
         if (!fresh) join(kPrompt, it->second, i);
       }
-      if (s_.tie[kNear] && near_available_ && st.near_cluster[i] >= 0) {
-        auto [it, fresh] = by_near.try_emplace(st.near_cluster[i], i);
+      if (s_.tie[kNear] && near_available_ && near->cluster[i] >= 0) {
+        auto [it, fresh] = by_near.try_emplace(near->cluster[i], i);
         if (!fresh) join(kNear, it->second, i);
       }
       const std::string* text[kTieCount] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
@@ -258,6 +260,48 @@ class SplitStage : public Stage {
     return Status::Ok();
   }
 
+  // The split checks' fractions (docs/splits.md): each split's share of records
+  // within 3 sd of its ratio, judged only with 30 or more effective groups.
+  struct Fractions {
+    double total = 0, sum_w2 = 0, n_eff = 0;
+    std::vector<uint64_t> recs, grps;
+    std::vector<double> share, sd;
+    std::vector<uint8_t> within;
+    bool meaningful = false, all_within = true;
+  };
+  Fractions ComputeFractions() const {
+    Fractions f;
+    f.total = static_cast<double>(kept_);
+    for (const Group& g : groups_) f.sum_w2 += static_cast<double>(g.members.size()) * static_cast<double>(g.members.size());
+    f.n_eff = f.sum_w2 > 0 ? f.total * f.total / f.sum_w2 : 0;
+    f.recs.assign(s_.splits.size(), 0);
+    f.grps.assign(s_.splits.size(), 0);
+    for (const Group& g : groups_) {
+      f.recs[g.split] += g.members.size();
+      ++f.grps[g.split];
+    }
+    f.meaningful = !s_.stratify_source && f.n_eff >= 30;
+    for (size_t k = 0; k < s_.splits.size(); ++k) {
+      double p = s_.splits[k].second;
+      double share = f.total > 0 ? static_cast<double>(f.recs[k]) / f.total : 0;
+      double sd = f.total > 0 ? std::sqrt(p * (1 - p) * f.sum_w2) / f.total : 0;
+      bool within = std::fabs(share - p) <= 3 * sd + 1e-12;
+      if (f.meaningful) f.all_within = f.all_within && within;
+      f.share.push_back(share);
+      f.sd.push_back(sd);
+      f.within.push_back(within);
+    }
+    return f;
+  }
+  bool ChecksPassed(bool meaningful, bool all_within) const {
+    return spanning_ == 0 && (!s_.tie[kPrompt] || prompts_apart_ == 0) && (!meaningful || all_within);
+  }
+
+  void Figures(const RunState&, GateFigures* g) const override {
+    const Fractions f = ComputeFractions();
+    g->split_checks_passed = ChecksPassed(f.meaningful, f.all_within);
+  }
+
   void Report(const RunState& st, Json* out) const override {
     Json& j = *out;
     Json tie = Json::array();
@@ -271,27 +315,17 @@ class SplitStage : public Stage {
                                          : "hash of the group key against the cumulative ratios";
     j["stratify_by"] = s_.stratify_source ? "source" : "none";
     // Fractions and their tolerance.
-    const double total = static_cast<double>(kept_);
-    double sum_w2 = 0;
-    for (const Group& g : groups_) sum_w2 += static_cast<double>(g.members.size()) * static_cast<double>(g.members.size());
-    const double n_eff = sum_w2 > 0 ? total * total / sum_w2 : 0;
-    std::vector<uint64_t> recs(s_.splits.size(), 0), grps(s_.splits.size(), 0);
-    for (const Group& g : groups_) {
-      recs[g.split] += g.members.size();
-      ++grps[g.split];
-    }
-    bool all_within = true;
-    const bool meaningful = !s_.stratify_source && n_eff >= 30;
+    const Fractions f = ComputeFractions();
+    const double total = f.total;
+    const double n_eff = f.n_eff;
+    const bool all_within = f.all_within;
+    const bool meaningful = f.meaningful;
     Json splits = Json::array();
     for (size_t k = 0; k < s_.splits.size(); ++k) {
       double p = s_.splits[k].second;
-      double share = total > 0 ? static_cast<double>(recs[k]) / total : 0;
-      double sd = total > 0 ? std::sqrt(p * (1 - p) * sum_w2) / total : 0;
-      bool within = std::fabs(share - p) <= 3 * sd + 1e-12;
-      if (meaningful) all_within = all_within && within;
-      Json e{{"name", s_.splits[k].first}, {"ratio", p},          {"groups", grps[k]},
-             {"records", recs[k]},          {"share", Round6(share)}, {"sd", Round6(sd)}};
-      if (meaningful) e["within_3_sd"] = within;
+      Json e{{"name", s_.splits[k].first}, {"ratio", p},          {"groups", f.grps[k]},
+             {"records", f.recs[k]},        {"share", Round6(f.share[k])}, {"sd", Round6(f.sd[k])}};
+      if (meaningful) e["within_3_sd"] = f.within[k] != 0;
       splits.push_back(std::move(e));
     }
     j["splits"] = std::move(splits);
@@ -359,7 +393,7 @@ class SplitStage : public Stage {
             ? "each split's share of records within 3 sd of its ratio; sd = sqrt(p(1-p) * sum of squared group "
               "sizes) / records (groups assigned independently with probability p)"
             : "not evaluated: fewer than 30 effective groups";
-    checks["passed"] = spanning_ == 0 && (!s_.tie[kPrompt] || prompts_apart_ == 0) && (!meaningful || all_within);
+    checks["passed"] = ChecksPassed(meaningful, all_within);
     j["checks"] = std::move(checks);
     if (!s_.previous.empty()) j["previous"] = previous_;
     j["assignments_file"] = kAssignmentsFile;
