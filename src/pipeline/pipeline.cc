@@ -16,7 +16,7 @@
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
-#include "report/finish.h"
+#include "pipeline/finish.h"
 #include "report/gate.h"
 #include "report/summary.h"
 #include "stages/facts.h"

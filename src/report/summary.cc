@@ -1,6 +1,6 @@
 #include "report/summary.h"
 
-#include "report/finish.h"
+#include "report/tool_info.h"
 
 namespace prefsift {
 

@@ -9,7 +9,7 @@
 #include "core/sha256.h"
 #include "io/output_dir.h"
 #include "report/datasheet.h"
-#include "report/finish.h"
+#include "report/tool_info.h"
 #include "report/html_report.h"
 #include "stages/stage.h"
 #include "store/history.h"

@@ -1,4 +1,5 @@
-// The end of a run, after summary.json is built: the gate, provenance
+// The end of a run, after summary.json is built (the file work of it; the
+// report library renders and never touches a file): the gate, provenance
 // (SHA-256 of every input and output file, tool version, plan digest, seed,
 // time), then the datasheet (datasheet.md, datasheet.json) and the HTML report
 // (report.html). docs/gate.md, docs/datasheet.md, docs/report.md.
@@ -17,18 +18,12 @@
 #include "core/status.h"
 #include "io/file_system.h"
 #include "io/output_dir.h"
+#include "report/tool_info.h"
 
 namespace prefsift {
 
 // Usage errors for the plan's "gate" and "provenance" objects, before any work.
 Status ValidateFinishPlan(const Plan& plan);
-
-// When a run started (wall clock, seconds since 1970) and how long it has
-// taken so far; negative when unknown (then "now" is the start).
-struct RunClock {
-  int64_t start_unix_seconds = -1;
-  double seconds = -1;
-};
 
 // Adds "gate" (decided before pass 2: DecideGate in report/gate.h),
 // "examples" (one reject per stage and reason, one finding per personal-data
@@ -37,14 +32,6 @@ struct RunClock {
 // summary.json is written and closed.
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
                      const nlohmann::ordered_json& gate, const RunClock& clock = RunClock());
-
-// The provenance time, {"utc", "source"[, "duration_seconds"]}: with
-// SOURCE_DATE_EPOCH set, that time and no duration (the reproducible mode);
-// otherwise the clock's start (or now) and its duration when known.
-nlohmann::ordered_json ProvenanceTime(const RunClock& clock = RunClock());
-
-// This build of prefsift: {"name", "version", "revision"}.
-nlohmann::ordered_json ToolInfo();
 
 // Writes datasheet.md, datasheet.json and report.html from the finished
 // summary (hashing summary.json, which must be written and closed).

@@ -1,5 +1,5 @@
 // The end of a run; see finish.h.
-#include "report/finish.h"
+#include "pipeline/finish.h"
 
 #include <nlohmann/json.hpp>
 
@@ -14,10 +14,10 @@
 
 #include "core/sha256.h"
 #include "core/thread_pool.h"
-#include "prefsift_version.h"
 #include "report/datasheet.h"
 #include "report/gate.h"
 #include "report/html_report.h"
+#include "report/tool_info.h"
 #include "report/json_find.h"
 
 namespace prefsift {
@@ -71,34 +71,6 @@ std::vector<std::string> OutputFiles(const OutputDir& out) {
   }
   std::sort(names.begin(), names.end());
   return names;
-}
-
-std::string Utc(std::time_t t) {
-  std::tm tm{};
-  gmtime_r(&t, &tm);
-  char buf[32];
-  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
-  return buf;
-}
-
-Json RunTime(const RunClock& clock) {
-  const char* sde = std::getenv("SOURCE_DATE_EPOCH");
-  if (sde && *sde) {
-    char* end = nullptr;
-    long long v = std::strtoll(sde, &end, 10);
-    if (end && *end == '\0' && v >= 0) {
-      // The reproducible mode: a fixed time and no duration, so the same
-      // inputs, plan and seed give byte-identical outputs.
-      return Json{{"utc", Utc(static_cast<std::time_t>(v))},
-                  {"source", "SOURCE_DATE_EPOCH (reproducible mode: no duration recorded)"}};
-    }
-  }
-  std::time_t start = clock.start_unix_seconds >= 0 ? static_cast<std::time_t>(clock.start_unix_seconds)
-                                                    : std::time(nullptr);
-  Json t{{"utc", Utc(start)},
-         {"source", "wall clock; set SOURCE_DATE_EPOCH for byte-identical reruns"}};
-  if (clock.seconds >= 0) t["duration_seconds"] = std::round(clock.seconds * 1000) / 1000;
-  return t;
 }
 
 // Calls fn(line) for every line of a file; false when it cannot be read.
@@ -203,10 +175,6 @@ Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summa
 
 }  // namespace
 
-Json ProvenanceTime(const RunClock& clock) { return RunTime(clock); }
-
-Json ToolInfo() { return Json{{"name", "prefsift"}, {"version", PREFSIFT_VERSION}, {"revision", PREFSIFT_REVISION}}; }
-
 Status ValidateFinishPlan(const Plan& plan) {
   Status s = ValidateGate(plan.gate);
   if (!s.ok()) return s;
@@ -227,7 +195,7 @@ Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Jso
   p["tool"] = ToolInfo();
   p["plan_sha256"] = plan.plan_digest.empty() ? Json("no plan file (command line only)") : Json(plan.plan_digest);
   p["seed"] = plan.seed;
-  p["time"] = RunTime(clock);
+  p["time"] = ProvenanceTime(clock);
   // Every input and output is hashed on its own thread (SHA-256 is the cost:
   // gigabytes at about 1.5 GB/s a core), then listed in plan / file order.
   std::vector<std::string> paths;
