@@ -85,10 +85,6 @@ class RunState {
   std::vector<Decision> decisions;     // one per entry
   std::vector<std::string> split_names{"kept"};
 
-  // Store support (src/store, docs/store.md); empty in a plain run.
-  // prior_split: per record, the split index it inherits from a store (-1 =
-  // none); filled before split decides, split gives the record's group that split.
-  std::vector<int32_t> prior_split;
 
   std::vector<RejectText> reject_texts;  // one per rejected entry (Decision::text)
 

@@ -671,8 +671,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   results.want_signatures = options.want_signatures;
   StageContext ctx{plan, fs, st, results, options.prior};
   for (auto& stage : stages) {
-    if (options.companion) s = options.companion->Between(stage->name(), ctx);  // store support (docs/store.md)
-    if (s.ok()) s = stage->Decide(ctx);
+    s = stage->Decide(ctx);
     if (!s.ok()) return s;
     timer.Mark("decide " + stage->name());
   }

@@ -53,14 +53,12 @@ class Stage {
   }
 };
 
-// A companion to the stages for one run (the store, src/store; docs/store.md):
-// Between(next, st) runs before each stage's Decide with that stage's name,
-// then Decide once after the last stage; it reports and writes outputs like a
-// stage (summary section under its name). Not in the registry.
-class RunCompanion : public Stage {
- public:
-  virtual Status Between(const std::string& next_stage, StageContext& ctx) = 0;
-};
+// A companion to the stages for one run (a store, src/store; docs/store.md):
+// it receives. Its Decide runs once after the last stage's, reads the typed
+// results the stages published (StageContext::results) and persists them; it
+// reports and writes outputs like a stage (summary section under its name). It
+// is called between no stages and overrides no decision. Not in the registry.
+class RunCompanion : public Stage {};
 
 struct StageInfo {
   const char* name;

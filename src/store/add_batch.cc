@@ -24,6 +24,8 @@
 #include "sketch/union_find.h"
 #include "stages/annotators/annotators_stage.h"
 #include "stages/exact/exact_stage.h"
+#include "stages/prior_join.h"
+#include "stages/split/split_stage.h"
 #include "pipeline/pipeline.h"
 #include "stages/stage.h"
 #include "store/store_db.h"
@@ -33,17 +35,7 @@ namespace {
 
 using Json = nlohmann::ordered_json;
 
-const char* const kTieNames[] = {"prompt", "near", "thread", "annotator", "group"};
-constexpr int kTieKinds = 5;
-
-std::string Blob(const Hash128& h) {
-  std::string b(16, '\0');
-  for (int k = 0; k < 8; ++k) {
-    b[k] = static_cast<char>(h.hi >> (56 - 8 * k));
-    b[8 + k] = static_cast<char>(h.lo >> (56 - 8 * k));
-  }
-  return b;
-}
+enum { kTiePrompt = 0, kTieNear = 1, kTieThread = 2, kTieKinds = 5 };
 
 Hash128 FromBlob(std::string_view b) {
   Hash128 h;
@@ -52,45 +44,17 @@ Hash128 FromBlob(std::string_view b) {
   return h;
 }
 
-std::string ClusterBlob(int64_t id) {
-  std::string b(8, '\0');
-  for (int k = 0; k < 8; ++k) b[k] = static_cast<char>(static_cast<uint64_t>(id) >> (56 - 8 * k));
-  return b;
-}
-
-// Band keys are kept as 31-bit integers (4 bytes in SQLite's record format); a
-// shorter key only adds candidates, which verification then drops.
-int64_t BandRow(uint64_t key) { return static_cast<int64_t>(key >> 33); }
-
-std::string Hex16(std::string_view blob) { return ToHex(FromBlob(blob)).substr(0, 16); }
-
-// The split stage's settings as far as the store needs them. Defaults follow
-// src/stages/split/split_stage.cc (splits train 0.8 / valid 0.1 / test 0.1; tie_by
-// prompt, near, thread); the split stage validates the values itself.
-struct SplitView {
-  std::vector<std::string> names{"train", "valid", "test"};
-  bool tie[kTieKinds] = {true, true, true, false, false};
-};
-
-Result<SplitView> ReadSplitView(const Plan& plan) {
+// The split stage's names and ties (its own parsing: SplitShapeOf), and the
+// settings a store cannot grow with.
+Result<SplitShape> ReadSplitView(const Plan& plan) {
   const Json& s = StageSettings(plan, "split");
-  SplitView v;
   if (s.contains("enabled") && s["enabled"].is_boolean() && !s["enabled"].get<bool>()) {
     return Status::Usage("store: the split stage must run for a store (stages.split.enabled is false)");
   }
-  if (s.contains("splits") && s["splits"].is_object()) {
-    v.names.clear();
-    for (auto it = s["splits"].begin(); it != s["splits"].end(); ++it) v.names.push_back(it.key());
-  }
-  if (s.contains("tie_by") && s["tie_by"].is_array()) {
-    std::fill(std::begin(v.tie), std::end(v.tie), false);
-    for (const auto& t : s["tie_by"]) {
-      for (int k = 0; k < kTieKinds; ++k) {
-        if (t.is_string() && t.get<std::string>() == kTieNames[k]) v.tie[k] = true;
-      }
-    }
-  }
-  if (s.contains("stratify_by") && s["stratify_by"] == "source") {
+  auto shape = SplitShapeOf(plan);
+  if (!shape.ok()) return shape.status();
+  const SplitShape& v = shape.value();
+  if (v.stratify_source) {
     return Status::Usage("store: stages.split.stratify_by \"source\" cuts by ranks over all data and cannot grow "
                          "batch by batch; use \"none\" with a store (docs/store.md)");
   }
@@ -145,76 +109,140 @@ Result<std::string> FileSha256(const std::string& path) {
 
 const char* PolicyName(ConflictPolicy p) { return p == ConflictPolicy::kJoinFirst ? "join-first" : "reject"; }
 
-struct Conflict {
-  std::vector<std::string> ids;  // batch records rejected (reject) or joined to the first group (join-first)
-  Json groups;                   // [{group, split}]
-  std::string via;               // "near cluster merge" or "ties"
-  Json resolution;               // {"policy", "action", ...}
-
-  Json ToJson() const { return Json{{"records", ids}, {"groups", groups}, {"via", via}, {"resolution", resolution}}; }
-};
-
-class StoreCompanion : public RunCompanion {
+// The store as prior data for the stages (stages/prior_data.h): read-only
+// queries over the database, inside the batch's transaction.
+class StorePriorData : public PriorData {
  public:
-  StoreCompanion(StoreDb* db, const Plan& plan, SplitView view, ConflictPolicy policy, int64_t batch, int64_t first_seq)
-      : db_(db), plan_(plan), view_(std::move(view)), policy_(policy), batch_(batch), first_seq_(first_seq) {
-    for (const auto& info : AllStages()) order_.push_back(info.name);
-  }
-  std::string name() const override { return "store"; }
+  StorePriorData(StoreDb* db, ConflictPolicy policy, int64_t first_seq)
+      : db_(db), policy_(policy), first_seq_(first_seq) {}
 
-  Status Between(const std::string& next, StageContext& ctx) override {
-    RunState& st = ctx.run;
-    Capture(ctx);
-    if (!exact_done_ && After(next, "exact")) {
-      exact_done_ = true;
-      if (Status s = ExactCheck(st); !s.ok()) return s;
+  Status Prepare() {
+    auto c = db_->Prepare("SELECT judgment, id, batch FROM records WHERE comparison = ?");
+    auto b = db_->Prepare("SELECT seq FROM bands WHERE bkey = ?");
+    auto g = db_->Prepare("SELECT s.sig, r.cluster FROM signatures s JOIN records r ON r.seq = s.seq WHERE s.seq = ?");
+    auto gc = db_->Prepare(
+        "SELECT DISTINCT g.grp, g.split, g.gkey FROM records r JOIN groups g ON g.grp = r.grp "
+        "WHERE r.cluster = ? AND r.kept = 1 ORDER BY g.grp");
+    auto t = db_->Prepare(
+        "SELECT t.grp, g.split, g.gkey, g.first_batch FROM ties t JOIN groups g ON g.grp = t.grp WHERE t.kind = ? AND t.tkey = ?");
+    for (auto* r : {&c, &b, &g, &gc, &t}) {
+      if (!r->ok()) return r->status();
     }
-    if (!near_done_ && After(next, "near")) {
-      near_done_ = true;
-      if (Status s = NearJoin(st); !s.ok()) return s;
-    }
-    if (next == "split") {
-      group_done_ = true;
-      if (Status s = GroupCheck(st); !s.ok()) return s;
-    }
+    comparison_ = std::move(c).value();
+    band_ = std::move(b).value();
+    signature_ = std::move(g).value();
+    cluster_groups_ = std::move(gc).value();
+    tie_ = std::move(t).value();
     return Status::Ok();
   }
 
+  const std::string& where() const override { return db_->path(); }
+  int64_t first_seq() const override { return first_seq_; }
+  PriorConflictPolicy conflict_policy() const override {
+    return policy_ == ConflictPolicy::kJoinFirst ? PriorConflictPolicy::kJoinFirst : PriorConflictPolicy::kReject;
+  }
+
+  Result<std::optional<StoredComparison>> FindComparison(const Hash128& comparison) const override {
+    std::string kb = HashBlob(comparison);
+    Statement& q = *comparison_;
+    q.BindBlob(1, kb.data(), kb.size());
+    Status err;
+    std::optional<StoredComparison> out;
+    if (q.Step(&err)) out = StoredComparison{FromBlob(q.Blob(0)), q.Text(1), q.Int(2)};
+    q.Reset();
+    if (!err.ok()) return err;
+    return out;
+  }
+
+  Result<std::string> StoredBanding() const override { return db_->Meta("near_banding"); }
+
+  Status StoredInBand(int64_t band_row, std::vector<int64_t>* seqs) const override {
+    Statement& q = *band_;
+    q.Bind(1, band_row);
+    Status err;
+    while (q.Step(&err)) seqs->push_back(q.Int(0));
+    q.Reset();
+    return err;
+  }
+
+  Result<std::optional<SignatureAndCluster>> StoredSignature(int64_t seq) const override {
+    Statement& q = *signature_;
+    q.Bind(1, seq);
+    Status err;
+    std::optional<SignatureAndCluster> out;
+    if (q.Step(&err)) out = SignatureAndCluster{std::string(q.Blob(0)), q.Int(1)};
+    q.Reset();
+    if (!err.ok()) return err;
+    return out;
+  }
+
+  Status GroupsOfCluster(int64_t cluster, std::vector<StoredGroup>* groups) const override {
+    Statement& q = *cluster_groups_;
+    q.Bind(1, cluster);
+    Status err;
+    while (q.Step(&err)) groups->push_back(StoredGroup{q.Int(0), q.Text(1), std::string(q.Blob(2)), 0});
+    q.Reset();
+    return err;
+  }
+
+  Result<std::optional<StoredGroup>> GroupTiedBy(int kind, const std::string& key) const override {
+    Statement& q = *tie_;
+    q.Bind(1, kind).BindBlob(2, key.data(), key.size());
+    Status err;
+    std::optional<StoredGroup> out;
+    if (q.Step(&err)) out = StoredGroup{q.Int(0), q.Text(1), std::string(q.Blob(2)), q.Int(3)};
+    q.Reset();
+    if (!err.ok()) return err;
+    return out;
+  }
+
+ private:
+  StoreDb* db_;
+  ConflictPolicy policy_;
+  int64_t first_seq_;
+  std::unique_ptr<Statement> comparison_, band_, signature_, cluster_groups_, tie_;
+};
+
+// Receives the batch's typed results after every stage has decided (the
+// PriorJoin the stages published, the near stage's signatures) and persists
+// them; reports the store's section of summary.json and store_conflicts.jsonl.
+// It decides nothing and is called between no stages.
+class StoreCompanion : public RunCompanion {
+ public:
+  StoreCompanion(StoreDb* db, const Plan& plan, SplitShape view, ConflictPolicy policy, int64_t batch, int64_t first_seq)
+      : db_(db), plan_(plan), view_(std::move(view)), policy_(policy), batch_(batch), first_seq_(first_seq) {}
+  std::string name() const override { return "store"; }
+
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
-    Capture(ctx);
-    if (!exact_done_) {
-      exact_done_ = true;
-      if (Status s = ExactCheck(st); !s.ok()) return s;
-    }
-    if (!near_done_) {
-      near_done_ = true;
-      if (Status s = NearJoin(st); !s.ok()) return s;
-    }
-    if (!group_done_) return Status::Usage("store: the split stage did not run; a store needs it");
+    sig_ = ctx.results.Find<NearSignatures>();
+    join_ = ctx.results.Find<PriorJoin>();
+    if (!join_ || !join_->groups_done) return Status::Usage("store: the split stage did not run; a store needs it");
     agreement_ = BatchAgreement(plan_, st);  // this batch's annotator agreement (docs/annotators.md)
-    return Write(st);
+    Status s = Write(st);
+    if (s.ok()) counts_ = BuildCounts();  // read after the run, when the results are gone
+    return s;
   }
 
   void Report(const RunState&, Json* s) const override {
+    const PriorJoin& j = *join_;
     (*s)["store"] = db_->path();
     (*s)["batch"] = batch_;
     (*s)["first_record_number"] = first_seq_;
-    (*s)["exact"] = Json{{"store_duplicates", dup_}, {"store_label_conflicts", label_conflict_}};
-    (*s)["near"] = Json{{"records_matched_to_stored_clusters", near_matched_},
+    (*s)["exact"] = Json{{"store_duplicates", j.duplicates}, {"store_label_conflicts", j.label_conflicts}};
+    (*s)["near"] = Json{{"records_matched_to_stored_clusters", j.near_matched},
                         {"stored_clusters_merged", clusters_merged_},
-                        {"stored_candidates_checked", candidates_checked_}};
-    (*s)["groups"] = Json{{"records_inheriting_a_split", inherited_},
+                        {"stored_candidates_checked", j.candidates_checked}};
+    (*s)["groups"] = Json{{"records_inheriting_a_split", j.inherited},
                           {"records_in_new_groups", in_new_groups_},
                           {"new_groups", new_groups_},
-                          {"stored_groups_merged", groups_merged_},
-                          {"split_overridden_after_split_stage", hook_missing_}};
+                          {"stored_groups_merged", groups_merged_}};
     Json conflicts = Json::array();
-    for (size_t k = 0; k < conflicts_.size() && k < 50; ++k) conflicts.push_back(conflicts_[k].ToJson());
+    for (size_t k = 0; k < j.conflicts.size() && k < 50; ++k) conflicts.push_back(j.conflicts[k].ToJson());
     (*s)["group_conflicts"] = Json{{"policy", PolicyName(policy_)},
-                                   {"components", conflicts_.size()},
-                                   {"records_rejected", conflict_records_},
-                                   {"records_joined_first", joined_.size()},
+                                   {"components", j.conflicts.size()},
+                                   {"records_rejected", j.conflict_records},
+                                   {"records_joined_first", j.joined.size()},
                                    {"first", std::move(conflicts)},
                                    {"file", "store_conflicts.jsonl"}};
     (*s)["records_stored"] = stored_;
@@ -224,7 +252,7 @@ class StoreCompanion : public RunCompanion {
   Status WriteOutputs(const RunState&, OutputDir& out) const override {
     auto f = out.Create("store_conflicts.jsonl");
     if (!f.ok()) return f.status();
-    for (const auto& c : conflicts_) {
+    for (const auto& c : join_->conflicts) {
       Status s = f.value()->Append(c.ToJson().dump() + "\n");
       if (!s.ok()) return s;
     }
@@ -232,376 +260,7 @@ class StoreCompanion : public RunCompanion {
   }
 
  private:
-  // The near stage's typed results, once it has decided (null before, or when it does not run).
-  void Capture(const StageContext& ctx) {
-    near_ = ctx.results.Find<NearClusters>();
-    sig_ = ctx.results.Find<NearSignatures>();
-  }
-
-  bool After(const std::string& next, const std::string& stage) const {
-    if (next.empty()) return true;
-    auto a = std::find(order_.begin(), order_.end(), next), b = std::find(order_.begin(), order_.end(), stage);
-    return a > b;
-  }
-
   int64_t Seq(size_t i) const { return first_seq_ + static_cast<int64_t>(i); }
-
-  // 1. Comparison keys already stored.
-  Status ExactCheck(RunState& st) {
-    const size_t n = st.records.size();
-    key_.assign(n, {});
-    judg_.assign(n, {});
-    stored_ok_.assign(n, 0);
-    cluster_.assign(n, -1);
-    auto q = db_->Prepare("SELECT judgment, id, batch FROM records WHERE comparison = ?");
-    if (!q.ok()) return q.status();
-    Statement& stmt = *q.value();
-    for (size_t i = 0; i < n; ++i) {
-      key_[i] = ComparisonKeyOf(st.records[i], &judg_[i]);
-      if (!st.IsKept(i)) continue;
-      std::string kb = Blob(key_[i]);
-      stmt.BindBlob(1, kb.data(), kb.size());
-      Status err;
-      if (stmt.Step(&err)) {
-        bool same = FromBlob(stmt.Blob(0)) == judg_[i];
-        std::string sid = stmt.Text(1);
-        int64_t sb = stmt.Int(2);
-        Json detail{{"stored_id", sid}, {"stored_batch", sb}};
-        if (same) {
-          st.Reject(i, name(), "store_duplicate",
-                    "the same comparison with the same judgment is already in the store (" + sid + ", batch " +
-                        std::to_string(sb) + ")",
-                    detail.dump());
-          ++dup_;
-        } else {
-          st.Reject(i, name(), "store_label_conflict",
-                    "the store already holds this comparison with a different judgment (" + sid + ", batch " +
-                        std::to_string(sb) + "); the stored judgment stays",
-                    detail.dump());
-          ++label_conflict_;
-        }
-      } else {
-        stored_ok_[i] = 1;
-      }
-      stmt.Reset();
-      if (!err.ok()) return err;
-    }
-    return Status::Ok();
-  }
-
-  // 2. Batch records against stored band keys; components over batch clusters
-  // and stored clusters.
-  Status NearJoin(RunState& st) {
-    const size_t n = st.records.size();
-    for (size_t i = 0; i < n; ++i) cluster_[i] = Seq(i);
-    comp_of_.assign(n, -1);
-    if (!sig_) return Status::Ok();  // the near stage did not run
-    if (sig_->threshold < 0) return Status::Usage("store: stages.near.verify \"exact\" is not supported with a store");
-    const uint32_t K = sig_->slots;
-    banding_ = sketch::Banding{sig_->bands, sig_->rows};
-    Json nb{{"slots", K}, {"bands", banding_.bands}, {"rows", banding_.rows}, {"threshold", sig_->threshold}};
-    auto stored_nb = db_->Meta("near_banding");
-    if (!stored_nb.ok()) return stored_nb.status();
-    if (!stored_nb.value().empty() && stored_nb.value() != nb.dump()) {
-      return Status::Usage("store " + db_->path() + ": the near settings give " + nb.dump() + " but the store was built with " +
-                           stored_nb.value() + "; a store keeps one configuration");
-    }
-    near_banding_json_ = nb.dump();
-    const float threshold = static_cast<float>(sig_->threshold);
-    const uint64_t seed = sketch::ClusterOptions{}.band_seed;
-    auto qb = db_->Prepare("SELECT seq FROM bands WHERE bkey = ?");
-    auto qs = db_->Prepare("SELECT s.sig, r.cluster FROM signatures s JOIN records r ON r.seq = s.seq WHERE s.seq = ?");
-    if (!qb.ok()) return qb.status();
-    if (!qs.ok()) return qs.status();
-    std::unordered_map<int64_t, int64_t> verdict;  // stored seq -> cluster id or -1 (below threshold) per record: reset
-    std::vector<std::pair<uint32_t, int64_t>> edges;  // batch record, stored cluster id
-    band_keys_.assign(n * banding_.bands, 0);
-    for (size_t i = 0; i < n; ++i) {
-      if (!stored_ok_[i]) continue;  // every record the near stage clustered (kept after exact)
-      std::span<const uint8_t> sig(sig_->bytes.data() + i * K, K);
-      std::span<uint64_t> keys(band_keys_.data() + i * banding_.bands, banding_.bands);
-      sketch::BandKeys(sig, banding_, seed, keys);
-      std::set<int64_t> cands;
-      for (uint64_t k : keys) {
-        qb.value()->Bind(1, BandRow(k));
-        Status err;
-        while (qb.value()->Step(&err)) cands.insert(qb.value()->Int(0));
-        qb.value()->Reset();
-        if (!err.ok()) return err;
-      }
-      for (int64_t seq : cands) {
-        ++candidates_checked_;
-        qs.value()->Bind(1, seq);
-        Status err;
-        if (qs.value()->Step(&err)) {
-          std::string_view other = qs.value()->Blob(0);
-          if (other.size() == K) {
-            std::span<const uint8_t> o(reinterpret_cast<const uint8_t*>(other.data()), K);
-            float sim = static_cast<float>(sketch::CompactMatchesToJaccard(sketch::CountEqualSlots(sig, o), K));
-            if (sim >= threshold) edges.emplace_back(static_cast<uint32_t>(i), qs.value()->Int(1));
-          }
-        }
-        qs.value()->Reset();
-        if (!err.ok()) return err;
-      }
-    }
-    // Nodes: batch records, then stored clusters.
-    std::map<int64_t, uint32_t> node_of_cluster;
-    for (const auto& [i, c] : edges) node_of_cluster.emplace(c, 0);
-    uint32_t next = static_cast<uint32_t>(n);
-    std::vector<int64_t> cluster_of_node;
-    for (auto& [c, node] : node_of_cluster) {
-      node = next++;
-      cluster_of_node.push_back(c);
-    }
-    sketch::UnionFind uf(next);
-    for (size_t i = 0; i < n; ++i) {
-      if (stored_ok_[i] && near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) {
-        uf.Union(static_cast<uint32_t>(i), static_cast<uint32_t>(near_->cluster[i]));
-      }
-    }
-    std::set<uint32_t> matched;
-    for (const auto& [i, c] : edges) {
-      uf.Union(i, node_of_cluster[c]);
-      matched.insert(i);
-    }
-    near_matched_ = matched.size();
-    // Components holding stored clusters.
-    std::map<uint32_t, std::vector<int64_t>> stored_in;  // root -> stored cluster ids (ascending)
-    for (const auto& [c, node] : node_of_cluster) stored_in[uf.Find(node)].push_back(c);
-    std::map<uint32_t, int64_t> comp_index;
-    for (auto& [root, list] : stored_in) {
-      comp_index[root] = static_cast<int64_t>(comp_clusters_.size());
-      comp_clusters_.push_back(list);
-    }
-    std::vector<std::vector<size_t>> members(comp_clusters_.size());
-    for (size_t i = 0; i < n; ++i) {
-      if (!stored_ok_[i]) continue;
-      auto it = comp_index.find(uf.Find(static_cast<uint32_t>(i)));
-      if (it == comp_index.end()) {
-        if (near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) cluster_[i] = Seq(static_cast<size_t>(near_->cluster[i]));
-        continue;
-      }
-      comp_of_[i] = it->second;
-      cluster_[i] = comp_clusters_[static_cast<size_t>(it->second)].front();
-      members[static_cast<size_t>(it->second)].push_back(i);
-    }
-    // Stored clusters bridged by the batch: merge, unless (with near ties)
-    // their groups sit in different splits.
-    auto qg = db_->Prepare(
-        "SELECT DISTINCT g.grp, g.split, g.gkey FROM records r JOIN groups g ON g.grp = r.grp "
-        "WHERE r.cluster = ? AND r.kept = 1 ORDER BY g.grp");
-    if (!qg.ok()) return qg.status();
-    for (size_t c = 0; c < comp_clusters_.size(); ++c) {
-      const auto& list = comp_clusters_[c];
-      if (list.size() < 2) continue;
-      std::vector<std::tuple<int64_t, std::string, std::string>> groups;
-      for (int64_t cl : list) {
-        qg.value()->Bind(1, cl);
-        Status err;
-        while (qg.value()->Step(&err)) {
-          groups.emplace_back(qg.value()->Int(0), qg.value()->Text(1), std::string(qg.value()->Blob(2)));
-        }
-        qg.value()->Reset();
-        if (!err.ok()) return err;
-      }
-      std::set<std::string> splits;
-      for (const auto& g : groups) splits.insert(std::get<1>(g));
-      if (view_.tie[kTieNear] && splits.size() > 1) {
-        Conflict cf;
-        cf.via = "near-duplicate prompts joining stored clusters " + Json(list).dump();
-        cf.groups = GroupsJson(groups);
-        if (policy_ == ConflictPolicy::kJoinFirst) {
-          // The records join the first stored cluster (smallest id: the
-          // earliest accepted record); the other clusters stay apart. Their
-          // group is settled before the split stage (GroupCheck).
-          cf.resolution = Json{{"policy", "join-first"},
-                               {"action", "joined the first stored cluster; the other clusters were not merged"},
-                               {"cluster", list.front()}};
-          for (size_t i : members[c]) {
-            if (st.IsKept(i)) cf.ids.push_back(st.records[i].id);
-          }
-          for (size_t i : members[c]) {
-            if (st.IsKept(i)) joined_.insert(i);
-          }
-        } else {
-          cf.resolution = Json{{"policy", "reject"}, {"action", "rejected (store_group_conflict)"}};
-          for (size_t i : members[c]) RejectConflict(st, i, cf);
-        }
-        conflicts_.push_back(std::move(cf));
-        comp_clusters_[c].resize(1);  // nothing merges
-        continue;
-      }
-      for (size_t k = 1; k < list.size(); ++k) cluster_merges_.emplace_back(list[0], list[k]);
-      if (view_.tie[kTieNear]) {
-        for (size_t k = 1; k < groups.size(); ++k) group_merges_.emplace_back(std::get<0>(groups[0]), std::get<0>(groups[k]));
-      }
-    }
-    return Status::Ok();
-  }
-
-  Json GroupsJson(const std::vector<std::tuple<int64_t, std::string, std::string>>& groups) const {
-    Json out = Json::array();
-    std::set<int64_t> seen;
-    for (const auto& [g, split, key] : groups) {
-      if (seen.insert(g).second) out.push_back(Json{{"group", Hex16(key)}, {"split", split}});
-    }
-    return out;
-  }
-
-  void RejectConflict(RunState& st, size_t i, Conflict& cf) {
-    stored_ok_[i] = 0;
-    if (st.Reject(i, name(), "store_group_conflict",
-                  "this record ties stored groups that sit in different splits (" + cf.groups.dump() +
-                      "); it would move one of them, so it is held back (docs/store.md)",
-                  Json{{"groups", cf.groups}}.dump())) {
-      cf.ids.push_back(st.records[i].id);
-      ++conflict_records_;
-    }
-  }
-
-  // 3. Ties to stored groups, before the split stage groups the batch.
-  Status GroupCheck(RunState& st) {
-    const size_t n = st.records.size();
-    st.prior_split.assign(n, -1);
-    std::vector<uint32_t> kept;
-    for (size_t i = 0; i < n; ++i) {
-      if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
-    }
-    auto qt = db_->Prepare(
-        "SELECT t.grp, g.split, g.gkey, g.first_batch FROM ties t JOIN groups g ON g.grp = t.grp WHERE t.kind = ? AND t.tkey = ?");
-    if (!qt.ok()) return qt.status();
-    struct StoredGroup {
-      std::string split, key;
-      int64_t first_batch = 0;
-    };
-    std::map<int64_t, StoredGroup> info;
-    std::vector<std::pair<uint32_t, int64_t>> edges;  // batch record, stored group
-    auto lookup = [&](uint32_t i, int kind, const std::string& tkey) -> Status {
-      qt.value()->Bind(1, kind).BindBlob(2, tkey.data(), tkey.size());
-      Status err;
-      if (qt.value()->Step(&err)) {
-        int64_t g = qt.value()->Int(0);
-        info.emplace(g, StoredGroup{qt.value()->Text(1), std::string(qt.value()->Blob(2)), qt.value()->Int(3)});
-        edges.emplace_back(i, g);
-      }
-      qt.value()->Reset();
-      return err;
-    };
-    sketch::UnionFind uf0(static_cast<uint32_t>(n));
-    std::unordered_map<Hash128, uint32_t, Hash128Hasher> by_prompt;
-    std::unordered_map<int64_t, uint32_t> by_near;
-    std::unordered_map<std::string, uint32_t> by_text[kTieKinds];
-    for (uint32_t i : kept) {
-      const RecordFacts& f = st.records[i];
-      if (view_.tie[kTiePrompt]) {
-        auto [it, fresh] = by_prompt.try_emplace(f.prompt_hash, i);
-        if (!fresh) uf0.Union(it->second, i);
-        if (Status s = lookup(i, kTiePrompt, Blob(f.prompt_hash)); !s.ok()) return s;
-      }
-      if (view_.tie[kTieNear]) {
-        if (near_ && near_->cluster.size() == n && near_->cluster[i] >= 0) {
-          auto [it, fresh] = by_near.try_emplace(near_->cluster[i], i);
-          if (!fresh) uf0.Union(it->second, i);
-        }
-        if (comp_of_.size() == n && comp_of_[i] >= 0) {
-          for (int64_t cl : comp_clusters_[static_cast<size_t>(comp_of_[i])]) {
-            if (Status s = lookup(i, kTieNear, ClusterBlob(cl)); !s.ok()) return s;
-          }
-        }
-      }
-      const std::string* text[kTieKinds] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
-                                            &st.Text(f.group_id)};
-      for (int t = kTieThread; t < kTieKinds; ++t) {
-        if (!view_.tie[t] || text[t]->empty()) continue;
-        auto [it, fresh] = by_text[t].try_emplace(*text[t], i);
-        if (!fresh) uf0.Union(it->second, i);
-        if (Status s = lookup(i, t, Blob(HashBytes(*text[t]))); !s.ok()) return s;
-      }
-    }
-    // Group nodes after the records.
-    std::map<int64_t, uint32_t> node_of_group;
-    uint32_t next = static_cast<uint32_t>(n);
-    for (const auto& [g, gi] : info) node_of_group[g] = next++;
-    sketch::UnionFind uf(next);
-    for (uint32_t i : kept) uf.Union(i, uf0.Find(i));
-    for (const auto& [i, g] : edges) uf.Union(i, node_of_group[g]);
-    std::map<uint32_t, std::vector<int64_t>> groups_in;
-    for (const auto& [g, node] : node_of_group) groups_in[uf.Find(node)].push_back(g);
-    std::map<uint32_t, std::vector<uint32_t>> members;
-    for (uint32_t i : kept) members[uf.Find(i)].push_back(i);
-    group_target_.assign(n, -1);
-    new_group_of_.assign(n, -1);
-    for (auto& [root, list] : members) {
-      auto it = groups_in.find(root);
-      if (it == groups_in.end()) {
-        // A new group: the split stage assigns it; the store records it after.
-        int64_t k = static_cast<int64_t>(new_groups_members_.size());
-        new_groups_members_.push_back(list);
-        for (uint32_t i : list) new_group_of_[i] = k;
-        continue;
-      }
-      std::vector<int64_t> gl = it->second;  // ascending group ids
-      std::set<std::string> splits;
-      for (int64_t g : gl) splits.insert(info[g].split);
-      if (splits.size() > 1) {
-        std::vector<std::tuple<int64_t, std::string, std::string>> gs;
-        for (int64_t g : gl) gs.emplace_back(g, info[g].split, info[g].key);
-        Conflict cf;
-        cf.via = "ties (" + TieList() + ")";
-        cf.groups = GroupsJson(gs);
-        if (policy_ != ConflictPolicy::kJoinFirst) {
-          cf.resolution = Json{{"policy", "reject"}, {"action", "rejected (store_group_conflict)"}};
-          for (uint32_t i : list) RejectConflict(st, i, cf);
-          conflicts_.push_back(std::move(cf));
-          continue;
-        }
-        // join-first: the group accepted first (earliest batch, then the
-        // smaller group id) takes the records; stored groups of its split
-        // merge with it as usual, groups of other splits stay where they are.
-        int64_t first = gl.front();
-        for (int64_t g : gl) {
-          if (info[g].first_batch < info[first].first_batch) first = g;
-        }
-        const std::string split = info[first].split;
-        std::vector<int64_t> same;
-        same.push_back(first);
-        for (int64_t g : gl) {
-          if (g != first && info[g].split == split) same.push_back(g);
-        }
-        gl = same;
-        cf.resolution = Json{{"policy", "join-first"},
-                             {"action", "joined the group accepted first; nothing stored moved"},
-                             {"group", Hex16(info[first].key)},
-                             {"split", split},
-                             {"first_batch", info[first].first_batch}};
-        for (uint32_t i : list) cf.ids.push_back(st.records[i].id);
-        joined_.insert(list.begin(), list.end());
-        conflicts_.push_back(std::move(cf));
-        splits = {split};
-      }
-      auto pos = std::find(view_.names.begin(), view_.names.end(), *splits.begin());
-      if (pos == view_.names.end()) {
-        return Status::Usage("store " + db_->path() + ": stored split \"" + *splits.begin() +
-                             "\" is not among the plan's splits; a store keeps one configuration");
-      }
-      for (uint32_t i : list) {
-        st.prior_split[i] = static_cast<int32_t>(pos - view_.names.begin());
-        group_target_[i] = gl.front();
-        ++inherited_;
-      }
-      for (size_t k = 1; k < gl.size(); ++k) group_merges_.emplace_back(gl.front(), gl[k]);
-    }
-    return Status::Ok();
-  }
-
-  std::string TieList() const {
-    std::string s;
-    for (int t = 0; t < kTieKinds; ++t) {
-      if (view_.tie[t]) s += (s.empty() ? "" : ", ") + std::string(kTieNames[t]);
-    }
-    return s;
-  }
 
   // 4. The batch's facts into the store (inside the caller's transaction).
   Status Write(RunState& st) {
@@ -611,15 +270,7 @@ class StoreCompanion : public RunCompanion {
       const Decision& d = st.decisions[e];
       if (d.rejected) ++rejected_by_reason_[std::string(d.stage) + "/" + std::string(d.reason)];
     }
-    // The split stage's hook gives inheriting groups their stored split; if
-    // the hook were missing, the decision is corrected here and counted.
-    for (size_t i = 0; i < n; ++i) {
-      if (st.prior_split.size() == n && st.prior_split[i] >= 0 && st.IsKept(i) &&
-          st.DecisionOf(i).split != static_cast<uint32_t>(st.prior_split[i])) {
-        st.DecisionOf(i).split = static_cast<uint32_t>(st.prior_split[i]);
-        ++hook_missing_;
-      }
-    }
+    const PriorJoin& j = *join_;
     std::map<std::string, uint64_t> by_split;
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) ++by_split[st.split_names[st.DecisionOf(i).split]];
@@ -631,8 +282,8 @@ class StoreCompanion : public RunCompanion {
     if (stored_config.value().empty()) {
       if (Status s = db_->SetMeta("config", config.dump()); !s.ok()) return s;
       if (Status s = db_->SetMeta("splits", Json(view_.names).dump()); !s.ok()) return s;
-      if (!near_banding_json_.empty()) {
-        if (Status s = db_->SetMeta("near_banding", near_banding_json_); !s.ok()) return s;
+      if (!j.banding_json.empty()) {
+        if (Status s = db_->SetMeta("near_banding", j.banding_json); !s.ok()) return s;
       }
     }
     // Group merges (union-find over stored group ids).
@@ -642,7 +293,7 @@ class StoreCompanion : public RunCompanion {
       if (it == parent.end() || it->second == g) return g;
       return it->second = find(it->second);
     };
-    for (auto [a, b] : group_merges_) {
+    for (auto [a, b] : j.group_merges) {
       int64_t ra = find(a), rb = find(b);
       if (ra == rb) continue;
       if (rb < ra) std::swap(ra, rb);
@@ -661,7 +312,7 @@ class StoreCompanion : public RunCompanion {
       }
     }
     // Cluster merges.
-    for (const auto& [target, other] : cluster_merges_) {
+    for (const auto& [target, other] : j.cluster_merges) {
       ++clusters_merged_;
       auto u = db_->Prepare("UPDATE records SET cluster = ?1 WHERE cluster = ?2");
       if (!u.ok()) return u.status();
@@ -683,11 +334,11 @@ class StoreCompanion : public RunCompanion {
       }
     }
     // New groups: key = smallest prompt hash, as the split stage computes it.
-    std::vector<int64_t> new_grp(new_groups_members_.size(), -1);
+    std::vector<int64_t> new_grp(j.new_groups.size(), -1);
     auto ig = db_->Prepare("INSERT INTO groups(gkey, split, first_batch) VALUES(?, ?, ?)");
     if (!ig.ok()) return ig.status();
-    for (size_t k = 0; k < new_groups_members_.size(); ++k) {
-      const auto& list = new_groups_members_[k];
+    for (size_t k = 0; k < j.new_groups.size(); ++k) {
+      const auto& list = j.new_groups[k];
       bool any = false;
       Hash128 key;
       for (uint32_t i : list) {
@@ -696,7 +347,7 @@ class StoreCompanion : public RunCompanion {
         any = true;
       }
       if (!any) continue;
-      std::string kb = Blob(key);
+      std::string kb = HashBlob(key);
       const std::string& split = st.split_names[st.DecisionOf(list.front()).split];
       ig.value()->BindBlob(1, kb.data(), kb.size()).Bind(2, split).Bind(3, batch_);
       if (Status s = ig.value()->Run(); !s.ok()) return s;
@@ -719,19 +370,19 @@ class StoreCompanion : public RunCompanion {
     size_t half = 0;
     std::vector<std::pair<int64_t, int64_t>> bands;  // (band key, seq)
     for (size_t i = 0; i < n; ++i) {
-      if (!stored_ok_[i]) continue;
+      if (!j.stored_ok[i]) continue;
       bool kept = st.IsKept(i);
       int64_t grp = -1;
       if (kept) {
-        if (group_target_[i] >= 0) grp = FindTarget(parent, group_target_[i]);
-        else if (new_group_of_[i] >= 0) grp = new_grp[static_cast<size_t>(new_group_of_[i])];
+        if (j.group_target[i] >= 0) grp = FindTarget(parent, j.group_target[i]);
+        else if (j.new_group_of[i] >= 0) grp = new_grp[static_cast<size_t>(j.new_group_of[i])];
       }
       const RecordFacts& f = st.records[i];
-      std::string pb = Blob(f.prompt_hash), kb = Blob(key_[i]), jb = Blob(judg_[i]);
+      std::string pb = HashBlob(f.prompt_hash), kb = HashBlob(j.key[i]), jb = HashBlob(j.judgment[i]);
       Statement& r = *ir.value();
       r.Bind(1, Seq(i)).Bind(2, batch_).Bind(3, f.id);
       r.BindBlob(4, pb.data(), pb.size()).BindBlob(5, kb.data(), kb.size()).BindBlob(6, jb.data(), jb.size());
-      r.Bind(7, cluster_[i]).Bind(8, kept ? 1 : 0);
+      r.Bind(7, j.cluster[i]).Bind(8, kept ? 1 : 0);
       if (grp >= 0) r.Bind(9, grp).Bind(10, st.split_names[st.DecisionOf(i).split]);
       else r.BindNull(9).BindNull(10);
       if (Status s = r.Run(); !s.ok()) {
@@ -741,7 +392,7 @@ class StoreCompanion : public RunCompanion {
       if (near_ran) {
         is.value()->Bind(1, Seq(i)).BindBlob(2, sig_->bytes.data() + i * K, K);
         if (Status s = is.value()->Run(); !s.ok()) return s;
-        for (uint32_t b = 0; b < banding_.bands; ++b) bands.emplace_back(BandRow(band_keys_[i * banding_.bands + b]), Seq(i));
+        for (uint32_t b = 0; b < j.bands; ++b) bands.emplace_back(BandRow(j.band_keys[i * j.bands + b]), Seq(i));
       }
       if (grp >= 0) {
         auto tie = [&](int kind, const std::string& key) {
@@ -750,11 +401,11 @@ class StoreCompanion : public RunCompanion {
         };
         Status s;
         if (view_.tie[kTiePrompt]) s = tie(kTiePrompt, pb);
-        if (s.ok() && view_.tie[kTieNear]) s = tie(kTieNear, ClusterBlob(cluster_[i]));
+        if (s.ok() && view_.tie[kTieNear]) s = tie(kTieNear, ClusterBlob(j.cluster[i]));
         const std::string* text[kTieKinds] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
                                               &st.Text(f.group_id)};
         for (int t = kTieThread; t < kTieKinds && s.ok(); ++t) {
-          if (view_.tie[t] && !text[t]->empty()) s = tie(t, Blob(HashBytes(*text[t])));
+          if (view_.tie[t] && !text[t]->empty()) s = tie(t, HashBlob(HashBytes(*text[t])));
         }
         if (!s.ok()) return s;
       }
@@ -782,47 +433,31 @@ class StoreCompanion : public RunCompanion {
   // Counts for the batch row.
   uint64_t stored() const { return stored_; }
   uint64_t records() const { return records_; }
-  Json Counts(const RunState* st = nullptr) const {
-    (void)st;
+  const Json& Counts() const { return counts_; }
+
+ private:
+  Json BuildCounts() const {
     Json by_reason = Json::object();
     for (const auto& [k, v] : rejected_by_reason_) by_reason[k] = v;
-    return Json{{"rejected_by_reason", by_reason}, {"kept_by_split", kept_by_split_}, {"store_duplicates", dup_},
-                {"store_label_conflicts", label_conflict_}, {"group_conflict_policy", PolicyName(policy_)},
-                {"store_group_conflicts", conflict_records_}, {"group_conflict_components", conflicts_.size()},
-                {"records_joined_first", joined_.size()}, {"records_inheriting_a_split", inherited_},
+    const PriorJoin& j = *join_;
+    return Json{{"rejected_by_reason", by_reason}, {"kept_by_split", kept_by_split_}, {"store_duplicates", j.duplicates},
+                {"store_label_conflicts", j.label_conflicts}, {"group_conflict_policy", PolicyName(policy_)},
+                {"store_group_conflicts", j.conflict_records}, {"group_conflict_components", j.conflicts.size()},
+                {"records_joined_first", j.joined.size()}, {"records_inheriting_a_split", j.inherited},
                 {"new_groups", new_groups_}, {"stored_clusters_merged", clusters_merged_},
                 {"stored_groups_merged", groups_merged_}, {"annotator_agreement", agreement_}};
   }
 
  private:
-  const NearClusters* near_ = nullptr;      // the near stage's typed results (Capture)
-  const NearSignatures* sig_ = nullptr;
+  const NearSignatures* sig_ = nullptr;  // the near stage's (Decide)
+  const PriorJoin* join_ = nullptr;       // the stages' join with the store (Decide)
   StoreDb* db_;
   const Plan& plan_;
-  SplitView view_;
+  SplitShape view_;
   ConflictPolicy policy_;
   int64_t batch_, first_seq_;
-  Json agreement_;
-  std::vector<std::string> order_;
-  bool exact_done_ = false, near_done_ = false, group_done_ = false;
-  // Per record.
-  std::vector<Hash128> key_, judg_;
-  std::vector<uint8_t> stored_ok_;      // passed exact and the store's checks: stored at the end
-  std::vector<int64_t> cluster_;        // global cluster id
-  std::vector<int64_t> comp_of_;        // index into comp_clusters_, -1 = touches no stored cluster
-  std::vector<int64_t> group_target_;   // stored group inherited, -1 = none
-  std::vector<int64_t> new_group_of_;   // index into new_groups_members_
-  std::vector<uint64_t> band_keys_;
-  sketch::Banding banding_{};
-  std::string near_banding_json_;
-  std::vector<std::vector<int64_t>> comp_clusters_;
-  std::vector<std::vector<uint32_t>> new_groups_members_;
-  std::vector<std::pair<int64_t, int64_t>> cluster_merges_, group_merges_;
-  std::vector<Conflict> conflicts_;
-  uint64_t dup_ = 0, label_conflict_ = 0, near_matched_ = 0, clusters_merged_ = 0, candidates_checked_ = 0,
-           inherited_ = 0, in_new_groups_ = 0, new_groups_ = 0, groups_merged_ = 0, hook_missing_ = 0,
-           conflict_records_ = 0, stored_ = 0, records_ = 0;
-  std::set<size_t> joined_;  // batch records placed by join-first
+  Json agreement_, counts_;
+  uint64_t clusters_merged_ = 0, in_new_groups_ = 0, new_groups_ = 0, groups_merged_ = 0, stored_ = 0, records_ = 0;
   std::map<std::string, uint64_t> rejected_by_reason_;
   Json kept_by_split_ = Json::object();
 };
@@ -952,8 +587,11 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
     }
     if (!err.ok()) return err;
   }
+  StorePriorData prior(&store, settings.value().group_conflicts, first_seq);
+  if (Status s = prior.Prepare(); !s.ok()) return s;
   StoreCompanion companion(&store, plan, view.value(), settings.value().group_conflicts, batch, first_seq);
   PipelineOptions popts;
+  popts.prior = &prior;
   for (const auto& info : AllStages()) popts.stages.push_back(info.name);
   popts.progress = options.progress;
   popts.table = options.table;

@@ -52,7 +52,6 @@ bool FromHex(const std::string& s, std::vector<uint8_t>* out) {
 class SignatureWriter : public RunCompanion {
  public:
   std::string name() const override { return "shard"; }
-  Status Between(const std::string&, StageContext&) override { return Status::Ok(); }
   Status Decide(StageContext& ctx) override {
     sig_ = ctx.results.Find<NearSignatures>();  // published because the caller asked (want_signatures)
     if (!sig_) return Status::Usage("shard-sign: the near stage is disabled in the plan");

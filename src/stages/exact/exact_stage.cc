@@ -7,6 +7,7 @@
 #include <unordered_map>
 
 #include "io/output_dir.h"
+#include "stages/prior_join.h"
 
 namespace prefsift {
 namespace {
@@ -136,6 +137,11 @@ class ExactDupsStage : public Stage {
     }
     agreement_ = all_pairs ? static_cast<double>(agree_pairs) / static_cast<double>(all_pairs) : 1.0;
     judged_pairs_ = all_pairs;
+    if (ctx.prior) {  // a store: comparisons it already holds (stages/prior_join.h)
+      PriorJoin join;
+      if (Status s = JoinComparisons(*ctx.prior, st, &join); !s.ok()) return s;
+      ctx.results.Publish(std::move(join));
+    }
     return Status::Ok();
   }
 

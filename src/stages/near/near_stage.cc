@@ -11,6 +11,8 @@
 
 #include "io/output_dir.h"
 #include "stages/facts.h"
+#include "stages/prior_join.h"
+#include "stages/split/split_stage.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
@@ -367,6 +369,21 @@ class NearDupsStage : public Stage {
         }
       }
     }
+    if (ctx.prior) return JoinStored(ctx);
+    return Status::Ok();
+  }
+
+  // A store: batch records join stored clusters (stages/prior_join.h).
+  Status JoinStored(StageContext& ctx) const {
+    const PriorJoin* before = ctx.results.Find<PriorJoin>();
+    if (!before) return Status::Internal("near: prior data without the exact stage's comparisons");
+    auto shape = SplitShapeOf(ctx.plan);
+    if (!shape.ok()) return shape.status();
+    PriorJoin join = *before;
+    Status s = JoinClusters(*ctx.prior, ctx.run, ctx.results.Find<NearClusters>(), ctx.results.Find<NearSignatures>(),
+                            shape.value(), &join);
+    if (!s.ok()) return s;
+    ctx.results.Publish(std::move(join));
     return Status::Ok();
   }
 

@@ -132,6 +132,13 @@ class SplitStage : public Stage {
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
     const size_t n = st.records.size();
+    // A store: ties to stored groups first (stages/prior_join.h); a record tied
+    // to a stored group takes its split below.
+    std::vector<int32_t> prior_split;
+    if (ctx.prior) {
+      Status s = JoinStored(ctx, &prior_split);
+      if (!s.ok()) return s;
+    }
     std::vector<uint32_t> kept;
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
@@ -223,12 +230,12 @@ class SplitStage : public Stage {
         }
       }
     }
-    // Store support (src/store, docs/store.md): a group holding a record that
-    // inherits a stored split takes that split (the store checked they agree).
-    if (st.prior_split.size() == n) {
+    // A store (docs/store.md): a group holding a record that inherits a
+    // stored split takes that split (JoinGroups checked they agree).
+    if (prior_split.size() == n) {
       for (Group& g : groups_) {
         for (uint32_t i : g.members) {
-          if (st.prior_split[i] >= 0) g.split = static_cast<uint32_t>(st.prior_split[i]);
+          if (prior_split[i] >= 0) g.split = static_cast<uint32_t>(prior_split[i]);
         }
       }
     }
@@ -257,6 +264,22 @@ class SplitStage : public Stage {
       Status s = ComparePrevious(st);
       if (!s.ok()) return s;
     }
+    return Status::Ok();
+  }
+
+  Status JoinStored(StageContext& ctx, std::vector<int32_t>* prior_split) const {
+    const PriorJoin* before = ctx.results.Find<PriorJoin>();
+    if (!before) return Status::Internal("split: prior data without the exact stage's comparisons");
+    auto shape = SplitShapeOf(ctx.plan);
+    if (!shape.ok()) return shape.status();
+    PriorJoin join = *before;
+    const NearClusters* near = ctx.results.Find<NearClusters>();
+    Status s;
+    if (!join.clusters_done) s = JoinClusters(*ctx.prior, ctx.run, near, nullptr, shape.value(), &join);  // near off
+    if (s.ok()) s = JoinGroups(*ctx.prior, ctx.run, near, shape.value(), &join);
+    if (!s.ok()) return s;
+    *prior_split = join.prior_split;
+    ctx.results.Publish(std::move(join));
     return Status::Ok();
   }
 
@@ -590,13 +613,12 @@ double SplitPosition(const std::string& salt, const Hash128& key) {
   return static_cast<double>(h.hi >> 11) * 0x1.0p-53;
 }
 
-std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error) {
+namespace {
+
+Result<Settings> ParseSettings(const Plan& plan) {
   const Json& js = StageSettings(plan, "split");
   Settings s;
-  auto fail = [&](const std::string& m) {
-    *error = Status::Usage("stages.split." + m);
-    return nullptr;
-  };
+  auto fail = [&](const std::string& m) -> Result<Settings> { return Status::Usage("stages.split." + m); };
   for (auto it = js.begin(); it != js.end(); ++it) {
     const std::string& k = it.key();
     const Json& v = it.value();
@@ -645,7 +667,28 @@ std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error) {
       return fail(k + ": unknown setting (known: splits, tie_by, salt, stratify_by, previous)");
     }
   }
-  return std::make_unique<SplitStage>(std::move(s));
+  return s;
+}
+
+}  // namespace
+
+Result<SplitShape> SplitShapeOf(const Plan& plan) {
+  auto s = ParseSettings(plan);
+  if (!s.ok()) return s.status();
+  SplitShape shape;
+  for (const auto& [name, ratio] : s.value().splits) shape.names.push_back(name);
+  for (int t = 0; t < kTieCount; ++t) shape.tie[t] = s.value().tie[t];
+  shape.stratify_source = s.value().stratify_source;
+  return shape;
+}
+
+std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error) {
+  auto s = ParseSettings(plan);
+  if (!s.ok()) {
+    *error = s.status();
+    return nullptr;
+  }
+  return std::make_unique<SplitStage>(std::move(s).value());
 }
 
 }  // namespace prefsift

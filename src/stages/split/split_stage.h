@@ -2,7 +2,7 @@
 //
 // Records are tied into groups (connected components, union-find) by any of
 // the ties the plan names in "tie_by": "prompt" (same normalised prompt),
-// "near" (same near-duplicate cluster, RunState::near_cluster), "thread",
+// "near" (same near-duplicate cluster, NearClusters), "thread",
 // "annotator", "group" (the layout's group pointer). A group goes wholly to
 // one split: its stable key is the smallest normalised-prompt hash among its
 // members; XXH3 of (salt, key) mapped to [0,1) picks the split against the
@@ -24,11 +24,16 @@
 
 #include <memory>
 
+#include "stages/prior_join.h"
 #include "stages/stage.h"
 
 namespace prefsift {
 
 std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error);
+
+// The split names and tie kinds the plan's split settings give (the stage's
+// own parsing and defaults; a store reads them through here).
+Result<SplitShape> SplitShapeOf(const Plan& plan);
 
 // Dominant Unicode script of a text by letter count ("Latin", "Cyrillic", ...,
 // "other", or "none" without letters). A crude detector: block ranges only.
