@@ -28,10 +28,7 @@ namespace {
 
 constexpr const char* kDocuments[] = {"summary.json", "datasheet.md", "datasheet.json", "report.html"};
 
-struct Digest {
-  std::string sha256;
-  uint64_t bytes = 0;
-};
+using Digest = FileDigest;
 
 Result<Digest> HashFile(FileSystem* fs, const std::string& path) {
   auto f = fs->OpenRead(path);
@@ -55,7 +52,9 @@ Result<Digest> HashFile(FileSystem* fs, const std::string& path) {
 std::vector<Result<Digest>> HashFiles(FileSystem* fs, const std::vector<std::string>& paths) {
   std::vector<Result<Digest>> out(paths.size(), Status::Internal("not hashed"));
   ThreadPool pool(0);
-  pool.ParallelFor(paths.size(), [&](size_t i, unsigned) { out[i] = HashFile(fs, paths[i]); });
+  pool.ParallelFor(paths.size(), [&](size_t i, unsigned) {
+    if (!paths[i].empty()) out[i] = HashFile(fs, paths[i]);  // "": hashed already
+  });
   return out;
 }
 
@@ -182,7 +181,7 @@ Status ValidateFinishPlan(const Plan& plan) {
 }
 
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, const Json& gate,
-                     const RunClock& clock) {
+                     const RunClock& clock, const std::vector<std::optional<FileDigest>>& input_digests) {
   Examples ex = CollectExamples(fs, out, *summary);
   (*summary)["gate"] = gate;
   (*summary)["examples"] = Json{
@@ -196,16 +195,20 @@ Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Jso
   p["plan_sha256"] = plan.plan_digest.empty() ? Json("no plan file (command line only)") : Json(plan.plan_digest);
   p["seed"] = plan.seed;
   p["time"] = ProvenanceTime(clock);
-  // Every input and output is hashed on its own thread (SHA-256 is the cost:
-  // gigabytes at about 1.5 GB/s a core), then listed in plan / file order.
+  // Inputs were hashed while pass 1 read them (DigestingFileSystem); an input
+  // without a digest there, and every output, is hashed here, each on its own
+  // thread (SHA-256 is the cost: gigabytes at about 1.5 GB/s a core), then
+  // listed in plan / file order.
   std::vector<std::string> paths;
-  for (const auto& in : plan.inputs) paths.push_back(in.path);
+  for (size_t i = 0; i < plan.inputs.size(); ++i) {
+    paths.push_back(i < input_digests.size() && input_digests[i] ? std::string() : plan.inputs[i].path);
+  }
   const std::vector<std::string> names = OutputFiles(out);
   for (const auto& name : names) paths.push_back(out.StagingPath(name));
   std::vector<Result<Digest>> digests = HashFiles(fs, paths);
   Json inputs = Json::array();
   for (size_t i = 0; i < plan.inputs.size(); ++i) {
-    const auto& d = digests[i];
+    const Result<Digest> d = paths[i].empty() ? Result<Digest>(*input_digests[i]) : digests[i];
     if (!d.ok()) return d.status();
     const auto& in = plan.inputs[i];
     inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"bytes", d.value().bytes}, {"sha256", d.value().sha256}});

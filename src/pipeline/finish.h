@@ -13,10 +13,13 @@
 #include <nlohmann/json_fwd.hpp>
 
 #include <cstdint>
+#include <optional>
+#include <vector>
 
 #include "core/plan.h"
 #include "core/status.h"
 #include "io/file_system.h"
+#include "io/digesting_file_system.h"
 #include "io/output_dir.h"
 #include "report/tool_info.h"
 
@@ -31,7 +34,8 @@ Status ValidateFinishPlan(const Plan& plan);
 // every file already in `out`. REQUIRES: every output file except
 // summary.json is written and closed.
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
-                     const nlohmann::ordered_json& gate, const RunClock& clock = RunClock());
+                     const nlohmann::ordered_json& gate, const RunClock& clock = RunClock(),
+                     const std::vector<std::optional<FileDigest>>& input_digests = {});
 
 // Writes datasheet.md, datasheet.json and report.html from the finished
 // summary (hashing summary.json, which must be written and closed).

@@ -14,6 +14,7 @@
 #include "core/normalize.h"
 #include "core/record_reader.h"
 #include "core/thread_pool.h"
+#include "io/digesting_file_system.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "pipeline/finish.h"
@@ -663,7 +664,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   RunState st(plan);
   Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
   PhaseTimer timer(options.timings, log);
-  Status s = Observe(plan, st, stages, fs, pool, progress);
+  DigestingFileSystem digesting(fs);  // inputs' SHA-256 while pass 1 reads them
+  Status s = Observe(plan, st, stages, &digesting, pool, progress);
   progress.Done();
   if (!s.ok()) return s;
   timer.Mark("observe (pass 1)");
@@ -726,7 +728,9 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
-  s = FinishSummary(plan, fs, *out.value(), &summary, gate, clock);  // examples and provenance
+  std::vector<std::optional<FileDigest>> input_digests;
+  for (const auto& in : plan.inputs) input_digests.push_back(digesting.DigestOf(in.path));
+  s = FinishSummary(plan, fs, *out.value(), &summary, gate, clock, input_digests);  // examples and provenance
   if (!s.ok()) return s;
   timer.Mark("provenance");
   s = out.value()->Write("summary.json", summary.dump(2) + "\n");
