@@ -635,7 +635,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     const Json& settings = StageSettings(plan, info.name);
     if (settings.contains("enabled") && settings["enabled"].is_boolean() && !settings["enabled"].get<bool>()) continue;
     Status err;
-    auto stage = info.make(plan, &err);
+    auto stage = info.make(plan, fs, &err);
     if (!stage) return err.ok() ? Status::Internal(std::string("stage ") + info.name + " failed to start") : err;
     stages.push_back(std::move(stage));
   }

@@ -63,7 +63,7 @@ class RunCompanion : public Stage {};
 struct StageInfo {
   const char* name;
   const char* summary;  // one line for --help
-  std::unique_ptr<Stage> (*make)(const Plan& plan, Status* error);
+  std::unique_ptr<Stage> (*make)(const Plan& plan, FileSystem* fs, Status* error);
 };
 
 // All stages, in pipeline order. Adding a stage: a file pair in src/stages and

@@ -255,13 +255,13 @@ TEST(Annotators, SettingsErrorsNameTheKey) {
   Plan plan;
   Status err;
   plan.stages["annotators"] = Json{{"flagged", "weight"}};
-  EXPECT_EQ(MakeAnnotatorsStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeAnnotatorsStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("weight_field"), std::string::npos);
   plan.stages["annotators"] = Json{{"speed", 1}};
-  EXPECT_EQ(MakeAnnotatorsStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeAnnotatorsStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("\"speed\""), std::string::npos);
   plan.stages["annotators"] = Json{{"confidence", 1.5}};
-  EXPECT_EQ(MakeAnnotatorsStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeAnnotatorsStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("stages.annotators.confidence"), std::string::npos);
 }
 

@@ -208,13 +208,13 @@ TEST(Splits, SettingsErrorsNameTheKey) {
   Plan plan;
   Status err;
   plan.stages["split"] = Json{{"splits", {{"train", 0.5}, {"test", 0.4}}}};
-  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeSplitStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("add up to 1"), std::string::npos);
   plan.stages["split"] = Json{{"tie_by", {"colour"}}};
-  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeSplitStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("tie_by"), std::string::npos);
   plan.stages["split"] = Json{{"ratio", 1}};
-  EXPECT_EQ(MakeSplitStage(plan, &err), nullptr);
+  EXPECT_EQ(MakeSplitStage(plan, DefaultFileSystem(), &err), nullptr);
   EXPECT_NE(err.message().find("ratio"), std::string::npos);
 }
 

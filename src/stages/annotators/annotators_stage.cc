@@ -646,7 +646,7 @@ bool Count(Status* error, const Json& v, const std::string& key, uint64_t lo, ui
 
 }  // namespace
 
-std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "annotators");
   Settings b;
   for (auto it = s.begin(); it != s.end(); ++it) {
@@ -716,7 +716,7 @@ Json BatchAgreement(const Plan& plan, const RunState& st) {
   const Json& s = StageSettings(plan, "annotators");
   if (s.contains("enabled") && s["enabled"].is_boolean() && !s["enabled"].get<bool>()) return nullptr;
   Status err;
-  auto stage = MakeAnnotatorsStage(plan, &err);
+  auto stage = MakeAnnotatorsStage(plan, /*fs=*/nullptr, &err);  // reads no file
   if (!stage) return nullptr;
   return static_cast<AnnotatorsStage*>(stage.get())->AgreementOnly(st);
 }

@@ -31,7 +31,7 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, FileSystem* fs, Status* error);
 
 // Agreement only (alpha, interval, comparisons, raw rate) over every parsed
 // record of `st`, with the plan's annotators settings: for a store's batch

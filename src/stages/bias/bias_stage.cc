@@ -309,7 +309,7 @@ class Reader {
 
 }  // namespace
 
-std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "bias");
   BiasSettings b;
   Reader rd(error);

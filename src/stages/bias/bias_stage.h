@@ -22,6 +22,6 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, FileSystem* fs, Status* error);
 
 }  // namespace prefsift

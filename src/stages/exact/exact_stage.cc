@@ -207,7 +207,7 @@ Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment) {
   return HashOfHashes(key_parts.data(), key_parts.size());
 }
 
-std::unique_ptr<Stage> MakeExactDupsStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeExactStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "exact");
   ConflictPolicy p = ConflictPolicy::kKeepMajority;
   for (auto it = s.begin(); it != s.end(); ++it) {

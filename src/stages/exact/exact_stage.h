@@ -19,7 +19,7 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeExactDupsStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeExactStage(const Plan& plan, FileSystem* fs, Status* error);
 
 // The comparison key of a record (prompt hash + sorted candidate hashes) and,
 // in *judgment, the hash of its ranks read in that order. Shared with the

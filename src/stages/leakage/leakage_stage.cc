@@ -302,7 +302,7 @@ class NoEvalSetsStage : public Stage {
 
 }  // namespace
 
-std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, FileSystem* fs, Status* error) {
   std::string base = plan.plan_path.empty() ? "" : std::filesystem::path(plan.plan_path).parent_path().string();
   auto settings = ParseLeakSettings(StageSettings(plan, "leakage"), base, "stages.leakage", false);
   if (!settings.ok()) {
@@ -310,7 +310,7 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, Status* error) {
     return nullptr;
   }
   if (settings.value().eval_sets.empty()) return std::make_unique<NoEvalSetsStage>();
-  auto corpus = LoadEvalSets(settings.value().eval_sets, DefaultFileSystem(), plan.limits);
+  auto corpus = LoadEvalSets(settings.value().eval_sets, fs, plan.limits);
   if (!corpus.ok()) {
     *error = corpus.status();
     return nullptr;

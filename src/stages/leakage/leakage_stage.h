@@ -17,6 +17,6 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, FileSystem* fs, Status* error);
 
 }  // namespace prefsift

@@ -503,7 +503,7 @@ constexpr const char* kKnown =
 
 }  // namespace
 
-std::unique_ptr<Stage> MakeNearDupsStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeNearStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "near");
   NearSettings ns;
   auto fail = [&](const std::string& msg) {

@@ -28,6 +28,6 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeNearDupsStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeNearStage(const Plan& plan, FileSystem* fs, Status* error);
 
 }  // namespace prefsift

@@ -435,7 +435,7 @@ std::string DefaultRulesDir() {
   return "";
 }
 
-std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, kStage);
   auto usage = [&](const std::string& m) {
     *error = Status::Usage(m);

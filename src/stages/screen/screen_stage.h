@@ -26,7 +26,7 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* fs, Status* error);
 
 // The rules folder used when the plan sets no "rules_dir": $PREFSIFT_RULES_DIR,
 // else the first of <d>/share/prefsift/rules and <d>/rules that holds a .json

@@ -261,7 +261,7 @@ class SplitStage : public Stage {
     distinct_prompts_ = prompt_split.size();
     kept_ = kept.size();
     if (!s_.previous.empty()) {
-      Status s = ComparePrevious(st);
+      Status s = ComparePrevious(st, ctx.fs);
       if (!s.ok()) return s;
     }
     return Status::Ok();
@@ -442,9 +442,9 @@ class SplitStage : public Stage {
   }
 
  private:
-  Status ComparePrevious(const RunState& st) {
+  Status ComparePrevious(const RunState& st, FileSystem* fs) {
     // The shared reading path: plain, gzip or zstd, the plan's line limit.
-    auto opened = LineReader::Open(DefaultFileSystem(), s_.previous, st.plan().limits.max_line_bytes);
+    auto opened = LineReader::Open(fs, s_.previous, st.plan().limits.max_line_bytes);
     if (!opened.ok()) {
       return Status::Input("stages.split.previous: cannot read " + s_.previous + ": " + opened.status().message());
     }
@@ -682,7 +682,7 @@ Result<SplitShape> SplitShapeOf(const Plan& plan) {
   return shape;
 }
 
-std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error) {
+std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   auto s = ParseSettings(plan);
   if (!s.ok()) {
     *error = s.status();

@@ -29,7 +29,7 @@
 
 namespace prefsift {
 
-std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error);
+std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, FileSystem* fs, Status* error);
 
 // The split names and tie kinds the plan's split settings give (the stage's
 // own parsing and defaults; a store reads them through here).
