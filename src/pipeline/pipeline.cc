@@ -621,15 +621,14 @@ std::vector<ReadPath> PathsReadBy(const Plan& plan) {
   return reads;
 }
 
-Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
-  // The run's wall-clock start and duration for the provenance (finish.h:
-  // replaced by SOURCE_DATE_EPOCH in the reproducible mode).
-  const auto wall_start = std::chrono::system_clock::now();
-  const auto steady_start = std::chrono::steady_clock::now();
-  if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
-  if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
-  // Stages, in pipeline order.
-  std::vector<std::unique_ptr<Stage>> stages;
+namespace {
+
+using Stages = std::vector<std::unique_ptr<Stage>>;
+
+// The stages the options name, in pipeline order, without those the plan
+// switches off; an unknown stage key in the plan is a usage error.
+Result<Stages> MakeStages(const Plan& plan, const PipelineOptions& options, FileSystem* fs) {
+  Stages stages;
   for (const auto& info : AllStages()) {
     if (std::find(options.stages.begin(), options.stages.end(), info.name) == options.stages.end()) continue;
     const Json& settings = StageSettings(plan, info.name);
@@ -648,63 +647,55 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
       return Status::Usage("stages." + it.key() + ": unknown stage (known: " + names + ")");
     }
   }
-  if (Status fs_ok = ValidateFinishPlan(plan); !fs_ok.ok()) return fs_ok;
-  {
-    std::vector<ReadPath> reads = PathsReadBy(plan);
-    reads.insert(reads.end(), options.also_reads.begin(), options.also_reads.end());
-    if (std::find(options.stages.begin(), options.stages.end(), "screen") != options.stages.end()) {
-      reads.push_back({DefaultRulesDir(), "rules folder"});
-    }
-    if (Status clear = CheckOutputClear(plan.output, reads); !clear.ok()) return clear;
-  }
-  auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
-  if (!out.ok()) return out.status();
+  return stages;
+}
 
-  ThreadPool pool(plan.threads);  // 0: one per hardware thread
-  RunState st(plan);
-  Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
-  PhaseTimer timer(options.timings, log);
-  DigestingFileSystem digesting(fs);  // inputs' SHA-256 while pass 1 reads them
-  Status s = Observe(plan, st, stages, &digesting, pool, progress);
-  progress.Done();
-  if (!s.ok()) return s;
-  timer.Mark("observe (pass 1)");
-  StageResults results;
-  results.want_signatures = options.want_signatures;
-  StageContext ctx{plan, fs, st, results, options.prior};
+// The output folder must not be, contain or lie inside anything the run reads.
+Status CheckOutputIsClear(const Plan& plan, const PipelineOptions& options) {
+  std::vector<ReadPath> reads = PathsReadBy(plan);
+  reads.insert(reads.end(), options.also_reads.begin(), options.also_reads.end());
+  if (std::find(options.stages.begin(), options.stages.end(), "screen") != options.stages.end()) {
+    reads.push_back({DefaultRulesDir(), "rules folder"});
+  }
+  return CheckOutputClear(plan.output, reads);
+}
+
+// Every stage's Decide in order, the companion's, then the gate over the
+// typed figures: everything decided before pass 2. Returns the gate section.
+Result<Json> DecideAll(const Plan& plan, const PipelineOptions& options, Stages& stages, StageContext& ctx,
+                       RunOutcome* outcome, PhaseTimer& timer) {
   for (auto& stage : stages) {
-    s = stage->Decide(ctx);
-    if (!s.ok()) return s;
+    if (Status s = stage->Decide(ctx); !s.ok()) return s;
     timer.Mark("decide " + stage->name());
   }
-  if (options.companion) s = options.companion->Decide(ctx);
-  if (!s.ok()) return s;
-  RunOutcome outcome = CountLedger(st);
-  // The gate: the last decide step, over typed figures, before anything is written.
+  if (options.companion) {
+    if (Status s = options.companion->Decide(ctx); !s.ok()) return s;
+  }
+  RunState& st = ctx.run;
+  *outcome = CountLedger(st);
   GateFigures figures;
-  figures.records_in = outcome.entries;
-  figures.kept = outcome.kept;
+  figures.records_in = outcome->entries;
+  figures.kept = outcome->kept;
   for (const auto& is : st.inputs) figures.parsed += is.records;
   for (auto& stage : stages) {
     figures.stages_ran.insert(stage->name());
     stage->Figures(st, &figures);
   }
   if (options.companion) figures.stages_ran.insert(options.companion->name());
-  const Json gate = DecideGate(plan, figures, options.stages, &outcome.gate_failed);
+  Json gate = DecideGate(plan, figures, options.stages, &outcome->gate_failed);
   timer.Mark("gate");
-  std::map<std::string, uint64_t> written;
-  s = Apply(plan, st, stages, fs, *out.value(), &written, progress);
-  progress.Done();
-  if (!s.ok()) return s;
-  timer.Mark("apply (pass 2)");
-  for (auto& stage : stages) {
-    s = stage->WriteOutputs(st, *out.value());
-    if (!s.ok()) return s;
+  return gate;
+}
+
+// The stages' own files, and the ledger invariant: every entry is in exactly one output.
+Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, const Stages& stages, OutputDir& out,
+                         const RunOutcome& outcome, const std::map<std::string, uint64_t>& written) {
+  for (const auto& stage : stages) {
+    if (Status s = stage->WriteOutputs(st, out); !s.ok()) return s;
   }
-  if (options.companion) s = options.companion->WriteOutputs(st, *out.value());
-  if (!s.ok()) return s;
-  timer.Mark("stage outputs");
-  // The ledger invariant: every entry is in exactly one output.
+  if (options.companion) {
+    if (Status s = options.companion->WriteOutputs(st, out); !s.ok()) return s;
+  }
   uint64_t out_lines = 0;
   for (const auto& [name, n] : written) out_lines += n;
   if (outcome.kept + outcome.rejected != outcome.entries || out_lines != outcome.entries) {
@@ -712,8 +703,14 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
                             std::to_string(outcome.kept) + ", rejected " + std::to_string(outcome.rejected) +
                             ", lines written " + std::to_string(out_lines) + "); nothing was written");
   }
+  return Status::Ok();
+}
+
+// Each stage's summary section, rendered by the stage, in pipeline order.
+std::vector<std::pair<std::string, Json>> StageSections(const PipelineOptions& options, const RunState& st,
+                                                        const Stages& stages) {
   std::vector<std::pair<std::string, Json>> sections;
-  for (auto& stage : stages) {
+  for (const auto& stage : stages) {
     Json sec = Json::object();
     stage->Report(st, &sec);
     sections.emplace_back(stage->name(), std::move(sec));
@@ -723,14 +720,64 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
     options.companion->Report(st, &sec);
     sections.emplace_back(options.companion->name(), std::move(sec));
   }
-  Json summary = BuildSummary(plan, st, sections, written);
+  return sections;
+}
+
+}  // namespace
+
+Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
+  // The run's wall-clock start and duration for the provenance (finish.h:
+  // replaced by SOURCE_DATE_EPOCH in the reproducible mode).
+  const auto wall_start = std::chrono::system_clock::now();
+  const auto steady_start = std::chrono::steady_clock::now();
+  if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
+  if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
+  auto made = MakeStages(plan, options, fs);
+  if (!made.ok()) return made.status();
+  Stages& stages = made.value();
+  if (Status s = ValidateFinishPlan(plan); !s.ok()) return s;
+  if (Status s = CheckOutputIsClear(plan, options); !s.ok()) return s;
+  auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
+  if (!out.ok()) return out.status();
+
+  // Observe: pass 1.
+  ThreadPool pool(plan.threads);  // 0: one per hardware thread
+  RunState st(plan);
+  Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
+  PhaseTimer timer(options.timings, log);
+  DigestingFileSystem digesting(fs);  // inputs' SHA-256 while pass 1 reads them
+  Status s = Observe(plan, st, stages, &digesting, pool, progress);
+  progress.Done();
+  if (!s.ok()) return s;
+  timer.Mark("observe (pass 1)");
+
+  // Decide, the gate last.
+  StageResults results;
+  results.want_signatures = options.want_signatures;
+  StageContext ctx{plan, fs, st, results, options.prior};
+  RunOutcome outcome;
+  auto gate = DecideAll(plan, options, stages, ctx, &outcome, timer);
+  if (!gate.ok()) return gate.status();
+
+  // Apply: pass 2, then the stages' files.
+  std::map<std::string, uint64_t> written;
+  s = Apply(plan, st, stages, fs, *out.value(), &written, progress);
+  progress.Done();
+  if (!s.ok()) return s;
+  timer.Mark("apply (pass 2)");
+  s = WriteStageOutputs(options, st, stages, *out.value(), outcome, written);
+  if (!s.ok()) return s;
+  timer.Mark("stage outputs");
+
+  // Render: summary, provenance, datasheet, report; then the folder appears.
+  Json summary = BuildSummary(plan, st, StageSections(options, st, stages), written);
   timer.Mark("summary");
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
   std::vector<std::optional<FileDigest>> input_digests;
   for (const auto& in : plan.inputs) input_digests.push_back(digesting.DigestOf(in.path));
-  s = FinishSummary(plan, fs, *out.value(), &summary, gate, clock, input_digests);  // examples and provenance
+  s = FinishSummary(plan, fs, *out.value(), &summary, gate.value(), clock, input_digests);  // examples and provenance
   if (!s.ok()) return s;
   timer.Mark("provenance");
   s = out.value()->Write("summary.json", summary.dump(2) + "\n");
