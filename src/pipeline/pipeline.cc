@@ -17,6 +17,7 @@
 #include "io/digesting_file_system.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
+#include "pipeline/passes.h"
 #include "pipeline/finish.h"
 #include "report/gate.h"
 #include "report/summary.h"
@@ -229,14 +230,6 @@ void ReserveForInputs(const Plan& plan, const RawChunk& first, RunState& st,
   for (auto& s : stages) s->Reserve(expected);
 }
 
-// The first reject of one ingest reason in one file, and how many there were.
-struct IngestTally {
-  uint64_t count = 0;
-  std::string field;
-  uint64_t first_line = 0;
-  std::string first_keys;  // top-level keys of the first rejected line, or a note
-};
-
 std::string KeysOf(std::string_view line) {
   Json j = Json::parse(line, nullptr, /*allow_exceptions=*/false);
   if (j.is_discarded()) return "(the line is not JSON)";
@@ -300,14 +293,20 @@ Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStat
   return Status::Ok();
 }
 
+// `part`: only that part of one input, its checks left to the caller, its
+// ingest figures to (*ingest)[part->input] (pass1.h).
 Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-               ThreadPool& pool, Progress& progress) {
+               ThreadPool& pool, Progress& progress, const Part* part = nullptr,
+               std::vector<InputIngest>* ingest = nullptr) {
   st.inputs.resize(plan.inputs.size());
   std::vector<Parsed> chunk;  // reused from chunk to chunk (buffers keep their capacity)
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    if (part && in != part->input) continue;
     const InputSpec& spec = plan.inputs[in];
     InputStats& stats = st.inputs[in];
-    auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes);
+    LineRange range;
+    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
+    auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes, range);
     if (!opened.ok()) return opened.status();
     LineReader& reader = *opened.value();
     stats.compression = CompressionName(reader.compression());
@@ -373,7 +372,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
           }
         }
       }
-      if (in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
+      if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
       pool.ParallelFor(n, [&](size_t i, unsigned) {
         if (rec_of[i] == SIZE_MAX) return;
@@ -387,10 +386,19 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     }
     BaseEvidence evidence;
     for (const auto& r : parsers) evidence.Add(r->base_evidence());
+    if (part) {
+      InputIngest& got = (*ingest)[in];
+      got.tallies = std::move(tallies);
+      got.evidence = evidence;
+      got.at_file_end = reader.at_file_end();
+      continue;
+    }
     if (Status s = CheckInputSanity(plan, spec, stats, tallies, evidence); !s.ok()) return s;
   }
   return Status::Ok();
 }
+
+}  // namespace
 
 // Counts every entry's decision into its input's figures and the run's.
 RunOutcome CountLedger(RunState& st) {
@@ -451,6 +459,8 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   return head;
 }
 
+namespace {
+
 // Pass 2's writes, batched per output file and handed to one background
 // thread, so reading the input and writing the outputs overlap. Batches are
 // written strictly in order (one in flight at a time); the first error stops
@@ -496,8 +506,10 @@ class BatchedWriter {
   std::future<Status> in_flight_;
 };
 
+// `part`: only that part of one input; `st` holds its entries only.
 Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress) {
+             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress,
+             const Part* part = nullptr) {
   progress.Phase("writing");
   std::map<std::string, std::unique_ptr<WritableFile>> files;
   auto file = [&](const std::string& name) -> Result<WritableFile*> {
@@ -521,7 +533,10 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
 
   size_t cursor = 0;
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
-    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes);
+    if (part && in != part->input) continue;
+    LineRange range;
+    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
+    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes, range);
     if (!opened.ok()) return opened.status();
     auto& reader = opened.value();
     for (uint64_t n = 0;; ++n) {
@@ -609,28 +624,24 @@ void CollectSettingPaths(const Json& j, const std::string& key, const std::strin
 
 }  // namespace
 
-std::vector<ReadPath> PathsReadBy(const Plan& plan) {
-  std::vector<ReadPath> reads;
-  if (!plan.plan_path.empty()) reads.push_back({plan.plan_path, "plan"});
-  for (const auto& in : plan.inputs) reads.push_back({in.path, "input"});
-  const std::string base =
-      plan.plan_path.empty() ? "" : std::filesystem::path(plan.plan_path).parent_path().string();
-  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
-    CollectSettingPaths(it.value(), it.key(), base, it.key(), &reads);
+void InputIngest::Add(const InputIngest& later) {
+  for (const auto& [reason, t] : later.tallies) {
+    IngestTally& mine = tallies[reason];
+    if (mine.count == 0) {
+      mine = t;
+    } else {
+      mine.count += t.count;
+    }
   }
-  return reads;
+  evidence.Add(later.evidence);
+  at_file_end = later.at_file_end;
 }
 
-namespace {
-
-using Stages = std::vector<std::unique_ptr<Stage>>;
-
-// The stages the options name, in pipeline order, without those the plan
-// switches off; an unknown stage key in the plan is a usage error.
-Result<Stages> MakeStages(const Plan& plan, const PipelineOptions& options, FileSystem* fs) {
-  Stages stages;
+Status MakeRunStages(const Plan& plan, const std::vector<std::string>& names, FileSystem* fs,
+                     std::vector<std::unique_ptr<Stage>>* out) {
+  std::vector<std::unique_ptr<Stage>>& stages = *out;
   for (const auto& info : AllStages()) {
-    if (std::find(options.stages.begin(), options.stages.end(), info.name) == options.stages.end()) continue;
+    if (std::find(names.begin(), names.end(), info.name) == names.end()) continue;
     const Json& settings = StageSettings(plan, info.name);
     if (settings.contains("enabled") && settings["enabled"].is_boolean() && !settings["enabled"].get<bool>()) continue;
     Status err;
@@ -647,8 +658,46 @@ Result<Stages> MakeStages(const Plan& plan, const PipelineOptions& options, File
       return Status::Usage("stages." + it.key() + ": unknown stage (known: " + names + ")");
     }
   }
-  return stages;
+  return Status::Ok();
 }
+
+Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                     const Part* part, std::vector<InputIngest>* ingest) {
+  if (part && (part->input >= plan.inputs.size() || !ingest)) {
+    return Status::Usage("part " + std::to_string(part->part) + " names input " + std::to_string(part->input) +
+                         ", but the plan has " + std::to_string(plan.inputs.size()) + " input(s)");
+  }
+  if (ingest) ingest->resize(plan.inputs.size());
+  ThreadPool pool(plan.threads);  // 0: one per hardware thread
+  Progress progress(false, false, 5, stderr, 0);  // silent
+  return Observe(plan, st, stages, fs, pool, progress, part, ingest);
+}
+
+Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest) {
+  return CheckInputSanity(plan, plan.inputs[input], stats, ingest.tallies, ingest.evidence);
+}
+
+Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written) {
+  Progress progress(false, false, 5, stderr, 0);  // silent
+  return Apply(plan, st, stages, fs, out, written, progress, part);
+}
+
+std::vector<ReadPath> PathsReadBy(const Plan& plan) {
+  std::vector<ReadPath> reads;
+  if (!plan.plan_path.empty()) reads.push_back({plan.plan_path, "plan"});
+  for (const auto& in : plan.inputs) reads.push_back({in.path, "input"});
+  const std::string base =
+      plan.plan_path.empty() ? "" : std::filesystem::path(plan.plan_path).parent_path().string();
+  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
+    CollectSettingPaths(it.value(), it.key(), base, it.key(), &reads);
+  }
+  return reads;
+}
+
+namespace {
+
+using Stages = std::vector<std::unique_ptr<Stage>>;
 
 // The output folder must not be, contain or lie inside anything the run reads.
 Status CheckOutputIsClear(const Plan& plan, const PipelineOptions& options) {
@@ -658,33 +707,6 @@ Status CheckOutputIsClear(const Plan& plan, const PipelineOptions& options) {
     reads.push_back({DefaultRulesDir(), "rules folder"});
   }
   return CheckOutputClear(plan.output, reads);
-}
-
-// Every stage's Decide in order, the companion's, then the gate over the
-// typed figures: everything decided before pass 2. Returns the gate section.
-Result<Json> DecideAll(const Plan& plan, const PipelineOptions& options, Stages& stages, StageContext& ctx,
-                       RunOutcome* outcome, PhaseTimer& timer) {
-  for (auto& stage : stages) {
-    if (Status s = stage->Decide(ctx); !s.ok()) return s;
-    timer.Mark("decide " + stage->name());
-  }
-  if (options.companion) {
-    if (Status s = options.companion->Decide(ctx); !s.ok()) return s;
-  }
-  RunState& st = ctx.run;
-  *outcome = CountLedger(st);
-  GateFigures figures;
-  figures.records_in = outcome->entries;
-  figures.kept = outcome->kept;
-  for (const auto& is : st.inputs) figures.parsed += is.records;
-  for (auto& stage : stages) {
-    figures.stages_ran.insert(stage->name());
-    stage->Figures(st, &figures);
-  }
-  if (options.companion) figures.stages_ran.insert(options.companion->name());
-  Json gate = DecideGate(plan, figures, options.stages, &outcome->gate_failed);
-  timer.Mark("gate");
-  return gate;
 }
 
 // The stages' own files, and the ledger invariant: every entry is in exactly one output.
@@ -706,24 +728,49 @@ Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, con
   return Status::Ok();
 }
 
-// Each stage's summary section, rendered by the stage, in pipeline order.
-std::vector<std::pair<std::string, Json>> StageSections(const PipelineOptions& options, const RunState& st,
-                                                        const Stages& stages) {
+}  // namespace
+
+Result<Json> DecideStages(const Plan& plan, Stages& stages, RunCompanion* companion, StageContext& ctx,
+                          const std::vector<std::string>& command_stages, RunOutcome* outcome,
+                          const std::function<void(const std::string&)>& mark) {
+  for (auto& stage : stages) {
+    if (Status s = stage->Decide(ctx); !s.ok()) return s;
+    if (mark) mark("decide " + stage->name());
+  }
+  if (companion) {
+    if (Status s = companion->Decide(ctx); !s.ok()) return s;
+  }
+  RunState& st = ctx.run;
+  *outcome = CountLedger(st);
+  GateFigures figures;
+  figures.records_in = outcome->entries;
+  figures.kept = outcome->kept;
+  for (const auto& is : st.inputs) figures.parsed += is.records;
+  for (auto& stage : stages) {
+    figures.stages_ran.insert(stage->name());
+    stage->Figures(st, &figures);
+  }
+  if (companion) figures.stages_ran.insert(companion->name());
+  Json gate = DecideGate(plan, figures, command_stages, &outcome->gate_failed);
+  if (mark) mark("gate");
+  return gate;
+}
+
+std::vector<std::pair<std::string, Json>> StageSections(const Stages& stages, const RunCompanion* companion,
+                                                        const RunState& st) {
   std::vector<std::pair<std::string, Json>> sections;
   for (const auto& stage : stages) {
     Json sec = Json::object();
     stage->Report(st, &sec);
     sections.emplace_back(stage->name(), std::move(sec));
   }
-  if (options.companion) {
+  if (companion) {
     Json sec = Json::object();
-    options.companion->Report(st, &sec);
-    sections.emplace_back(options.companion->name(), std::move(sec));
+    companion->Report(st, &sec);
+    sections.emplace_back(companion->name(), std::move(sec));
   }
   return sections;
 }
-
-}  // namespace
 
 Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options, FileSystem* fs, std::FILE* log) {
   // The run's wall-clock start and duration for the provenance (finish.h:
@@ -732,9 +779,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   const auto steady_start = std::chrono::steady_clock::now();
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
   if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
-  auto made = MakeStages(plan, options, fs);
-  if (!made.ok()) return made.status();
-  Stages& stages = made.value();
+  Stages stages;
+  if (Status s = MakeRunStages(plan, options.stages, fs, &stages); !s.ok()) return s;
   if (Status s = ValidateFinishPlan(plan); !s.ok()) return s;
   if (Status s = CheckOutputIsClear(plan, options); !s.ok()) return s;
   auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
@@ -756,7 +802,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   results.want_signatures = options.want_signatures;
   StageContext ctx{plan, fs, st, results, options.prior};
   RunOutcome outcome;
-  auto gate = DecideAll(plan, options, stages, ctx, &outcome, timer);
+  auto gate = DecideStages(plan, stages, options.companion, ctx, options.stages, &outcome,
+                           [&](const std::string& step) { timer.Mark(step); });
   if (!gate.ok()) return gate.status();
 
   // Apply: pass 2, then the stages' files.
@@ -770,7 +817,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   timer.Mark("stage outputs");
 
   // Render: summary, provenance, datasheet, report; then the folder appears.
-  Json summary = BuildSummary(plan, st, StageSections(options, st, stages), written);
+  Json summary = BuildSummary(plan, st, StageSections(stages, options.companion, st), written);
   timer.Mark("summary");
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();

@@ -25,6 +25,8 @@
 namespace prefsift {
 
 class OutputDir;
+class StateReader;
+class StateWriter;
 struct MatchText;
 
 class Stage {
@@ -39,6 +41,14 @@ class Stage {
   // `text` holds the record's normalised texts (facts.h), valid during the call only.
   virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/,
                        const MatchText& /*text*/) {}
+  // Observed state (state files; docs/parts.md): SaveObserved writes
+  // what Observe kept, for every record so far; AppendObserved reads what
+  // SaveObserved wrote for one part and appends it after the first_record
+  // records already held (parts load in input order, after Grow(first_record
+  // + the part's records)). Counts that Observe sums are added. A stage whose
+  // Observe keeps nothing needs neither.
+  virtual void SaveObserved(StateWriter& /*out*/) const {}
+  virtual Status AppendObserved(StateReader& /*in*/, size_t /*first_record*/) { return Status::Ok(); }
   // Decides over the facts of every record (rejects, groups, splits), publishes
   // its typed results (stages/stage_results.h) and fills its gate figures.
   virtual Status Decide(StageContext& ctx) = 0;
@@ -47,6 +57,12 @@ class Stage {
   virtual void Figures(const RunState& /*state*/, GateFigures* /*figures*/) const {}
   virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
   virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }
+  // Decided rewrites (decision files; docs/parts.md): SaveRewrites writes
+  // what Rewrite needs for records [first, first + count), numbered from 0;
+  // LoadRewrites reads that in a run that holds only those `count` records
+  // (`prefsift apply` of one part). A stage without Rewrite needs neither.
+  virtual void SaveRewrites(StateWriter& /*out*/, size_t /*first*/, size_t /*count*/) const {}
+  virtual Status LoadRewrites(StateReader& /*in*/, size_t /*count*/) { return Status::Ok(); }
   virtual bool Rewrites(size_t /*record*/) const { return false; }
   virtual Status Rewrite(size_t /*record*/, const InputSpec& /*input*/, nlohmann::ordered_json* /*doc*/) const {
     return Status::Ok();

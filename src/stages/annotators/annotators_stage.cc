@@ -10,6 +10,7 @@
 #include <unordered_map>
 
 #include "core/json_pointer.h"
+#include "core/state_file.h"
 #include "io/output_dir.h"
 #include "stages/annotators/annotator_time.h"
 #include "stages/bias/bias_common.h"
@@ -111,6 +112,9 @@ class AnnotatorsStage : public Stage {
     auto t = ParseJudgmentTime(*rec.timestamp);
     times_[r] = t ? *t : -std::numeric_limits<double>::infinity();  // -inf: present but unreadable
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
@@ -260,6 +264,8 @@ class AnnotatorsStage : public Stage {
     return j;
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t r) const override { return weighted_.count(r) > 0; }
 
   Status Rewrite(size_t r, const InputSpec&, Json* doc) const override {
@@ -721,4 +727,62 @@ Json BatchAgreement(const Plan& plan, const RunState& st) {
   return static_cast<AnnotatorsStage*>(stage.get())->AgreementOnly(st);
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each judgment's time,
+// when some layout has a timestamp.
+namespace prefsift {
+namespace {
+
+void AnnotatorsStage::SaveObserved(StateWriter& out) const {
+  out.U8(timed_layout_);
+  out.Vec(times_);
+}
+
+Status AnnotatorsStage::AppendObserved(StateReader& in, size_t first) {
+  if (in.U8() != uint8_t{timed_layout_}) in.Fail("made with inputs of other layouts");
+  if (timed_layout_) {
+    times_.resize(first, kNaN);
+    in.AppendVec(&times_);
+  } else {
+    std::vector<double> none;
+    in.Vec(&none);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): the weight written into
+// each record of a flagged annotator (policy "weight").
+namespace prefsift {
+namespace {
+
+void AnnotatorsStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<std::pair<size_t, double>> mine;
+  for (const auto& [r, w] : weighted_) {
+    if (r >= first && r < first + count) mine.push_back({r - first, w});
+  }
+  std::sort(mine.begin(), mine.end());
+  out.U64(mine.size());
+  for (const auto& [r, w] : mine) {
+    out.U64(r);
+    out.F64(w);
+  }
+}
+
+Status AnnotatorsStage::LoadRewrites(StateReader& in, size_t count) {
+  weighted_.clear();
+  const uint64_t n = in.Count(16);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    const double w = in.F64();
+    if (r >= count) in.Fail("a record out of range");
+    weighted_[r] = w;
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

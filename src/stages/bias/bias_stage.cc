@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cmath>
 
+#include "core/state_file.h"
 #include "stages/bias/bias_common.h"
 #include "stages/bias/bias_length.h"
 #include "stages/bias/bias_position.h"
@@ -49,6 +50,9 @@ class BiasStage : public Stage {
                                      (f.has_url ? CandidateSurface::kUrl : 0));
     }
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
@@ -218,6 +222,8 @@ class BiasStage : public Stage {
     j["shortcut_audit"] = std::move(audit);
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t r) const override { return r < new_slot_.size() && !new_slot_[r].empty(); }
 
   Status Rewrite(size_t r, const InputSpec& input, Json* doc) const override {
@@ -398,4 +404,70 @@ std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, FileSystem* /*fs*/, Statu
   return std::make_unique<BiasStage>(std::move(b), plan.seed);
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each candidate's surface features.
+namespace prefsift {
+namespace {
+
+void BiasStage::SaveObserved(StateWriter& out) const {
+  out.U64(surface_.size());
+  for (const auto& cands : surface_) {
+    out.U64(cands.size());
+    for (const CandidateSurface& c : cands) {
+      out.U32(c.words);
+      out.U32(c.list_items);
+      out.U8(c.flags);
+    }
+  }
+}
+
+Status BiasStage::AppendObserved(StateReader& in, size_t first) {
+  const uint64_t n = in.Count(8);
+  surface_.resize(first + n);
+  for (size_t r = first; r < first + n && in.ok(); ++r) {
+    surface_[r].resize(in.Count(9));
+    for (CandidateSurface& c : surface_[r]) {
+      c.words = in.U32();
+      c.list_items = static_cast<uint16_t>(in.U32());
+      c.flags = in.U8();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): each reordered record's new slots.
+namespace prefsift {
+namespace {
+
+void BiasStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<size_t> moved;
+  for (size_t r = first; r < first + count && r < new_slot_.size(); ++r) {
+    if (!new_slot_[r].empty()) moved.push_back(r);
+  }
+  out.U64(moved.size());
+  for (size_t r : moved) {
+    out.U64(r - first);
+    out.Vec(new_slot_[r]);
+  }
+}
+
+Status BiasStage::LoadRewrites(StateReader& in, size_t count) {
+  new_slot_.assign(count, {});
+  const uint64_t n = in.Count(16);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    if (r >= count) {
+      in.Fail("a record out of range");
+      break;
+    }
+    in.Vec(&new_slot_[r]);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

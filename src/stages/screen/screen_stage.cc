@@ -16,6 +16,7 @@
 #include <sstream>
 
 #include "core/hash.h"
+#include "core/state_file.h"
 #include "core/sha256.h"
 #include "io/output_dir.h"
 #include "screen/actions.h"
@@ -189,6 +190,9 @@ class PersonalDataStage : public Stage {
     if (out.drop) out.rewrite = true;
   }
 
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
+
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
     {
@@ -331,6 +335,8 @@ class PersonalDataStage : public Stage {
     return f.value()->Close();
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t record) const override {
     return record < per_record_.size() && per_record_[record].rewrite;
   }
@@ -627,4 +633,139 @@ std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* /*fs*/, Sta
                                              std::move(key));
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): every record's findings
+// (place, span, rule, action and masked preview; never the text), the count
+// of texts scanned and the first record that could not be scanned.
+namespace prefsift {
+namespace {
+
+void PersonalDataStage::SaveObserved(StateWriter& out) const {
+  out.U64(texts_.load());
+  out.U8(error_record_ != SIZE_MAX);  // one thread after pass 1: no lock needed
+  if (error_record_ != SIZE_MAX) {
+    out.U64(error_record_);
+    out.Str(error_.message());
+  }
+  out.U64(per_record_.size());
+  for (const RecordHits& r : per_record_) {
+    out.U8(static_cast<uint8_t>((r.drop ? 1 : 0) | (r.rewrite ? 2 : 0)));
+    out.U64(r.hits.size());
+    for (const Hit& h : r.hits) {
+      out.U8(static_cast<uint8_t>(h.part));
+      out.U8(static_cast<uint8_t>(h.action));
+      out.U32(h.index);
+      out.U32(h.rule);
+      out.U32(h.begin);
+      out.U32(h.end);
+      out.F32(h.confidence);
+      out.U64(h.text_hash);
+      out.Str(h.meta_pointer);
+      out.Str(h.preview);
+    }
+  }
+}
+
+Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
+  texts_.fetch_add(in.U64(), std::memory_order_relaxed);
+  if (in.U8() != 0) {
+    const uint64_t record = in.U64();
+    std::string message = in.Str();
+    if (in.ok()) NoteError(first + record, Status::Internal(std::move(message)));
+  }
+  const uint64_t n = in.Count(9);
+  per_record_.resize(first + n);
+  for (size_t i = first; i < first + n && in.ok(); ++i) {
+    RecordHits& r = per_record_[i];
+    const uint8_t flags = in.U8();
+    r.drop = (flags & 1) != 0;
+    r.rewrite = (flags & 2) != 0;
+    r.hits.resize(in.Count(30));
+    for (Hit& h : r.hits) {
+      const uint8_t part = in.U8(), action = in.U8();
+      if (part > static_cast<uint8_t>(Part::kMetadata) || action > static_cast<uint8_t>(Action::kDrop)) {
+        in.Fail("a finding's field or action out of range");
+      }
+      h.part = static_cast<Part>(part);
+      h.action = static_cast<Action>(action);
+      h.index = in.U32();
+      h.rule = in.U32();
+      if (h.rule >= rules_.rules.size() && in.ok()) in.Fail("a finding of a rule this plan does not load");
+      h.begin = in.U32();
+      h.end = in.U32();
+      h.confidence = in.F32();
+      h.text_hash = in.U64();
+      h.meta_pointer = in.Str();
+      h.preview = in.Str();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): the findings of every
+// record the screen rewrites (masks, pseudonymises, or drops and masks).
+namespace prefsift {
+namespace {
+
+void PersonalDataStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<size_t> mine;
+  for (size_t r = first; r < first + count && r < per_record_.size(); ++r) {
+    if (per_record_[r].rewrite) mine.push_back(r);
+  }
+  out.U64(mine.size());
+  for (size_t r : mine) {
+    out.U64(r - first);
+    const RecordHits& h = per_record_[r];
+    out.U8(h.drop);
+    out.U64(h.hits.size());
+    for (const Hit& hit : h.hits) {
+      out.U8(static_cast<uint8_t>(hit.part));
+      out.U8(static_cast<uint8_t>(hit.action));
+      out.U32(hit.index);
+      out.U32(hit.rule);
+      out.U32(hit.begin);
+      out.U32(hit.end);
+      out.U64(hit.text_hash);
+      out.Str(hit.meta_pointer);
+    }
+  }
+}
+
+Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
+  per_record_.assign(count, RecordHits());
+  const uint64_t n = in.Count(17);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    if (r >= count) {
+      in.Fail("a record out of range");
+      break;
+    }
+    RecordHits& h = per_record_[r];
+    h.rewrite = true;
+    h.drop = in.U8() != 0;
+    h.hits.resize(in.Count(34));
+    for (Hit& hit : h.hits) {
+      const uint8_t part = in.U8(), action = in.U8();
+      if (part > static_cast<uint8_t>(Part::kMetadata) || action > static_cast<uint8_t>(Action::kDrop)) {
+        in.Fail("a finding's field or action out of range");
+      }
+      hit.part = static_cast<Part>(part);
+      hit.action = static_cast<Action>(action);
+      hit.index = in.U32();
+      hit.rule = in.U32();
+      if (hit.rule >= rules_.rules.size() && in.ok()) in.Fail("a finding of a rule this plan does not load");
+      hit.begin = in.U32();
+      hit.end = in.U32();
+      hit.text_hash = in.U64();
+      hit.meta_pointer = in.Str();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift
