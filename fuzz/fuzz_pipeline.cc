@@ -6,7 +6,7 @@
 // is the input file (at most kMaxInput bytes). With bit 3 of byte 0 the file is
 // cut in two at a line break and the second part is read with a second layout.
 //
-// Inputs and outputs live in a MemoryFileSystem (fuzz/memory_file_system.h).
+// Inputs and outputs live in a MemoryFileSystem (src/io/memory_file_system.h).
 // The evaluation sets are loaded by the leakage stage through the real file
 // system and the rule packs by the screen stage with ifstream, so those are
 // real files: the evaluation sets in a per-process temporary folder (removed
@@ -49,7 +49,7 @@
 #include <vector>
 
 #include "core/plan.h"
-#include "fuzz/memory_file_system.h"
+#include "io/memory_file_system.h"
 #include "pipeline/pipeline.h"
 
 #ifndef PREFSIFT_FUZZ_RULES_DIR
@@ -59,7 +59,7 @@
 namespace {
 
 using Json = nlohmann::ordered_json;
-using prefsift::fuzz::MemoryFileSystem;
+using prefsift::MemoryFileSystem;
 
 constexpr size_t kMaxInput = 16 * 1024;  // bytes of input file; more is ignored (libFuzzer -max_len is lower)
 const char* const kMem = "/fuzzmem";
@@ -360,7 +360,7 @@ std::map<std::string, std::string> RunOnce(MemoryFileSystem& fs, const prefsift:
   std::map<std::string, std::string> record_outputs;
   std::multiset<std::string> kept_lines;
   uint64_t kept_count = 0;
-  for (const auto& name : fs.List(kOut)) {
+  for (const auto& name : fs.ListFiles(kOut)) {
     if (!IsRecordFile(name)) continue;
     std::string bytes;
     fs.Get(std::string(kOut) + "/" + name, &bytes);

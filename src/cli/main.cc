@@ -84,7 +84,7 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
 Result<Plan> BuildPlan(const CommonOptions& o) {
   Plan plan;
   if (!o.plan_path.empty()) {
-    auto loaded = LoadPlanFile(o.plan_path);
+    auto loaded = LoadPlanFile(DefaultFileSystem(), o.plan_path);
     if (!loaded.ok()) return loaded.status();
     plan = std::move(loaded).value();
   }
@@ -147,7 +147,7 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
 
 // A usage error about a plan setting, with its place in the plan file.
 std::string PlanMessage(const CommonOptions& o, const Status& s) {
-  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(o.plan_path, s.message()) : s.message();
+  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(DefaultFileSystem(), o.plan_path, s.message()) : s.message();
 }
 
 int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, const std::string& command) {

@@ -53,7 +53,7 @@ void AddBatchArgs(CLI::App* cmd, BatchArgs* a, bool store) {
 }
 
 Result<Plan> BatchPlan(const BatchArgs& a) {
-  auto loaded = LoadPlanFile(a.plan_path);
+  auto loaded = LoadPlanFile(DefaultFileSystem(), a.plan_path);
   if (!loaded.ok()) return loaded.status();
   Plan plan = std::move(loaded).value();
   if (!a.inputs.empty()) {
@@ -153,12 +153,12 @@ class Commands : public StoreCommands {
     o.overwrite = report_overwrite_;
     Plan plan;
     if (!report_plan_.empty()) {
-      auto loaded = LoadPlanFile(report_plan_);
+      auto loaded = LoadPlanFile(DefaultFileSystem(), report_plan_);
       if (!loaded.ok()) return Fail(loaded.status());
       plan = std::move(loaded).value();
       o.plan = &plan;
       if (o.store_path.empty()) {
-        auto st = store::StoreSettingsFromPlan(plan);
+        auto st = store::StoreSettingsFromPlan(DefaultFileSystem(), plan);
         if (!st.ok()) return Fail(st.status());
         o.store_path = st.value().path;
       }

@@ -16,6 +16,8 @@
 
 namespace prefsift {
 
+class FileSystem;
+
 struct InputSpec {
   std::string path;
   std::string name;     // short name used in ids and output names (default: file stem)
@@ -44,12 +46,14 @@ struct Plan {
 // Errors name the place in the file and the key path in the plan's own terms:
 // "plan.json:4:6: inputs[0].layout: ...", or "plan.json:2:11: the plan is not
 // valid JSON: ..." (never the JSON library's own wording).
-Result<Plan> LoadPlanFile(const std::string& path);
+Result<Plan> LoadPlanFile(FileSystem* fs, const std::string& path);
 
 // `message` starting with a key path of the plan ("stages.near.threshold: ...",
 // as stage settings report them) gets the file, line and column of that key
 // in the plan file in front; other messages come back unchanged.
-std::string PlaceInPlanFile(const std::string& plan_path, const std::string& message);
+// The file is read through `fs` again (a file that cannot be read leaves the
+// message unchanged).
+std::string PlaceInPlanFile(FileSystem* fs, const std::string& plan_path, const std::string& message);
 
 // Parses plan JSON already in memory; `base_dir` resolves relative paths and
 // `where` names the source in errors.

@@ -9,13 +9,14 @@
 #include <algorithm>
 #include <cstdlib>
 #include <ctime>
-#include <fstream>
 #include <functional>
 #include <map>
 #include <set>
 #include <span>
 #include <unordered_map>
 
+#include "core/file_digest.h"
+#include "core/file_system.h"
 #include "core/sha256.h"
 #include "io/output_dir.h"
 #include "sketch/clusters.h"
@@ -129,18 +130,6 @@ std::string NowText() {
   char buf[32];
   std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
   return buf;
-}
-
-Result<std::string> FileSha256(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return Status::Input("cannot read " + path);
-  Sha256 h;
-  std::string buf(1 << 16, '\0');
-  while (in) {
-    in.read(buf.data(), static_cast<std::streamsize>(buf.size()));
-    h.Update(std::string_view(buf.data(), static_cast<size_t>(in.gcount())));
-  }
-  return h.HexDigest();
 }
 
 const char* PolicyName(ConflictPolicy p) { return p == ConflictPolicy::kJoinFirst ? "join-first" : "reject"; }
@@ -823,12 +812,11 @@ void MaybeKill(const char* phase) {
   if (at && std::string(at) == phase) ::raise(SIGKILL);
 }
 
-Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan) {
+Result<StoreSettings> StoreSettingsFromPlan(FileSystem* fs, const Plan& plan) {
   StoreSettings out;
   if (plan.plan_path.empty()) return out;
-  std::ifstream in(plan.plan_path, std::ios::binary);
-  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  Json j = Json::parse(text, nullptr, false, /*ignore_comments=*/true);
+  auto text = ReadWholeFile(fs, plan.plan_path);
+  Json j = Json::parse(text.ok() ? text.value() : "", nullptr, false, /*ignore_comments=*/true);
   if (!j.is_object() || !j.contains("store")) return out;
   const Json& st = j["store"];
   const std::string where = plan.plan_path + ": store";
@@ -869,7 +857,7 @@ Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan) {
 }
 
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log) {
-  auto settings = StoreSettingsFromPlan(plan);
+  auto settings = StoreSettingsFromPlan(fs, plan);
   if (!settings.ok()) return settings.status();
   std::string path = options.store_path.empty() ? settings.value().path : options.store_path;
   if (path.empty()) return Status::Usage("no store: pass --store FILE or set \"store\" in the plan");
@@ -880,10 +868,10 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   Json inputs = Json::array();
   std::string joined;
   for (const auto& in : plan.inputs) {
-    auto d = FileSha256(in.path);
+    auto d = DigestFile(fs, in.path);
     if (!d.ok()) return d.status();
-    inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", d.value()}});
-    joined += d.value() + "\n";
+    inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", d.value().sha256}});
+    joined += d.value().sha256 + "\n";
   }
   std::string inputs_digest = Sha256Hex(joined);
   Json evals = Json::array();
@@ -894,8 +882,8 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
       if (!e.is_object() || !e.contains("path") || !e["path"].is_string()) continue;
       std::string p = e["path"].get<std::string>();
       if (!p.empty() && p[0] != '/') p = base + p;
-      auto d = FileSha256(p);
-      evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", d.ok() ? d.value() : "unreadable"}});
+      auto d = DigestFile(fs, p);
+      evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", d.ok() ? d.value().sha256 : "unreadable"}});
     }
   }
   auto db = StoreDb::Open(path, options.wait_ms, /*create=*/true);

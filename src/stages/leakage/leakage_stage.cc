@@ -285,7 +285,8 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, Status* error) {
     return nullptr;
   }
   if (settings.value().eval_sets.empty()) return std::make_unique<NoEvalSetsStage>();
-  auto corpus = LoadEvalSets(settings.value().eval_sets, DefaultFileSystem(), plan.limits);
+  auto corpus = LoadEvalSets(settings.value().eval_sets, DefaultFileSystem(),  // TODO(lead): from StageContext
+                             plan.limits);
   if (!corpus.ok()) {
     *error = corpus.status();
     return nullptr;

@@ -9,12 +9,12 @@
 #include <cmath>
 #include <cstdlib>
 #include <filesystem>
-#include <fstream>
 #include <map>
 #include <mutex>
 #include <set>
 #include <sstream>
 
+#include "core/file_system.h"
 #include "core/hash.h"
 #include "core/sha256.h"
 #include "io/output_dir.h"
@@ -79,26 +79,17 @@ const char* const kCautions[] = {
     "Pseudonyms are keyed (HMAC-SHA256): whoever holds the key can test guesses against them; keep the key secret "
     "and separate from the data."};
 
-std::string ReadWhole(const std::string& path, bool* ok) {
-  std::ifstream in(path, std::ios::binary);
-  *ok = static_cast<bool>(in);
-  std::ostringstream buf;
-  buf << in.rdbuf();
-  return buf.str();
-}
-
 std::string Resolve(const std::string& base_dir, const std::string& p) {
   if (p.empty() || base_dir.empty() || fs::path(p).is_absolute()) return p;
   return (fs::path(base_dir) / p).string();
 }
 
-bool HasJsonFile(const fs::path& dir) {
-  std::error_code ec;
-  if (!fs::is_directory(dir, ec)) return false;
-  for (const auto& e : fs::directory_iterator(dir, ec)) {
-    if (e.path().extension() == ".json") return true;
-  }
-  return false;
+bool IsJsonName(const std::string& name) { return fs::path(name).extension() == ".json"; }
+
+bool HasJsonFile(FileSystem* files, const fs::path& dir) {
+  if (!files->IsDirectory(dir.string())) return false;
+  auto names = files->List(dir.string());
+  return names.ok() && std::any_of(names.value().begin(), names.value().end(), IsJsonName);
 }
 
 // The pointer of a prompt/turn/candidate string in a record of this layout.
@@ -401,7 +392,7 @@ bool ParseAction(const Json& v, Action* a) {
 
 }  // namespace
 
-std::string DefaultRulesDir() {
+std::string DefaultRulesDir(FileSystem* files) {
   if (const char* env = std::getenv("PREFSIFT_RULES_DIR"); env && *env) return env;
   std::error_code ec;
   fs::path exe = fs::read_symlink("/proc/self/exe", ec);
@@ -409,7 +400,7 @@ std::string DefaultRulesDir() {
   fs::path d = exe.parent_path();
   for (int up = 0; up <= 4 && !d.empty(); ++up) {
     for (const fs::path& cand : {d / "share" / "prefsift" / "rules", d / "rules"}) {
-      if (HasJsonFile(cand)) return cand.string();
+      if (HasJsonFile(files, cand)) return cand.string();
     }
     if (d == d.parent_path()) break;
     d = d.parent_path();
@@ -417,13 +408,14 @@ std::string DefaultRulesDir() {
 #ifdef PREFSIFT_SOURCE_RULES_DIR
   // Last: the source tree's rules folder, recorded at build time, so a binary
   // built outside the checkout (cmake -B /elsewhere) still finds the packs.
-  if (HasJsonFile(PREFSIFT_SOURCE_RULES_DIR)) return PREFSIFT_SOURCE_RULES_DIR;
+  if (HasJsonFile(files, PREFSIFT_SOURCE_RULES_DIR)) return PREFSIFT_SOURCE_RULES_DIR;
 #endif
   return "";
 }
 
 std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   const Json& s = StageSettings(plan, kStage);
+  FileSystem* files = DefaultFileSystem();  // TODO(lead): from StageContext
   auto usage = [&](const std::string& m) {
     *error = Status::Usage(m);
     return nullptr;
@@ -513,22 +505,19 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   if (!key_file.empty() && !key_env.empty()) {
     return usage("stages.screen: set either \"key_file\" or \"key_env\", not both");
   }
-  if (rules_dir.empty()) rules_dir = DefaultRulesDir();
+  if (rules_dir.empty()) rules_dir = DefaultRulesDir(files);
   // Packs: names resolve in rules_dir; paths relative to the plan's folder.
   if (!packs_given) {
     if (rules_dir.empty()) {
       return usage("stages.screen: no rules folder found; set \"rules_dir\" in the plan or the environment variable "
                    "PREFSIFT_RULES_DIR (docs/personal-data.md, \"Pipeline stage\")");
     }
-    std::error_code ec;
-    std::vector<std::string> files;
-    for (const auto& e : fs::directory_iterator(rules_dir, ec)) {
-      if (e.path().extension() == ".json") files.push_back(e.path().string());
+    auto names = files->List(rules_dir);
+    if (!names.ok()) return usage("stages.screen.rules_dir: cannot read the folder " + rules_dir);
+    for (const std::string& name : names.value()) {
+      if (IsJsonName(name)) packs.push_back((fs::path(rules_dir) / name).string());
     }
-    if (ec) return usage("stages.screen.rules_dir: cannot read the folder " + rules_dir);
-    std::sort(files.begin(), files.end());
-    if (files.empty()) return usage("stages.screen.rules_dir: no .json rule packs in " + rules_dir);
-    packs = files;
+    if (packs.empty()) return usage("stages.screen.rules_dir: no .json rule packs in " + rules_dir);
   }
   for (auto& p : packs) {
     bool is_name = p.find('/') == std::string::npos && !(p.size() >= 5 && p.compare(p.size() - 5, 5, ".json") == 0);
@@ -542,7 +531,7 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
       p = Resolve(base_dir, p);
     }
   }
-  auto loaded = screen::LoadRulePacks(packs, rules_dir);
+  auto loaded = screen::LoadRulePacks(files, packs, rules_dir);
   if (!loaded.ok()) {
     *error = loaded.status().code() == StatusCode::kUsage ? loaded.status()
                                                           : Status::Usage(loaded.status().message());
@@ -550,11 +539,10 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   }
   screen::RuleSet rules = std::move(loaded).value();
   for (const auto& p : packs) {
-    bool ok = false;
-    std::string bytes = ReadWhole(p, &ok);
+    auto bytes = ReadWholeFile(files, p);
     set.pack_paths.push_back(p);
     set.pack_labels.push_back(fs::path(p).filename().string());
-    set.pack_digests.push_back(Sha256Hex(bytes));
+    set.pack_digests.push_back(Sha256Hex(bytes.ok() ? bytes.value() : ""));
   }
   // Actions in effect: the plan's default, then per-rule overrides.
   std::vector<std::string> pseudo_rules;
@@ -579,9 +567,9 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
   std::unique_ptr<screen::PseudonymKey> key;
   std::string key_bytes;
   if (!key_file.empty()) {
-    bool ok = false;
-    key_bytes = ReadWhole(key_file, &ok);
-    if (!ok) return usage("stages.screen.key_file: cannot read " + key_file);
+    auto read = ReadWholeFile(files, key_file);
+    if (!read.ok()) return usage("stages.screen.key_file: cannot read " + key_file);
+    key_bytes = std::move(read).value();
     while (!key_bytes.empty() && (key_bytes.back() == '\n' || key_bytes.back() == '\r')) key_bytes.pop_back();
     set.key_source = "key_file";
   } else if (!key_env.empty()) {

@@ -387,7 +387,8 @@ class SplitStage : public Stage {
  private:
   Status ComparePrevious(const RunState& st) {
     // The shared reading path: plain, gzip or zstd, the plan's line limit.
-    auto opened = LineReader::Open(DefaultFileSystem(), s_.previous, st.plan().limits.max_line_bytes);
+    auto opened = LineReader::Open(DefaultFileSystem(),  // TODO(lead): from StageContext
+                                   s_.previous, st.plan().limits.max_line_bytes);
     if (!opened.ok()) {
       return Status::Input("stages.split.previous: cannot read " + s_.previous + ": " + opened.status().message());
     }
