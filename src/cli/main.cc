@@ -170,21 +170,17 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
     return ExitFor(outcome.status());
   }
   if (!o.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
-  if (outcome.value().nothing_kept()) {
+  const RunOutcome& oc = outcome.value();
+  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
+  if (code == kExitNothingKept) {
     std::fprintf(stderr,
                  "prefsift: every one of the %llu records was rejected, so nothing is left to train on; rejects.jsonl "
                  "in %s says why (exit %d)\n",
-                 static_cast<unsigned long long>(outcome.value().entries), plan.value().output.c_str(),
-                 kExitNothingKept);
-    return kExitNothingKept;
+                 static_cast<unsigned long long>(oc.entries), plan.value().output.c_str(), kExitNothingKept);
+  } else if (code == kExitStrict) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
   }
-  if (outcome.value().gate_failed) return kExitGate;
-  if (plan.value().strict && outcome.value().rejected > 0) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
-                 static_cast<unsigned long long>(outcome.value().rejected));
-    return kExitStrict;
-  }
-  return kExitOk;
+  return code;
 }
 
 // `prefsift audit`: train/held-out leakage check of existing files (docs/leakage.md).

@@ -185,16 +185,21 @@ class Commands : public StoreCommands {
                    static_cast<long long>(r.value().batch));
       return 0;
     }
-    if (r.value().gate_failed) {
+    const store::AddOutcome& oc = r.value();
+    const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
+    if (oc.gate_failed) {
       std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
                    plan.value().output.c_str());
-      return kExitGate;
+      return code;
     }
     if (!add_args_.quiet) {
-      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(r.value().batch),
+      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(oc.batch),
                    plan.value().output.c_str());
     }
-    return 0;
+    if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
+    if (code == kExitStrict) std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
+                                          static_cast<unsigned long long>(oc.rejected));
+    return code;
   }
 
   CLI::App *add_, *history_, *summary_, *report_, *sign_, *merge_;

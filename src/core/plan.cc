@@ -1,5 +1,7 @@
 #include "core/plan.h"
 
+#include <nlohmann/json.hpp>
+
 #include <algorithm>
 #include <cctype>
 #include <cstring>
@@ -13,6 +15,27 @@
 #include "core/sha256.h"
 
 namespace prefsift {
+
+namespace {
+void DeleteJson(nlohmann::ordered_json* j) { delete j; }
+}  // namespace
+
+JsonSection::JsonSection() : value_(new nlohmann::ordered_json(nlohmann::ordered_json::object()), DeleteJson) {}
+JsonSection::JsonSection(const JsonSection& other) : value_(new nlohmann::ordered_json(*other.value_), DeleteJson) {}
+JsonSection::JsonSection(JsonSection&& other) noexcept : JsonSection() { value_.swap(other.value_); }
+JsonSection& JsonSection::operator=(const JsonSection& other) {
+  *value_ = *other.value_;
+  return *this;
+}
+JsonSection& JsonSection::operator=(JsonSection&& other) noexcept {
+  value_.swap(other.value_);
+  return *this;
+}
+JsonSection& JsonSection::operator=(const nlohmann::ordered_json& value) {
+  *value_ = value;
+  return *this;
+}
+JsonSection::~JsonSection() = default;
 
 namespace {
 

@@ -18,6 +18,7 @@
 #include "core/file_digest.h"
 #include "core/file_system.h"
 #include "core/sha256.h"
+#include "core/source_date.h"
 #include "io/output_dir.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
@@ -120,16 +121,6 @@ Json BoundConfig(const Plan& plan) {
   return Json{{"normalize", {{"strip_punctuation", plan.normalize.strip_punctuation}}},
               {"near", near},
               {"split", split}};
-}
-
-std::string NowText() {
-  std::time_t t = std::time(nullptr);
-  if (const char* e = std::getenv("SOURCE_DATE_EPOCH"); e && *e) t = static_cast<std::time_t>(std::strtoll(e, nullptr, 10));
-  std::tm tm{};
-  gmtime_r(&t, &tm);
-  char buf[32];
-  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
-  return buf;
 }
 
 const char* PolicyName(ConflictPolicy p) { return p == ConflictPolicy::kJoinFirst ? "join-first" : "reject"; }
@@ -955,7 +946,7 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
       "kept, rejected, stored, counts) VALUES(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
   if (!ib.ok()) return ib.status();
   Statement& b = *ib.value();
-  b.Bind(1, batch).Bind(2, NowText()).Bind(3, plan.plan_digest).Bind(4, inputs_digest).Bind(5, inputs.dump());
+  b.Bind(1, batch).Bind(2, UtcText(NowOrSourceDate())).Bind(3, plan.plan_digest).Bind(4, inputs_digest).Bind(5, inputs.dump());
   b.Bind(6, evals.dump()).Bind(7, first_seq).Bind(8, static_cast<int64_t>(companion.records()));
   b.Bind(9, static_cast<int64_t>(run.value().entries)).Bind(10, static_cast<int64_t>(run.value().kept));
   b.Bind(11, static_cast<int64_t>(run.value().rejected)).Bind(12, static_cast<int64_t>(companion.stored()));
