@@ -6,11 +6,12 @@
 // is the input file (at most kMaxInput bytes). With bit 3 of byte 0 the file is
 // cut in two at a line break and the second part is read with a second layout.
 //
-// Inputs and outputs live in a MemoryFileSystem (fuzz/memory_file_system.h).
-// The evaluation sets are loaded by the leakage stage through the real file
-// system and the rule packs by the screen stage with ifstream, so those are
-// real files: the evaluation sets in a per-process temporary folder (removed
-// at exit), the rule packs in the source tree's rules/ (PREFSIFT_FUZZ_RULES_DIR).
+// Inputs and outputs live in a MemoryFileSystem (src/io/memory_file_system.h).
+// The stages read the evaluation sets and rule packs through the run's file
+// system too: the evaluation sets are written once to a per-process temporary
+// folder (removed at exit), the rule packs are the source tree's rules/
+// (PREFSIFT_FUZZ_RULES_DIR), and both are copied into the in-memory file
+// system at their real paths before each execution (MirrorReadOnlyFiles).
 //
 // Properties checked on every input:
 //  - RunPipeline returns an outcome or an error value; never a crash, an
@@ -49,7 +50,7 @@
 #include <vector>
 
 #include "core/plan.h"
-#include "fuzz/memory_file_system.h"
+#include "io/memory_file_system.h"
 #include "pipeline/pipeline.h"
 
 #ifndef PREFSIFT_FUZZ_RULES_DIR
@@ -59,7 +60,7 @@
 namespace {
 
 using Json = nlohmann::ordered_json;
-using prefsift::fuzz::MemoryFileSystem;
+using prefsift::MemoryFileSystem;
 
 constexpr size_t kMaxInput = 16 * 1024;  // bytes of input file; more is ignored (libFuzzer -max_len is lower)
 const char* const kMem = "/fuzzmem";
@@ -101,6 +102,27 @@ void SetUpOnce() {
       << R"({"qid":"s2","question":"Can the pressure washer be lent out in freezing weather?","reference":"No: water left in the pump can freeze and crack it, so the shed keeps it in until the frost has passed."})"
       << "\n";
   ::setenv(kKeyEnv, "tool-shed-fuzz-key-not-a-secret-0123456789", 1);
+}
+
+// The stages read through the run's file system: the evaluation sets and the
+// rule packs are copied into the in-memory one at their real paths (read from
+// disk once).
+void MirrorReadOnlyFiles(MemoryFileSystem& fs) {
+  static const std::vector<std::pair<std::string, std::string>> files = [] {
+    std::vector<std::pair<std::string, std::string>> out;
+    std::vector<std::string> paths = {TempDir() + "/heldout.txt", TempDir() + "/staff.jsonl"};
+    std::error_code ec;
+    for (std::filesystem::recursive_directory_iterator it(PREFSIFT_FUZZ_RULES_DIR, ec), end; !ec && it != end;
+         it.increment(ec)) {
+      if (it->is_regular_file(ec)) paths.push_back(it->path().string());
+    }
+    for (const auto& p : paths) {
+      std::ifstream in(p, std::ios::binary);
+      out.emplace_back(p, std::string((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>()));
+    }
+    return out;
+  }();
+  for (const auto& [path, bytes] : files) fs.Put(path, bytes);
 }
 
 Json LayoutSpec(int which) {
@@ -360,7 +382,7 @@ std::map<std::string, std::string> RunOnce(MemoryFileSystem& fs, const prefsift:
   std::map<std::string, std::string> record_outputs;
   std::multiset<std::string> kept_lines;
   uint64_t kept_count = 0;
-  for (const auto& name : fs.List(kOut)) {
+  for (const auto& name : fs.ListFiles(kOut)) {
     if (!IsRecordFile(name)) continue;
     std::string bytes;
     fs.Get(std::string(kOut) + "/" + name, &bytes);
@@ -454,6 +476,7 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   static MemoryFileSystem fs;
   fs.Clear();
   (void)fs.MakeDir(kMem);
+  MirrorReadOnlyFiles(fs);
   for (size_t i = 0; i < files.size(); ++i) {
     paths.push_back(std::string(kMem) + "/in" + std::to_string(i) + ".jsonl");
     fs.Put(paths.back(), files[i]);

@@ -4,14 +4,12 @@
 // turns into a value; PlanFromJson must not throw on any parsed value).
 #include <nlohmann/json.hpp>
 
-#include <unistd.h>
-
 #include <cstdint>
-#include <cstdio>
 #include <cstdlib>
 #include <string>
 
 #include "core/plan.h"
+#include "io/memory_file_system.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   std::string text(reinterpret_cast<const char*>(data), size);
@@ -22,16 +20,11 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
     auto p = prefsift::PlanFromJson(j, "base", "fuzz");
     if (!p.ok() && p.status().message().empty()) std::abort();
   }
-  // 2. The file path, which must turn parse errors into values.
-  static std::string path = [] {
-    std::string p = "/tmp/prefsift-fuzz-plan-" + std::to_string(::getpid()) + ".json";
-    return p;
-  }();
-  if (FILE* f = std::fopen(path.c_str(), "wb")) {
-    std::fwrite(text.data(), 1, text.size(), f);
-    std::fclose(f);
-    auto p = prefsift::LoadPlanFile(path);
-    if (!p.ok() && p.status().message().empty()) std::abort();
-  }
+  // 2. The file path, which must turn parse errors into values (the file
+  // held in memory: no disk writes).
+  static prefsift::MemoryFileSystem fs;
+  fs.Put("/fuzz/plan.json", text);
+  auto p = prefsift::LoadPlanFile(&fs, "/fuzz/plan.json");
+  if (!p.ok() && p.status().message().empty()) std::abort();
   return 0;
 }

@@ -19,6 +19,7 @@
 #include <string>
 #include <vector>
 
+#include "io/file_system.h"
 #include "screen/rules.h"
 #include "screen/screener.h"
 
@@ -127,14 +128,14 @@ int main(int argc, char** argv) {
   std::printf("texts=%zu bytes=%zu planted_items=%zu (%.1f%% of texts)\n", texts.size(), bytes, hits,
               100.0 * hits / texts.size());
   const std::vector<std::string> packs = {"contact", "payment", "government", "network", "secrets", "people"};
-  auto all = LoadRulePacks(packs, PREFSIFT_RULES_DIR);
+  auto all = LoadRulePacks(prefsift::DefaultFileSystem(), packs, PREFSIFT_RULES_DIR);
   if (!all.ok()) {
     std::fprintf(stderr, "%s\n", all.status().message().c_str());
     return 1;
   }
   Run("all packs", all.value(), texts, bytes);
   for (const std::string& p : packs) {
-    auto one = LoadRulePacks({p}, PREFSIFT_RULES_DIR);
+    auto one = LoadRulePacks(prefsift::DefaultFileSystem(), {p}, PREFSIFT_RULES_DIR);
     Run(("pack " + p).c_str(), one.value(), texts, bytes);
   }
   for (size_t n : {1u, 5u}) {

@@ -2,6 +2,8 @@
 // place that maps a Status to a process exit code.
 #pragma once
 
+#include <cstdint>
+
 #include "core/status.h"
 
 namespace prefsift {
@@ -30,6 +32,25 @@ inline int ExitFor(const Status& s) {
     case StatusCode::kInternal: return kExitInternal;
   }
   return kExitInternal;
+}
+
+// How a run that wrote its outputs ended, for its exit code.
+struct RunEnd {
+  uint64_t records = 0;
+  uint64_t kept = 0;
+  uint64_t rejected = 0;
+  bool gate_failed = false;
+  bool strict = false;  // --strict or "strict": true in the plan
+};
+
+// The exit code of a run (or a store batch) whose outputs are written, in
+// this order: every record rejected (6), the gate failed (4), --strict with a
+// reject (5), else 0.
+inline int ExitForRun(const RunEnd& e) {
+  if (e.records > 0 && e.kept == 0) return kExitNothingKept;
+  if (e.gate_failed) return kExitGate;
+  if (e.strict && e.rejected > 0) return kExitStrict;
+  return kExitOk;
 }
 
 }  // namespace prefsift

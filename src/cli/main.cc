@@ -87,7 +87,7 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
 Result<Plan> BuildPlan(const CommonOptions& o) {
   Plan plan;
   if (!o.plan_path.empty()) {
-    auto loaded = LoadPlanFile(o.plan_path);
+    auto loaded = LoadPlanFile(DefaultFileSystem(), o.plan_path);
     if (!loaded.ok()) return loaded.status();
     plan = std::move(loaded).value();
   }
@@ -150,7 +150,7 @@ Result<Plan> BuildPlan(const CommonOptions& o) {
 
 // A usage error about a plan setting, with its place in the plan file.
 std::string PlanMessage(const CommonOptions& o, const Status& s) {
-  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(o.plan_path, s.message()) : s.message();
+  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(DefaultFileSystem(), o.plan_path, s.message()) : s.message();
 }
 
 int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, const std::string& command) {
@@ -173,21 +173,17 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
     return ExitFor(outcome.status());
   }
   if (!o.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
-  if (outcome.value().nothing_kept()) {
+  const RunOutcome& oc = outcome.value();
+  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
+  if (code == kExitNothingKept) {
     std::fprintf(stderr,
                  "prefsift: every one of the %llu records was rejected, so nothing is left to train on; rejects.jsonl "
                  "in %s says why (exit %d)\n",
-                 static_cast<unsigned long long>(outcome.value().entries), plan.value().output.c_str(),
-                 kExitNothingKept);
-    return kExitNothingKept;
+                 static_cast<unsigned long long>(oc.entries), plan.value().output.c_str(), kExitNothingKept);
+  } else if (code == kExitStrict) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
   }
-  if (outcome.value().gate_failed) return kExitGate;
-  if (plan.value().strict && outcome.value().rejected > 0) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
-                 static_cast<unsigned long long>(outcome.value().rejected));
-    return kExitStrict;
-  }
-  return kExitOk;
+  return code;
 }
 
 // `prefsift observe`, `decide` and `apply`: the pipeline over parts of the

@@ -53,7 +53,7 @@ void AddBatchArgs(CLI::App* cmd, BatchArgs* a, bool store) {
 }
 
 Result<Plan> BatchPlan(const BatchArgs& a) {
-  auto loaded = LoadPlanFile(a.plan_path);
+  auto loaded = LoadPlanFile(DefaultFileSystem(), a.plan_path);
   if (!loaded.ok()) return loaded.status();
   Plan plan = std::move(loaded).value();
   if (!a.inputs.empty()) {
@@ -153,12 +153,12 @@ class Commands : public StoreCommands {
     o.overwrite = report_overwrite_;
     Plan plan;
     if (!report_plan_.empty()) {
-      auto loaded = LoadPlanFile(report_plan_);
+      auto loaded = LoadPlanFile(DefaultFileSystem(), report_plan_);
       if (!loaded.ok()) return Fail(loaded.status());
       plan = std::move(loaded).value();
       o.plan = &plan;
       if (o.store_path.empty()) {
-        auto st = store::StoreSettingsFromPlan(plan);
+        auto st = store::StoreSettingsFromPlan(DefaultFileSystem(), plan);
         if (!st.ok()) return Fail(st.status());
         o.store_path = st.value().path;
       }
@@ -185,16 +185,21 @@ class Commands : public StoreCommands {
                    static_cast<long long>(r.value().batch));
       return 0;
     }
-    if (r.value().gate_failed) {
+    const store::AddOutcome& oc = r.value();
+    const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
+    if (oc.gate_failed) {
       std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
                    plan.value().output.c_str());
-      return kExitGate;
+      return code;
     }
     if (!add_args_.quiet) {
-      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(r.value().batch),
+      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(oc.batch),
                    plan.value().output.c_str());
     }
-    return 0;
+    if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
+    if (code == kExitStrict) std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
+                                          static_cast<unsigned long long>(oc.rejected));
+    return code;
   }
 
   CLI::App *add_, *history_, *summary_, *report_, *sign_, *merge_;

@@ -57,36 +57,77 @@ std::vector<std::string> LayoutPresetNames() {
   return names;
 }
 
-Result<Layout> LayoutFromJson(const Json& spec_in, const std::string& where) {
-  if (!spec_in.is_object()) return Status::Usage(where + ": a layout must be a JSON object");
-  Json spec = Json::object();
-  std::string preset = "custom";
+namespace {
+
+// The layout's keys: the preset's, with the user's on top (judgment keys in
+// the user's spec replace the preset's judgment entirely). Unknown keys are
+// errors.
+Status MergedSpec(const Json& spec_in, const std::string& where, Json* spec, std::string* preset) {
   if (spec_in.contains("preset")) {
     if (!spec_in["preset"].is_string()) return Status::Usage(where + ".preset: must be a string");
-    preset = spec_in["preset"].get<std::string>();
-    auto it = Presets().find(preset);
+    *preset = spec_in["preset"].get<std::string>();
+    auto it = Presets().find(*preset);
     if (it == Presets().end()) {
       std::string names;
       for (const auto& n : LayoutPresetNames()) names += (names.empty() ? "" : ", ") + n;
-      return Status::Usage(where + ".preset: unknown preset \"" + preset + "\" (known: " + names + ")");
+      return Status::Usage(where + ".preset: unknown preset \"" + *preset + "\" (known: " + names + ")");
     }
-    spec = it->second;
+    *spec = it->second;
   }
-  // Judgment keys in the user's spec replace the preset's judgment entirely.
   bool user_judgment = spec_in.contains("choice") || spec_in.contains("ranks") || spec_in.contains("order") ||
                        spec_in.contains("chosen") || spec_in.contains("rejected");
   if (user_judgment) {
-    for (const char* k : {"choice", "ranks", "order", "chosen", "rejected"}) spec.erase(k);
+    for (const char* k : {"choice", "ranks", "order", "chosen", "rejected"}) spec->erase(k);
     if (!spec_in.contains("candidates") && (spec_in.contains("chosen") || spec_in.contains("rejected"))) {
-      spec.erase("candidates");
+      spec->erase("candidates");
     }
   }
   for (auto it = spec_in.begin(); it != spec_in.end(); ++it) {
     bool known = false;
     for (const char* k : kKnownKeys) known = known || it.key() == k;
     if (!known) return Status::Usage(where + ": unknown layout key \"" + it.key() + "\"");
-    if (it.key() != "preset") spec[it.key()] = it.value();
+    if (it.key() != "preset") (*spec)[it.key()] = it.value();
   }
+  return Status::Ok();
+}
+
+// choice_base / rank_base, and the user and system role names.
+Status ReadBasesAndRoles(const Json& spec, const std::string& where, Layout* l) {
+  for (const char* key : {"choice_base", "rank_base"}) {
+    if (!spec.contains(key)) continue;
+    const auto& b = spec[key];
+    if (!b.is_number_integer() || (b.get<int>() != 0 && b.get<int>() != 1)) {
+      return Status::Usage(where + "." + key + ": must be 0 or 1");
+    }
+    (std::string(key) == "choice_base" ? l->choice_base : l->rank_base) = b.get<int>();
+    l->base_given = true;
+  }
+  l->user_roles = DefaultUserRoles();
+  l->system_roles = DefaultSystemRoles();
+  for (auto [key, out] : {std::pair{"user_roles", &l->user_roles}, std::pair{"system_roles", &l->system_roles}}) {
+    if (!spec.contains(key)) continue;
+    const auto& v = spec[key];
+    if (!v.is_array() || v.empty()) return Status::Usage(where + "." + key + ": must be a non-empty array of role names");
+    out->clear();
+    for (const auto& r : v) {
+      if (!r.is_string() || r.get<std::string>().empty()) {
+        return Status::Usage(where + "." + key + ": every entry must be a non-empty string");
+      }
+      std::string lower = r.get<std::string>();
+      for (auto& c : lower) c = static_cast<char>(c >= 'A' && c <= 'Z' ? c - 'A' + 'a' : c);
+      out->push_back(lower);
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+Result<Layout> LayoutFromJson(const Json& spec_in, const std::string& where) {
+  if (!spec_in.is_object()) return Status::Usage(where + ": a layout must be a JSON object");
+  Json spec = Json::object();
+  std::string preset = "custom";
+  if (Status s = MergedSpec(spec_in, where, &spec, &preset); !s.ok()) return s;
 
   Layout l;
   l.preset = preset;
@@ -139,31 +180,7 @@ Result<Layout> LayoutFromJson(const Json& spec_in, const std::string& where) {
     if (has_order) { l.judgment = JudgmentShape::kOrder; l.ranking = order; }
   }
   l.id_required = l.has_id && spec_in.contains("id") && !spec_in["id"].is_null();
-  for (const char* key : {"choice_base", "rank_base"}) {
-    if (!spec.contains(key)) continue;
-    const auto& b = spec[key];
-    if (!b.is_number_integer() || (b.get<int>() != 0 && b.get<int>() != 1)) {
-      return Status::Usage(where + "." + key + ": must be 0 or 1");
-    }
-    (std::string(key) == "choice_base" ? l.choice_base : l.rank_base) = b.get<int>();
-    l.base_given = true;
-  }
-  l.user_roles = DefaultUserRoles();
-  l.system_roles = DefaultSystemRoles();
-  for (auto [key, out] : {std::pair{"user_roles", &l.user_roles}, std::pair{"system_roles", &l.system_roles}}) {
-    if (!spec.contains(key)) continue;
-    const auto& v = spec[key];
-    if (!v.is_array() || v.empty()) return Status::Usage(where + "." + key + ": must be a non-empty array of role names");
-    out->clear();
-    for (const auto& r : v) {
-      if (!r.is_string() || r.get<std::string>().empty()) {
-        return Status::Usage(where + "." + key + ": every entry must be a non-empty string");
-      }
-      std::string lower = r.get<std::string>();
-      for (auto& c : lower) c = static_cast<char>(c >= 'A' && c <= 'Z' ? c - 'A' + 'a' : c);
-      out->push_back(lower);
-    }
-  }
+  if (Status s = ReadBasesAndRoles(spec, where, &l); !s.ok()) return s;
   return l;
 }
 

@@ -1,19 +1,42 @@
 #include "core/plan.h"
 
+#include <nlohmann/json.hpp>
+
 #include <algorithm>
 #include <cctype>
 #include <cstring>
 #include <filesystem>
-#include <fstream>
 #include <set>
-#include <sstream>
 #include <utility>
 #include <vector>
 
+#include "core/file_system.h"
 #include "core/limits.h"
 #include "core/sha256.h"
 
 namespace prefsift {
+
+namespace {
+void DeleteJson(nlohmann::ordered_json* j) { delete j; }
+}  // namespace
+
+JsonSection::JsonSection() : value_(new nlohmann::ordered_json(nlohmann::ordered_json::object()), DeleteJson) {}
+JsonSection::JsonSection(const JsonSection& other) : value_(new nlohmann::ordered_json(*other.value_), DeleteJson) {}
+JsonSection::JsonSection(JsonSection&& other) noexcept : JsonSection() { value_.swap(other.value_); }
+JsonSection& JsonSection::operator=(const JsonSection& other) {
+  *value_ = *other.value_;
+  return *this;
+}
+JsonSection& JsonSection::operator=(JsonSection&& other) noexcept {
+  value_.swap(other.value_);
+  return *this;
+}
+JsonSection& JsonSection::operator=(const nlohmann::ordered_json& value) {
+  *value_ = value;
+  return *this;
+}
+JsonSection::~JsonSection() = default;
+
 namespace {
 
 using Json = nlohmann::ordered_json;
@@ -306,7 +329,7 @@ std::string SyntaxProblem(const std::string& text, size_t offset) {
 
 }  // namespace
 
-std::string PlaceInPlanFile(const std::string& plan_path, const std::string& message) {
+std::string PlaceInPlanFile(FileSystem* fs, const std::string& plan_path, const std::string& message) {
   if (plan_path.empty()) return message;
   size_t colon = message.find(": ");
   if (colon == std::string::npos || colon == 0) return message;
@@ -314,11 +337,9 @@ std::string PlaceInPlanFile(const std::string& plan_path, const std::string& mes
   for (char ch : key) {
     if (!std::isalnum(static_cast<unsigned char>(ch)) && !std::strchr("_$.[]*-", ch)) return message;
   }
-  std::ifstream f(plan_path, std::ios::binary);
-  if (!f) return message;
-  std::stringstream ss;
-  ss << f.rdbuf();
-  const std::string text = ss.str();
+  auto read = ReadWholeFile(fs, plan_path);
+  if (!read.ok()) return message;
+  const std::string& text = read.value();
   // The deepest part of the path that the file has ("gate.max_x" is there even
   // when the error is about one of its members).
   for (std::string k = key; !k.empty();) {
@@ -331,12 +352,10 @@ std::string PlaceInPlanFile(const std::string& plan_path, const std::string& mes
   return plan_path + ": " + message;
 }
 
-Result<Plan> LoadPlanFile(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) return Status::Usage("cannot read the plan file " + path);
-  std::stringstream ss;
-  ss << f.rdbuf();
-  std::string text = ss.str();
+Result<Plan> LoadPlanFile(FileSystem* fs, const std::string& path) {
+  auto read = ReadWholeFile(fs, path);
+  if (!read.ok()) return Status::Usage("cannot read the plan file " + path);
+  const std::string& text = read.value();
   Json j;
   try {
     j = Json::parse(text, nullptr, true, /*ignore_comments=*/true);
@@ -355,7 +374,7 @@ Result<Plan> LoadPlanFile(const std::string& path) {
     std::string m = plan.status().message();
     if (m.compare(0, path.size() + 1, path + ".") == 0) m = m.substr(path.size() + 1);
     else if (m.compare(0, path.size() + 2, path + ": ") == 0) return Status::Usage(m);
-    return Status::Usage(PlaceInPlanFile(path, m));
+    return Status::Usage(PlaceInPlanFile(fs, path, m));
   }
   plan.value().plan_path = path;
   plan.value().plan_digest = Sha256Hex(text);

@@ -13,6 +13,7 @@
 #include <mutex>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "io/file_system.h"
 
@@ -37,6 +38,7 @@ class DigestingFileSystem : public FileSystem {
   Status RemoveAll(const std::string& path) override { return base_->RemoveAll(path); }
   bool Exists(const std::string& path) override { return base_->Exists(path); }
   bool IsDirectory(const std::string& path) override { return base_->IsDirectory(path); }
+  Result<std::vector<std::string>> List(const std::string& dir) override { return base_->List(dir); }
 
  private:
   friend class DigestingFile;

@@ -2,6 +2,7 @@
 
 #include <sys/stat.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
@@ -110,6 +111,16 @@ class PosixFileSystem : public FileSystem {
   bool IsDirectory(const std::string& path) override {
     std::error_code ec;
     return std::filesystem::is_directory(path, ec);
+  }
+  Result<std::vector<std::string>> List(const std::string& dir) override {
+    std::error_code ec;
+    std::vector<std::string> names;
+    for (std::filesystem::directory_iterator it(dir, ec), end; !ec && it != end; it.increment(ec)) {
+      names.push_back(it->path().filename().string());
+    }
+    if (ec) return Status::Input("cannot list the folder " + dir + ": " + ec.message());
+    std::sort(names.begin(), names.end());
+    return names;
   }
 };
 

@@ -133,20 +133,6 @@ std::string ObservationFingerprint(const Plan& plan, const std::vector<std::stri
   return Sha256Hex(j.dump());
 }
 
-Result<std::string> ReadWholeFile(FileSystem* fs, const std::string& path) {
-  auto f = fs->OpenRead(path);
-  if (!f.ok()) return f.status();
-  std::string out;
-  char buf[1 << 16];
-  for (;;) {
-    auto got = f.value()->Read(buf, sizeof buf);
-    if (!got.ok()) return got.status();
-    if (got.value() == 0) break;
-    out.append(buf, got.value());
-  }
-  return out;
-}
-
 ObservedRun::ObservedRun(const Plan& plan) : plan_(plan), st_(plan) {}
 ObservedRun::~ObservedRun() = default;
 

@@ -95,7 +95,4 @@ class ObservedRun {
 // limits, normalisation, seed and stage settings (hex SHA-256).
 std::string ObservationFingerprint(const Plan& plan, const std::vector<std::string>& stage_names);
 
-// Reads a whole file through the seam.
-Result<std::string> ReadWholeFile(FileSystem* fs, const std::string& path);
-
 }  // namespace prefsift

@@ -80,7 +80,6 @@ const std::vector<Section>& Sections() {
   return k;
 }
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
 
 std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.dump(); }
@@ -94,22 +93,22 @@ Json At(const Json& j, const char* key) { return j.is_object() && j.contains(key
 Json CompositionFacts(const Json& s) {
   Json f = Json::array();
   auto add = [&](const std::string& what, const Json& value) { f.push_back(Json{{"fact", what}, {"value", value}}); };
-  if (const Json* l = Find(s, {"ledger"})) {
+  if (const Json* l = FindPath(s, {"ledger"})) {
     add("records read (non-blank input lines)", At(*l, "records_in"));
     add("records kept", At(*l, "kept"));
     add("records rejected", At(*l, "rejected"));
   }
-  if (const Json* ins = Find(s, {"inputs"}); ins && ins->is_array()) {
+  if (const Json* ins = FindPath(s, {"inputs"}); ins && ins->is_array()) {
     for (const auto& in : *ins) {
       add("input " + Str(in["name"]) + ": records read / kept", Json::array({At(in, "records_in"), At(in, "kept")}));
     }
   }
-  const Json* whole = Find(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
+  const Json* whole = FindPath(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
   if (whole) {
     add("batches in the store", At(*whole, "batch_count"));
     add("store counts, summed over batches", At(*whole, "store_counts"));
   }
-  const Json* c = Find(s, {"stages", "split", "composition"});
+  const Json* c = FindPath(s, {"stages", "split", "composition"});
   if (!c && !whole) {
     add("composition of kept records", "not available: the split stage did not run");
     return f;
@@ -130,12 +129,12 @@ Json CompositionFacts(const Json& s) {
   add("records with a thread id", At(*c, "records_with_thread"));
   add("prompt script (crude detection; records)", At(*c, "prompt_script")["records"]);
   }
-  if (const Json* sp = Find(s, {"stages", "split", "splits"})) {
+  if (const Json* sp = FindPath(s, {"stages", "split", "splits"})) {
     Json t = Json::object();
     for (const auto& e : *sp) t[Str(e["name"])] = e["records"];
     add("recommended splits (records; group-aware, see Preprocessing)", t);
   }
-  if (const Json* sc = Find(s, {"stages", "screen"})) {
+  if (const Json* sc = FindPath(s, {"stages", "screen"})) {
     add("personal-data findings (all records, before actions)", At(*sc, "findings"));
     add("records with personal-data findings", At(*sc, "records_with_findings"));
     add("personal-data findings by action", At(*sc, "by_action"));
@@ -145,11 +144,11 @@ Json CompositionFacts(const Json& s) {
   } else {
     add("personal-data screen", "not run");
   }
-  if (const Json* lk = Find(s, {"stages", "leakage"})) {
+  if (const Json* lk = FindPath(s, {"stages", "leakage"})) {
     add("records matching an evaluation set", At(*lk, "contaminated_records"));
   }
   if (whole) add("evaluation sets", At(*whole, "evaluation_sets"));
-  if (const Json* nr = Find(s, {"stages", "near"})) {
+  if (const Json* nr = FindPath(s, {"stages", "near"})) {
     add("near-duplicate prompt clusters / records in them", Json::array({At(*nr, "clusters"), At(*nr, "records_in_clusters")}));
   }
   return f;
@@ -157,7 +156,7 @@ Json CompositionFacts(const Json& s) {
 
 Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
   Json stages = Json::array();
-  const Json* ran = Find(s, {"stages"});
+  const Json* ran = FindPath(s, {"stages"});
   if (ran && ran->is_object()) {
     for (auto it = ran->begin(); it != ran->end(); ++it) {
       Json e;
@@ -166,7 +165,7 @@ Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
       if (it.value().contains("settings")) e["settings_used"] = it.value()["settings"];
       uint64_t rejected = 0;
       Json reasons = Json::object();
-      if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+      if (const Json* rb = FindPath(s, {"rejects_by_stage"})) {
         for (const auto& r : *rb) {
           if (r["stage"] == it.key()) {
             rejected = r["rejected"].get<uint64_t>();
@@ -176,13 +175,13 @@ Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
       }
       e["rejected"] = rejected;
       e["rejected_by_reason"] = reasons;
-      e["details"] = std::string(Find(s, {"whole_store"}) ? "each batch's summary.json stages." : "summary.json stages.") +
+      e["details"] = std::string(FindPath(s, {"whole_store"}) ? "each batch's summary.json stages." : "summary.json stages.") +
                      it.key();
       stages.push_back(std::move(e));
     }
   }
   // Ingest rejects are not a stage section.
-  if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+  if (const Json* rb = FindPath(s, {"rejects_by_stage"})) {
     for (const auto& r : *rb) {
       if (r["stage"] == "ingest") {
         stages.insert(stages.begin(), Json{{"stage", "ingest"}, {"settings_in_plan", Json::object()},
@@ -193,13 +192,13 @@ Json PreprocessingFacts(const Json& plan_stages, const Json& s) {
   }
   Json f;
   f["stages"] = std::move(stages);
-  if (const Json* sp = Find(s, {"stages", "split"})) {
+  if (const Json* sp = FindPath(s, {"stages", "split"})) {
     f["splits"] = Json{{"tie_by", (*sp)["tie_by"]}, {"assignment", (*sp)["assignment"]}, {"splits", (*sp)["splits"]},
                        {"checks", (*sp)["checks"]}};
   } else {
     f["splits"] = "the split stage did not run: no recommended splits";
   }
-  if (const Json* st = Find(s, {"settings"})) f["normalisation"] = (*st)["normalize"];
+  if (const Json* st = FindPath(s, {"settings"})) f["normalisation"] = (*st)["normalize"];
   f["software"] = "prefsift (see Provenance for version, revision and digests)";
   return f;
 }
@@ -245,7 +244,7 @@ Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json&
   d["about"] = "Datasheet organised by the seven sections of Datasheets for Datasets (Gebru et al., arXiv:1803.09010; "
                "Communications of the ACM 64(12), 2021). Answers marked \"from the plan\" were written by the dataset's "
                "owners in the plan's provenance object; \"from the run\" facts were measured by prefsift.";
-  if (const Json* w = Find(summary, {"whole_store"})) d["scope"] = At(*w, "scope");
+  if (const Json* w = FindPath(summary, {"whole_store"})) d["scope"] = At(*w, "scope");
   d["gate"] = summary.contains("gate") ? summary["gate"] : Json("not evaluated");
   d["personal_data_caution"] = kPersonalDataCaution;
   Json sections = Json::array();
@@ -257,7 +256,7 @@ Json BuildDatasheet(const Json& provenance, const Json& plan_stages, const Json&
     js["title"] = sec.title;
     Json answers = Json::array();
     for (const auto& q : sec.questions) {
-      const Json* a = Find(provenance, {sec.key, q.key});
+      const Json* a = FindPath(provenance, {sec.key, q.key});
       answers.push_back(Json{{"key", q.key},
                              {"question", q.question},
                              {"answer", a ? *a : Json("not provided")},

@@ -23,7 +23,6 @@ using Json = nlohmann::ordered_json;
 
 namespace {
 
-const Json* Find(const Json& j, std::initializer_list<const char*> path) { return FindPath(j, path); }
 
 std::string Str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.is_null() ? "" : j.dump(); }
 
@@ -295,12 +294,12 @@ std::string Swatch(const std::string& colour) {
 // ---------------------------------------------------------------- 1. gate
 
 std::string GateSection(const Json& s) {
-  const Json* g = Find(s, {"gate"});
+  const Json* g = FindPath(s, {"gate"});
   std::string verdict = g ? Str((*g)["verdict"]) : "not evaluated";
   std::string cls = verdict == "pass" ? "pass" : verdict == "fail" ? "fail" : "other";
   std::string o = "<section class=\"gate " + cls + "\" id=\"gate\"" + Attr("data-verdict", verdict) +
                   "><h2>Did it pass? Gate: " + Esc(verdict) + "</h2>";
-  const Json* checks = g ? Find(*g, {"checks"}) : nullptr;
+  const Json* checks = g ? FindPath(*g, {"checks"}) : nullptr;
   if (!checks || !checks->is_array() || checks->empty()) {
     o += "<p>" + Esc(g && g->contains("note") ? Str((*g)["note"]) : "The plan sets no gate checks.") + "</p>";
     return o + "</section>\n";
@@ -334,13 +333,13 @@ std::string GateSection(const Json& s) {
 // ---------------------------------------------------------------- 2. removed
 
 std::string LedgerChart(const Json& s) {
-  const Json* l = Find(s, {"ledger"});
+  const Json* l = FindPath(s, {"ledger"});
   const std::string title = "Ledger: records read, rejected by stage, kept";
   if (!l) return Figure("ledger", title, "not-run", "", "");
   std::vector<Row> rows;
   rows.push_back({"records read", D(*l, "records_in"), "", ColourOf("measure")});
   rows.push_back({"rejected (all stages)", D(*l, "rejected"), "", ColourOf("rejected")});
-  if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+  if (const Json* rb = FindPath(s, {"rejects_by_stage"})) {
     for (const auto& r : *rb) rows.push_back({"rejected by " + Str(r["stage"]), D(r, "rejected"), "", StageColour(Str(r["stage"]))});
   }
   rows.push_back({"kept", D(*l, "kept"), "", ColourOf("kept")});
@@ -355,7 +354,7 @@ std::string LedgerChart(const Json& s) {
 // The example of a stage and reason from summary.examples.rejects, masked.
 std::string RejectExample(const Json& s, const std::string& stage, const std::string& reason, bool whole) {
   if (whole) return "<span class=\"small\">in each batch's report</span>";
-  const Json* ex = Find(s, {"examples", "rejects"});
+  const Json* ex = FindPath(s, {"examples", "rejects"});
   if (!ex || !ex->is_array()) return "";
   for (const auto& e : *ex) {
     if (Str(V(e, "stage")) != stage || Str(V(e, "reason")) != reason) continue;
@@ -379,7 +378,7 @@ std::string RejectExample(const Json& s, const std::string& stage, const std::st
 }
 
 std::string RejectsTable(const Json& s, bool whole) {
-  const Json* rb = Find(s, {"rejects_by_stage"});
+  const Json* rb = FindPath(s, {"rejects_by_stage"});
   if (!rb || rb->empty()) return "<p class=\"missing\" id=\"rejects-none\">no rejects</p>\n";
   std::vector<std::pair<std::string, std::vector<std::string>>> rows;
   for (const auto& r : *rb) {
@@ -401,7 +400,7 @@ std::string RejectsTable(const Json& s, bool whole) {
 }
 
 std::string RemovedSection(const Json& s) {
-  const bool whole = Find(s, {"whole_store"}) != nullptr;
+  const bool whole = FindPath(s, {"whole_store"}) != nullptr;
   return Section("removed", "What was removed, and why?", "<div class=\"grid\">" + LedgerChart(s) + "</div>" +
                                                                RejectsTable(s, whole));
 }
@@ -409,7 +408,7 @@ std::string RemovedSection(const Json& s) {
 // ---------------------------------------------------------------- 3. review
 
 std::string SlotChart(const Json& s) {
-  const Json* c = Find(s, {"stages", "split", "composition", "chosen_slot_by_candidates"});
+  const Json* c = FindPath(s, {"stages", "split", "composition", "chosen_slot_by_candidates"});
   const std::string title = "Chosen slot by number of candidates (share of records)";
   if (!c) return Figure("chosen-slot", title, "not-run", "", "");
   std::vector<std::string> cats;
@@ -437,7 +436,7 @@ std::string SlotChart(const Json& s) {
 }
 
 std::string LengthChart(const Json& s) {
-  const Json* h = Find(s, {"stages", "split", "composition", "candidate_chars_histogram", "bins"});
+  const Json* h = FindPath(s, {"stages", "split", "composition", "candidate_chars_histogram", "bins"});
   const std::string title = "Answer length, chosen vs other answers (code points, share per group)";
   if (!h) return Figure("lengths", title, "not-run", "", "");
   if (h->empty()) return Figure("lengths", title, "empty", "no answers", "");
@@ -471,7 +470,7 @@ struct Family {
 };
 
 std::string ReviewSection(const Json& s) {
-  const Json* bias = Find(s, {"stages", "bias"});
+  const Json* bias = FindPath(s, {"stages", "bias"});
   std::string o;
   if (!bias) {
     return Section("review", "What should a reviewer look at?",
@@ -528,7 +527,7 @@ std::string ReviewSection(const Json& s) {
   }
   // Whole-data tests.
   std::vector<std::pair<std::string, std::vector<std::string>>> tests;
-  if (const Json* by_b = Find(*bias, {"position", "by_candidates"}); by_b && by_b->is_array()) {
+  if (const Json* by_b = FindPath(*bias, {"position", "by_candidates"}); by_b && by_b->is_array()) {
     for (const auto& t : *by_b) {
       tests.push_back({Attr("data-test", "position") + Attr("data-candidates", Raw(V(t, "candidates"))) +
                            Attr("data-p-adjusted", Raw(V(t, "p_adjusted"))),
@@ -538,7 +537,7 @@ std::string ReviewSection(const Json& s) {
     }
   }
   for (const char* unit : {"words", "characters"}) {
-    const Json* t = Find(*bias, {"length", unit});
+    const Json* t = FindPath(*bias, {"length", unit});
     if (!t) continue;
     tests.push_back({Attr("data-test", std::string("length-") + unit) +
                          Attr("data-p-adjusted", Raw(V(*t, "p_adjusted"))),
@@ -551,13 +550,13 @@ std::string ReviewSection(const Json& s) {
   o += "<h3>Position and length tests over all kept records</h3>\n";
   o += tests.empty() ? std::string("<p class=\"missing\">no tests had data</p>\n")
                      : Table("bias-tests", {"test", "method", "records", "p", "adjusted p", "result"}, tests) + "\n";
-  if (const Json* rb = Find(*bias, {"position", "rebalance"}); rb && True(*rb, "enabled")) {
+  if (const Json* rb = FindPath(*bias, {"position", "rebalance"}); rb && True(*rb, "enabled")) {
     o += "<p>Position rebalancing: " + Esc(Plain(*rb)) + "</p>\n";
   }
   o += "<div class=\"grid\">" + SlotChart(s) + LengthChart(s) + "</div>";
   // The shortcut audit, from whatever fields it reports.
   o += "<h3>Shortcut audit</h3>\n";
-  if (const Json* sa = Find(*bias, {"shortcut_audit"}); sa && sa->is_object()) {
+  if (const Json* sa = FindPath(*bias, {"shortcut_audit"}); sa && sa->is_object()) {
     const double acc = D(*sa, "heldout_accuracy", -1);
     double chance = D(*sa, "chance_accuracy", D(*sa, "chance", -1));
     if (chance < 0 && V(*sa, "chance").is_object()) chance = D(V(*sa, "chance"), "accuracy", -1);
@@ -580,11 +579,11 @@ std::string ReviewSection(const Json& s) {
 
 std::string LeakageSection(const Json& s) {
   const std::string title = "Leakage per evaluation set and detector (records)";
-  const Json* lk = Find(s, {"stages", "leakage"});
+  const Json* lk = FindPath(s, {"stages", "leakage"});
   if (!lk) return Section("leakage", "Leakage", Figure("leakage", title, "not-run", "", ""));
   std::string o;
   if (lk->contains("skipped")) o += "<p class=\"missing\">" + Esc(Str((*lk)["skipped"])) + "</p>\n";
-  const Json* b = Find(*lk, {"by_set"});
+  const Json* b = FindPath(*lk, {"by_set"});
   if (!b || !b->is_object() || b->empty()) {
     return Section("leakage", "Leakage", o + Figure("leakage", title, "empty", "no evaluation sets", ""));
   }
@@ -617,8 +616,8 @@ std::string LeakageSection(const Json& s) {
 
 std::string ClusterSection(const Json& s) {
   const std::string title = "Near-duplicate prompt clusters by size";
-  const Json* nr = Find(s, {"stages", "near"});
-  const Json* c = nr ? Find(*nr, {"cluster_sizes"}) : nullptr;
+  const Json* nr = FindPath(s, {"stages", "near"});
+  const Json* c = nr ? FindPath(*nr, {"cluster_sizes"}) : nullptr;
   std::string fig;
   if (!c) {
     fig = Figure("clusters", title, "not-run", "", "");
@@ -649,12 +648,12 @@ std::string ClusterSection(const Json& s) {
 
 std::string PersonalSection(const Json& s) {
   const std::string title = "Personal-data findings by kind";
-  const Json* sc = Find(s, {"stages", "screen"});
+  const Json* sc = FindPath(s, {"stages", "screen"});
   const std::string caution = "<div class=\"caution\"><strong>Personal data.</strong> " + Esc(kPersonalDataCaution) + "</div>\n";
   if (!sc) return Section("personal-data", "Personal data", Figure("personal-data", title, "not-run", "", "") + caution);
-  const Json* kinds = Find(*sc, {"by_kind"});
-  if (!kinds) kinds = Find(*sc, {"by_rule"});
-  const Json* examples = Find(s, {"examples", "personal_data"});
+  const Json* kinds = FindPath(*sc, {"by_kind"});
+  if (!kinds) kinds = FindPath(*sc, {"by_rule"});
+  const Json* examples = FindPath(s, {"examples", "personal_data"});
   std::vector<Row> bars;
   std::vector<std::pair<std::string, std::vector<std::string>>> rows;
   if (kinds && kinds->is_object()) {
@@ -695,7 +694,7 @@ std::string PersonalSection(const Json& s) {
 
 std::string SplitSection(const Json& s) {
   const std::string title = "Split sizes (records; group-aware)";
-  const Json* sp = Find(s, {"stages", "split", "splits"});
+  const Json* sp = FindPath(s, {"stages", "split", "splits"});
   if (!sp) return Section("splits", "Splits and their group checks", Figure("splits", title, "not-run", "", ""));
   std::vector<Row> bars;
   std::vector<std::pair<std::string, std::vector<std::string>>> rows;
@@ -714,10 +713,10 @@ std::string SplitSection(const Json& s) {
                                : Figure("splits", title, "data", HBars(bars), "Whole groups go to one split.",
                                         Table("splits-table", {"split", "records", "groups", "share", "target", "within 3 sd"},
                                               rows));
-  if (const Json* ch = Find(s, {"stages", "split", "checks"}); ch && ch->is_object() && !ch->empty()) {
+  if (const Json* ch = FindPath(s, {"stages", "split", "checks"}); ch && ch->is_object() && !ch->empty()) {
     o += "<h3>Group checks</h3>\n" + FieldTable(*ch, "split-checks") + "\n";
   }
-  if (const Json* tie = Find(s, {"stages", "split", "tie_by"})) {
+  if (const Json* tie = FindPath(s, {"stages", "split", "tie_by"})) {
     o += "<p class=\"small\">Records are tied into one group by: " + Esc(Plain(*tie)) + ".</p>\n";
   }
   return Section("splits", "Splits and their group checks", o);
@@ -728,7 +727,7 @@ std::string SplitSection(const Json& s) {
 // Stages this page has no section for (added later): their scalar figures.
 std::string OtherStagesSection(const Json& s) {
   static const std::set<std::string> kKnown = {"exact", "near", "leakage", "screen", "bias", "split", "store"};
-  const Json* st = Find(s, {"stages"});
+  const Json* st = FindPath(s, {"stages"});
   if (!st || !st->is_object()) return "";
   std::string o;
   for (auto it = st->begin(); it != st->end(); ++it) {
@@ -746,7 +745,7 @@ std::string OtherStagesSection(const Json& s) {
 // ---------------------------------------------------------------- store only
 
 std::string BatchTable(const Json& whole) {
-  const Json* bs = Find(whole, {"batches"});
+  const Json* bs = FindPath(whole, {"batches"});
   std::string o;
   if (!bs || bs->empty()) return Section("batches", "Batches", "<p class=\"missing\">no batches</p>\n");
   std::vector<std::pair<std::string, std::vector<std::string>>> rows;
@@ -770,7 +769,7 @@ std::string BatchTable(const Json& whole) {
   o += "<div class=\"batches\">" +
        Table("batches-table", {"batch", "added at", "records", "kept", "rejected", "group conflicts", "digests (SHA-256)"}, rows) +
        "</div>\n";
-  if (const Json* ev = Find(whole, {"evaluation_sets", "note"})) o += "<p class=\"small\">Evaluation sets: " + Esc(Str(*ev)) + ".</p>\n";
+  if (const Json* ev = FindPath(whole, {"evaluation_sets", "note"})) o += "<p class=\"small\">Evaluation sets: " + Esc(Str(*ev)) + ".</p>\n";
   return Section("batches", "Batches", o);
 }
 
@@ -799,7 +798,7 @@ std::string StoreOnlyNote(const Json&) {
 }
 
 std::string StoreBatches(const Json& s) {
-  const Json* whole = Find(s, {"whole_store"});
+  const Json* whole = FindPath(s, {"whole_store"});
   return whole ? BatchTable(*whole) : "";
 }
 
@@ -814,17 +813,17 @@ const std::vector<ReportSection>& StoreSections() {
 // The palette legend: the colours this page uses, each with its one meaning.
 std::string Legend(const Json& s, bool whole) {
   std::set<std::string> stages;
-  if (const Json* rb = Find(s, {"rejects_by_stage"})) {
+  if (const Json* rb = FindPath(s, {"rejects_by_stage"})) {
     for (const auto& r : *rb) stages.insert("stage:" + Str(r["stage"]));
   }
   for (const char* st : {"near", "leakage", "screen"}) {
-    if (Find(s, {"stages", st})) stages.insert(std::string("stage:") + st);
+    if (FindPath(s, {"stages", st})) stages.insert(std::string("stage:") + st);
   }
   std::string o = "<p class=\"legend\" id=\"legend\"><span class=\"small\">Colours (the same in every chart):</span> ";
   for (const auto& c : Palette()) {
     const std::string m = c.meaning;
     bool used = m == "kept" || m == "rejected" || stages.count(m) || (m == "measure") ||
-                (m == "reference" && !whole) || (m.rfind("split:", 0) == 0 && Find(s, {"stages", "split"}));
+                (m == "reference" && !whole) || (m.rfind("split:", 0) == 0 && FindPath(s, {"stages", "split"}));
     if (!used) continue;
     std::string label = m.find(':') == std::string::npos ? m : m.substr(m.find(':') + 1);
     if (m.rfind("stage:", 0) == 0) label = "stage " + label;
@@ -898,7 +897,7 @@ window.addEventListener('load', function () {
 
 std::string RenderHtmlReport(const Json& s, const Json& sheet) {
   std::string name = sheet.contains("dataset_name") ? Str(sheet["dataset_name"]) : "not provided";
-  const Json* whole = Find(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
+  const Json* whole = FindPath(s, {"whole_store"});  // a summary over a whole store (docs/store.md)
   const std::string kind = whole ? "prefsift store report" : "prefsift report";
   std::string h = "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
                   "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
@@ -907,10 +906,10 @@ std::string RenderHtmlReport(const Json& s, const Json& sheet) {
                   "<title>" + kind + ": " + Esc(name) + "</title><style>" + kStyle + "</style></head>\n<body><main>\n";
   h += "<h1>" + kind + "</h1><p class=\"sub\">Dataset: " + Esc(name);
   if (whole && whole->contains("scope")) h += " &middot; " + Esc(Str((*whole)["scope"]));
-  if (const Json* v = Find(s, {"tool", "version"})) h += " &middot; prefsift " + Esc(Str(*v));
-  if (const Json* r = Find(s, {"tool", "revision"})) h += " (" + Esc(Str(*r)) + ")";
+  if (const Json* v = FindPath(s, {"tool", "version"})) h += " &middot; prefsift " + Esc(Str(*v));
+  if (const Json* r = FindPath(s, {"tool", "revision"})) h += " (" + Esc(Str(*r)) + ")";
   h += "</p>\n<dl class=\"facts\">";
-  if (const Json* t = Find(s, {"provenance", "time"})) {
+  if (const Json* t = FindPath(s, {"provenance", "time"})) {
     h += "<dt>" + std::string(whole ? "written" : "run started") + "</dt><dd id=\"run-time\">" +
          Esc(Str(V(*t, "utc"))) + " <span class=\"small\">(" + Esc(Str(V(*t, "source"))) +
          ")</span></dd>";
@@ -918,15 +917,15 @@ std::string RenderHtmlReport(const Json& s, const Json& sheet) {
       h += "<dt>duration</dt><dd id=\"run-duration\">" + Num(D(*t, "duration_seconds"), 1) + " s</dd>";
     }
   }
-  if (const Json* l = Find(s, {"ledger"})) {
+  if (const Json* l = FindPath(s, {"ledger"})) {
     h += "<dt>records read</dt><dd>" + Fmt(D(*l, "records_in")) + "</dd><dt>kept</dt><dd id=\"kept\">" +
          Fmt(D(*l, "kept")) + "</dd><dt>rejected</dt><dd id=\"rejected\">" + Fmt(D(*l, "rejected")) + "</dd>";
   }
-  if (const Json* c = whole ? Find(*whole, {"content_sha256"}) : nullptr) {
+  if (const Json* c = whole ? FindPath(*whole, {"content_sha256"}) : nullptr) {
     h += "<dt>store content SHA-256</dt><dd><code>" + Esc(Str(*c)) + "</code></dd>";
   }
-  if (const Json* p = Find(s, {"settings", "plan_sha256"})) h += "<dt>plan SHA-256</dt><dd><code>" + Esc(Str(*p)) + "</code></dd>";
-  if (const Json* sd = Find(s, {"settings", "seed"})) h += "<dt>seed</dt><dd>" + Esc(Str(*sd)) + "</dd>";
+  if (const Json* p = FindPath(s, {"settings", "plan_sha256"})) h += "<dt>plan SHA-256</dt><dd><code>" + Esc(Str(*p)) + "</code></dd>";
+  if (const Json* sd = FindPath(s, {"settings", "seed"})) h += "<dt>seed</dt><dd>" + Esc(Str(*sd)) + "</dd>";
   h += "</dl>\n";
   h += Legend(s, whole != nullptr);
   for (const auto& sec : whole ? StoreSections() : RunSections()) h += sec.render(s);

@@ -2,7 +2,6 @@
 // here and turned into a Status; none leave this file.
 #include "screen/rules.h"
 
-#include <fstream>
 #include <map>
 #include <mutex>
 #include <set>
@@ -105,15 +104,21 @@ bool IsKindWord(const std::string& s) {
 
 // One word a line; '#' starts a comment line; blank lines skipped. Words are
 // ASCII-lower-cased. Lists are shared by every rule that names the same file.
-Result<std::shared_ptr<const WordList>> LoadWordList(const std::string& path, const std::string& where) {
+Result<std::shared_ptr<const WordList>> LoadWordList(FileSystem* fs, const std::string& path,
+                                                     const std::string& where) {
+  if (fs == nullptr) return Status::Usage(where + "the word list " + path + " cannot be read here (no file system)");
+  auto read = ReadWholeFile(fs, path);
+  if (!read.ok()) return Status::Usage(where + "cannot read the word list " + path);
+  // Shared by path and content: the same file read again (or on another file
+  // system) with other words is another list.
   static std::mutex mu;
   static std::map<std::string, std::shared_ptr<const WordList>> cache;
+  const std::string key = path + '\0' + read.value();
   std::lock_guard<std::mutex> lock(mu);
-  auto it = cache.find(path);
+  auto it = cache.find(key);
   if (it != cache.end()) return it->second;
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return Status::Usage(where + "cannot read the word list " + path);
   auto list = std::make_shared<WordList>();
+  std::istringstream in(read.value());
   std::string line;
   while (std::getline(in, line)) {
     while (!line.empty() && (line.back() == '\r' || line.back() == ' ')) line.pop_back();
@@ -124,12 +129,12 @@ Result<std::shared_ptr<const WordList>> LoadWordList(const std::string& path, co
     list->insert(line);
   }
   if (list->empty()) return Status::Usage(where + "the word list " + path + " is empty");
-  cache[path] = list;
+  cache[key] = list;
   return std::shared_ptr<const WordList>(list);
 }
 
 Status ParseRule(const json& j, std::string_view text, const std::string& file, const std::string& family,
-                 size_t* cursor, Rule* r) {
+                 FileSystem* fs, size_t* cursor, Rule* r) {
   if (!j.is_object()) return Status::Usage(file + ": every entry of 'rules' must be an object");
   if (!j.contains("kind") || !j.at("kind").is_string() || j.at("kind").get<std::string>().empty()) {
     if (j.contains("id")) {
@@ -257,7 +262,7 @@ Status ParseRule(const json& j, std::string_view text, const std::string& file, 
     std::string rel = j.at("first_word_in").get<std::string>();
     std::string dir = file.find('/') == std::string::npos ? "." : file.substr(0, file.find_last_of('/'));
     std::string path = !rel.empty() && rel[0] == '/' ? rel : dir + "/" + rel;
-    auto list = LoadWordList(path, where);
+    auto list = LoadWordList(fs, path, where);
     if (!list.ok()) return list.status();
     r->first_word_in = std::move(list).value();
     r->first_word_in_file = rel;
@@ -304,7 +309,7 @@ std::string_view ActionName(Action a) {
   return "?";
 }
 
-Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name) {
+Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name, FileSystem* fs) {
   json doc;
   try {
     doc = json::parse(text.begin(), text.end(), nullptr, /*allow_exceptions=*/true, /*ignore_comments=*/true);
@@ -339,29 +344,27 @@ Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_n
   size_t cursor = 0;
   for (const json& j : doc.at("rules")) {
     Rule r;
-    Status s = ParseRule(j, text, source_name, family, &cursor, &r);
+    Status s = ParseRule(j, text, source_name, family, fs, &cursor, &r);
     if (!s.ok()) return s;
     set.rules.push_back(std::move(r));
   }
   return set;
 }
 
-Result<RuleSet> LoadRulePacks(const std::vector<std::string>& names_or_paths, const std::string& rules_dir) {
+Result<RuleSet> LoadRulePacks(FileSystem* fs, const std::vector<std::string>& names_or_paths,
+                              const std::string& rules_dir) {
   RuleSet all;
   std::set<std::string> ids;
   for (const std::string& n : names_or_paths) {
     bool is_name = n.find('/') == std::string::npos &&
                    !(n.size() >= 5 && n.compare(n.size() - 5, 5, ".json") == 0);
     std::string path = is_name ? rules_dir + "/" + n + ".json" : n;
-    std::ifstream in(path, std::ios::binary);
-    if (!in) {
+    auto read = ReadWholeFile(fs, path);
+    if (!read.ok()) {
       return Status::Usage(is_name ? "rule pack '" + n + "' not found (looked for " + path + ")"
                                    : "cannot read rule pack " + path);
     }
-    std::ostringstream buf;
-    buf << in.rdbuf();
-    std::string text = buf.str();
-    auto pack = ParseRulePack(text, path);
+    auto pack = ParseRulePack(read.value(), path, fs);
     if (!pack.ok()) return pack.status();
     for (Rule& r : pack.value().rules) {
       if (!ids.insert(r.id).second) {

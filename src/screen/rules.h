@@ -15,6 +15,7 @@
 #include <string_view>
 #include <vector>
 
+#include "core/file_system.h"
 #include "core/status.h"
 
 namespace prefsift::screen {
@@ -74,14 +75,17 @@ struct RuleSet {
   std::vector<Rule> rules;  // in load order; the order breaks overlap ties
 };
 
-// Parses one pack from its text. `source_name` is used in error messages.
+// Parses one pack from its text. `source_name` is used in error messages and
+// is the path word lists ("first_word_in") are resolved against; they are read
+// through `fs` (a pack that names a word list is refused when fs is null).
 // Checks every field, the validator name and that the pattern compiles.
-Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name);
+Result<RuleSet> ParseRulePack(std::string_view text, const std::string& source_name, FileSystem* fs = nullptr);
 
-// Loads packs in the given order. An entry without '/' and not ending in
-// ".json" is a pack name, read from `rules_dir`/<name>.json; anything else is
-// a path. Rule ids must be unique across all packs.
-Result<RuleSet> LoadRulePacks(const std::vector<std::string>& names_or_paths,
+// Loads packs in the given order, reading them (and their word lists) through
+// `fs`. An entry without '/' and not ending in ".json" is a pack name, read
+// from `rules_dir`/<name>.json; anything else is a path. Rule ids must be
+// unique across all packs.
+Result<RuleSet> LoadRulePacks(FileSystem* fs, const std::vector<std::string>& names_or_paths,
                               const std::string& rules_dir);
 
 }  // namespace prefsift::screen

@@ -13,6 +13,17 @@
 
 namespace prefsift::screen {
 
+namespace {
+
+// A span of one rule that passed its checks, before overlaps are resolved.
+struct Candidate {
+  size_t begin, end;
+  int rule;
+  double confidence;
+};
+
+}  // namespace
+
 struct Screener::Impl {
   struct Compiled {
     Rule rule;
@@ -24,6 +35,11 @@ struct Screener::Impl {
   std::unique_ptr<RE2::Set> sets[kFieldKindCount];
   std::vector<int> set_to_rule[kFieldKindCount];
   double certainty_floor = 0.0;
+
+  void CollectRule(int rule, std::string_view text, std::vector<Candidate>* cands,
+                   std::vector<Candidate>* beside_cands) const;
+  std::vector<Finding> Resolve(std::string_view text, FieldKind field, std::vector<Candidate> cands,
+                               std::vector<Candidate> beside_cands) const;
 };
 
 namespace {
@@ -111,12 +127,6 @@ bool ApplyNearby(const NearbyWords& c, std::string_view t, size_t b, size_t e, d
   return true;
 }
 
-struct Candidate {
-  size_t begin, end;
-  int rule;
-  double confidence;
-};
-
 // Is any word of the span (split at spaces, line breaks, hyphens and
 // apostrophes), ASCII-lower-cased, one of `words`?
 bool AnySpanWordIn(std::string_view span, const std::vector<std::string>& words) {
@@ -198,101 +208,84 @@ Result<Screener> Screener::Build(const RuleSet& rules, const ScreenerOptions& op
 
 size_t Screener::rule_count() const { return impl_->rules.size(); }
 
-Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind field) const {
+namespace {
+
+// The overlap order: certainty after nearby words, length, rule order, start.
+bool BeforeInOverlapOrder(const Candidate& x, const Candidate& y) {
+  if (x.confidence != y.confidence) return x.confidence > y.confidence;
+  if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
+  if (x.rule != y.rule) return x.rule < y.rule;
+  return x.begin < y.begin;
+}
+
+bool OverlapsAny(const Candidate& c, const std::vector<Candidate>& kept) {
+  for (const Candidate& k : kept) {
+    if (c.begin < k.end && k.begin < c.end) return true;
+  }
+  return false;
+}
+
+}  // namespace
+
+// Every span of rule `ri` in the text that passes its edges, check, span words,
+// nearby words and the certainty floor: into *cands, or *beside_cands for a
+// rule with "beside".
+void Screener::Impl::CollectRule(int ri, std::string_view text, std::vector<Candidate>* cands,
+                                 std::vector<Candidate>* beside_cands) const {
+  const Compiled& c = rules[static_cast<size_t>(ri)];
+  size_t pos = 0;
+  re2::StringPiece m[2];
+  const int nsub = c.group_span ? 2 : 1;
+  while (pos <= text.size() && c.re->Match(text, pos, text.size(), RE2::UNANCHORED, m, nsub)) {
+    size_t b = static_cast<size_t>(m[0].data() - text.data());
+    size_t e = b + m[0].size();
+    if (e == b) {  // empty match: step one byte
+      pos = b + 1;
+      continue;
+    }
+    pos = e;
+    if (c.group_span) {  // the span is group 1; the rest of the match is the signal around it
+      if (m[1].data() == nullptr || m[1].empty()) continue;
+      b = static_cast<size_t>(m[1].data() - text.data());
+      e = b + m[1].size();
+    }
+    if (NonAsciiNeighbourBlocks(text, b, e)) continue;
+    if (c.validator != nullptr) {
+      size_t e2 = e;
+      if (!c.validator(text, b, &e2)) continue;
+      if (e2 > b && e2 < e) {
+        e = e2;
+        pos = e2;
+      }
+    }
+    double conf;
+    if (c.rule.first_word_in && !c.rule.first_word_in->count(FirstWord(text.substr(b, e - b)))) continue;
+    if (!c.rule.not_in_span.empty() && AnySpanWordIn(text.substr(b, e - b), c.rule.not_in_span)) continue;
+    if (!ApplyNearby(c.rule.nearby, text, b, e, c.rule.certainty, &conf)) continue;
+    if (conf < certainty_floor) continue;
+    (c.rule.beside.empty() ? cands : beside_cands)->push_back({b, e, ri, conf});
+  }
+}
+
+// Resolves overlaps among the candidates (screener.h) and makes the findings,
+// sorted by begin.
+std::vector<Finding> Screener::Impl::Resolve(std::string_view text, FieldKind field, std::vector<Candidate> cands,
+                                             std::vector<Candidate> beside_cands) const {
   std::vector<Finding> out;
-  const int f = static_cast<int>(field);
-  const RE2::Set* set = impl_->sets[f].get();
-  if (set == nullptr || text.empty()) return out;
-
-  std::vector<int> hits;
-  RE2::Set::ErrorInfo info;
-  info.kind = RE2::Set::kNoError;
-  if (!set->Match(text, &hits, &info)) {
-    if (info.kind != RE2::Set::kNoError) {
-      return Status::Internal(info.kind == RE2::Set::kOutOfMemory
-                                  ? "personal-data screen: regex engine ran out of memory (text of " +
-                                        std::to_string(text.size()) + " bytes); raise the set memory budget"
-                                  : "personal-data screen: regex engine failed");
-    }
-    return out;
-  }
-  std::sort(hits.begin(), hits.end());
-
-  std::vector<Candidate> cands, beside_cands;
-  for (int h : hits) {
-    const int ri = impl_->set_to_rule[f][static_cast<size_t>(h)];
-    const Impl::Compiled& c = impl_->rules[static_cast<size_t>(ri)];
-    size_t pos = 0;
-    re2::StringPiece m[2];
-    const int nsub = c.group_span ? 2 : 1;
-    while (pos <= text.size() &&
-           c.re->Match(text, pos, text.size(), RE2::UNANCHORED, m, nsub)) {
-      size_t b = static_cast<size_t>(m[0].data() - text.data());
-      size_t e = b + m[0].size();
-      if (e == b) {  // empty match: step one byte
-        pos = b + 1;
-        continue;
-      }
-      pos = e;
-      if (c.group_span) {  // the span is group 1; the rest of the match is the signal around it
-        if (m[1].data() == nullptr || m[1].empty()) continue;
-        b = static_cast<size_t>(m[1].data() - text.data());
-        e = b + m[1].size();
-      }
-      if (NonAsciiNeighbourBlocks(text, b, e)) continue;
-      if (c.validator != nullptr) {
-        size_t e2 = e;
-        if (!c.validator(text, b, &e2)) continue;
-        if (e2 > b && e2 < e) {
-          e = e2;
-          pos = e2;
-        }
-      }
-      double conf;
-      if (c.rule.first_word_in && !c.rule.first_word_in->count(FirstWord(text.substr(b, e - b)))) continue;
-      if (!c.rule.not_in_span.empty() && AnySpanWordIn(text.substr(b, e - b), c.rule.not_in_span)) continue;
-      if (!ApplyNearby(c.rule.nearby, text, b, e, c.rule.certainty, &conf)) continue;
-      if (conf < impl_->certainty_floor) continue;
-      if (!c.rule.beside.empty()) {
-        beside_cands.push_back({b, e, ri, conf});
-        continue;
-      }
-      cands.push_back({b, e, ri, conf});
-    }
-  }
   if (cands.empty() && beside_cands.empty()) return out;
-
-  // Overlap order: certainty after nearby words, length, rule order, start.
-  std::sort(cands.begin(), cands.end(), [&](const Candidate& x, const Candidate& y) {
-    if (x.confidence != y.confidence) return x.confidence > y.confidence;
-    if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
-    if (x.rule != y.rule) return x.rule < y.rule;
-    return x.begin < y.begin;
-  });
+  std::sort(cands.begin(), cands.end(), BeforeInOverlapOrder);
   std::vector<Candidate> kept;
   for (const Candidate& c : cands) {
-    bool overlaps = false;
-    for (const Candidate& k : kept) {
-      if (c.begin < k.end && k.begin < c.end) {
-        overlaps = true;
-        break;
-      }
-    }
-    if (!overlaps) kept.push_back(c);
+    if (!OverlapsAny(c, kept)) kept.push_back(c);
   }
   // Rules with "beside": kept only next to a kept finding of a listed kind,
   // and only where they overlap nothing already kept (so the order among
   // them is the same overlap order).
   if (!beside_cands.empty()) {
-    std::sort(beside_cands.begin(), beside_cands.end(), [](const Candidate& x, const Candidate& y) {
-      if (x.confidence != y.confidence) return x.confidence > y.confidence;
-      if (x.end - x.begin != y.end - y.begin) return x.end - x.begin > y.end - y.begin;
-      if (x.rule != y.rule) return x.rule < y.rule;
-      return x.begin < y.begin;
-    });
+    std::sort(beside_cands.begin(), beside_cands.end(), BeforeInOverlapOrder);
     const size_t n_first = kept.size();
     for (const Candidate& c : beside_cands) {
-      const Rule& r = impl_->rules[static_cast<size_t>(c.rule)].rule;
+      const Rule& r = rules[static_cast<size_t>(c.rule)].rule;
       const size_t reach = static_cast<size_t>(r.nearby.reach);
       bool near = false, overlaps = false;
       for (size_t i = 0; i < kept.size(); ++i) {
@@ -302,7 +295,7 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
           break;
         }
         if (i >= n_first) continue;
-        const std::string& kind = impl_->rules[static_cast<size_t>(k.rule)].rule.kind;
+        const std::string& kind = rules[static_cast<size_t>(k.rule)].rule.kind;
         size_t gap = k.begin >= c.end ? k.begin - c.end : c.begin - k.end;
         if (gap <= reach && std::find(r.beside.begin(), r.beside.end(), kind) != r.beside.end()) near = true;
       }
@@ -313,7 +306,7 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
   std::sort(kept.begin(), kept.end(), [](const Candidate& x, const Candidate& y) { return x.begin < y.begin; });
   out.reserve(kept.size());
   for (const Candidate& k : kept) {
-    const Rule& r = impl_->rules[static_cast<size_t>(k.rule)].rule;
+    const Rule& r = rules[static_cast<size_t>(k.rule)].rule;
     Finding fd;
     fd.rule_id = r.id;
     fd.field = field;
@@ -326,6 +319,38 @@ Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind fie
     out.push_back(std::move(fd));
   }
   return out;
+}
+
+Result<std::vector<Finding>> Screener::Scan(std::string_view text, FieldKind field) const {
+  const int f = static_cast<int>(field);
+  const RE2::Set* set = impl_->sets[f].get();
+  if (set == nullptr || text.empty()) return std::vector<Finding>{};
+
+  // The one pass over the text: which rules match anywhere.
+  std::vector<int> hits;
+  RE2::Set::ErrorInfo info;
+  info.kind = RE2::Set::kNoError;
+  if (!set->Match(text, &hits, &info)) {
+    if (info.kind != RE2::Set::kNoError) {
+      return Status::Internal(info.kind == RE2::Set::kOutOfMemory
+                                  ? "personal-data screen: regex engine ran out of memory (text of " +
+                                        std::to_string(text.size()) + " bytes); raise the set memory budget"
+                                  : "personal-data screen: regex engine failed");
+    }
+    return std::vector<Finding>{};
+  }
+  std::sort(hits.begin(), hits.end());
+  std::vector<Candidate> cands, beside_cands;
+  for (int h : hits) impl_->CollectRule(impl_->set_to_rule[f][static_cast<size_t>(h)], text, &cands, &beside_cands);
+  return impl_->Resolve(text, field, std::move(cands), std::move(beside_cands));
+}
+
+std::vector<Finding> Screener::ScanEachRule(std::string_view text, FieldKind field) const {
+  const int f = static_cast<int>(field);
+  if (text.empty()) return {};
+  std::vector<Candidate> cands, beside_cands;
+  for (int ri : impl_->set_to_rule[f]) impl_->CollectRule(ri, text, &cands, &beside_cands);
+  return impl_->Resolve(text, field, std::move(cands), std::move(beside_cands));
 }
 
 }  // namespace prefsift::screen

@@ -6,6 +6,8 @@
 #include <cstdint>
 #include <string>
 
+#include "core/blank.h"
+
 namespace prefsift::stats {
 namespace {
 
@@ -38,12 +40,6 @@ bool IsAlnum(char c) {
   return (c >= '0' && c <= '9') || (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z');
 }
 char Lower(char c) { return (c >= 'A' && c <= 'Z') ? static_cast<char>(c - 'A' + 'a') : c; }
-
-bool IsBlank(std::string_view line) {
-  for (char c : line)
-    if (c != ' ' && c != '\t') return false;
-  return true;
-}
 
 // Leading spaces (tab = 4) and the rest of the line.
 size_t Indent(std::string_view line, size_t* pos) {

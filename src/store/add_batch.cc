@@ -9,14 +9,16 @@
 #include <algorithm>
 #include <cstdlib>
 #include <ctime>
-#include <fstream>
 #include <functional>
 #include <map>
 #include <set>
 #include <span>
 #include <unordered_map>
 
+#include "core/file_digest.h"
+#include "core/file_system.h"
 #include "core/sha256.h"
+#include "core/source_date.h"
 #include "io/output_dir.h"
 #include "sketch/clusters.h"
 #include "sketch/lsh.h"
@@ -83,28 +85,6 @@ Json BoundConfig(const Plan& plan) {
   return Json{{"normalize", {{"strip_punctuation", plan.normalize.strip_punctuation}}},
               {"near", near},
               {"split", split}};
-}
-
-std::string NowText() {
-  std::time_t t = std::time(nullptr);
-  if (const char* e = std::getenv("SOURCE_DATE_EPOCH"); e && *e) t = static_cast<std::time_t>(std::strtoll(e, nullptr, 10));
-  std::tm tm{};
-  gmtime_r(&t, &tm);
-  char buf[32];
-  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
-  return buf;
-}
-
-Result<std::string> FileSha256(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return Status::Input("cannot read " + path);
-  Sha256 h;
-  std::string buf(1 << 16, '\0');
-  while (in) {
-    in.read(buf.data(), static_cast<std::streamsize>(buf.size()));
-    h.Update(std::string_view(buf.data(), static_cast<size_t>(in.gcount())));
-  }
-  return h.HexDigest();
 }
 
 const char* PolicyName(ConflictPolicy p) { return p == ConflictPolicy::kJoinFirst ? "join-first" : "reject"; }
@@ -469,12 +449,11 @@ void MaybeKill(const char* phase) {
   if (at && std::string(at) == phase) ::raise(SIGKILL);
 }
 
-Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan) {
+Result<StoreSettings> StoreSettingsFromPlan(FileSystem* fs, const Plan& plan) {
   StoreSettings out;
   if (plan.plan_path.empty()) return out;
-  std::ifstream in(plan.plan_path, std::ios::binary);
-  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  Json j = Json::parse(text, nullptr, false, /*ignore_comments=*/true);
+  auto text = ReadWholeFile(fs, plan.plan_path);
+  Json j = Json::parse(text.ok() ? text.value() : "", nullptr, false, /*ignore_comments=*/true);
   if (!j.is_object() || !j.contains("store")) return out;
   const Json& st = j["store"];
   const std::string where = plan.plan_path + ": store";
@@ -515,7 +494,7 @@ Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan) {
 }
 
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log) {
-  auto settings = StoreSettingsFromPlan(plan);
+  auto settings = StoreSettingsFromPlan(fs, plan);
   if (!settings.ok()) return settings.status();
   std::string path = options.store_path.empty() ? settings.value().path : options.store_path;
   if (path.empty()) return Status::Usage("no store: pass --store FILE or set \"store\" in the plan");
@@ -526,10 +505,10 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   Json inputs = Json::array();
   std::string joined;
   for (const auto& in : plan.inputs) {
-    auto d = FileSha256(in.path);
+    auto d = DigestFile(fs, in.path);
     if (!d.ok()) return d.status();
-    inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", d.value()}});
-    joined += d.value() + "\n";
+    inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", d.value().sha256}});
+    joined += d.value().sha256 + "\n";
   }
   std::string inputs_digest = Sha256Hex(joined);
   Json evals = Json::array();
@@ -540,8 +519,8 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
       if (!e.is_object() || !e.contains("path") || !e["path"].is_string()) continue;
       std::string p = e["path"].get<std::string>();
       if (!p.empty() && p[0] != '/') p = base + p;
-      auto d = FileSha256(p);
-      evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", d.ok() ? d.value() : "unreadable"}});
+      auto d = DigestFile(fs, p);
+      evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", d.ok() ? d.value().sha256 : "unreadable"}});
     }
   }
   auto db = StoreDb::Open(path, options.wait_ms, /*create=*/true);
@@ -617,7 +596,7 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
       "kept, rejected, stored, counts) VALUES(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
   if (!ib.ok()) return ib.status();
   Statement& b = *ib.value();
-  b.Bind(1, batch).Bind(2, NowText()).Bind(3, plan.plan_digest).Bind(4, inputs_digest).Bind(5, inputs.dump());
+  b.Bind(1, batch).Bind(2, UtcText(NowOrSourceDate())).Bind(3, plan.plan_digest).Bind(4, inputs_digest).Bind(5, inputs.dump());
   b.Bind(6, evals.dump()).Bind(7, first_seq).Bind(8, static_cast<int64_t>(companion.records()));
   b.Bind(9, static_cast<int64_t>(run.value().entries)).Bind(10, static_cast<int64_t>(run.value().kept));
   b.Bind(11, static_cast<int64_t>(run.value().rejected)).Bind(12, static_cast<int64_t>(companion.stored()));

@@ -63,8 +63,9 @@ struct AddOutcome {
 // refused. REQUIRES: plan.output set.
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log);
 
-// The "store" value of a plan file (usage errors name the key).
-Result<StoreSettings> StoreSettingsFromPlan(const Plan& plan);
+// The "store" value of a plan file, read again through `fs` (usage errors
+// name the key).
+Result<StoreSettings> StoreSettingsFromPlan(FileSystem* fs, const Plan& plan);
 
 // Test hook: when the environment variable PREFSIFT_TEST_KILL_AT equals
 // `phase`, the process raises SIGKILL here. Phases: after-begin, mid-write,

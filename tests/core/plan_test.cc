@@ -3,16 +3,26 @@
 
 #include <gtest/gtest.h>
 
-#include <fstream>
+#include <nlohmann/json.hpp>
+
+#include "io/memory_file_system.h"
 
 namespace prefsift {
 namespace {
 
+// Plan files live in memory, in the folder /plans.
+MemoryFileSystem& Files() {
+  static MemoryFileSystem fs;
+  return fs;
+}
+
 std::string WriteTemp(const std::string& name, const std::string& text) {
-  std::string path = ::testing::TempDir() + name;
-  std::ofstream(path) << text;
+  std::string path = "/plans/" + name;
+  Files().Put(path, text);
   return path;
 }
+
+Result<Plan> LoadPlanFile(const std::string& path) { return prefsift::LoadPlanFile(&Files(), path); }
 
 TEST(Plan, CommentsRelativePathsAndNamedLayouts) {
   std::string path = WriteTemp("plan_ok.json", R"({
@@ -24,7 +34,7 @@ TEST(Plan, CommentsRelativePathsAndNamedLayouts) {
   auto p = LoadPlanFile(path);
   ASSERT_TRUE(p.ok()) << p.status().message();
   EXPECT_EQ(p.value().inputs.size(), 2u);
-  EXPECT_EQ(p.value().inputs[0].path, ::testing::TempDir() + "data/x.jsonl");
+  EXPECT_EQ(p.value().inputs[0].path, "/plans/data/x.jsonl");
   EXPECT_EQ(p.value().inputs[0].name, "x");
   EXPECT_EQ(p.value().inputs[1].name, "y");
   EXPECT_EQ(p.value().seed, 9u);
@@ -43,6 +53,15 @@ TEST(Plan, ErrorsNameFileLineAndKey) {
   ASSERT_FALSE(same.ok());
   EXPECT_NE(same.status().message().find("distinct"), std::string::npos);
   EXPECT_FALSE(LoadPlanFile("/nonexistent/plan.json").ok());
+}
+
+TEST(Plan, UsageErrorsOfStageSettingsGetThePlaceInTheFile) {
+  std::string path = WriteTemp("plan_place.json", "{\n  \"stages\": {\n    \"near\": {\"threshold\": 7}\n  }\n}");
+  EXPECT_EQ(PlaceInPlanFile(&Files(), path, "stages.near.threshold: must be at most 1"),
+            "/plans/plan_place.json:3:14: stages.near.threshold: must be at most 1");
+  // Not a key path: unchanged; an unreadable plan file: unchanged.
+  EXPECT_EQ(PlaceInPlanFile(&Files(), path, "no key here"), "no key here");
+  EXPECT_EQ(PlaceInPlanFile(&Files(), "/plans/missing.json", "stages.near: x"), "stages.near: x");
 }
 
 // docs/hardening.md: every limit is settable in the plan and named in its error.

@@ -26,6 +26,7 @@ class FaultFileSystem : public FileSystem {
   Status RemoveAll(const std::string& path) override { return base_->RemoveAll(path); }
   bool Exists(const std::string& path) override { return base_->Exists(path); }
   bool IsDirectory(const std::string& path) override { return base_->IsDirectory(path); }
+  Result<std::vector<std::string>> List(const std::string& dir) override { return base_->List(dir); }
 
   // Atomic: the pipeline reads and writes from more than one thread (read-ahead,
   // parallel hashing of outputs).

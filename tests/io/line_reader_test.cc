@@ -4,22 +4,43 @@
 #include <zlib.h>
 #include <zstd.h>
 
-#include <fstream>
 #include <vector>
 
 #include "fault_fs.h"
+#include "io/memory_file_system.h"
 
 namespace prefsift {
 namespace {
 
+// The test files live in memory.
+MemoryFileSystem& Files() {
+  static MemoryFileSystem fs;
+  return fs;
+}
+
 std::string Temp(const std::string& name, const std::string& bytes) {
-  std::string path = ::testing::TempDir() + name;
-  std::ofstream(path, std::ios::binary) << bytes;
+  std::string path = "/tmp/" + name;
+  Files().Put(path, bytes);
   return path;
 }
 
+// `text` in the gzip format (RFC 1952), as gzip(1) writes it.
+std::string Gzip(const std::string& text) {
+  z_stream z{};
+  EXPECT_EQ(deflateInit2(&z, 6, Z_DEFLATED, 15 + 16, 8, Z_DEFAULT_STRATEGY), Z_OK);  // +16: gzip wrapper
+  std::string out(deflateBound(&z, text.size()) + 32, '\0');
+  z.next_in = reinterpret_cast<Bytef*>(const_cast<char*>(text.data()));
+  z.avail_in = static_cast<uInt>(text.size());
+  z.next_out = reinterpret_cast<Bytef*>(out.data());
+  z.avail_out = static_cast<uInt>(out.size());
+  EXPECT_EQ(deflate(&z, Z_FINISH), Z_STREAM_END);
+  out.resize(z.total_out);
+  deflateEnd(&z);
+  return out;
+}
+
 std::vector<std::string> ReadAll(const std::string& path, size_t max = 1 << 20, std::vector<uint64_t>* too_long = nullptr) {
-  auto r = LineReader::Open(DefaultFileSystem(), path, max);
+  auto r = LineReader::Open(&Files(), path, max);
   EXPECT_TRUE(r.ok()) << r.status().message();
   std::vector<std::string> out;
   for (;;) {
@@ -64,11 +85,7 @@ TEST(LineReader, LinesSpanningBufferBoundaries) {
 TEST(LineReader, GzipAndZstdByMagicBytes) {
   std::string text = "first\nsecond\n";
   for (int i = 0; i < 1000; ++i) text += "line " + std::to_string(i) + "\n";
-  std::string gz_path = ::testing::TempDir() + "x.gz";
-  gzFile g = gzopen(gz_path.c_str(), "wb");
-  gzwrite(g, text.data(), static_cast<unsigned>(text.size()));
-  gzclose(g);
-  auto lines = ReadAll(gz_path);
+  auto lines = ReadAll(Temp("x.gz", Gzip(text)));
   ASSERT_EQ(lines.size(), 1002u);
   EXPECT_EQ(lines[1], "second");
   std::string z(ZSTD_compressBound(text.size()), '\0');
@@ -83,7 +100,7 @@ TEST(LineReader, TruncatedCompressedInputIsAnError) {
   std::string z(ZSTD_compressBound(text.size()), '\0');
   z.resize(ZSTD_compress(z.data(), z.size(), text.data(), text.size(), 3));
   z.resize(z.size() / 2);
-  auto r = LineReader::Open(DefaultFileSystem(), Temp("trunc.zst", z), 1 << 20);
+  auto r = LineReader::Open(&Files(), Temp("trunc.zst", z), 1 << 20);
   ASSERT_TRUE(r.ok());
   std::string_view line;
   uint64_t no;
@@ -97,16 +114,20 @@ TEST(LineReader, TruncatedCompressedInputIsAnError) {
 }
 
 TEST(LineReader, DirectoryAndMissingFileAreClearErrors) {
-  auto dir = LineReader::Open(DefaultFileSystem(), ::testing::TempDir(), 100);
-  ASSERT_FALSE(dir.ok());
-  EXPECT_NE(dir.status().message().find("directory"), std::string::npos);
-  auto missing = LineReader::Open(DefaultFileSystem(), "/nonexistent/file.jsonl", 100);
-  ASSERT_FALSE(missing.ok());
-  EXPECT_NE(missing.status().message().find("/nonexistent/file.jsonl"), std::string::npos);
+  // Both on the real file system (the messages are the POSIX one's) and in memory.
+  for (FileSystem* fs : {DefaultFileSystem(), static_cast<FileSystem*>(&Files())}) {
+    ASSERT_TRUE(fs->MakeDir(::testing::TempDir()).ok());
+    auto dir = LineReader::Open(fs, ::testing::TempDir(), 100);
+    ASSERT_FALSE(dir.ok());
+    EXPECT_NE(dir.status().message().find("directory"), std::string::npos);
+    auto missing = LineReader::Open(fs, "/nonexistent/file.jsonl", 100);
+    ASSERT_FALSE(missing.ok());
+    EXPECT_NE(missing.status().message().find("/nonexistent/file.jsonl"), std::string::npos);
+  }
 }
 
 TEST(LineReader, InjectedReadErrorSurfaces) {
-  FaultFileSystem fs(DefaultFileSystem());
+  FaultFileSystem fs(&Files());
   fs.fail_reads_after = 10;
   std::string text;
   for (int i = 0; i < 200000; ++i) text += "abcdefgh\n";

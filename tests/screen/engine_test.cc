@@ -4,10 +4,11 @@
 
 #include <chrono>
 #include <cstdio>
-#include <fstream>
 #include <set>
 #include <thread>
 
+#include "io/file_system.h"
+#include "io/memory_file_system.h"
 #include "screen/actions.h"
 #include "screen/screener.h"
 #include "test_util.h"
@@ -242,10 +243,10 @@ TEST(Engine, TightMemoryIsAnErrorNeverACleanResult) {
 }
 
 TEST(Engine, BadRuleFileNamesFileLineRuleAndRe2Message) {
-  std::string path = ::testing::TempDir() + "/screen_bad_pack.json";
-  {
-    std::ofstream out(path);
-    out << "// a pack with one broken rule\n"
+  const std::string path = "/packs/screen_bad_pack.json";
+  MemoryFileSystem files;
+  files.Put(path,
+         "// a pack with one broken rule\n"
            "{\n"
            "  \"rules\": [\n"
            "    {\"kind\": \"t-good\", \"shape\": \"abc\"},\n"
@@ -254,9 +255,8 @@ TEST(Engine, BadRuleFileNamesFileLineRuleAndRe2Message) {
            "      \"shape\": \"(abc\"\n"
            "    }\n"
            "  ]\n"
-           "}\n";
-  }
-  auto r = LoadRulePacks({path}, "/nonexistent");
+           "}\n");
+  auto r = LoadRulePacks(&files, {path}, "/nonexistent");
   ASSERT_FALSE(r.ok());
   const std::string& m = r.status().message();
   EXPECT_EQ(r.status().code(), StatusCode::kUsage);
@@ -278,7 +278,42 @@ TEST(Engine, BadRuleFileNamesFileLineRuleAndRe2Message) {
   auto v = ParseRulePack(R"({"rules":[{"kind":"t-v","shape":"a","check":"nope"}]})", "inline");
   ASSERT_FALSE(v.ok());
   EXPECT_NE(v.status().message().find("unknown check"), std::string::npos);
-  EXPECT_FALSE(LoadRulePacks({"no_such_pack"}, PREFSIFT_RULES_DIR).ok());
+  EXPECT_FALSE(LoadRulePacks(DefaultFileSystem(), {"no_such_pack"}, PREFSIFT_RULES_DIR).ok());
+}
+
+TEST(Engine, WordListsAreReadThroughTheFileSystem) {
+  MemoryFileSystem files;
+  files.Put("/packs/lists/words.txt", "# greeting words\nAhoy\nhallo\n");
+  const char* pack = R"({"rules":[{"kind":"t-greeting","shape":"\\b[A-Za-z]+ there\\b",
+                                  "first_word_in":"lists/words.txt"}]})";
+  files.Put("/packs/p.json", pack);
+  auto r = LoadRulePacks(&files, {"/packs/p.json"}, "");
+  ASSERT_TRUE(r.ok()) << r.status().message();
+  auto screener = Screener::Build(r.value());
+  ASSERT_TRUE(screener.ok());
+  auto found = screener.value().Scan("ahoy there, hello there", FieldKind::kPrompt);
+  ASSERT_TRUE(found.ok());
+  ASSERT_EQ(found.value().size(), 1u);
+  EXPECT_EQ(found.value()[0].begin, 0u);
+  // The same path with other words on another file system is another list.
+  MemoryFileSystem other;
+  other.Put("/packs/lists/words.txt", "hello\n");
+  other.Put("/packs/p.json", pack);
+  auto r2 = LoadRulePacks(&other, {"/packs/p.json"}, "");
+  ASSERT_TRUE(r2.ok()) << r2.status().message();
+  auto found2 = Screener::Build(r2.value()).value().Scan("ahoy there, hello there", FieldKind::kPrompt);
+  ASSERT_TRUE(found2.ok());
+  ASSERT_EQ(found2.value().size(), 1u);
+  EXPECT_EQ(found2.value()[0].begin, 12u);
+  // Missing list, and no file system at all: usage errors naming the list.
+  MemoryFileSystem empty;
+  empty.Put("/packs/p.json", pack);
+  auto missing = LoadRulePacks(&empty, {"/packs/p.json"}, "");
+  ASSERT_FALSE(missing.ok());
+  EXPECT_NE(missing.status().message().find("/packs/lists/words.txt"), std::string::npos) << missing.status().message();
+  auto no_fs = ParseRulePack(pack, "/packs/p.json");
+  ASSERT_FALSE(no_fs.ok());
+  EXPECT_EQ(no_fs.status().code(), StatusCode::kUsage);
 }
 
 TEST(Engine, OldRuleKeysFailNamingTheNewKey) {
@@ -331,13 +366,13 @@ TEST(Engine, CredentialsShareAKindWithTheVendorAsAttribute) {
 }
 
 TEST(Engine, PacksLoadByNameAndPath) {
-  auto a = LoadRulePacks({"payment"}, PREFSIFT_RULES_DIR);
-  auto b = LoadRulePacks({std::string(PREFSIFT_RULES_DIR) + "/payment.json"}, "/nonexistent");
+  auto a = LoadRulePacks(DefaultFileSystem(), {"payment"}, PREFSIFT_RULES_DIR);
+  auto b = LoadRulePacks(DefaultFileSystem(), {std::string(PREFSIFT_RULES_DIR) + "/payment.json"}, "/nonexistent");
   ASSERT_TRUE(a.ok() && b.ok());
   EXPECT_EQ(a.value().rules.size(), b.value().rules.size());
   EXPECT_EQ(a.value().rules[0].source_line, 7);  // line of "card-number" in rules/payment.json
   // The same pack twice: duplicate ids.
-  EXPECT_FALSE(LoadRulePacks({"payment", "payment"}, PREFSIFT_RULES_DIR).ok());
+  EXPECT_FALSE(LoadRulePacks(DefaultFileSystem(), {"payment", "payment"}, PREFSIFT_RULES_DIR).ok());
 }
 
 TEST(Engine, SharedAcrossThreadsGivesSameFindings) {

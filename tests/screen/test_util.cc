@@ -8,6 +8,7 @@
 
 #include <re2/re2.h>
 
+#include "io/file_system.h"
 #include "screen/validators.h"
 
 namespace prefsift::screen::testing {
@@ -30,7 +31,7 @@ std::vector<std::vector<std::string>> ReadTsv(const std::string& name) {
 
 const RuleSet& AllPacks() {
   static const RuleSet* set = [] {
-    auto r = LoadRulePacks({"contact", "payment", "government", "network", "secrets", "people"}, PREFSIFT_RULES_DIR);
+    auto r = LoadRulePacks(DefaultFileSystem(), {"contact", "payment", "government", "network", "secrets", "people"}, PREFSIFT_RULES_DIR);
     if (!r.ok()) throw std::runtime_error(r.status().message());
     return new RuleSet(std::move(r).value());
   }();

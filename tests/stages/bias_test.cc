@@ -20,11 +20,11 @@ Result<RunOutcome> RunBias(Plan plan) {
   PipelineOptions o;
   o.stages = {"bias"};
   o.table = false;
-  return RunPipeline(plan, o, DefaultFileSystem(), stderr);
+  return RunPipeline(plan, o, &MemoryFiles(), stderr);
 }
 
 Json BiasSummary(const std::string& out) {
-  return Json::parse(ReadFile(out + "/summary.json"))["stages"]["bias"];
+  return Json::parse(ReadFile(&MemoryFiles(), out + "/summary.json"))["stages"]["bias"];
 }
 
 std::string Words(int n, const std::string& w) {
@@ -65,7 +65,7 @@ TEST(BiasPosition, BinomialAndChiSquareMatchReferenceValues) {
                   .dump() + "\n";
     }
   }
-  std::string in = WriteFile("bias_pos.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "bias_pos.jsonl", data);
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("bias_pos_out"));
   auto r = RunBias(plan);
   ASSERT_TRUE(r.ok()) << r.status().message();
@@ -91,7 +91,7 @@ TEST(BiasPosition, PairwiseExcludedFromPositionButInLength) {
                  {"chosen", Words(i % 3 == 0 ? 3 : 8, "c")}, {"rejected", Words(5, "r")}}
                 .dump() + "\n";
   }
-  std::string in = WriteFile("bias_pw.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "bias_pw.jsonl", data);
   Plan plan = PlanFor({in}, Json{{"preset", "pairwise"}}, TempPath("bias_pw_out"));
   ASSERT_TRUE(RunBias(plan).ok());
   Json s = BiasSummary(plan.output);
@@ -200,7 +200,7 @@ int ChosenSlot(const LayoutCase& c, const Json& rec) {
 }
 
 std::string RunRebalance(const LayoutCase& c, uint64_t seed, unsigned threads, const std::string& tag) {
-  std::string in = WriteFile("bias_rb_" + c.name + ".jsonl", c.data);
+  std::string in = WriteFile(&MemoryFiles(), "bias_rb_" + c.name + ".jsonl", c.data);
   Plan plan = PlanFor({in}, c.layout, TempPath("bias_rb_" + c.name + "_" + tag));
   plan.seed = seed;
   plan.threads = threads;
@@ -220,7 +220,7 @@ TEST(BiasRebalance, JudgmentFollowsTextBalancedUnknownFieldsKept) {
       Json j = Json::parse(line);
       before[j["id"].get<std::string>()] = j;
     }
-    auto after = ReadJsonl(out + "/kept.jsonl");
+    auto after = ReadJsonl(&MemoryFiles(), out + "/kept.jsonl");
     ASSERT_EQ(after.size(), before.size());
     std::map<size_t, std::vector<int>> slot_counts;  // B -> counts
     int moved = 0;
@@ -270,9 +270,9 @@ TEST(BiasRebalance, JudgmentFollowsTextBalancedUnknownFieldsKept) {
 
 TEST(BiasRebalance, DeterministicUnderSeedAndThreads) {
   const LayoutCase c = RebalanceCases()[0];
-  std::string a = ReadFile(RunRebalance(c, 11, 1, "d1") + "/kept.jsonl");
-  std::string b = ReadFile(RunRebalance(c, 11, 2, "d2") + "/kept.jsonl");
-  std::string other = ReadFile(RunRebalance(c, 12, 2, "d3") + "/kept.jsonl");
+  std::string a = ReadFile(&MemoryFiles(), RunRebalance(c, 11, 1, "d1") + "/kept.jsonl");
+  std::string b = ReadFile(&MemoryFiles(), RunRebalance(c, 11, 2, "d2") + "/kept.jsonl");
+  std::string other = ReadFile(&MemoryFiles(), RunRebalance(c, 12, 2, "d3") + "/kept.jsonl");
   EXPECT_EQ(a, b);
   EXPECT_NE(a, other);
   // The bias section of summary.json (tests and rebalancing counts) does not depend on the thread count either.
@@ -283,10 +283,10 @@ TEST(BiasRebalance, DeterministicUnderSeedAndThreads) {
 
 TEST(BiasRebalance, OffByDefaultKeepsBytes) {
   const LayoutCase c = RebalanceCases()[0];
-  std::string in = WriteFile("bias_off.jsonl", c.data);
+  std::string in = WriteFile(&MemoryFiles(), "bias_off.jsonl", c.data);
   Plan plan = PlanFor({in}, c.layout, TempPath("bias_off_out"));
   ASSERT_TRUE(RunBias(plan).ok());
-  EXPECT_EQ(ReadFile(plan.output + "/kept.jsonl"), c.data);
+  EXPECT_EQ(ReadFile(&MemoryFiles(), plan.output + "/kept.jsonl"), c.data);
 }
 
 // --- length statistics and rebalancing on generated data ---
@@ -310,7 +310,7 @@ std::string LengthData(int n, double longer_rate, uint64_t seed, const std::stri
 
 TEST(BiasLength, RebalanceReachesTargetAndRejectsWithReason) {
   std::string data = LengthData(600, 0.8, 3, "biased") + LengthData(400, 0.5, 4, "fair");
-  std::string in = WriteFile("bias_len.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "bias_len.jsonl", data);
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}, {"source", "/source"}}, TempPath("bias_len_out"));
   plan.seed = 5;
   plan.stages = Json{{"bias", {{"length", {{"rebalance", true}}}}}};
@@ -324,7 +324,7 @@ TEST(BiasLength, RebalanceReachesTargetAndRejectsWithReason) {
   // The planted source is significant before, nothing after.
   EXPECT_EQ(s["length"]["by_source"]["significant"], Json({"biased"}));
   EXPECT_TRUE(lr["after"]["by_source"]["significant"].empty());
-  auto rejects = ReadJsonl(plan.output + "/rejects.jsonl");
+  auto rejects = ReadJsonl(&MemoryFiles(), plan.output + "/rejects.jsonl");
   EXPECT_EQ(rejects.size(), lr["discarded"].get<size_t>());
   ASSERT_FALSE(rejects.empty());
   for (const auto& r : rejects) {
@@ -333,16 +333,16 @@ TEST(BiasLength, RebalanceReachesTargetAndRejectsWithReason) {
     EXPECT_TRUE(r["detail"].contains("abs_log2_ratio_bin"));
   }
   // Deterministic: a second run gives the same bytes.
-  std::string first = ReadFile(plan.output + "/rejects.jsonl");
+  std::string first = ReadFile(&MemoryFiles(), plan.output + "/rejects.jsonl");
   plan.threads = 1;
   ASSERT_TRUE(RunBias(plan).ok());
-  EXPECT_EQ(ReadFile(plan.output + "/rejects.jsonl"), first);
+  EXPECT_EQ(ReadFile(&MemoryFiles(), plan.output + "/rejects.jsonl"), first);
 }
 
 // --- shortcut audit ---
 
 TEST(BiasAudit, RecoversPlantedLengthShortcut) {
-  std::string in = WriteFile("bias_audit.jsonl", LengthData(800, 0.9, 21, "s"));
+  std::string in = WriteFile(&MemoryFiles(), "bias_audit.jsonl", LengthData(800, 0.9, 21, "s"));
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("bias_audit_out"));
   ASSERT_TRUE(RunBias(plan).ok());
   Json a = BiasSummary(plan.output)["shortcut_audit"];
@@ -356,7 +356,7 @@ TEST(BiasAudit, RecoversPlantedLengthShortcut) {
 }
 
 TEST(BiasAudit, NoShortcutNotFlagged) {
-  std::string in = WriteFile("bias_audit0.jsonl", LengthData(800, 0.5, 22, "s"));
+  std::string in = WriteFile(&MemoryFiles(), "bias_audit0.jsonl", LengthData(800, 0.5, 22, "s"));
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("bias_audit0_out"));
   ASSERT_TRUE(RunBias(plan).ok());
   Json a = BiasSummary(plan.output)["shortcut_audit"];
@@ -366,7 +366,7 @@ TEST(BiasAudit, NoShortcutNotFlagged) {
 }
 
 TEST(BiasSettings, UnknownKeysAreUsageErrorsNamingTheKey) {
-  std::string in = WriteFile("bias_set.jsonl", LengthData(5, 0.5, 1, "s"));
+  std::string in = WriteFile(&MemoryFiles(), "bias_set.jsonl", LengthData(5, 0.5, 1, "s"));
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("bias_set_out"));
   plan.stages = Json{{"bias", {{"length", {{"rebalanse", true}}}}}};
   auto r = RunBias(plan);

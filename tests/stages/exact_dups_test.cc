@@ -12,7 +12,7 @@ using Json = nlohmann::ordered_json;
 
 std::map<std::string, std::string> ReasonsById(const std::string& out) {
   std::map<std::string, std::string> m;
-  for (const auto& j : ReadJsonl(out + "/rejects.jsonl")) m[j["id"].get<std::string>()] = j["reason"];
+  for (const auto& j : ReadJsonl(&MemoryFiles(), out + "/rejects.jsonl")) m[j["id"].get<std::string>()] = j["reason"];
   return m;
 }
 
@@ -20,7 +20,7 @@ Result<RunOutcome> RunStages(Plan plan, std::vector<std::string> stages) {
   PipelineOptions o;
   o.stages = std::move(stages);
   o.table = false;
-  return RunPipeline(plan, o, DefaultFileSystem(), stderr);
+  return RunPipeline(plan, o, &MemoryFiles(), stderr);
 }
 
 const char* kData =
@@ -38,7 +38,7 @@ const char* kData =
     "{\"id\":\"d1\",\"prompt\":\"Soil?\",\"candidates\":[\"Loam\",\"\xEF\xBC\xAC\xEF\xBD\x8F\xEF\xBD\x81\xEF\xBD\x8D\"],\"choice\":0}\n";
 
 TEST(ExactDups, KeepMajorityPolicy) {
-  std::string in = WriteFile("exact_in.jsonl", kData);
+  std::string in = WriteFile(&MemoryFiles(), "exact_in.jsonl", kData);
   std::string out = TempPath("exact_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   auto r = RunStages(plan, {"exact"});
@@ -51,17 +51,17 @@ TEST(ExactDups, KeepMajorityPolicy) {
   EXPECT_EQ(reasons["d1"], "degenerate_comparison");
   EXPECT_EQ(reasons.count("a1"), 0u);
   EXPECT_EQ(reasons.count("b1"), 0u);
-  auto summary = Json::parse(ReadFile(out + "/summary.json"));
+  auto summary = Json::parse(ReadFile(&MemoryFiles(), out + "/summary.json"));
   const Json& ex = summary["stages"]["exact"];
   EXPECT_EQ(ex["label_conflicts"]["comparisons"], 2);
   // Pairs of judgments: group a has 3 records (3 pairs, 1 agreeing), group c has 2 (1 pair, 0 agreeing): 1/4.
   EXPECT_DOUBLE_EQ(ex["agreement"]["pairwise_agreement_rate"].get<double>(), 0.25);
   EXPECT_TRUE(summary["ledger"]["balanced"].get<bool>());
-  EXPECT_EQ(ReadJsonl(out + "/conflicts.jsonl").size(), 2u);
+  EXPECT_EQ(ReadJsonl(&MemoryFiles(), out + "/conflicts.jsonl").size(), 2u);
 }
 
 TEST(ExactDups, DropAllAndKeepAll) {
-  std::string in = WriteFile("exact_in2.jsonl", kData);
+  std::string in = WriteFile(&MemoryFiles(), "exact_in2.jsonl", kData);
   std::string out = TempPath("exact_out2");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   plan.stages["exact"] = Json{{"conflicts", "drop-all"}};
@@ -83,7 +83,7 @@ TEST(ExactDups, DropAllAndKeepAll) {
 }
 
 TEST(ExactDups, TiedIdenticalCandidatesAreNotDegenerate) {
-  std::string in = WriteFile("exact_rank.jsonl",
+  std::string in = WriteFile(&MemoryFiles(), "exact_rank.jsonl",
                              R"({"id":"e1","prompt":"Pots?","candidates":["Clay","clay","Plastic"],"ranks":[1,1,3]})" "\n"
                              R"({"id":"e2","prompt":"Pots?","candidates":["Clay","clay","Plastic"],"ranks":[1,2,3]})" "\n");
   std::string out = TempPath("exact_rank_out");

@@ -112,16 +112,16 @@ TEST(RecordFactsPipeline, MoreThanFourCandidates) {
   // The 5th and 6th candidates are one text after case folding, ranked apart.
   data += line("r5", {"Spade", "Fork", "Hoe", "Mulch", "mulch", "MULCH"}, {1, 2, 3, 4, 5, 6}, "web", "ann-a");
   data += line("r6", {"Spade", "Fork", "Hoe", "Rake", "Trowel"}, {5, 4, 3, 2, 1}, "forum", "ann-c");
-  const std::string in = WriteFile("facts_b6.jsonl", data);
+  const std::string in = WriteFile(&MemoryFiles(), "facts_b6.jsonl", data);
   const std::string out = TempPath("facts_b6_out");
   PipelineOptions o;
   o.stages = {"exact", "split"};
   o.table = false;
-  auto r = RunPipeline(PlanFor({in}, layout, out), o, DefaultFileSystem(), stderr);
+  auto r = RunPipeline(PlanFor({in}, layout, out), o, &MemoryFiles(), stderr);
   ASSERT_TRUE(r.ok()) << r.status().message();
 
   std::map<std::string, std::string> reason;
-  for (const auto& j : ReadJsonl(out + "/rejects.jsonl")) reason[j["id"].get<std::string>()] = j["reason"];
+  for (const auto& j : ReadJsonl(&MemoryFiles(), out + "/rejects.jsonl")) reason[j["id"].get<std::string>()] = j["reason"];
   EXPECT_EQ(reason["r2"], "duplicate_comparison");
   EXPECT_EQ(reason["r3"], "duplicate_comparison");
   EXPECT_EQ(reason["r4"], "label_conflict_minority");
@@ -130,7 +130,7 @@ TEST(RecordFactsPipeline, MoreThanFourCandidates) {
   EXPECT_EQ(reason.count("r6"), 0u);
 
   // conflicts.jsonl lists each member's ranks: all six, in file order.
-  auto conflicts = ReadJsonl(out + "/conflicts.jsonl");
+  auto conflicts = ReadJsonl(&MemoryFiles(), out + "/conflicts.jsonl");
   ASSERT_EQ(conflicts.size(), 1u);
   std::map<std::string, std::vector<int>> ranks;
   for (const auto& m : conflicts[0]["members"]) ranks[m["id"].get<std::string>()] = m["ranks"].get<std::vector<int>>();
@@ -139,7 +139,7 @@ TEST(RecordFactsPipeline, MoreThanFourCandidates) {
   EXPECT_EQ(ranks["r4"], (std::vector<int>{2, 1, 3, 4, 5, 6}));
 
   // Composition of the kept records r1 (6 candidates, web, ann-a) and r6 (5, forum, ann-c).
-  auto summary = Json::parse(ReadFile(out + "/summary.json"));
+  auto summary = Json::parse(ReadFile(&MemoryFiles(), out + "/summary.json"));
   const Json& c = summary["stages"]["split"]["composition"];
   EXPECT_EQ(c["candidates_per_record"], (Json{{"5", 1}, {"6", 1}}));
   EXPECT_EQ(c["sources"], (Json{{"forum", 1}, {"web", 1}}));

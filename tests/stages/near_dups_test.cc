@@ -56,17 +56,17 @@ Result<RunOutcome> RunNear(const Plan& plan, std::vector<std::string> stages) {
   PipelineOptions o;
   o.stages = std::move(stages);
   o.table = false;
-  return RunPipeline(plan, o, DefaultFileSystem(), stderr);
+  return RunPipeline(plan, o, &MemoryFiles(), stderr);
 }
 
 std::map<std::string, Json> RejectsById(const std::string& out) {
   std::map<std::string, Json> m;
-  for (const auto& j : ReadJsonl(out + "/rejects.jsonl")) m[j["id"].get<std::string>()] = j;
+  for (const auto& j : ReadJsonl(&MemoryFiles(), out + "/rejects.jsonl")) m[j["id"].get<std::string>()] = j;
   return m;
 }
 
 Json NearSummary(const std::string& out) {
-  return Json::parse(ReadFile(out + "/summary.json"))["stages"]["near"];
+  return Json::parse(ReadFile(&MemoryFiles(), out + "/summary.json"))["stages"]["near"];
 }
 
 // A: 24 distinct words, 20 word 5-grams.
@@ -93,14 +93,14 @@ TEST(NearDups, ClustersPlantedEditsAndNotDistinctOnes) {
   Texts t;
   for (const char* verify : {"estimate", "exact"}) {
     std::string data = Line("a", t.A) + Line("d", Join(WordList("other", 30))) + Line("b", t.B) + Line("c", t.C);
-    std::string in = WriteFile(std::string("near_basic_") + verify + ".jsonl", data);
+    std::string in = WriteFile(&MemoryFiles(), std::string("near_basic_") + verify + ".jsonl", data);
     std::string out = TempPath(std::string("near_basic_out_") + verify);
     Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
     plan.stages["near"] = Json{{"verify", verify}};
     auto r = RunNear(plan, {"near"});
     ASSERT_TRUE(r.ok()) << r.status().message();
     EXPECT_EQ(r.value().rejected, 0u);
-    auto clusters = ReadJsonl(out + "/clusters.jsonl");
+    auto clusters = ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl");
     ASSERT_EQ(clusters.size(), 1u) << verify;
     EXPECT_EQ(clusters[0]["cluster"], 0);  // smallest member record index: "a" is record 0
     EXPECT_EQ(clusters[0]["first"], "a");
@@ -128,7 +128,7 @@ TEST(NearDups, ClustersPlantedEditsAndNotDistinctOnes) {
 
 TEST(NearDups, SummaryShowsTheBandingSCurve) {
   Texts t;
-  std::string in = WriteFile("near_curve.jsonl", Line("a", t.A) + Line("b", t.B));
+  std::string in = WriteFile(&MemoryFiles(), "near_curve.jsonl", Line("a", t.A) + Line("b", t.B));
   std::string out = TempPath("near_curve_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
@@ -162,13 +162,13 @@ TEST(NearDups, OnlyRecordsKeptByEarlierStagesTakePart) {
   Texts t;
   // "a2" repeats "a" exactly: the exact stage rejects it first, so it is in no cluster.
   std::string data = Line("a", t.A) + Line("a2", t.A) + Line("b", t.B);
-  std::string in = WriteFile("near_after_exact.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "near_after_exact.jsonl", data);
   std::string out = TempPath("near_after_exact_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   ASSERT_TRUE(RunNear(plan, {"exact", "near"}).ok());
   auto rejects = RejectsById(out);
   EXPECT_EQ(rejects["a2"]["reason"], "duplicate_comparison");
-  auto clusters = ReadJsonl(out + "/clusters.jsonl");
+  auto clusters = ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl");
   ASSERT_EQ(clusters.size(), 1u);
   EXPECT_EQ(clusters[0]["members"], Json::array({"a", "b"}));
   Json s = NearSummary(out);
@@ -179,7 +179,7 @@ TEST(NearDups, OnlyRecordsKeptByEarlierStagesTakePart) {
 TEST(NearDups, CapKeepsTheFirstInInputOrder) {
   Texts t;
   std::string data = Line("x", Join(WordList("other", 30))) + Line("a", t.A) + Line("b", t.B) + Line("b2", t.B2);
-  std::string in = WriteFile("near_cap.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "near_cap.jsonl", data);
   for (int cap : {1, 2}) {
     std::string out = TempPath("near_cap_out" + std::to_string(cap));
     Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
@@ -198,7 +198,7 @@ TEST(NearDups, CapKeepsTheFirstInInputOrder) {
     EXPECT_EQ(j["detail"]["cluster_first"], "a");
     EXPECT_EQ(j["detail"]["kept"], "a");
     EXPECT_EQ(j["detail"]["max_per_cluster"], cap);
-    auto clusters = ReadJsonl(out + "/clusters.jsonl");
+    auto clusters = ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl");
     ASSERT_EQ(clusters.size(), 1u);
     EXPECT_EQ(clusters[0]["size"], 3);
     EXPECT_EQ(clusters[0]["over_cap"].size(), static_cast<size_t>(3 - cap));
@@ -213,14 +213,14 @@ TEST(NearDups, ChatPromptsCompareUserTurnsOnly) {
     return Json{{"id", id}, {"turns", turns}, {"candidates", {"Yes", "No"}}, {"choice", 0}}.dump() + "\n";
   };
   // Different system turns (30 distinct words each); the same user turn.
-  std::string in = WriteFile("near_chat.jsonl", chat("c1", Join(WordList("rule", 30))) +
+  std::string in = WriteFile(&MemoryFiles(), "near_chat.jsonl", chat("c1", Join(WordList("rule", 30))) +
                                                     chat("c2", Join(WordList("tone", 30))));
   std::string out = TempPath("near_chat_out");
   Plan plan = PlanFor({in}, Json{{"id", "/id"}, {"prompt", "/turns"}, {"candidates", "/candidates"}, {"choice", "/choice"}},
                       out);
   plan.stages["near"] = Json{{"verify", "exact"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  auto clusters = ReadJsonl(out + "/clusters.jsonl");
+  auto clusters = ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl");
   ASSERT_EQ(clusters.size(), 1u);
   EXPECT_EQ(clusters[0]["members"], Json::array({"c1", "c2"}));
   EXPECT_DOUBLE_EQ(clusters[0]["min_similarity"].get<double>(), 1.0);
@@ -233,12 +233,12 @@ TEST(NearDups, TextWithoutSpacesUsesCodePointShingles) {
   for (int i = 0; i < 40; ++i) a += Utf8(0x4E00 + 3 * i);
   for (int i = 0; i < 39; ++i) b += Utf8(0x4E00 + 3 * i);
   b += Utf8(0x5100);
-  std::string in = WriteFile("near_cjk.jsonl", Line("h1", a) + Line("h2", b));
+  std::string in = WriteFile(&MemoryFiles(), "near_cjk.jsonl", Line("h1", a) + Line("h2", b));
   std::string out = TempPath("near_cjk_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   plan.stages["near"] = Json{{"verify", "exact"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  auto clusters = ReadJsonl(out + "/clusters.jsonl");
+  auto clusters = ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl");
   ASSERT_EQ(clusters.size(), 1u);
   EXPECT_NEAR(clusters[0]["min_similarity"].get<double>(), 35.0 / 37.0, 1e-6);
   EXPECT_EQ(NearSummary(out)["shingle_modes"]["chars"], 2);
@@ -246,8 +246,8 @@ TEST(NearDups, TextWithoutSpacesUsesCodePointShingles) {
   // (rule WB999), so word 5-grams are the same grams and the same similarity.
   plan.stages["near"] = Json{{"verify", "exact"}, {"shingle", "words"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  ASSERT_EQ(ReadJsonl(out + "/clusters.jsonl").size(), 1u);
-  EXPECT_NEAR(ReadJsonl(out + "/clusters.jsonl")[0]["min_similarity"].get<double>(), 35.0 / 37.0, 1e-6);
+  ASSERT_EQ(ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl").size(), 1u);
+  EXPECT_NEAR(ReadJsonl(&MemoryFiles(), out + "/clusters.jsonl")[0]["min_similarity"].get<double>(), 35.0 / 37.0, 1e-6);
   EXPECT_EQ(NearSummary(out)["shingle_modes"]["words"], 2);
 }
 
@@ -297,13 +297,13 @@ TEST(NearDups, CandidateSimilaritiesMatchBruteForceJaccard) {
     data += Json{{"id", id}, {"prompt", Join(WordList("q" + std::to_string(r) + "w", 12))}, {"candidates", arr},
                  {"choice", 0}}.dump() + "\n";
   }
-  std::string in = WriteFile("near_cands_diff.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "near_cands_diff.jsonl", data);
   std::string out = TempPath("near_cands_diff_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   plan.stages["near"] = Json{{"candidate_threshold", 0.3}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
   std::map<std::string, std::map<std::pair<int, int>, double>> got;
-  for (const auto& j : ReadJsonl(out + "/near_identical.jsonl")) {
+  for (const auto& j : ReadJsonl(&MemoryFiles(), out + "/near_identical.jsonl")) {
     for (const auto& p : j["pairs"]) {
       got[j["id"].get<std::string>()][{p["candidates"][0].get<int>(), p["candidates"][1].get<int>()}] =
           p["similarity"].get<double>();
@@ -342,11 +342,11 @@ TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
                      Line("n3", Join(WordList("pc", 20)), "Yes.", "Yes!") +
                      // the same text after normalisation: similarity 1
                      Line("n4", Join(WordList("pd", 20)), "In May", "in  MAY", 1);
-  std::string in = WriteFile("near_cands.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "near_cands.jsonl", data);
   std::string out = TempPath("near_cands_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());  // default: flag, 0.9, 3-grams
-  auto flagged = ReadJsonl(out + "/near_identical.jsonl");
+  auto flagged = ReadJsonl(&MemoryFiles(), out + "/near_identical.jsonl");
   ASSERT_EQ(flagged.size(), 3u);
   EXPECT_EQ(flagged[0]["id"], "n1");
   EXPECT_EQ(flagged[0]["action"], "flagged");
@@ -373,14 +373,14 @@ TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
   // A lower threshold also catches n2 (0.818); "off" checks nothing.
   plan.stages["near"] = Json{{"candidate_threshold", 0.8}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  EXPECT_EQ(ReadJsonl(out + "/near_identical.jsonl").size(), 4u);
+  EXPECT_EQ(ReadJsonl(&MemoryFiles(), out + "/near_identical.jsonl").size(), 4u);
   plan.stages["near"] = Json{{"candidates", "off"}};
   ASSERT_TRUE(RunNear(plan, {"near"}).ok());
-  EXPECT_EQ(ReadJsonl(out + "/near_identical.jsonl").size(), 0u);
+  EXPECT_EQ(ReadJsonl(&MemoryFiles(), out + "/near_identical.jsonl").size(), 0u);
 }
 
 TEST(NearDups, BadSettingsAreUsageErrorsNamingTheKey) {
-  std::string in = WriteFile("near_bad.jsonl", Line("a", "hello there"));
+  std::string in = WriteFile(&MemoryFiles(), "near_bad.jsonl", Line("a", "hello there"));
   std::string out = TempPath("near_bad_out");
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
   std::vector<std::pair<Json, std::string>> cases = {
@@ -421,7 +421,7 @@ TEST(NearDups, ThreadCountDoesNotChangeOutputs) {
     prompts.push_back(w);
     data += Line("r" + std::to_string(i), Join(w), "c" + std::to_string(i), "d" + std::to_string(i));
   }
-  std::string in = WriteFile("near_threads.jsonl", data);
+  std::string in = WriteFile(&MemoryFiles(), "near_threads.jsonl", data);
   std::string outs[2];
   for (int t = 0; t < 2; ++t) {
     outs[t] = TempPath("near_threads_out" + std::to_string(t));
@@ -431,7 +431,7 @@ TEST(NearDups, ThreadCountDoesNotChangeOutputs) {
     ASSERT_TRUE(RunNear(plan, {"near"}).ok());
   }
   for (const char* f : {"/kept.jsonl", "/rejects.jsonl", "/clusters.jsonl", "/near_identical.jsonl"}) {
-    EXPECT_EQ(ReadFile(outs[0] + f), ReadFile(outs[1] + f)) << f;
+    EXPECT_EQ(ReadFile(&MemoryFiles(), outs[0] + f), ReadFile(&MemoryFiles(), outs[1] + f)) << f;
   }
   EXPECT_EQ(NearSummary(outs[0]).dump(), NearSummary(outs[1]).dump());
   EXPECT_GE(NearSummary(outs[0])["clusters"].get<int>(), 150);  // 300 edits, some of them edits of edits (measured 191)

@@ -134,7 +134,7 @@ TEST(ObservedState, PartsWithAnEmptyOneDecideAsTheWhole) {
 }
 
 TEST(ObservedState, SamplesInHalvesDecideAsTheWhole) {
-  auto loaded = LoadPlanFile(std::string(PREFSIFT_TEST_SOURCE_DIR) + "/samples/demo-plan.json");
+  auto loaded = LoadPlanFile(DefaultFileSystem(), std::string(PREFSIFT_TEST_SOURCE_DIR) + "/samples/demo-plan.json");
   ASSERT_TRUE(loaded.ok()) << loaded.status().message();
   const Plan& plan = loaded.value();
   Decided whole = DecideWhole(plan);

@@ -122,7 +122,7 @@ TEST(PartCommands, FivePartsWithAnEmptyOneMatchRun) {
 }
 
 TEST(PartCommands, SamplesInPartsMatchRun) {
-  auto loaded = LoadPlanFile(std::string(PREFSIFT_TEST_SOURCE_DIR) + "/samples/demo-plan.json");
+  auto loaded = LoadPlanFile(DefaultFileSystem(), std::string(PREFSIFT_TEST_SOURCE_DIR) + "/samples/demo-plan.json");
   ASSERT_TRUE(loaded.ok()) << loaded.status().message();
   Plan plan = loaded.value();
   plan.overwrite = true;

@@ -336,7 +336,7 @@ TEST(PersonalDataRules, FixesMadeDuringIntegration) {
     if (e.path().extension() == ".json") packs.push_back(e.path().string());
   }
   std::sort(packs.begin(), packs.end());
-  auto rules = screen::LoadRulePacks(packs, RulesDir());
+  auto rules = screen::LoadRulePacks(DefaultFileSystem(), packs, RulesDir());
   ASSERT_TRUE(rules.ok()) << rules.status().message();
   auto sc = screen::Screener::Build(rules.value());
   ASSERT_TRUE(sc.ok()) << sc.status().message();

@@ -12,6 +12,7 @@
 #include <string>
 #include <vector>
 
+#include "io/memory_file_system.h"
 #include "pipeline/pipeline.h"
 
 namespace prefsift::testing {
@@ -38,6 +39,36 @@ inline std::string ReadFile(const std::string& path) {
 inline std::vector<nlohmann::ordered_json> ReadJsonl(const std::string& path) {
   std::vector<nlohmann::ordered_json> out;
   std::ifstream in(path);
+  std::string line;
+  while (std::getline(in, line)) {
+    if (!line.empty()) out.push_back(nlohmann::ordered_json::parse(line));
+  }
+  return out;
+}
+
+// The same on files held in memory (io/memory_file_system.h), for tests whose
+// stages read nothing but their inputs: the run goes through `fs` too
+// (RunPipeline(plan, options, fs, log)) and leaves no files behind.
+inline MemoryFileSystem& MemoryFiles() {
+  static MemoryFileSystem fs;
+  return fs;
+}
+
+inline std::string WriteFile(MemoryFileSystem* fs, const std::string& name, const std::string& bytes) {
+  std::string path = TempPath(name);
+  fs->Put(path, bytes);
+  return path;
+}
+
+inline std::string ReadFile(FileSystem* fs, const std::string& path) {
+  auto r = ReadWholeFile(fs, path);
+  EXPECT_TRUE(r.ok()) << r.status().message();
+  return r.ok() ? r.value() : std::string();
+}
+
+inline std::vector<nlohmann::ordered_json> ReadJsonl(FileSystem* fs, const std::string& path) {
+  std::vector<nlohmann::ordered_json> out;
+  std::istringstream in(ReadFile(fs, path));
   std::string line;
   while (std::getline(in, line)) {
     if (!line.empty()) out.push_back(nlohmann::ordered_json::parse(line));

@@ -5,6 +5,7 @@
 #include <filesystem>
 #include <set>
 
+#include "core/blank.h"
 #include "core/json_pointer.h"
 #include "core/normalize.h"
 #include "core/plan.h"
@@ -21,13 +22,6 @@ std::string Resolve(const std::string& base, const std::string& p) { return Reso
 
 bool EndsWith(const std::string& s, const std::string& e) {
   return s.size() >= e.size() && s.compare(s.size() - e.size(), e.size(), e) == 0;
-}
-
-bool IsBlank(std::string_view s) {
-  for (char c : s) {
-    if (c != ' ' && c != '\t' && c != '\r') return false;
-  }
-  return true;
 }
 
 // Evaluates an RFC 6901 pointer; nullptr when the value is absent.

@@ -9,12 +9,12 @@
 #include <cmath>
 #include <cstdlib>
 #include <filesystem>
-#include <fstream>
 #include <map>
 #include <mutex>
 #include <set>
 #include <sstream>
 
+#include "core/file_system.h"
 #include "core/hash.h"
 #include "core/state_file.h"
 #include "core/sha256.h"
@@ -80,26 +80,17 @@ const char* const kCautions[] = {
     "Pseudonyms are keyed (HMAC-SHA256): whoever holds the key can test guesses against them; keep the key secret "
     "and separate from the data."};
 
-std::string ReadWhole(const std::string& path, bool* ok) {
-  std::ifstream in(path, std::ios::binary);
-  *ok = static_cast<bool>(in);
-  std::ostringstream buf;
-  buf << in.rdbuf();
-  return buf.str();
-}
-
 std::string Resolve(const std::string& base_dir, const std::string& p) {
   if (p.empty() || base_dir.empty() || fs::path(p).is_absolute()) return p;
   return (fs::path(base_dir) / p).string();
 }
 
-bool HasJsonFile(const fs::path& dir) {
-  std::error_code ec;
-  if (!fs::is_directory(dir, ec)) return false;
-  for (const auto& e : fs::directory_iterator(dir, ec)) {
-    if (e.path().extension() == ".json") return true;
-  }
-  return false;
+bool IsJsonName(const std::string& name) { return fs::path(name).extension() == ".json"; }
+
+bool HasJsonFile(FileSystem* files, const fs::path& dir) {
+  if (!files->IsDirectory(dir.string())) return false;
+  auto names = files->List(dir.string());
+  return names.ok() && std::any_of(names.value().begin(), names.value().end(), IsJsonName);
 }
 
 // The pointer of a prompt/turn/candidate string in a record of this layout.
@@ -420,7 +411,7 @@ bool ParseAction(const Json& v, Action* a) {
 
 }  // namespace
 
-std::string DefaultRulesDir() {
+std::string DefaultRulesDir(FileSystem* files) {
   if (const char* env = std::getenv("PREFSIFT_RULES_DIR"); env && *env) return env;
   std::error_code ec;
   fs::path exe = fs::read_symlink("/proc/self/exe", ec);
@@ -428,7 +419,7 @@ std::string DefaultRulesDir() {
   fs::path d = exe.parent_path();
   for (int up = 0; up <= 4 && !d.empty(); ++up) {
     for (const fs::path& cand : {d / "share" / "prefsift" / "rules", d / "rules"}) {
-      if (HasJsonFile(cand)) return cand.string();
+      if (HasJsonFile(files, cand)) return cand.string();
     }
     if (d == d.parent_path()) break;
     d = d.parent_path();
@@ -436,200 +427,232 @@ std::string DefaultRulesDir() {
 #ifdef PREFSIFT_SOURCE_RULES_DIR
   // Last: the source tree's rules folder, recorded at build time, so a binary
   // built outside the checkout (cmake -B /elsewhere) still finds the packs.
-  if (HasJsonFile(PREFSIFT_SOURCE_RULES_DIR)) return PREFSIFT_SOURCE_RULES_DIR;
+  if (HasJsonFile(files, PREFSIFT_SOURCE_RULES_DIR)) return PREFSIFT_SOURCE_RULES_DIR;
 #endif
   return "";
 }
 
-std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
-  const Json& s = StageSettings(plan, kStage);
-  auto usage = [&](const std::string& m) {
-    *error = Status::Usage(m);
-    return nullptr;
-  };
-  std::string base_dir = plan.plan_path.empty() ? "" : fs::path(plan.plan_path).parent_path().string();
-  Settings set;
+namespace {
+
+// The stage's settings as read from the plan, before the packs are loaded.
+struct ScreenPlan {
+  Settings settings;
   std::vector<std::string> packs;
   bool packs_given = false;
   std::string rules_dir, key_file, key_env;
   Action default_action = Action::kFlag;
   bool has_default = false;
   std::map<std::string, Action> overrides;
-  if (!s.is_object()) return usage("stages.screen: must be an object");
+};
+
+// Reads and checks every key of the plan's "screen" object.
+Status ParseScreenSettings(const Json& s, const std::string& base_dir, ScreenPlan* p) {
+  if (!s.is_object()) return Status::Usage("stages.screen: must be an object");
   for (auto it = s.begin(); it != s.end(); ++it) {
     const std::string& k = it.key();
     const Json& v = it.value();
     if (k == "enabled") continue;
     if (k == "packs") {
-      if (!v.is_array()) return usage("stages.screen.packs: must be an array of pack names or paths");
-      for (const auto& p : v) {
-        if (!p.is_string() || p.get<std::string>().empty()) {
-          return usage("stages.screen.packs: every entry must be a non-empty string (a pack name or a path)");
+      if (!v.is_array()) return Status::Usage("stages.screen.packs: must be an array of pack names or paths");
+      for (const auto& pack : v) {
+        if (!pack.is_string() || pack.get<std::string>().empty()) {
+          return Status::Usage("stages.screen.packs: every entry must be a non-empty string (a pack name or a path)");
         }
-        packs.push_back(p.get<std::string>());
+        p->packs.push_back(pack.get<std::string>());
       }
-      packs_given = true;
+      p->packs_given = true;
     } else if (k == "rules_dir") {
-      if (!v.is_string() || v.get<std::string>().empty()) return usage("stages.screen.rules_dir: must be a folder path");
-      rules_dir = Resolve(base_dir, v.get<std::string>());
+      if (!v.is_string() || v.get<std::string>().empty()) return Status::Usage("stages.screen.rules_dir: must be a folder path");
+      p->rules_dir = Resolve(base_dir, v.get<std::string>());
     } else if (k == "action") {
-      if (!ParseAction(v, &default_action)) {
-        return usage("stages.screen.action: must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
+      if (!ParseAction(v, &p->default_action)) {
+        return Status::Usage("stages.screen.action: must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
       }
-      has_default = true;
-      set.default_action = v.get<std::string>();
+      p->has_default = true;
+      p->settings.default_action = v.get<std::string>();
     } else if (k == "actions") {
-      return usage("stages.screen.actions is now \"action_by_kind\": {\"<kind id>\": \"<action>\"}, keyed by kind "
+      return Status::Usage("stages.screen.actions is now \"action_by_kind\": {\"<kind id>\": \"<action>\"}, keyed by kind "
                    "ids such as \"mailbox-address\" (docs/personal-data.md, \"Kind ids\")");
     } else if (k == "action_by_kind") {
       if (!v.is_object()) {
-        return usage("stages.screen.action_by_kind: must be an object {\"<kind id>\": \"<action>\"}");
+        return Status::Usage("stages.screen.action_by_kind: must be an object {\"<kind id>\": \"<action>\"}");
       }
       for (auto a = v.begin(); a != v.end(); ++a) {
         Action act;
         if (!ParseAction(a.value(), &act)) {
-          return usage("stages.screen.action_by_kind." + a.key() +
+          return Status::Usage("stages.screen.action_by_kind." + a.key() +
                        ": must be \"flag\", \"mask\", \"pseudonymise\" or \"drop\"");
         }
-        overrides[a.key()] = act;
-        set.overrides[a.key()] = a.value().get<std::string>();
+        p->overrides[a.key()] = act;
+        p->settings.overrides[a.key()] = a.value().get<std::string>();
       }
     } else if (k == "key_file") {
-      if (!v.is_string() || v.get<std::string>().empty()) return usage("stages.screen.key_file: must be a file path");
-      key_file = Resolve(base_dir, v.get<std::string>());
+      if (!v.is_string() || v.get<std::string>().empty()) return Status::Usage("stages.screen.key_file: must be a file path");
+      p->key_file = Resolve(base_dir, v.get<std::string>());
     } else if (k == "key_env") {
       if (!v.is_string() || v.get<std::string>().empty()) {
-        return usage("stages.screen.key_env: must be the name of an environment variable");
+        return Status::Usage("stages.screen.key_env: must be the name of an environment variable");
       }
-      key_env = v.get<std::string>();
+      p->key_env = v.get<std::string>();
     } else if (k == "fields") {
       if (!v.is_array() || v.empty()) {
-        return usage("stages.screen.fields: must be a non-empty array of \"prompt\", \"candidates\", \"metadata\"");
+        return Status::Usage("stages.screen.fields: must be a non-empty array of \"prompt\", \"candidates\", \"metadata\"");
       }
-      std::fill(std::begin(set.fields), std::end(set.fields), false);
+      std::fill(std::begin(p->settings.fields), std::end(p->settings.fields), false);
       for (const auto& f : v) {
         bool ok = false;
         for (int q = 0; q < screen::kFieldKindCount; ++q) {
           if (f.is_string() && f.get<std::string>() == screen::FieldKindName(static_cast<FieldKind>(q))) {
-            set.fields[q] = ok = true;
+            p->settings.fields[q] = ok = true;
           }
         }
-        if (!ok) return usage("stages.screen.fields: unknown field " + f.dump() + " (prompt, candidates, metadata)");
+        if (!ok) return Status::Usage("stages.screen.fields: unknown field " + f.dump() + " (prompt, candidates, metadata)");
       }
     } else if (k == "min_confidence") {
-      return usage("stages.screen.min_confidence is now \"certainty_floor\" (findings whose certainty, after nearby "
+      return Status::Usage("stages.screen.min_confidence is now \"certainty_floor\" (findings whose certainty, after nearby "
                    "words, is below it are not reported)");
     } else if (k == "certainty_floor") {
       if (!v.is_number() || v.get<double>() < 0 || v.get<double>() > 1) {
-        return usage("stages.screen.certainty_floor: must be a number in [0, 1]");
+        return Status::Usage("stages.screen.certainty_floor: must be a number in [0, 1]");
       }
-      set.certainty_floor = v.get<double>();
+      p->settings.certainty_floor = v.get<double>();
     } else {
-      return usage("stages.screen: unknown setting \"" + k +
+      return Status::Usage("stages.screen: unknown setting \"" + k +
                    "\" (known: packs, rules_dir, action, action_by_kind, key_file, key_env, fields, certainty_floor)");
     }
   }
-  if (!key_file.empty() && !key_env.empty()) {
-    return usage("stages.screen: set either \"key_file\" or \"key_env\", not both");
+  if (!p->key_file.empty() && !p->key_env.empty()) {
+    return Status::Usage("stages.screen: set either \"key_file\" or \"key_env\", not both");
   }
-  if (rules_dir.empty()) rules_dir = DefaultRulesDir();
+  return Status::Ok();
+}
+
+// The pack files to load: the named or given packs, or every pack of the
+// rules folder.
+Status ResolvePacks(FileSystem* files, const std::string& base_dir, ScreenPlan* p) {
+  if (p->rules_dir.empty()) p->rules_dir = DefaultRulesDir(files);
   // Packs: names resolve in rules_dir; paths relative to the plan's folder.
-  if (!packs_given) {
-    if (rules_dir.empty()) {
-      return usage("stages.screen: no rules folder found; set \"rules_dir\" in the plan or the environment variable "
+  if (!p->packs_given) {
+    if (p->rules_dir.empty()) {
+      return Status::Usage("stages.screen: no rules folder found; set \"rules_dir\" in the plan or the environment variable "
                    "PREFSIFT_RULES_DIR (docs/personal-data.md, \"Pipeline stage\")");
     }
-    std::error_code ec;
-    std::vector<std::string> files;
-    for (const auto& e : fs::directory_iterator(rules_dir, ec)) {
-      if (e.path().extension() == ".json") files.push_back(e.path().string());
+    auto names = files->List(p->rules_dir);
+    if (!names.ok()) return Status::Usage("stages.screen.rules_dir: cannot read the folder " + p->rules_dir);
+    for (const std::string& name : names.value()) {
+      if (IsJsonName(name)) p->packs.push_back((fs::path(p->rules_dir) / name).string());
     }
-    if (ec) return usage("stages.screen.rules_dir: cannot read the folder " + rules_dir);
-    std::sort(files.begin(), files.end());
-    if (files.empty()) return usage("stages.screen.rules_dir: no .json rule packs in " + rules_dir);
-    packs = files;
+    if (p->packs.empty()) return Status::Usage("stages.screen.rules_dir: no .json rule packs in " + p->rules_dir);
   }
-  for (auto& p : packs) {
-    bool is_name = p.find('/') == std::string::npos && !(p.size() >= 5 && p.compare(p.size() - 5, 5, ".json") == 0);
+  for (auto& pack : p->packs) {
+    bool is_name =
+        pack.find('/') == std::string::npos && !(pack.size() >= 5 && pack.compare(pack.size() - 5, 5, ".json") == 0);
     if (is_name) {
-      if (rules_dir.empty()) {
-        return usage("stages.screen.packs: pack \"" + p + "\" is a name but no rules folder was found; set "
-                     "\"rules_dir\" or PREFSIFT_RULES_DIR");
+      if (p->rules_dir.empty()) {
+        return Status::Usage("stages.screen.packs: pack \"" + pack + "\" is a name but no rules folder was found; set "
+                             "\"rules_dir\" or PREFSIFT_RULES_DIR");
       }
-      p = rules_dir + "/" + p + ".json";
+      pack = p->rules_dir + "/" + pack + ".json";
     } else {
-      p = Resolve(base_dir, p);
+      pack = Resolve(base_dir, pack);
     }
   }
-  auto loaded = screen::LoadRulePacks(packs, rules_dir);
+  return Status::Ok();
+}
+
+// The plan's default action, then its per-kind (or kind/vendor) overrides.
+Status ApplyPlanActions(const ScreenPlan& p, screen::RuleSet* rules) {
+  for (auto& r : rules->rules) {
+    if (p.has_default) r.action = p.default_action;
+  }
+  // A key is a kind id (all its rules) or kind/vendor (one rule).
+  for (const auto& [id, act] : p.overrides) {
+    bool any = false;
+    for (auto& r : rules->rules) {
+      if (r.kind == id || r.id == id) {
+        r.action = act;
+        any = true;
+      }
+    }
+    if (!any) return Status::Usage("stages.screen.action_by_kind: no kind \"" + id + "\" in the loaded packs");
+  }
+  return Status::Ok();
+}
+
+// The pseudonym key: read only when given; required when any rule
+// pseudonymises. Null without a key.
+Status ReadPseudonymKey(FileSystem* files, const ScreenPlan& p, const screen::RuleSet& rules, Settings* settings,
+                        std::unique_ptr<screen::PseudonymKey>* key) {
+  std::vector<std::string> pseudo_rules;
+  for (const auto& r : rules.rules) {
+    if (r.action == Action::kPseudonymise) pseudo_rules.push_back(r.id);
+  }
+  std::string key_bytes;
+  if (!p.key_file.empty()) {
+    auto read = ReadWholeFile(files, p.key_file);
+    if (!read.ok()) return Status::Usage("stages.screen.key_file: cannot read " + p.key_file);
+    key_bytes = std::move(read).value();
+    while (!key_bytes.empty() && (key_bytes.back() == '\n' || key_bytes.back() == '\r')) key_bytes.pop_back();
+    settings->key_source = "key_file";
+  } else if (!p.key_env.empty()) {
+    const char* v = std::getenv(p.key_env.c_str());
+    if (!v || !*v) return Status::Usage("stages.screen.key_env: the environment variable " + p.key_env + " is not set or empty");
+    key_bytes = v;
+    settings->key_source = "key_env";
+  }
+  if (!settings->key_source.empty()) {
+    auto k = screen::PseudonymKey::FromBytes(key_bytes);
+    std::fill(key_bytes.begin(), key_bytes.end(), '\0');
+    if (!k.ok()) return Status::Usage("stages.screen." + settings->key_source + ": the pseudonym key must be at least 16 bytes");
+    *key = std::make_unique<screen::PseudonymKey>(std::move(k).value());
+  } else if (!pseudo_rules.empty()) {
+    std::string list;
+    for (size_t i = 0; i < pseudo_rules.size() && i < 5; ++i) list += (i ? ", " : "") + pseudo_rules[i];
+    if (pseudo_rules.size() > 5) list += ", ...";
+    return Status::Usage("stages.screen: the action pseudonymise (rules " + list +
+                 ") needs a secret key: set \"key_file\" (a file holding the key) or \"key_env\" (the name of an "
+                 "environment variable holding it)");
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* fs, Status* error) {
+  const Json& s = StageSettings(plan, kStage);
+  FileSystem* files = fs;
+  auto fail = [&](Status st) {
+    *error = st.code() == StatusCode::kUsage ? st : Status::Usage(st.message());
+    return nullptr;
+  };
+  std::string base_dir = plan.plan_path.empty() ? "" : fs::path(plan.plan_path).parent_path().string();
+  ScreenPlan p;
+  if (Status st = ParseScreenSettings(s, base_dir, &p); !st.ok()) return fail(st);
+  if (Status st = ResolvePacks(files, base_dir, &p); !st.ok()) return fail(st);
+  auto loaded = screen::LoadRulePacks(files, p.packs, p.rules_dir);
   if (!loaded.ok()) {
     *error = loaded.status().code() == StatusCode::kUsage ? loaded.status()
                                                           : Status::Usage(loaded.status().message());
     return nullptr;
   }
   screen::RuleSet rules = std::move(loaded).value();
-  for (const auto& p : packs) {
-    bool ok = false;
-    std::string bytes = ReadWhole(p, &ok);
-    set.pack_paths.push_back(p);
-    set.pack_labels.push_back(fs::path(p).filename().string());
-    set.pack_digests.push_back(Sha256Hex(bytes));
+  for (const auto& pack : p.packs) {
+    auto bytes = ReadWholeFile(files, pack);
+    p.settings.pack_paths.push_back(pack);
+    p.settings.pack_labels.push_back(fs::path(pack).filename().string());
+    p.settings.pack_digests.push_back(Sha256Hex(bytes.ok() ? bytes.value() : ""));
   }
-  // Actions in effect: the plan's default, then per-rule overrides.
-  std::vector<std::string> pseudo_rules;
-  for (auto& r : rules.rules) {
-    if (has_default) r.action = default_action;
-  }
-  // A key is a kind id (all its rules) or kind/vendor (one rule).
-  for (const auto& [id, act] : overrides) {
-    bool any = false;
-    for (auto& r : rules.rules) {
-      if (r.kind == id || r.id == id) {
-        r.action = act;
-        any = true;
-      }
-    }
-    if (!any) return usage("stages.screen.action_by_kind: no kind \"" + id + "\" in the loaded packs");
-  }
-  for (const auto& r : rules.rules) {
-    if (r.action == Action::kPseudonymise) pseudo_rules.push_back(r.id);
-  }
-  // The key: read only when given; required when any rule pseudonymises.
+  if (Status st = ApplyPlanActions(p, &rules); !st.ok()) return fail(st);
   std::unique_ptr<screen::PseudonymKey> key;
-  std::string key_bytes;
-  if (!key_file.empty()) {
-    bool ok = false;
-    key_bytes = ReadWhole(key_file, &ok);
-    if (!ok) return usage("stages.screen.key_file: cannot read " + key_file);
-    while (!key_bytes.empty() && (key_bytes.back() == '\n' || key_bytes.back() == '\r')) key_bytes.pop_back();
-    set.key_source = "key_file";
-  } else if (!key_env.empty()) {
-    const char* v = std::getenv(key_env.c_str());
-    if (!v || !*v) return usage("stages.screen.key_env: the environment variable " + key_env + " is not set or empty");
-    key_bytes = v;
-    set.key_source = "key_env";
-  }
-  if (!set.key_source.empty()) {
-    auto k = screen::PseudonymKey::FromBytes(key_bytes);
-    std::fill(key_bytes.begin(), key_bytes.end(), '\0');
-    if (!k.ok()) return usage("stages.screen." + set.key_source + ": the pseudonym key must be at least 16 bytes");
-    key = std::make_unique<screen::PseudonymKey>(std::move(k).value());
-  } else if (!pseudo_rules.empty()) {
-    std::string list;
-    for (size_t i = 0; i < pseudo_rules.size() && i < 5; ++i) list += (i ? ", " : "") + pseudo_rules[i];
-    if (pseudo_rules.size() > 5) list += ", ...";
-    return usage("stages.screen: the action pseudonymise (rules " + list +
-                 ") needs a secret key: set \"key_file\" (a file holding the key) or \"key_env\" (the name of an "
-                 "environment variable holding it)");
-  }
+  if (Status st = ReadPseudonymKey(files, p, rules, &p.settings, &key); !st.ok()) return fail(st);
   screen::ScreenerOptions opts;
-  opts.certainty_floor = set.certainty_floor;
+  opts.certainty_floor = p.settings.certainty_floor;
   auto built = screen::Screener::Build(rules, opts);
   if (!built.ok()) {
     *error = built.status();
     return nullptr;
   }
-  return std::make_unique<PersonalDataStage>(std::move(set), std::move(rules), std::move(built).value(),
+  return std::make_unique<PersonalDataStage>(std::move(p.settings), std::move(rules), std::move(built).value(),
                                              std::move(key));
 }
 

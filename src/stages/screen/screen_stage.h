@@ -22,6 +22,7 @@
 #include <memory>
 #include <string>
 
+#include "io/file_system.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -31,7 +32,7 @@ std::unique_ptr<Stage> MakeScreenStage(const Plan& plan, FileSystem* fs, Status*
 // The rules folder used when the plan sets no "rules_dir": $PREFSIFT_RULES_DIR,
 // else the first of <d>/share/prefsift/rules and <d>/rules that holds a .json
 // file, for d = the executable's folder and up to four of its parents.
-// Returns "" when none is found.
-std::string DefaultRulesDir();
+// Returns "" when none is found. The folders are looked at through `files`.
+std::string DefaultRulesDir(FileSystem* files = DefaultFileSystem());
 
 }  // namespace prefsift

@@ -1,0 +1,129 @@
+// Differential test of HashPostings (src/stages/leakage/hash_postings.h, the
+// leakage detectors' open-addressing table) against a plain std::map from key
+// to the set of its values: same values, in ascending order, for every key
+// looked up, on random keys with repeated pairs, keys that share a probe
+// chain, the keys 0 and 1 (stored as one key, as the header says), the empty
+// table and a rebuilt table. Seeded, so a failure reproduces.
+#include <gtest/gtest.h>
+
+#include <cstdint>
+#include <map>
+#include <set>
+#include <utility>
+#include <vector>
+
+#include "core/random.h"
+#include "stages/leakage/hash_postings.h"
+
+namespace prefsift {
+namespace {
+
+using Entries = std::vector<std::pair<uint64_t, uint32_t>>;
+using Reference = std::map<uint64_t, std::set<uint32_t>>;
+
+// The header's contract, written the plain way: 0 is stored as 1.
+uint64_t Stored(uint64_t k) { return k == 0 ? 1 : k; }
+
+Reference MakeReference(const Entries& entries) {
+  Reference ref;
+  for (const auto& [k, v] : entries) ref[Stored(k)].insert(v);
+  return ref;
+}
+
+void ExpectSameLookup(const HashPostings& table, const Reference& ref, uint64_t key) {
+  auto got = table.Find(key);
+  std::vector<uint32_t> want;
+  if (auto it = ref.find(Stored(key)); it != ref.end()) want.assign(it->second.begin(), it->second.end());
+  EXPECT_EQ(std::vector<uint32_t>(got.begin(), got.end()), want) << "key " << key;
+}
+
+// Builds the table, checks its sizes, every stored key and `probes` absent
+// ones drawn from `state`.
+void ExpectSameAsMap(const Entries& entries, uint64_t* state, size_t probes) {
+  HashPostings table;
+  table.Build(entries);
+  const Reference ref = MakeReference(entries);
+  size_t pairs = 0;
+  for (const auto& [k, vs] : ref) pairs += vs.size();
+  EXPECT_EQ(table.keys(), ref.size());
+  EXPECT_EQ(table.entries(), pairs);
+  for (const auto& [k, vs] : ref) ExpectSameLookup(table, ref, k);
+  for (size_t i = 0; i < probes; ++i) ExpectSameLookup(table, ref, SplitMix64(state));
+  for (uint64_t k : {uint64_t{0}, uint64_t{1}, uint64_t{2}, UINT64_MAX}) ExpectSameLookup(table, ref, k);
+}
+
+TEST(HashPostings, EmptyTable) {
+  HashPostings never_built;
+  EXPECT_TRUE(never_built.Find(0).empty());
+  EXPECT_TRUE(never_built.Find(42).empty());
+  EXPECT_EQ(never_built.keys(), 0u);
+  EXPECT_EQ(never_built.entries(), 0u);
+  uint64_t state = 1;
+  ExpectSameAsMap({}, &state, 100);
+}
+
+TEST(HashPostings, RandomKeysWithRepeats) {
+  uint64_t state = 20261203;
+  for (int round = 0; round < 200; ++round) {
+    const size_t n = UniformBelow(&state, 3000);
+    // Few distinct keys in some rounds (many values per key, many repeated
+    // pairs), many in others.
+    const uint64_t key_pool = 1 + UniformBelow(&state, round % 2 ? 50 : 100000);
+    Entries entries;
+    for (size_t i = 0; i < n; ++i) {
+      const uint64_t k = SplitMix64(&state) % key_pool * 0x100000001ULL;
+      const uint32_t v = static_cast<uint32_t>(UniformBelow(&state, 64));
+      entries.push_back({k, v});
+      if (UniformBelow(&state, 4) == 0) entries.push_back({k, v});  // a repeated pair
+    }
+    ExpectSameAsMap(entries, &state, 200);
+    if (HasFailure()) return;
+  }
+}
+
+TEST(HashPostings, KeysThatCollideInTheirSlot) {
+  // The slot is bits 20 and up of key * 0x9E3779B97F4A7C15, masked: keys whose
+  // product differs only below bit 20 share a home slot and one probe chain.
+  // Multiples of the inverse of the multiplier mod 2^64 give products 1, 2, 3...
+  uint64_t inv = 0x9E3779B97F4A7C15ULL;  // Newton's iteration for the inverse mod 2^64
+  for (int i = 0; i < 6; ++i) inv *= 2 - 0x9E3779B97F4A7C15ULL * inv;
+  ASSERT_EQ(inv * 0x9E3779B97F4A7C15ULL, 1u);
+  Entries entries;
+  for (uint32_t i = 1; i <= 600; ++i) entries.push_back({inv * i, i});            // one home slot
+  for (uint32_t i = 0; i < 600; ++i) entries.push_back({inv * (i << 20), i});     // consecutive slots
+  for (uint32_t i = 0; i < 50; ++i) entries.push_back({inv * ((i << 20) | 7), i + 1000});  // between them
+  uint64_t state = 3;
+  ExpectSameAsMap(entries, &state, 1000);
+  // Absent keys that land in the crowded chains.
+  HashPostings table;
+  table.Build(entries);
+  const Reference ref = MakeReference(entries);
+  for (uint64_t i = 601; i < 1200; ++i) ExpectSameLookup(table, ref, inv * i);
+  for (uint64_t i = 600; i < 1200; ++i) ExpectSameLookup(table, ref, inv * (i << 20));
+}
+
+TEST(HashPostings, ZeroAndOneAreOneKey) {
+  Entries entries = {{0, 5}, {1, 3}, {1, 5}, {2, 9}, {0, 1}};
+  uint64_t state = 4;
+  ExpectSameAsMap(entries, &state, 10);
+  HashPostings table;
+  table.Build(entries);
+  auto zero = table.Find(0);
+  EXPECT_EQ(std::vector<uint32_t>(zero.begin(), zero.end()), (std::vector<uint32_t>{1, 3, 5}));
+}
+
+TEST(HashPostings, RebuildReplacesTheContents) {
+  HashPostings table;
+  table.Build({{10, 1}, {11, 2}, {12, 3}});
+  Entries second = {{12, 7}, {13, 8}};
+  table.Build(second);
+  const Reference ref = MakeReference(second);
+  for (uint64_t k = 9; k <= 14; ++k) ExpectSameLookup(table, ref, k);
+  EXPECT_EQ(table.keys(), 2u);
+  table.Build({});
+  EXPECT_TRUE(table.Find(12).empty());
+  EXPECT_EQ(table.keys(), 0u);
+}
+
+}  // namespace
+}  // namespace prefsift
