@@ -17,7 +17,6 @@
 
 #include <chrono>
 #include <filesystem>
-#include <functional>
 #include <map>
 #include <set>
 #include <sstream>
@@ -149,19 +148,15 @@ std::string JobId(const std::string& line, const std::string& step) {
   return line.substr(at, line.find_first_of(" \n", at) - at);
 }
 
-// summary.json without what may differ between two runs of one plan: wall
-// times and the name of the command that wrote it.
+// summary.json without what the decide step cannot know when it writes it:
+// the SHA-256 of the output files (apply writes them later; each part's files
+// are compared byte for byte instead).
 Json Figures(const std::string& path) {
   Json j = Json::parse(ReadFile(path));
-  std::function<void(Json&)> strip = [&](Json& v) {
-    if (v.is_object()) {
-      for (const char* k : {"duration_seconds", "seconds", "timings", "started", "finished", "command"}) v.erase(k);
-      for (auto& [k, x] : v.items()) strip(x);
-    } else if (v.is_array()) {
-      for (auto& x : v) strip(x);
-    }
-  };
-  strip(j);
+  if (j.contains("provenance")) {
+    j["provenance"].erase("outputs");
+    j["provenance"].erase("outputs_note");
+  }
   return j;
 }
 
