@@ -55,6 +55,17 @@ class PosixReadable : public ReadableFile {
     if (got < n && std::ferror(f_)) return Status::Input(Errno("cannot read", path_));
     return got;
   }
+  Status Skip(uint64_t n) override {
+    struct stat st {};
+    const off_t at = ftello(f_);
+    if (at < 0 || fstat(fileno(f_), &st) != 0 || !S_ISREG(st.st_mode)) return ReadableFile::Skip(n);  // a pipe
+    if (static_cast<uint64_t>(st.st_size) - static_cast<uint64_t>(std::min<off_t>(at, st.st_size)) < n) {
+      return Status::Input(path_ + " ends before the part's start (the file is " + std::to_string(st.st_size) +
+                           " bytes)");
+    }
+    if (fseeko(f_, at + static_cast<off_t>(n), SEEK_SET) != 0) return Status::Input(Errno("cannot seek in", path_));
+    return Status::Ok();
+  }
 
  private:
   std::FILE* f_;

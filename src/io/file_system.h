@@ -5,6 +5,8 @@
 // thread at a time.
 #pragma once
 
+#include <algorithm>
+#include <cstdint>
 #include <memory>
 #include <string>
 #include <string_view>
@@ -26,6 +28,19 @@ class ReadableFile {
   virtual ~ReadableFile() = default;
   // Reads up to n bytes; returns 0 at end of file.
   virtual Result<size_t> Read(char* buf, size_t n) = 0;
+  // Moves n bytes forward without returning them (a part of an input,
+  // pipeline/parts.h); an error when the file ends first. The default reads
+  // and drops them; a file that can seek overrides it.
+  virtual Status Skip(uint64_t n) {
+    char buf[1 << 14];
+    while (n > 0) {
+      auto got = Read(buf, static_cast<size_t>(std::min<uint64_t>(n, sizeof buf)));
+      if (!got.ok()) return got.status();
+      if (got.value() == 0) return Status::Input("the file ends before the part's start");
+      n -= got.value();
+    }
+    return Status::Ok();
+  }
 };
 
 class FileSystem {

@@ -118,15 +118,30 @@ class ZstdSource : public Source {
 
 class LineReaderImpl : public LineReader {
  public:
-  LineReaderImpl(std::unique_ptr<Source> src, Compression c, size_t max_line)
-      : src_(std::move(src)), compression_(c), max_line_(max_line), buf_(1 << 20) {}
+  LineReaderImpl(std::unique_ptr<Source> src, Compression c, size_t max_line, const LineRange& range)
+      : src_(std::move(src)), compression_(c), max_line_(max_line), buf_(1 << 20), begin_(range.begin),
+        end_(range.end), line_no_(range.first_line - 1) {}
 
   Compression compression() const override { return compression_; }
   uint64_t bytes_read() const override { return consumed_; }
+  bool at_file_end() const override { return at_file_end_; }
 
   Result<Next> Read(std::string_view* line, uint64_t* line_no) override {
     bool too_long = false;
     line_.clear();
+    if (end_ != UINT64_MAX && begin_ + consumed_ >= end_) {
+      // The range ends here (a line belongs to the part it starts in): is
+      // there more of the file after it?
+      if (pos_ == len_ && !eof_) {
+        auto got = src_->Read(buf_.data(), buf_.size());
+        if (!got.ok()) return got.status();
+        pos_ = 0;
+        len_ = got.value();
+        eof_ = len_ == 0;
+      }
+      at_file_end_ = pos_ == len_;
+      return Next::kEnd;
+    }
     for (;;) {
       if (pos_ == len_) {
         if (eof_) break;
@@ -156,6 +171,7 @@ class LineReaderImpl : public LineReader {
         return Finish(line, line_no, too_long);
       }
     }
+    at_file_end_ = true;
     if (line_.empty() && !too_long) return Next::kEnd;  // nothing after the last LF
     return Finish(line, line_no, too_long);
   }
@@ -165,7 +181,7 @@ class LineReaderImpl : public LineReader {
     *line_no = ++line_no_;
     if (too_long) return Next::kTooLong;
     if (!line_.empty() && line_.back() == '\r') line_.pop_back();
-    if (line_no_ == 1 && line_.size() >= 3 && std::memcmp(line_.data(), "\xEF\xBB\xBF", 3) == 0) line_.erase(0, 3);
+    if (begin_ == 0 && line_no_ == 1 && line_.size() >= 3 && std::memcmp(line_.data(), "\xEF\xBB\xBF", 3) == 0) line_.erase(0, 3);
     if (line_.size() > max_line_) return Next::kTooLong;
     *line = line_;
     return Next::kLine;
@@ -178,13 +194,23 @@ class LineReaderImpl : public LineReader {
   size_t pos_ = 0, len_ = 0;
   bool eof_ = false;
   std::string line_;
+  uint64_t begin_ = 0, end_ = UINT64_MAX;  // the range, in bytes of the file
   uint64_t line_no_ = 0;
-  uint64_t consumed_ = 0;
+  uint64_t consumed_ = 0;  // from begin_
+  bool at_file_end_ = false;
 };
 
 }  // namespace
 
 Result<std::unique_ptr<LineReader>> LineReader::Open(FileSystem* fs, const std::string& path, size_t max_line_bytes) {
+  return Open(fs, path, max_line_bytes, LineRange{});
+}
+
+Result<std::unique_ptr<LineReader>> LineReader::Open(FileSystem* fs, const std::string& path, size_t max_line_bytes,
+                                                     const LineRange& range) {
+  if (range.first_line == 0 || range.end < range.begin || (range.begin == 0 && range.first_line != 1)) {
+    return Status::Usage(path + ": a part must start at line 1 at byte 0, and end at or after its start");
+  }
   auto f = fs->OpenRead(path);
   if (!f.ok()) return f.status();
   std::unique_ptr<ReadableFile> file = std::move(f).value();
@@ -204,10 +230,40 @@ Result<std::unique_ptr<LineReader>> LineReader::Open(FileSystem* fs, const std::
   } else if (have >= 4 && std::memcmp(head.data(), "\x28\xb5\x2f\xfd", 4) == 0) {
     c = Compression::kZstd;
   }
+  if (c != Compression::kNone && !range.whole()) {
+    return Status::Usage(path + ": a compressed input is read whole: its one part must start at byte 0 and have "
+                                "no end (\"end\": null)");
+  }
+  if (range.begin > 0) {
+    // The byte before the part must end a line (a part starts at a line start).
+    char before = 0;
+    if (range.begin - 1 < have) {
+      before = head[range.begin - 1];
+      head.erase(0, std::min<uint64_t>(range.begin, have));
+    } else {
+      Status s = file->Skip(range.begin - 1 - have);
+      if (!s.ok()) return Status::Input(path + ": " + s.message());
+      auto got = file->Read(&before, 1);
+      if (!got.ok()) return got.status();
+      if (got.value() == 0) return Status::Input(path + ": the file ends before the part's start");
+      head.clear();
+    }
+    bool more = !head.empty();  // a part at the very end of a file without a last LF is empty, not mid-line
+    if (before != '\n' && !more) {
+      char next = 0;
+      auto got = file->Read(&next, 1);
+      if (!got.ok()) return got.status();
+      more = got.value() > 0;
+    }
+    if (before != '\n' && more) {
+      return Status::Input(path + ": the part starting at byte " + std::to_string(range.begin) +
+                           " does not start at a line start; cut the parts again");
+    }
+  }
   std::unique_ptr<Source> src(new PlainSource(std::move(file), head));
   if (c == Compression::kGzip) src.reset(new GzipSource(std::move(src), path));
   if (c == Compression::kZstd) src.reset(new ZstdSource(std::move(src), path));
-  return std::unique_ptr<LineReader>(new LineReaderImpl(std::move(src), c, max_line_bytes));
+  return std::unique_ptr<LineReader>(new LineReaderImpl(std::move(src), c, max_line_bytes, range));
 }
 
 }  // namespace prefsift

@@ -13,8 +13,6 @@
 // per input at most.
 #include "pipeline/cut.h"
 
-#include <nlohmann/json.hpp>
-
 #include <algorithm>
 #include <cstring>
 #include <filesystem>
@@ -182,6 +180,17 @@ Result<std::vector<CutPart>> CutInputs(FileSystem* fs, const std::vector<std::st
   }
   std::vector<CutPart> out;
   size_t plain_index = 0;
+  uint64_t total = 0;
+  for (size_t i = 0; i < paths.size(); ++i) {
+    total += compressed[i] ? 1 : opts.parts ? shared[plain_index++] : 0;
+  }
+  plain_index = 0;
+  if (opts.part_bytes) {
+    for (size_t i = 0; i < paths.size(); ++i) {
+      total += compressed[i] ? 1 : std::max<uint64_t>(1, scans[i].size / opts.part_bytes + 1);
+    }
+  }
+  if (total > UINT32_MAX) return Status::Usage("more than 4,294,967,295 parts asked for; cut into fewer");
   for (size_t i = 0; i < paths.size(); ++i) {
     CutPart part;
     part.input = i;
@@ -211,23 +220,20 @@ Result<std::vector<CutPart>> CutInputs(FileSystem* fs, const std::vector<std::st
   return out;
 }
 
-std::string PartsJson(const std::vector<CutPart>& parts) {
-  using Json = nlohmann::ordered_json;
-  std::string s = "{\"format\":\"prefsift-parts\",\"version\":1,\"parts\":[";
-  for (size_t i = 0; i < parts.size(); ++i) {
-    const CutPart& p = parts[i];
-    Json j = Json::object();
-    j["part"] = p.part;
-    j["input"] = p.input;
-    j["path"] = p.path;
-    j["begin"] = p.begin;
-    j["end"] = p.end ? Json(*p.end) : Json(nullptr);
-    j["first_line"] = p.first_line;
-    s += i ? ",\n" : "\n";
-    s += j.dump();
+std::vector<Part> ToParts(const std::vector<CutPart>& parts) {
+  std::vector<Part> out;
+  out.reserve(parts.size());
+  for (const CutPart& c : parts) {
+    Part p;
+    p.part = static_cast<uint32_t>(c.part);
+    p.input = static_cast<uint32_t>(c.input);
+    p.path = c.path;
+    p.begin = c.begin;
+    p.end = c.end;
+    p.first_line = c.first_line;
+    out.push_back(std::move(p));
   }
-  s += "\n]}\n";
-  return s;
+  return out;
 }
 
 Result<std::vector<CutPart>> CutPlanToFile(FileSystem* fs, const Plan& plan, const CutOptions& opts,
@@ -239,7 +245,7 @@ Result<std::vector<CutPart>> CutPlanToFile(FileSystem* fs, const Plan& plan, con
   for (const auto& in : plan.inputs) paths.push_back(in.path);
   auto parts = CutInputs(fs, paths, opts);
   if (!parts.ok()) return parts.status();
-  std::string text = PartsJson(parts.value());
+  std::string text = PartsJson(ToParts(parts.value()));
   if (fs->Exists(out)) {
     std::string old;
     auto f = fs->OpenRead(out);

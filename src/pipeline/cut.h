@@ -4,10 +4,8 @@
 // cover every input exactly once, in input order; a part may hold no lines.
 // A line belongs to the part in which it starts.
 //
-// The result is written as parts.json:
-//   {"format":"prefsift-parts","version":1,"parts":[{"part":0,"input":0,
-//    "path":"...","begin":0,"end":12345,"first_line":1}, ...]}
-// with "end": null for a whole compressed file.
+// The result is written as parts.json (pipeline/parts.h, docs/parts.md), with
+// "end": null for a whole compressed file.
 //
 // Thread-safety: the functions hold no state; the FileSystem must be usable
 // from the calling thread.
@@ -21,6 +19,7 @@
 #include "core/plan.h"
 #include "core/status.h"
 #include "io/file_system.h"
+#include "pipeline/parts.h"
 
 namespace prefsift {
 
@@ -54,8 +53,8 @@ struct CutOptions {
 // parts than inputs (usage error).
 Result<std::vector<CutPart>> CutInputs(FileSystem* fs, const std::vector<std::string>& paths, const CutOptions& opts);
 
-// The parts.json text for `parts` (one part per line, ends with a newline).
-std::string PartsJson(const std::vector<CutPart>& parts);
+// The parts as parts.json lists them (without the line counts).
+std::vector<Part> ToParts(const std::vector<CutPart>& parts);
 
 // Cuts the plan's inputs and writes parts.json to `out` atomically (a
 // temporary name in the same folder, then a rename; the folder is created

@@ -16,6 +16,7 @@
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
+#include "pipeline/pass1.h"
 #include "report/finish.h"
 #include "report/summary.h"
 #include "stages/facts.h"
@@ -226,14 +227,6 @@ void ReserveForInputs(const Plan& plan, const RawChunk& first, RunState& st,
   for (auto& s : stages) s->Reserve(expected);
 }
 
-// The first reject of one ingest reason in one file, and how many there were.
-struct IngestTally {
-  uint64_t count = 0;
-  std::string field;
-  uint64_t first_line = 0;
-  std::string first_keys;  // top-level keys of the first rejected line, or a note
-};
-
 std::string KeysOf(std::string_view line) {
   Json j = Json::parse(line, nullptr, /*allow_exceptions=*/false);
   if (j.is_discarded()) return "(the line is not JSON)";
@@ -297,14 +290,20 @@ Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStat
   return Status::Ok();
 }
 
+// `part`: only that part of one input, its checks left to the caller, its
+// ingest figures to (*ingest)[part->input] (pass1.h).
 Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-               ThreadPool& pool, Progress& progress) {
+               ThreadPool& pool, Progress& progress, const Part* part = nullptr,
+               std::vector<InputIngest>* ingest = nullptr) {
   st.inputs.resize(plan.inputs.size());
   std::vector<Parsed> chunk;  // reused from chunk to chunk (buffers keep their capacity)
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    if (part && in != part->input) continue;
     const InputSpec& spec = plan.inputs[in];
     InputStats& stats = st.inputs[in];
-    auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes);
+    LineRange range;
+    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
+    auto opened = LineReader::Open(fs, spec.path, plan.limits.max_line_bytes, range);
     if (!opened.ok()) return opened.status();
     LineReader& reader = *opened.value();
     stats.compression = CompressionName(reader.compression());
@@ -370,7 +369,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
           }
         }
       }
-      if (in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
+      if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
       pool.ParallelFor(n, [&](size_t i, unsigned) {
         if (rec_of[i] == SIZE_MAX) return;
@@ -384,6 +383,13 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     }
     BaseEvidence evidence;
     for (const auto& r : parsers) evidence.Add(r->base_evidence());
+    if (part) {
+      InputIngest& got = (*ingest)[in];
+      got.tallies = std::move(tallies);
+      got.evidence = evidence;
+      got.at_file_end = reader.at_file_end();
+      continue;
+    }
     if (Status s = CheckInputSanity(plan, spec, stats, tallies, evidence); !s.ok()) return s;
   }
   return Status::Ok();
@@ -587,6 +593,58 @@ void CollectSettingPaths(const Json& j, const std::string& key, const std::strin
 
 }  // namespace
 
+void InputIngest::Add(const InputIngest& later) {
+  for (const auto& [reason, t] : later.tallies) {
+    IngestTally& mine = tallies[reason];
+    if (mine.count == 0) {
+      mine = t;
+    } else {
+      mine.count += t.count;
+    }
+  }
+  evidence.Add(later.evidence);
+  at_file_end = later.at_file_end;
+}
+
+Status MakeRunStages(const Plan& plan, const std::vector<std::string>& names, std::vector<std::unique_ptr<Stage>>* out) {
+  std::vector<std::unique_ptr<Stage>>& stages = *out;
+  for (const auto& info : AllStages()) {
+    if (std::find(names.begin(), names.end(), info.name) == names.end()) continue;
+    const Json& settings = StageSettings(plan, info.name);
+    if (settings.contains("enabled") && settings["enabled"].is_boolean() && !settings["enabled"].get<bool>()) continue;
+    Status err;
+    auto stage = info.make(plan, &err);
+    if (!stage) return err.ok() ? Status::Internal(std::string("stage ") + info.name + " failed to start") : err;
+    stages.push_back(std::move(stage));
+  }
+  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
+    bool known = false;
+    for (const auto& info : AllStages()) known = known || it.key() == info.name;
+    if (!known) {
+      std::string names;
+      for (const auto& info : AllStages()) names += std::string(names.empty() ? "" : ", ") + info.name;
+      return Status::Usage("stages." + it.key() + ": unknown stage (known: " + names + ")");
+    }
+  }
+  return Status::Ok();
+}
+
+Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                     const Part* part, std::vector<InputIngest>* ingest) {
+  if (part && (part->input >= plan.inputs.size() || !ingest)) {
+    return Status::Usage("part " + std::to_string(part->part) + " names input " + std::to_string(part->input) +
+                         ", but the plan has " + std::to_string(plan.inputs.size()) + " input(s)");
+  }
+  if (ingest) ingest->resize(plan.inputs.size());
+  ThreadPool pool(plan.threads);  // 0: one per hardware thread
+  Progress progress(false, false, 5, stderr, 0);  // silent
+  return Observe(plan, st, stages, fs, pool, progress, part, ingest);
+}
+
+Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest) {
+  return CheckInputSanity(plan, plan.inputs[input], stats, ingest.tallies, ingest.evidence);
+}
+
 std::vector<ReadPath> PathsReadBy(const Plan& plan) {
   std::vector<ReadPath> reads;
   if (!plan.plan_path.empty()) reads.push_back({plan.plan_path, "plan"});
@@ -608,24 +666,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
   // Stages, in pipeline order.
   std::vector<std::unique_ptr<Stage>> stages;
-  for (const auto& info : AllStages()) {
-    if (std::find(options.stages.begin(), options.stages.end(), info.name) == options.stages.end()) continue;
-    const Json& settings = StageSettings(plan, info.name);
-    if (settings.contains("enabled") && settings["enabled"].is_boolean() && !settings["enabled"].get<bool>()) continue;
-    Status err;
-    auto stage = info.make(plan, &err);
-    if (!stage) return err.ok() ? Status::Internal(std::string("stage ") + info.name + " failed to start") : err;
-    stages.push_back(std::move(stage));
-  }
-  for (auto it = plan.stages.begin(); it != plan.stages.end(); ++it) {
-    bool known = false;
-    for (const auto& info : AllStages()) known = known || it.key() == info.name;
-    if (!known) {
-      std::string names;
-      for (const auto& info : AllStages()) names += std::string(names.empty() ? "" : ", ") + info.name;
-      return Status::Usage("stages." + it.key() + ": unknown stage (known: " + names + ")");
-    }
-  }
+  if (Status made = MakeRunStages(plan, options.stages, &stages); !made.ok()) return made;
   if (Status fs_ok = ValidateFinishPlan(plan); !fs_ok.ok()) return fs_ok;
   {
     std::vector<ReadPath> reads = PathsReadBy(plan);

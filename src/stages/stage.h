@@ -23,6 +23,8 @@
 namespace prefsift {
 
 class OutputDir;
+class StateReader;
+class StateWriter;
 struct MatchText;
 
 class Stage {
@@ -37,6 +39,14 @@ class Stage {
   // `text` holds the record's normalised texts (facts.h), valid during the call only.
   virtual void Observe(size_t /*record*/, const Record& /*rec*/, const RecordFacts& /*facts*/,
                        const MatchText& /*text*/) {}
+  // Observed state (state files; docs/parts.md): SaveObserved writes
+  // what Observe kept, for every record so far; AppendObserved reads what
+  // SaveObserved wrote for one part and appends it after the first_record
+  // records already held (parts load in input order, after Grow(first_record
+  // + the part's records)). Counts that Observe sums are added. A stage whose
+  // Observe keeps nothing needs neither.
+  virtual void SaveObserved(StateWriter& /*out*/) const {}
+  virtual Status AppendObserved(StateReader& /*in*/, size_t /*first_record*/) { return Status::Ok(); }
   virtual Status Decide(RunState& state) = 0;
   virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
   virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }

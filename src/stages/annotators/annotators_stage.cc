@@ -10,6 +10,7 @@
 #include <unordered_map>
 
 #include "core/json_pointer.h"
+#include "core/state_file.h"
 #include "io/output_dir.h"
 #include "stages/annotators/annotator_time.h"
 #include "stages/bias/bias_common.h"
@@ -111,6 +112,9 @@ class AnnotatorsStage : public Stage {
     auto t = ParseJudgmentTime(*rec.timestamp);
     times_[r] = t ? *t : -std::numeric_limits<double>::infinity();  // -inf: present but unreadable
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(RunState& st) override {
     std::vector<size_t> recs;
@@ -713,4 +717,29 @@ Json BatchAgreement(const Plan& plan, const RunState& st) {
   return static_cast<AnnotatorsStage*>(stage.get())->AgreementOnly(st);
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each judgment's time,
+// when some layout has a timestamp.
+namespace prefsift {
+namespace {
+
+void AnnotatorsStage::SaveObserved(StateWriter& out) const {
+  out.U8(timed_layout_);
+  out.Vec(times_);
+}
+
+Status AnnotatorsStage::AppendObserved(StateReader& in, size_t first) {
+  if (in.U8() != uint8_t{timed_layout_}) in.Fail("made with inputs of other layouts");
+  if (timed_layout_) {
+    times_.resize(first, kNaN);
+    in.AppendVec(&times_);
+  } else {
+    std::vector<double> none;
+    in.Vec(&none);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cmath>
 
+#include "core/state_file.h"
 #include "stages/bias/bias_common.h"
 #include "stages/bias/bias_length.h"
 #include "stages/bias/bias_position.h"
@@ -49,6 +50,9 @@ class BiasStage : public Stage {
                                      (f.has_url ? CandidateSurface::kUrl : 0));
     }
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(RunState& st) override {
     std::vector<size_t> kept;
@@ -374,4 +378,37 @@ std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, Status* error) {
   return std::make_unique<BiasStage>(std::move(b), plan.seed);
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each candidate's surface features.
+namespace prefsift {
+namespace {
+
+void BiasStage::SaveObserved(StateWriter& out) const {
+  out.U64(surface_.size());
+  for (const auto& cands : surface_) {
+    out.U64(cands.size());
+    for (const CandidateSurface& c : cands) {
+      out.U32(c.words);
+      out.U32(c.list_items);
+      out.U8(c.flags);
+    }
+  }
+}
+
+Status BiasStage::AppendObserved(StateReader& in, size_t first) {
+  const uint64_t n = in.Count(8);
+  surface_.resize(first + n);
+  for (size_t r = first; r < first + n && in.ok(); ++r) {
+    surface_[r].resize(in.Count(9));
+    for (CandidateSurface& c : surface_[r]) {
+      c.words = in.U32();
+      c.list_items = static_cast<uint16_t>(in.U32());
+      c.flags = in.U8();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

@@ -7,6 +7,7 @@
 #include <cmath>
 #include <filesystem>
 
+#include "core/state_file.h"
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
@@ -77,6 +78,9 @@ class LeakageStage : public Stage {
     findings_[record] = std::move(f);
     grams_[record] = std::move(g);
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   // The n-gram and answer findings, once the training frequencies are known.
   void DecideGrams(size_t records) {
@@ -299,4 +303,101 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, Status* error) {
   return std::make_unique<LeakageStage>(std::move(owned), std::move(index).value());
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each record's findings
+// of the exact and near detectors, the evaluation grams its prompt and
+// candidates hold, and the grams' training frequencies so far (summed over parts).
+namespace prefsift {
+namespace {
+
+// LeakFinding::measure points at one of these texts.
+const char* const kMeasures[] = {"", "exact", "ngram", "coverage", "normalised_text", "jaccard", "containment"};
+
+void LeakageStage::SaveObserved(StateWriter& out) const {
+  const uint32_t pg = index_->PromptGrams(), ag = index_->AnswerGrams();
+  std::vector<uint32_t> pdf(pg), adf(ag);
+  for (uint32_t i = 0; i < pg; ++i) pdf[i] = prompt_df_[i].load();
+  for (uint32_t i = 0; i < ag; ++i) adf[i] = answer_df_[i].load();
+  out.Vec(pdf);
+  out.Vec(adf);
+  out.U64(answer_docs_.load());
+  out.U64(findings_.size());
+  for (size_t r = 0; r < findings_.size(); ++r) {
+    out.U64(findings_[r].size());
+    for (const LeakFinding& f : findings_[r]) {
+      out.U8(static_cast<uint8_t>(f.detector));
+      out.U32(f.item);
+      out.F32(f.score);
+      out.U32(f.shared);
+      out.Str(f.measure);
+      out.I64(f.candidate);
+      out.Str(f.span);
+    }
+    const RecordGrams empty;
+    const RecordGrams& g = r < grams_.size() ? grams_[r] : empty;
+    out.Vec(g.prompt);
+    out.Vec(g.answer);
+    std::vector<uint32_t> ends;
+    for (const auto& [cand, end] : g.answer_ends) ends.insert(ends.end(), {cand, end});
+    out.Vec(ends);
+  }
+}
+
+Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
+  const uint32_t pg = index_->PromptGrams(), ag = index_->AnswerGrams();
+  std::vector<uint32_t> pdf, adf;
+  in.Vec(&pdf);
+  in.Vec(&adf);
+  if (pdf.size() != pg || adf.size() != ag) in.Fail("made with other evaluation sets or settings");
+  for (uint32_t i = 0; i < pg && in.ok(); ++i) prompt_df_[i].fetch_add(pdf[i], std::memory_order_relaxed);
+  for (uint32_t i = 0; i < ag && in.ok(); ++i) answer_df_[i].fetch_add(adf[i], std::memory_order_relaxed);
+  answer_docs_.fetch_add(in.U64(), std::memory_order_relaxed);
+  const uint64_t n = in.Count(8);
+  findings_.resize(first + n);
+  grams_.resize(first + n);
+  for (size_t r = first; r < first + n && in.ok(); ++r) {
+    findings_[r].resize(in.Count(33));
+    for (LeakFinding& f : findings_[r]) {
+      const uint8_t d = in.U8();
+      if (d >= kLeakDetectors) in.Fail("a detector code out of range");
+      f.detector = static_cast<LeakDetector>(d);
+      f.item = in.U32();
+      if (f.item >= corpus_->items.size() && in.ok()) in.Fail("a finding of an evaluation item this plan does not load");
+      f.score = in.F32();
+      f.shared = in.U32();
+      const std::string measure = in.Str();
+      f.measure = nullptr;
+      for (const char* m : kMeasures) {
+        if (measure == m) f.measure = m;
+      }
+      if (!f.measure) {
+        f.measure = "";
+        in.Fail("an unknown measure \"" + measure + "\"");
+      }
+      f.candidate = static_cast<int>(in.I64());
+      f.span = in.Str();
+    }
+    RecordGrams& g = grams_[r];
+    in.Vec(&g.prompt);
+    in.Vec(&g.answer);
+    std::vector<uint32_t> ends;
+    in.Vec(&ends);
+    if (ends.size() % 2 != 0) in.Fail("an odd list of answer ends");
+    g.answer_ends.clear();
+    for (size_t k = 0; k + 1 < ends.size(); k += 2) {
+      if (ends[k + 1] > g.answer.size() && in.ok()) in.Fail("an answer end out of range");
+      g.answer_ends.push_back({ends[k], ends[k + 1]});
+    }
+    for (uint32_t id : g.prompt) {
+      if (id >= pg && in.ok()) in.Fail("a prompt gram id out of range");
+    }
+    for (uint32_t id : g.answer) {
+      if (id >= ag && in.ok()) in.Fail("an answer gram id out of range");
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

@@ -9,6 +9,7 @@
 #include <span>
 #include <thread>
 
+#include "core/state_file.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
 #include "sketch/clusters.h"
@@ -247,6 +248,9 @@ class NearDupsStage : public Stage {
       }
     }
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(RunState& st) override {
     const size_t n = st.records.size();
@@ -578,4 +582,48 @@ std::unique_ptr<Stage> MakeNearDupsStage(const Plan& plan, Status* error) {
   return stage;
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): the signatures, the
+// shingle mode, the exact sets ("verify": "exact") and the candidate pairs.
+namespace prefsift {
+namespace {
+
+void NearDupsStage::SaveObserved(StateWriter& out) const {
+  out.U32(s_.slots);
+  out.Vec(chars_mode_);
+  out.Vec(signatures_);
+  out.U8(s_.exact);
+  if (s_.exact) {
+    for (const auto& set : sets_) out.Vec(set);
+  }
+  out.U8(s_.cand_action != CandidateAction::kOff);
+  if (s_.cand_action != CandidateAction::kOff) {
+    for (const auto& pairs : cand_pairs_) out.Vec(pairs);
+  }
+}
+
+Status NearDupsStage::AppendObserved(StateReader& in, size_t first) {
+  if (in.U32() != s_.slots) in.Fail("made with another number of slots");
+  chars_mode_.resize(first);
+  in.AppendVec(&chars_mode_);
+  const size_t n = chars_mode_.size() - first;
+  signatures_.resize(first * s_.slots);
+  in.AppendVec(&signatures_);
+  if (signatures_.size() != chars_mode_.size() * s_.slots) in.Fail("signatures and records do not match");
+  if (in.U8() != uint8_t{s_.exact}) in.Fail("made with another \"verify\" setting");
+  if (s_.exact) {
+    sets_.resize(first + n);
+    for (size_t i = first; i < first + n && in.ok(); ++i) in.Vec(&sets_[i]);
+  }
+  const bool cand = s_.cand_action != CandidateAction::kOff;
+  if (in.U8() != uint8_t{cand}) in.Fail("made with another \"candidates\" setting");
+  if (cand) {
+    cand_pairs_.resize(first + n);
+    for (size_t i = first; i < first + n && in.ok(); ++i) in.Vec(&cand_pairs_[i]);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

@@ -16,6 +16,7 @@
 #include <sstream>
 
 #include "core/hash.h"
+#include "core/state_file.h"
 #include "core/sha256.h"
 #include "io/output_dir.h"
 #include "screen/actions.h"
@@ -188,6 +189,9 @@ class PersonalDataStage : public Stage {
     }
     if (out.drop) out.rewrite = true;
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(RunState& st) override {
     {
@@ -614,4 +618,75 @@ std::unique_ptr<Stage> MakePersonalDataStage(const Plan& plan, Status* error) {
                                              std::move(key));
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): every record's findings
+// (place, span, rule, action and masked preview; never the text), the count
+// of texts scanned and the first record that could not be scanned.
+namespace prefsift {
+namespace {
+
+void PersonalDataStage::SaveObserved(StateWriter& out) const {
+  out.U64(texts_.load());
+  out.U8(error_record_ != SIZE_MAX);  // one thread after pass 1: no lock needed
+  if (error_record_ != SIZE_MAX) {
+    out.U64(error_record_);
+    out.Str(error_.message());
+  }
+  out.U64(per_record_.size());
+  for (const RecordHits& r : per_record_) {
+    out.U8(static_cast<uint8_t>((r.drop ? 1 : 0) | (r.rewrite ? 2 : 0)));
+    out.U64(r.hits.size());
+    for (const Hit& h : r.hits) {
+      out.U8(static_cast<uint8_t>(h.part));
+      out.U8(static_cast<uint8_t>(h.action));
+      out.U32(h.index);
+      out.U32(h.rule);
+      out.U32(h.begin);
+      out.U32(h.end);
+      out.F32(h.confidence);
+      out.U64(h.text_hash);
+      out.Str(h.meta_pointer);
+      out.Str(h.preview);
+    }
+  }
+}
+
+Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
+  texts_.fetch_add(in.U64(), std::memory_order_relaxed);
+  if (in.U8() != 0) {
+    const uint64_t record = in.U64();
+    std::string message = in.Str();
+    if (in.ok()) NoteError(first + record, Status::Internal(std::move(message)));
+  }
+  const uint64_t n = in.Count(9);
+  per_record_.resize(first + n);
+  for (size_t i = first; i < first + n && in.ok(); ++i) {
+    RecordHits& r = per_record_[i];
+    const uint8_t flags = in.U8();
+    r.drop = (flags & 1) != 0;
+    r.rewrite = (flags & 2) != 0;
+    r.hits.resize(in.Count(30));
+    for (Hit& h : r.hits) {
+      const uint8_t part = in.U8(), action = in.U8();
+      if (part > static_cast<uint8_t>(Part::kMetadata) || action > static_cast<uint8_t>(Action::kDrop)) {
+        in.Fail("a finding's field or action out of range");
+      }
+      h.part = static_cast<Part>(part);
+      h.action = static_cast<Action>(action);
+      h.index = in.U32();
+      h.rule = in.U32();
+      if (h.rule >= rules_.rules.size() && in.ok()) in.Fail("a finding of a rule this plan does not load");
+      h.begin = in.U32();
+      h.end = in.U32();
+      h.confidence = in.F32();
+      h.text_hash = in.U64();
+      h.meta_pointer = in.Str();
+      h.preview = in.Str();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

@@ -12,6 +12,7 @@
 #include <unordered_set>
 #include <unordered_map>
 
+#include "core/state_file.h"
 #include "io/file_system.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
@@ -128,6 +129,9 @@ class SplitStage : public Stage {
   void Observe(size_t i, const Record& rec, const RecordFacts&, const MatchText&) override {
     script_[i] = DominantScriptOf(rec.UserPromptText());
   }
+
+  void SaveObserved(StateWriter& out) const override;
+  Status AppendObserved(StateReader& in, size_t first_record) override;
 
   Status Decide(RunState& st) override {
     const size_t n = st.records.size();
@@ -614,4 +618,29 @@ std::unique_ptr<Stage> MakeSplitStage(const Plan& plan, Status* error) {
   return std::make_unique<SplitStage>(std::move(s));
 }
 
+}  // namespace prefsift
+
+// Observed state (state files, docs/parts.md): each prompt's dominant script.
+namespace prefsift {
+namespace {
+
+void SplitStage::SaveObserved(StateWriter& out) const {
+  static_assert(sizeof(Script) <= 4);
+  std::vector<uint8_t> scripts(script_.size());
+  for (size_t i = 0; i < script_.size(); ++i) scripts[i] = static_cast<uint8_t>(script_[i]);
+  out.Vec(scripts);
+}
+
+Status SplitStage::AppendObserved(StateReader& in, size_t first) {
+  std::vector<uint8_t> scripts;
+  in.Vec(&scripts);
+  script_.resize(first + scripts.size(), kNone);
+  for (size_t i = 0; i < scripts.size(); ++i) {
+    if (scripts[i] >= kScriptCount) in.Fail("a script code out of range");
+    script_[first + i] = static_cast<Script>(scripts[i]);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
 }  // namespace prefsift

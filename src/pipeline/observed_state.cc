@@ -1,0 +1,398 @@
+#include "pipeline/observed_state.h"
+
+#include <nlohmann/json.hpp>
+
+#include "core/sha256.h"
+#include "core/state_file.h"
+#include "io/output_dir.h"
+#include "pipeline/pass1.h"
+#include "stages/stage.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+constexpr const char* kKind = "observed";
+
+std::string StageSection(const std::string& name) { return "stage " + name; }
+
+void WriteStats(StateWriter& w, const InputStats& s, const InputIngest& g) {
+  w.U64(s.lines);
+  w.U64(s.blank_lines);
+  w.U64(s.entries);
+  w.U64(s.records);
+  w.Str(s.compression);
+  w.U8(g.at_file_end);
+  w.U64(g.evidence.judgments);
+  w.U64(g.evidence.first_slot);
+  w.U64(g.evidence.past_last);
+  w.U64(g.evidence.best_rank_0);
+  w.U64(g.evidence.best_rank_1);
+  w.U64(g.tallies.size());
+  for (const auto& [reason, t] : g.tallies) {
+    w.Str(reason);
+    w.U64(t.count);
+    w.Str(t.field);
+    w.U64(t.first_line);
+    w.Str(t.first_keys);
+  }
+}
+
+void ReadStats(StateReader& r, InputStats* s, InputIngest* g) {
+  s->lines = r.U64();
+  s->blank_lines = r.U64();
+  s->entries = r.U64();
+  s->records = r.U64();
+  s->compression = r.Str();
+  g->at_file_end = r.U8() != 0;
+  g->evidence.judgments = r.U64();
+  g->evidence.first_slot = r.U64();
+  g->evidence.past_last = r.U64();
+  g->evidence.best_rank_0 = r.U64();
+  g->evidence.best_rank_1 = r.U64();
+  const uint64_t n = r.Count(40);
+  for (uint64_t i = 0; i < n && r.ok(); ++i) {
+    std::string reason = r.Str();
+    IngestTally& t = g->tallies[reason];
+    t.count = r.U64();
+    t.field = r.Str();
+    t.first_line = r.U64();
+    t.first_keys = r.Str();
+  }
+}
+
+template <typename T>
+void WriteSmall(StateWriter& w, const SmallVector<T>& v) {
+  w.Array(v.data(), v.size());
+}
+
+template <typename T>
+void ReadSmall(StateReader& r, SmallVector<T>* v) {
+  std::vector<T> tmp;
+  r.Vec(&tmp);
+  *v = tmp;
+}
+
+void WriteFacts(StateWriter& w, const RecordFacts& f) {
+  w.U32(f.entry);
+  w.I64(f.chosen);
+  w.Str(f.id);
+  w.U64(f.prompt_hash.hi);
+  w.U64(f.prompt_hash.lo);
+  WriteSmall(w, f.cand_hashes);
+  WriteSmall(w, f.ranks);
+  WriteSmall(w, f.cand_chars);
+  WriteSmall(w, f.cand_words);
+  w.U32(f.annotator_id);
+  w.U32(f.thread_id);
+  w.U32(f.source_id);
+  w.U32(f.group_id);
+  w.U32(f.prompt_chars);
+  w.U8(static_cast<uint8_t>(f.shape));
+}
+
+void ReadFacts(StateReader& r, RecordFacts* f) {
+  f->entry = r.U32();
+  f->chosen = static_cast<int>(r.I64());
+  f->id = r.Str();
+  f->prompt_hash.hi = r.U64();
+  f->prompt_hash.lo = r.U64();
+  ReadSmall(r, &f->cand_hashes);
+  ReadSmall(r, &f->ranks);
+  ReadSmall(r, &f->cand_chars);
+  ReadSmall(r, &f->cand_words);
+  f->annotator_id = r.U32();
+  f->thread_id = r.U32();
+  f->source_id = r.U32();
+  f->group_id = r.U32();
+  f->prompt_chars = r.U32();
+  const uint8_t shape = r.U8();
+  if (shape > static_cast<uint8_t>(JudgmentShape::kPairwise)) r.Fail("a judgment shape out of range");
+  f->shape = static_cast<JudgmentShape>(shape);
+}
+
+std::string PartName(const Part& p) {
+  return "part " + std::to_string(p.part) + " (input " + std::to_string(p.input) + ", bytes " +
+         std::to_string(p.begin) + " to " + (p.end ? std::to_string(*p.end) : std::string("the end")) + ")";
+}
+
+}  // namespace
+
+std::string ObservationFingerprint(const Plan& plan, const std::vector<std::string>& stage_names) {
+  Json j;
+  Json inputs = Json::array();
+  for (const auto& in : plan.inputs) inputs.push_back(Json{{"name", in.name}, {"layout", in.layout_key}});
+  j["inputs"] = std::move(inputs);
+  j["limits"] = Json{{"max_line_bytes", plan.limits.max_line_bytes}, {"max_depth", plan.limits.max_depth},
+                     {"max_candidates", plan.limits.max_candidates}, {"max_text_bytes", plan.limits.max_text_bytes},
+                     {"max_reject_share", plan.limits.max_reject_share}};
+  j["normalize"] = Json{{"strip_punctuation", plan.normalize.strip_punctuation}};
+  j["seed"] = plan.seed;
+  j["stages"] = plan.stages;
+  j["run"] = stage_names;
+  return Sha256Hex(j.dump());
+}
+
+Result<std::string> ReadWholeFile(FileSystem* fs, const std::string& path) {
+  auto f = fs->OpenRead(path);
+  if (!f.ok()) return f.status();
+  std::string out;
+  char buf[1 << 16];
+  for (;;) {
+    auto got = f.value()->Read(buf, sizeof buf);
+    if (!got.ok()) return got.status();
+    if (got.value() == 0) break;
+    out.append(buf, got.value());
+  }
+  return out;
+}
+
+ObservedRun::ObservedRun(const Plan& plan) : plan_(plan), st_(plan) {}
+ObservedRun::~ObservedRun() = default;
+
+Result<std::unique_ptr<ObservedRun>> ObservedRun::Start(const Plan& plan, const std::vector<std::string>& stage_names) {
+  std::unique_ptr<ObservedRun> run(new ObservedRun(plan));
+  if (Status s = MakeRunStages(plan, stage_names, &run->stages_); !s.ok()) return s;
+  for (const auto& stage : run->stages_) run->stage_names_.push_back(stage->name());
+  run->ingest_.resize(plan.inputs.size());
+  run->st_.inputs.resize(plan.inputs.size());
+  return run;
+}
+
+Status ObservedRun::ObserveAll(FileSystem* fs) {
+  return ObserveInputs(plan_, st_, stages_, fs, nullptr, nullptr);
+}
+
+Status ObservedRun::ObservePart(const Part& part, FileSystem* fs) {
+  if (part_ || !merged_.empty() || !st_.entries.empty()) {
+    return Status::Internal("a run observes one part only, and only before anything else");
+  }
+  if (part.input < plan_.inputs.size() && part.path != plan_.inputs[part.input].path) {
+    return Status::Usage(PartName(part) + ": its path \"" + part.path + "\" is not input " +
+                         std::to_string(part.input) + " of the plan (\"" + plan_.inputs[part.input].path + "\")");
+  }
+  part_ = std::make_unique<Part>(part);
+  return ObserveInputs(plan_, st_, stages_, fs, part_.get(), &ingest_);
+}
+
+Result<std::string> ObservedRun::SaveToBytes() const {
+  if (!part_) return Status::Internal("only the state of an observed part can be saved");
+  StateWriter w;
+  w.BeginSection("run");
+  w.Str(ObservationFingerprint(plan_, stage_names_));
+  w.U32(part_->part);
+  w.U32(part_->input);
+  w.U64(part_->begin);
+  w.U8(part_->end.has_value());
+  w.U64(part_->end.value_or(0));
+  w.U64(part_->first_line);
+  w.EndSection();
+
+  w.BeginSection("input");
+  WriteStats(w, st_.inputs[part_->input], ingest_[part_->input]);
+  w.EndSection();
+
+  w.BeginSection("texts");
+  w.U64(st_.text_count() - 1);
+  for (uint32_t id = 1; id < st_.text_count(); ++id) w.Str(st_.Text(id));
+  w.EndSection();
+
+  w.BeginSection("entries");
+  w.U64(st_.entries.size());
+  for (size_t i = 0; i < st_.entries.size(); ++i) {
+    const Entry& e = st_.entries[i];
+    const Decision& d = st_.decisions[i];
+    w.U64(e.line);
+    w.I64(e.record);
+    w.U8(d.rejected);
+    if (!d.rejected) continue;
+    const RejectText& t = st_.RejectTextOf(d);
+    w.Str(d.stage);
+    w.Str(d.reason);
+    w.Str(t.field);
+    w.Str(t.message);
+    w.Str(t.detail);
+    w.Str(t.id);
+  }
+  w.EndSection();
+
+  w.BeginSection("records");
+  w.U64(st_.records.size());
+  for (const RecordFacts& f : st_.records) WriteFacts(w, f);
+  w.EndSection();
+
+  for (const auto& stage : stages_) {
+    w.BeginSection(StageSection(stage->name()));
+    stage->SaveObserved(w);
+    w.EndSection();
+  }
+  return w.Finish(kKind);
+}
+
+Status ObservedRun::Save(const std::string& path, FileSystem* fs) const {
+  auto bytes = SaveToBytes();
+  if (!bytes.ok()) return bytes.status();
+  return WriteFileAtomically(fs, path, bytes.value());
+}
+
+Status ObservedRun::Append(const std::string& path, FileSystem* fs) {
+  auto bytes = ReadWholeFile(fs, path);
+  if (!bytes.ok()) return bytes.status();
+  return AppendBytes(std::move(bytes).value(), path);
+}
+
+Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
+  if (part_) return Status::Internal("a run that observed a part cannot merge others");
+  auto opened = StateReader::Open(std::move(bytes), kKind, path);
+  if (!opened.ok()) return opened.status();
+  StateReader& r = opened.value();
+  auto enter = [&](const std::string& name) -> Status {
+    if (r.EnterSection(name)) return Status::Ok();
+    return Status::Input(path + ": the state file has no section \"" + name + "\"");
+  };
+
+  // The part, and whether it is the next one.
+  if (Status s = enter("run"); !s.ok()) return s;
+  const std::string fingerprint = r.Str();
+  Part part;
+  part.part = r.U32();
+  part.input = r.U32();
+  part.begin = r.U64();
+  const bool has_end = r.U8() != 0;
+  const uint64_t end = r.U64();
+  if (has_end) part.end = end;
+  part.first_line = r.U64();
+  if (Status s = r.LeaveSection(); !s.ok()) return s;
+  if (fingerprint != ObservationFingerprint(plan_, stage_names_)) {
+    return Status::Usage(path + ": the state file was made with another plan (inputs' layouts, limits, "
+                         "normalisation, seed or stage settings differ) or other stages; observe the parts again "
+                         "with this plan");
+  }
+  if (part.input >= plan_.inputs.size()) return Status::Usage(path + ": " + PartName(part) + " is not in this plan");
+  part.path = plan_.inputs[part.input].path;
+  const std::string which = path + " (" + PartName(part) + ")";
+  if (merged_.empty()) {
+    if (part.input != 0 || part.begin != 0) return Status::Usage(which + ": the first part must start input 0");
+  } else {
+    const Part& prev = merged_.back();
+    if (part.part != prev.part + 1) {
+      return Status::Usage(which + ": comes after part " + std::to_string(prev.part) + "; give the parts in order");
+    }
+    if (part.input == prev.input) {
+      if (!prev.end || part.begin != *prev.end) {
+        return Status::Usage(which + ": does not start where part " + std::to_string(prev.part) + " ends");
+      }
+    } else if (part.input != prev.input + 1 || part.begin != 0) {
+      return Status::Usage(which + ": the parts must cover the inputs in order, each from byte 0");
+    } else if (!ingest_[prev.input].at_file_end) {
+      return Status::Usage(which + ": input " + std::to_string(prev.input) + " has bytes after part " +
+                           std::to_string(prev.part) + ", its last part");
+    }
+  }
+  InputStats& stats = st_.inputs[part.input];
+  if (part.first_line != stats.lines + 1) {
+    return Status::Usage(which + ": starts at line " + std::to_string(part.first_line) + ", but the parts before "
+                         "it hold " + std::to_string(stats.lines) + " line(s) of that input");
+  }
+
+  // Lines and ingest figures.
+  if (Status s = enter("input"); !s.ok()) return s;
+  InputStats got;
+  InputIngest ingest;
+  ReadStats(r, &got, &ingest);
+  if (Status s = r.LeaveSection(); !s.ok()) return s;
+  stats.lines += got.lines;
+  stats.blank_lines += got.blank_lines;
+  stats.entries += got.entries;
+  stats.records += got.records;
+  stats.compression = got.compression;
+  ingest_[part.input].Add(ingest);
+
+  // Texts, interned again: ids of this file -> ids of the run.
+  if (Status s = enter("texts"); !s.ok()) return s;
+  std::vector<uint32_t> text_id{0};
+  for (uint64_t n = r.Count(8), i = 0; i < n && r.ok(); ++i) text_id.push_back(st_.InternText(r.Str()));
+  if (Status s = r.LeaveSection(); !s.ok()) return s;
+
+  // Entries, with the rejects made while reading.
+  const size_t entry_base = st_.entries.size(), record_base = st_.records.size();
+  if (Status s = enter("entries"); !s.ok()) return s;
+  const uint64_t entries = r.Count(17);
+  uint64_t with_record = 0;
+  for (uint64_t i = 0; i < entries && r.ok(); ++i) {
+    Entry e;
+    e.input = part.input;
+    e.line = r.U64();
+    const int64_t rec = r.I64();
+    if (rec >= 0) {
+      e.record = static_cast<int64_t>(record_base) + rec;
+      ++with_record;
+    }
+    st_.entries.push_back(e);
+    st_.decisions.emplace_back();
+    if (r.U8() != 0) {
+      std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
+      if (!r.ok()) break;
+      st_.RejectEntry(entry_base + i, stage, reason, std::move(field), std::move(message), std::move(id));
+      st_.reject_texts[st_.decisions.back().text].detail = std::move(detail);
+    }
+  }
+  if (Status s = r.LeaveSection(); !s.ok()) return s;
+
+  // Records.
+  if (Status s = enter("records"); !s.ok()) return s;
+  const uint64_t records = r.Count(60);
+  if (records != with_record) r.Fail("the records do not match the entries");
+  for (uint64_t i = 0; i < records && r.ok(); ++i) {
+    RecordFacts f;
+    ReadFacts(r, &f);
+    uint32_t* ids[] = {&f.annotator_id, &f.thread_id, &f.source_id, &f.group_id};
+    for (uint32_t* id : ids) {
+      if (*id >= text_id.size()) {
+        r.Fail("a text id out of range");
+        *id = 0;
+      }
+      *id = text_id[*id];
+    }
+    if (f.entry >= entries) r.Fail("a record's entry out of range");
+    f.entry = static_cast<uint32_t>(entry_base + f.entry);
+    if (r.ok() && st_.entries[f.entry].record != static_cast<int64_t>(st_.records.size())) {
+      r.Fail("a record's entry does not name it");
+    }
+    st_.records.push_back(std::move(f));
+  }
+  if (Status s = r.LeaveSection(); !s.ok()) return s;
+
+  // Each stage's observed state.
+  for (const auto& stage : stages_) {
+    if (Status s = enter(StageSection(stage->name())); !s.ok()) return s;
+    stage->Grow(st_.records.size());
+    Status s = stage->AppendObserved(r, record_base);
+    if (!s.ok()) return s;
+    if (Status left = r.LeaveSection(); !left.ok()) return left;
+  }
+  merged_.push_back(part);
+  return Status::Ok();
+}
+
+Status ObservedRun::CheckInputs() const {
+  if (merged_.empty()) return Status::Usage("no state files to decide on");
+  const Part& last = merged_.back();
+  if (last.input + 1 != plan_.inputs.size() || !ingest_[last.input].at_file_end) {
+    return Status::Usage("the state files end with " + PartName(last) + ": the parts after it are missing (the plan "
+                         "has " + std::to_string(plan_.inputs.size()) + " input(s))");
+  }
+  for (uint32_t in = 0; in < plan_.inputs.size(); ++in) {
+    if (Status s = CheckInputSanity(plan_, in, st_.inputs[in], ingest_[in]); !s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+Status ObservedRun::Decide() {
+  for (auto& stage : stages_) {
+    if (Status s = stage->Decide(st_); !s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+}  // namespace prefsift

@@ -1,0 +1,81 @@
+// A run's observed state (pass 1) held in memory, written to a state file per
+// part, and merged from the parts' files before deciding (docs/parts.md).
+// Observing the parts of an input one by one,
+// merging them in order and deciding gives the decisions of observing the
+// whole input (tests/stages/observed_state_test.cc).
+//
+// A state file holds one part: the part's place (input, byte range, first
+// line), a fingerprint of the plan settings that shape observation, the
+// part's line and ingest figures, its entries (with the rejects made while
+// reading), its records' facts (texts by value, interned again on loading),
+// and one section per stage (Stage::SaveObserved).
+//
+// Thread-safety: one ObservedRun per thread.
+#pragma once
+
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "core/plan.h"
+#include "core/run_state.h"
+#include "core/status.h"
+#include "io/file_system.h"
+#include "pipeline/parts.h"
+
+namespace prefsift {
+
+class Stage;
+struct InputIngest;
+
+class ObservedRun {
+ public:
+  // The plan's stages named in `stage_names` (pipeline order, as `run`).
+  // REQUIRES: `plan` outlives the run.
+  static Result<std::unique_ptr<ObservedRun>> Start(const Plan& plan, const std::vector<std::string>& stage_names);
+  ~ObservedRun();
+
+  // Pass 1 over every input (each checked as it ends, as `run` does).
+  Status ObserveAll(FileSystem* fs);
+  // Pass 1 over one part (its input's checks wait for CheckInputs); a run
+  // observes at most one part.
+  Status ObservePart(const Part& part, FileSystem* fs);
+  // The state file of the observed part, written atomically (a temporary
+  // name in the same folder, then renamed).
+  Status Save(const std::string& path, FileSystem* fs) const;
+  // The state file's bytes (Save writes these).
+  Result<std::string> SaveToBytes() const;
+  // Appends a part's state file (parts in order: the next part of the same
+  // input, or the first part of the next input).
+  Status Append(const std::string& path, FileSystem* fs);
+  Status AppendBytes(std::string bytes, const std::string& path);
+  // After the last part: every input of the plan was read to its end, and
+  // each passes the sanity checks `run` makes after reading it.
+  Status CheckInputs() const;
+  // Each stage's Decide, in pipeline order.
+  Status Decide();
+
+  RunState& state() { return st_; }
+  const RunState& state() const { return st_; }
+  const std::vector<std::unique_ptr<Stage>>& stages() const { return stages_; }
+  const Part* observed_part() const { return part_.get(); }
+
+ private:
+  explicit ObservedRun(const Plan& plan);
+  const Plan& plan_;
+  RunState st_;
+  std::vector<std::unique_ptr<Stage>> stages_;
+  std::vector<std::string> stage_names_;   // of the stages made, pipeline order
+  std::vector<InputIngest> ingest_;        // per input
+  std::unique_ptr<Part> part_;             // the part observed (ObservePart)
+  std::vector<Part> merged_;               // the parts appended, in order
+};
+
+// The fingerprint of what shapes observation: inputs' layouts and names,
+// limits, normalisation, seed and stage settings (hex SHA-256).
+std::string ObservationFingerprint(const Plan& plan, const std::vector<std::string>& stage_names);
+
+// Reads a whole file through the seam.
+Result<std::string> ReadWholeFile(FileSystem* fs, const std::string& path);
+
+}  // namespace prefsift

@@ -1,0 +1,55 @@
+// Pass 1 (observe) as the pipeline library's own units use it: making the
+// plan's stages, reading the whole plan or one part into a RunState and the
+// stages, and the per-input sanity checks that stop a run before anything is
+// decided (pipeline.cc). Not for use outside src/pipeline.
+//
+// Thread-safety: one run per call; calls on one run are not concurrent.
+#pragma once
+
+#include <cstdint>
+#include <cstdio>
+#include <map>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "core/record_reader.h"
+#include "core/run_state.h"
+#include "core/status.h"
+#include "io/file_system.h"
+#include "pipeline/parts.h"
+#include "stages/stage.h"
+
+namespace prefsift {
+
+// The first reject of one ingest reason in one file, and how many there were.
+struct IngestTally {
+  uint64_t count = 0;
+  std::string field;
+  uint64_t first_line = 0;
+  std::string first_keys;  // top-level keys of the first rejected line, or a note
+};
+
+// What the sanity checks need of one input beyond its InputStats.
+struct InputIngest {
+  std::map<std::string, IngestTally> tallies;  // by reason
+  BaseEvidence evidence;
+  bool at_file_end = true;                     // the part read to the file's end
+  // Adds a later part's figures (the first reject stays the earlier one's).
+  void Add(const InputIngest& later);
+};
+
+// The plan's stages named in `names`, in pipeline order (disabled ones left
+// out); a usage error names an unknown stage in the plan.
+Status MakeRunStages(const Plan& plan, const std::vector<std::string>& names, std::vector<std::unique_ptr<Stage>>* out);
+
+// Pass 1. Without a part: every input, each checked (CheckInputSanity) as it
+// ends. With one: that part of one input only, unchecked; its figures go to
+// (*ingest)[part->input] for the check after all parts are merged.
+Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                     const Part* part, std::vector<InputIngest>* ingest);
+
+// The sanity checks of one input (docs/cli.md: exit codes 2, 7 and 8).
+Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest);
+
+}  // namespace prefsift
