@@ -85,7 +85,7 @@ write_job() {  # name, body
     echo "#!/usr/bin/env bash"
     echo "# prefsift on Slurm, step $1 (written by scripts/slurm/prefsift-slurm.sh)."
     echo "set -euo pipefail"
-    printf 'BIN=%q\nPLAN=%q\nWORK=%q\nTHREADS=%q\n' "$bin" "$plan" "$work" "$threads"
+    printf 'BIN=%q\nPLAN=%q\nWORK=%q\nTHREADS=%q\nCOUNT=%q\n' "$bin" "$plan" "$work" "$threads" "$count"
     echo 'part="${SLURM_ARRAY_TASK_ID:-0}"'
     echo 'name="$(printf "part-%06d" "$part")"'
     echo 'tmp_tag="tmp-${SLURM_JOB_ID:-$$}-$(hostname -s)"'
@@ -98,7 +98,7 @@ write_job observe <<'EOF'
 final="$WORK/states/$name.state"
 tmp="$WORK/states/.$name.state.$tmp_tag"
 trap 'rm -f "$tmp"' EXIT
-"$BIN" observe --plan "$PLAN" --parts "$WORK/parts.json" --part "$part" --threads "$THREADS" --out "$tmp" -q
+"$BIN" observe --plan "$PLAN" --parts "$WORK/parts.json" --part "$part" --threads "$THREADS" -q --out "$tmp"
 mv -f "$tmp" "$final"
 EOF
 
@@ -110,7 +110,10 @@ final="$WORK/decide"
 tmp="$WORK/.decide.$tmp_tag"
 trap 'rm -rf "$tmp"' EXIT
 rc=0
-"$BIN" decide --plan "$PLAN" --parts "$WORK/parts.json" --states "$WORK/states" --threads "$THREADS" --out "$tmp" -q || rc=$?
+# The state files in part order (their names sort in part order).
+states=()
+for ((i = 0; i < COUNT; i++)); do states+=("$WORK/states/$(printf 'part-%06d' "$i").state"); done
+"$BIN" decide --plan "$PLAN" --threads "$THREADS" -q --out "$tmp" --state "${states[@]}" || rc=$?
 case "$rc" in 0|4|5|6) ;; *) echo "decide failed with exit code $rc" >&2; exit "$rc" ;; esac
 rm -rf "$final.old"
 if [ -e "$final" ]; then mv "$final" "$final.old"; fi
@@ -124,7 +127,8 @@ write_job apply <<'EOF'
 final="$WORK/apply/$name"
 tmp="$WORK/apply/.$name.$tmp_tag"
 trap 'rm -rf "$tmp"' EXIT
-"$BIN" apply --plan "$PLAN" --parts "$WORK/parts.json" --part "$part" --decisions "$WORK/decide" --threads "$THREADS" --out "$tmp" -q
+"$BIN" apply --plan "$PLAN" --parts "$WORK/parts.json" --part "$part" --threads "$THREADS" -q \
+  --decisions "$WORK/decide/part-$part.decisions" --out "$tmp"
 rm -rf "$final.old"
 if [ -e "$final" ]; then mv "$final" "$final.old"; fi
 mv "$tmp" "$final"
