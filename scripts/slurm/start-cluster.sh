@@ -8,6 +8,7 @@
 # real memory.
 #
 #   scripts/slurm/start-cluster.sh [DIR]    # DIR: a new folder (default: mktemp -d)
+#   env PREFSIFT_CLUSTER_OWNER=PID: stop the cluster when process PID ends
 #
 # On success prints DIR on stdout and exits 0; then
 #   export SLURM_CONF=DIR/slurm.conf   (or: source DIR/env)
@@ -126,4 +127,13 @@ case "$state" in
   idle*) ;;
   *) fail "the node did not become idle within 30 s (state: ${state:-no answer from slurmctld})" ;;
 esac
+# With PREFSIFT_CLUSTER_OWNER=PID (the tests pass their own pid), a watcher
+# stops the cluster when that process ends without stopping it (a test killed
+# by a timeout, say). It ends by itself once the folder is gone.
+if [ -n "${PREFSIFT_CLUSTER_OWNER:-}" ]; then
+  here="$(cd "$(dirname "$0")" && pwd)"
+  setsid bash -c 'while [ -d "$1" ] && kill -0 "$2" 2>/dev/null; do sleep 2; done
+                  [ -d "$1" ] && "$3/stop-cluster.sh" "$1"' watcher "$dir" "$PREFSIFT_CLUSTER_OWNER" "$here" \
+    </dev/null >/dev/null 2>&1 &
+fi
 echo "$dir"

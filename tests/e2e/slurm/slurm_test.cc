@@ -50,7 +50,10 @@ class Cluster {
     dir_ = ::testing::TempDir() + "prefsift-slurm-" + std::to_string(::getpid());
     fs::remove_all(dir_);
     std::string log;
-    int rc = Shell(Quote(SourceDir() + "/scripts/slurm/start-cluster.sh") + " " + Quote(dir_), &log);
+    // The owner pid: if this process dies without stopping the cluster, a watcher stops it.
+    int rc = Shell("PREFSIFT_CLUSTER_OWNER=" + std::to_string(::getpid()) + " " +
+                       Quote(SourceDir() + "/scripts/slurm/start-cluster.sh") + " " + Quote(dir_),
+                   &log);
     if (rc == 0) {
       started_ = true;
       return "";
