@@ -19,6 +19,9 @@
 #include "io/file_system.h"
 #include "io/signal_cleanup.h"
 #include "prefsift_version.h"
+#include "pipeline/observed_state.h"
+#include "pipeline/part_commands.h"
+#include "pipeline/parts.h"
 #include "pipeline/pipeline.h"
 #include "audit/split_audit.h"
 #include "stages/stage.h"
@@ -188,6 +191,84 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
   return kExitOk;
 }
 
+// `prefsift observe`, `decide` and `apply`: the pipeline over parts of the
+// inputs, for many machines (docs/parts.md).
+struct PartsCli {
+  CommonOptions common;
+  std::string parts;             // parts.json; "" = one whole-file part per input
+  long long part = -1;
+  std::vector<std::string> states;
+  std::string decisions;
+};
+
+// The part numbered `pc.part` of parts.json (or of the whole-file parts).
+Result<Part> PickPart(const PartsCli& pc, const Plan& plan) {
+  std::vector<Part> parts = WholeInputParts(plan);
+  if (!pc.parts.empty()) {
+    auto text = ReadWholeFile(DefaultFileSystem(), pc.parts);
+    if (!text.ok()) return text.status();
+    auto parsed = ParsePartsJson(text.value(), pc.parts, &plan);
+    if (!parsed.ok()) return parsed.status();
+    parts = std::move(parsed).value();
+  }
+  if (pc.part < 0 || static_cast<size_t>(pc.part) >= parts.size()) {
+    return Status::Usage("--part " + std::to_string(pc.part) + ": there are " + std::to_string(parts.size()) +
+                         " part(s), numbered from 0" + (pc.parts.empty() ? " (one per input without --parts)" : ""));
+  }
+  return parts[static_cast<size_t>(pc.part)];
+}
+
+int Fail(const CommonOptions& o, const Status& s) {
+  std::fprintf(stderr, "prefsift: %s\n", PlanMessage(o, s).c_str());
+  return ExitFor(s);
+}
+
+int RunObserve(const PartsCli& pc, const std::vector<std::string>& stages) {
+  auto plan = BuildPlan(pc.common);
+  if (!plan.ok()) return Fail(pc.common, plan.status());
+  if (pc.common.out.empty()) return Fail(pc.common, Status::Usage("--out: name the state file to write"));
+  auto part = PickPart(pc, plan.value());
+  if (!part.ok()) return Fail(pc.common, part.status());
+  Status s = ObservePartToFile(plan.value(), stages, part.value(), DefaultFileSystem(), pc.common.out);
+  if (!s.ok()) return Fail(pc.common, s);
+  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", pc.common.out.c_str());
+  return kExitOk;
+}
+
+int RunDecide(const PartsCli& pc, const std::vector<std::string>& stages) {
+  auto plan = BuildPlan(pc.common);
+  if (!plan.ok()) return Fail(pc.common, plan.status());
+  PipelineOptions opts;
+  opts.stages = stages;
+  opts.table = !pc.common.quiet;
+  auto outcome = DecideFromStates(plan.value(), opts, pc.states, DefaultFileSystem(), stderr);
+  if (!outcome.ok()) return Fail(pc.common, outcome.status());
+  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
+  if (outcome.value().nothing_kept()) {
+    std::fprintf(stderr, "prefsift: every one of the %llu records was rejected (exit %d)\n",
+                 static_cast<unsigned long long>(outcome.value().entries), kExitNothingKept);
+    return kExitNothingKept;
+  }
+  if (outcome.value().gate_failed) return kExitGate;
+  if (plan.value().strict && outcome.value().rejected > 0) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
+                 static_cast<unsigned long long>(outcome.value().rejected));
+    return kExitStrict;
+  }
+  return kExitOk;
+}
+
+int RunApply(const PartsCli& pc, const std::vector<std::string>& stages) {
+  auto plan = BuildPlan(pc.common);
+  if (!plan.ok()) return Fail(pc.common, plan.status());
+  auto part = PickPart(pc, plan.value());
+  if (!part.ok()) return Fail(pc.common, part.status());
+  auto outcome = ApplyPart(plan.value(), stages, part.value(), pc.decisions, DefaultFileSystem());
+  if (!outcome.ok()) return Fail(pc.common, outcome.status());
+  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
+  return kExitOk;
+}
+
 // `prefsift audit`: train/held-out leakage check of existing files (docs/leakage.md).
 struct AuditCli {
   CommonOptions common;
@@ -331,6 +412,34 @@ int prefsift::Main(int argc, char** argv) {
   audit_cmd->add_flag("--by-annotator", audit.by_annotator, "Also report annotators who appear on both sides");
   audit_cmd->add_flag("--gate", audit.gate, "Exit with code 4 if any leakage is found");
   audit_cmd->footer("\nExample:\n  prefsift audit --train train.jsonl --heldout test.jsonl --layout pairwise -o audit-out\n");
+  // The pipeline over parts (docs/parts.md): observe, decide, apply.
+  PartsCli observe_o, decide_o, apply_o;
+  CLI::App* observe_cmd = app.add_subcommand(
+      "observe", "Pass 1 over one part of the inputs: its observed state to a state file (for many machines)");
+  CLI::App* decide_cmd = app.add_subcommand(
+      "decide", "Decide over the state files of all parts: decision files, summary, datasheet, report, gate");
+  CLI::App* apply_cmd = app.add_subcommand(
+      "apply", "Pass 2 over one part with its decision file: the part's split files and rejects.jsonl");
+  for (auto [cmd, o] : {std::pair{observe_cmd, &observe_o}, std::pair{decide_cmd, &decide_o},
+                        std::pair{apply_cmd, &apply_o}}) {
+    AddCommon(cmd, &o->common);
+    AddStageOptions(cmd, AllStageNames(), &o->common.stage);
+  }
+  for (auto [cmd, o] : {std::pair{observe_cmd, &observe_o}, std::pair{apply_cmd, &apply_o}}) {
+    cmd->add_option("--parts", o->parts, "parts.json: the parts of the inputs (default: one whole-file part per input)");
+    cmd->add_option("--part", o->part, "The part to read, numbered from 0")->required();
+  }
+  decide_cmd->add_option("--state", decide_o.states, "The parts' state files, in part order (repeatable)")
+      ->required();
+  apply_cmd->add_option("--decisions", apply_o.decisions, "The part's decision file, from decide's output folder")
+      ->required();
+  observe_cmd->get_option("--out")->description("The state file to write");
+  observe_cmd->footer(
+      "\nExample:\n  prefsift observe --plan plan.json --parts parts.json --part 3 --out state/part-3.state\n");
+  decide_cmd->footer(
+      "\nExample:\n  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --out decided\n");
+  apply_cmd->footer("\nExample:\n  prefsift apply --plan plan.json --parts parts.json --part 3 "
+                    "--decisions decided/part-3.decisions --out parts-out/part-3\n");
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
   layouts->footer("\nExample:\n  prefsift layouts\n");
 #ifdef PREFSIFT_HAVE_STORE
@@ -362,6 +471,9 @@ int prefsift::Main(int argc, char** argv) {
     return 2;
   }
   if (audit_cmd->parsed()) return RunAudit(audit);
+  if (observe_cmd->parsed()) return RunObserve(observe_o, AllStageNames());
+  if (decide_cmd->parsed()) return RunDecide(decide_o, AllStageNames());
+  if (apply_cmd->parsed()) return RunApply(apply_o, AllStageNames());
   if (layouts->parsed()) {
     for (const auto& name : LayoutPresetNames()) {
       auto l = LayoutFromJson(nlohmann::ordered_json{{"preset", name}}, "preset");

@@ -5,7 +5,7 @@
 #include "core/sha256.h"
 #include "core/state_file.h"
 #include "io/output_dir.h"
-#include "pipeline/pass1.h"
+#include "pipeline/passes.h"
 #include "stages/stage.h"
 
 namespace prefsift {
@@ -272,9 +272,11 @@ Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
   part.path = plan_.inputs[part.input].path;
   const std::string which = path + " (" + PartName(part) + ")";
   if (merged_.empty()) {
-    if (part.input != 0 || part.begin != 0) return Status::Usage(which + ": the first part must start input 0");
+    if (part.input != 0 || part.begin != 0) {
+      return Status::Usage(which + ": the first state file must be of the first part (input 0 from byte 0)");
+    }
   } else {
-    const Part& prev = merged_.back();
+    const Part& prev = merged_.back().part;
     if (part.part != prev.part + 1) {
       return Status::Usage(which + ": comes after part " + std::to_string(prev.part) + "; give the parts in order");
     }
@@ -371,13 +373,14 @@ Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
     if (!s.ok()) return s;
     if (Status left = r.LeaveSection(); !left.ok()) return left;
   }
-  merged_.push_back(part);
+  merged_.push_back(MergedPart{part, entry_base, st_.entries.size() - entry_base, record_base,
+                               st_.records.size() - record_base});
   return Status::Ok();
 }
 
 Status ObservedRun::CheckInputs() const {
   if (merged_.empty()) return Status::Usage("no state files to decide on");
-  const Part& last = merged_.back();
+  const Part& last = merged_.back().part;
   if (last.input + 1 != plan_.inputs.size() || !ingest_[last.input].at_file_end) {
     return Status::Usage("the state files end with " + PartName(last) + ": the parts after it are missing (the plan "
                          "has " + std::to_string(plan_.inputs.size()) + " input(s))");

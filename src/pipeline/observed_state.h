@@ -28,6 +28,12 @@ namespace prefsift {
 class Stage;
 struct InputIngest;
 
+// A part merged into a run, and where its entries and records sit.
+struct MergedPart {
+  Part part;
+  size_t first_entry = 0, entries = 0, first_record = 0, records = 0;
+};
+
 class ObservedRun {
  public:
   // The plan's stages named in `stage_names` (pipeline order, as `run`).
@@ -59,6 +65,8 @@ class ObservedRun {
   const RunState& state() const { return st_; }
   const std::vector<std::unique_ptr<Stage>>& stages() const { return stages_; }
   const Part* observed_part() const { return part_.get(); }
+  const std::vector<MergedPart>& merged_parts() const { return merged_; }
+  const std::vector<std::string>& stage_names() const { return stage_names_; }
 
  private:
   explicit ObservedRun(const Plan& plan);
@@ -68,7 +76,7 @@ class ObservedRun {
   std::vector<std::string> stage_names_;   // of the stages made, pipeline order
   std::vector<InputIngest> ingest_;        // per input
   std::unique_ptr<Part> part_;             // the part observed (ObservePart)
-  std::vector<Part> merged_;               // the parts appended, in order
+  std::vector<MergedPart> merged_;         // the parts appended, in order
 };
 
 // The fingerprint of what shapes observation: inputs' layouts and names,

@@ -16,7 +16,7 @@
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
-#include "pipeline/pass1.h"
+#include "pipeline/passes.h"
 #include "report/finish.h"
 #include "report/summary.h"
 #include "stages/facts.h"
@@ -395,6 +395,8 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
   return Status::Ok();
 }
 
+}  // namespace
+
 std::string OutputName(const Plan& plan, const std::string& split, uint32_t input) {
   bool same_layout = true;
   for (const auto& in : plan.inputs) same_layout = same_layout && in.layout_key == plan.inputs[0].layout_key;
@@ -434,6 +436,8 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   head += "}\n";
   return head;
 }
+
+namespace {
 
 // Pass 2's writes, batched per output file and handed to one background
 // thread, so reading the input and writing the outputs overlap. Batches are
@@ -480,8 +484,10 @@ class BatchedWriter {
   std::future<Status> in_flight_;
 };
 
+// `part`: only that part of one input; `st` holds its entries only.
 Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress) {
+             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress,
+             const Part* part = nullptr) {
   progress.Phase("writing");
   std::map<std::string, std::unique_ptr<WritableFile>> files;
   auto file = [&](const std::string& name) -> Result<WritableFile*> {
@@ -505,7 +511,10 @@ Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>
 
   size_t cursor = 0;
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
-    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes);
+    if (part && in != part->input) continue;
+    LineRange range;
+    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
+    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes, range);
     if (!opened.ok()) return opened.status();
     auto& reader = opened.value();
     for (uint64_t n = 0;; ++n) {
@@ -643,6 +652,12 @@ Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr
 
 Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest) {
   return CheckInputSanity(plan, plan.inputs[input], stats, ingest.tallies, ingest.evidence);
+}
+
+Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written) {
+  Progress progress(false, false, 5, stderr, 0);  // silent
+  return Apply(plan, st, stages, fs, out, written, progress, part);
 }
 
 std::vector<ReadPath> PathsReadBy(const Plan& plan) {

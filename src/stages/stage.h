@@ -50,6 +50,12 @@ class Stage {
   virtual Status Decide(RunState& state) = 0;
   virtual void Report(const RunState& state, nlohmann::ordered_json* section) const = 0;
   virtual Status WriteOutputs(const RunState& /*state*/, OutputDir& /*out*/) const { return Status::Ok(); }
+  // Decided rewrites (decision files; docs/parts.md): SaveRewrites writes
+  // what Rewrite needs for records [first, first + count), numbered from 0;
+  // LoadRewrites reads that in a run that holds only those `count` records
+  // (`prefsift apply` of one part). A stage without Rewrite needs neither.
+  virtual void SaveRewrites(StateWriter& /*out*/, size_t /*first*/, size_t /*count*/) const {}
+  virtual Status LoadRewrites(StateReader& /*in*/, size_t /*count*/) { return Status::Ok(); }
   virtual bool Rewrites(size_t /*record*/) const { return false; }
   virtual Status Rewrite(size_t /*record*/, const InputSpec& /*input*/, nlohmann::ordered_json* /*doc*/) const {
     return Status::Ok();

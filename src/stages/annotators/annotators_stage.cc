@@ -256,6 +256,8 @@ class AnnotatorsStage : public Stage {
     return j;
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t r) const override { return weighted_.count(r) > 0; }
 
   Status Rewrite(size_t r, const InputSpec&, Json* doc) const override {
@@ -737,6 +739,39 @@ Status AnnotatorsStage::AppendObserved(StateReader& in, size_t first) {
   } else {
     std::vector<double> none;
     in.Vec(&none);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): the weight written into
+// each record of a flagged annotator (policy "weight").
+namespace prefsift {
+namespace {
+
+void AnnotatorsStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<std::pair<size_t, double>> mine;
+  for (const auto& [r, w] : weighted_) {
+    if (r >= first && r < first + count) mine.push_back({r - first, w});
+  }
+  std::sort(mine.begin(), mine.end());
+  out.U64(mine.size());
+  for (const auto& [r, w] : mine) {
+    out.U64(r);
+    out.F64(w);
+  }
+}
+
+Status AnnotatorsStage::LoadRewrites(StateReader& in, size_t count) {
+  weighted_.clear();
+  const uint64_t n = in.Count(16);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    const double w = in.F64();
+    if (r >= count) in.Fail("a record out of range");
+    weighted_[r] = w;
   }
   return Status::Ok();
 }

@@ -198,6 +198,8 @@ class BiasStage : public Stage {
     j["shortcut_audit"] = std::move(audit);
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t r) const override { return r < new_slot_.size() && !new_slot_[r].empty(); }
 
   Status Rewrite(size_t r, const InputSpec& input, Json* doc) const override {
@@ -406,6 +408,39 @@ Status BiasStage::AppendObserved(StateReader& in, size_t first) {
       c.list_items = static_cast<uint16_t>(in.U32());
       c.flags = in.U8();
     }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): each reordered record's new slots.
+namespace prefsift {
+namespace {
+
+void BiasStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<size_t> moved;
+  for (size_t r = first; r < first + count && r < new_slot_.size(); ++r) {
+    if (!new_slot_[r].empty()) moved.push_back(r);
+  }
+  out.U64(moved.size());
+  for (size_t r : moved) {
+    out.U64(r - first);
+    out.Vec(new_slot_[r]);
+  }
+}
+
+Status BiasStage::LoadRewrites(StateReader& in, size_t count) {
+  new_slot_.assign(count, {});
+  const uint64_t n = in.Count(16);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    if (r >= count) {
+      in.Fail("a record out of range");
+      break;
+    }
+    in.Vec(&new_slot_[r]);
   }
   return Status::Ok();
 }

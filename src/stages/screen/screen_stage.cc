@@ -322,6 +322,8 @@ class PersonalDataStage : public Stage {
     return f.value()->Close();
   }
 
+  void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
+  Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t record) const override {
     return record < per_record_.size() && per_record_[record].rewrite;
   }
@@ -683,6 +685,70 @@ Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
       h.text_hash = in.U64();
       h.meta_pointer = in.Str();
       h.preview = in.Str();
+    }
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+}  // namespace prefsift
+
+// Decided rewrites (decision files, docs/parts.md): the findings of every
+// record the screen rewrites (masks, pseudonymises, or drops and masks).
+namespace prefsift {
+namespace {
+
+void PersonalDataStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
+  std::vector<size_t> mine;
+  for (size_t r = first; r < first + count && r < per_record_.size(); ++r) {
+    if (per_record_[r].rewrite) mine.push_back(r);
+  }
+  out.U64(mine.size());
+  for (size_t r : mine) {
+    out.U64(r - first);
+    const RecordHits& h = per_record_[r];
+    out.U8(h.drop);
+    out.U64(h.hits.size());
+    for (const Hit& hit : h.hits) {
+      out.U8(static_cast<uint8_t>(hit.part));
+      out.U8(static_cast<uint8_t>(hit.action));
+      out.U32(hit.index);
+      out.U32(hit.rule);
+      out.U32(hit.begin);
+      out.U32(hit.end);
+      out.U64(hit.text_hash);
+      out.Str(hit.meta_pointer);
+    }
+  }
+}
+
+Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
+  per_record_.assign(count, RecordHits());
+  const uint64_t n = in.Count(17);
+  for (uint64_t k = 0; k < n && in.ok(); ++k) {
+    const uint64_t r = in.U64();
+    if (r >= count) {
+      in.Fail("a record out of range");
+      break;
+    }
+    RecordHits& h = per_record_[r];
+    h.rewrite = true;
+    h.drop = in.U8() != 0;
+    h.hits.resize(in.Count(34));
+    for (Hit& hit : h.hits) {
+      const uint8_t part = in.U8(), action = in.U8();
+      if (part > static_cast<uint8_t>(Part::kMetadata) || action > static_cast<uint8_t>(Action::kDrop)) {
+        in.Fail("a finding's field or action out of range");
+      }
+      hit.part = static_cast<Part>(part);
+      hit.action = static_cast<Action>(action);
+      hit.index = in.U32();
+      hit.rule = in.U32();
+      if (hit.rule >= rules_.rules.size() && in.ok()) in.Fail("a finding of a rule this plan does not load");
+      hit.begin = in.U32();
+      hit.end = in.U32();
+      hit.text_hash = in.U64();
+      hit.meta_pointer = in.Str();
     }
   }
   return Status::Ok();

@@ -1,7 +1,8 @@
-// Pass 1 (observe) as the pipeline library's own units use it: making the
-// plan's stages, reading the whole plan or one part into a RunState and the
-// stages, and the per-input sanity checks that stop a run before anything is
-// decided (pipeline.cc). Not for use outside src/pipeline.
+// The two passes as the pipeline library's own units use them (pipeline.cc):
+// making the plan's stages; pass 1 (observe) over the whole plan or one part
+// into a RunState and the stages, and the per-input sanity checks that stop a
+// run before anything is decided; pass 2 (apply) over the whole plan or one
+// part. Not for use outside src/pipeline.
 //
 // Thread-safety: one run per call; calls on one run are not concurrent.
 #pragma once
@@ -11,12 +12,14 @@
 #include <map>
 #include <memory>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "core/record_reader.h"
 #include "core/run_state.h"
 #include "core/status.h"
 #include "io/file_system.h"
+#include "io/output_dir.h"
 #include "pipeline/parts.h"
 #include "stages/stage.h"
 
@@ -51,5 +54,20 @@ Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr
 
 // The sanity checks of one input (docs/cli.md: exit codes 2, 7 and 8).
 Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest);
+
+// The file a kept line of `input` goes to for `split` ("train.jsonl", or
+// "train.<input name>.jsonl" when the inputs' layouts differ).
+std::string OutputName(const Plan& plan, const std::string& split, uint32_t input);
+
+// One rejects.jsonl line for an entry (ends in a newline); `raw` is the line as
+// read (or as rewritten).
+std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, const Decision& d, std::string_view raw);
+
+// Pass 2 of the whole plan, or of one part (then `st` holds that part's
+// entries only): every entry's line to its split file or rejects.jsonl in
+// `out` (every split file of every input is made, even when empty); lines
+// written per file name to *written.
+Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written);
 
 }  // namespace prefsift
