@@ -25,7 +25,7 @@ cmake -S . -B "$build" -G Ninja -DCMAKE_BUILD_TYPE=Release \
   -DCMAKE_C_COMPILER="$CC_BIN" -DCMAKE_CXX_COMPILER="$CXX_BIN" \
   -DCMAKE_C_FLAGS="$flags" -DCMAKE_CXX_FLAGS="$flags" \
   -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined" \
-  -DPREFSIFT_FUZZ=ON -DPREFSIFT_ONLY="core;io;sketch;screen;stats;stages;report" >/dev/null || exit 2
+  -DPREFSIFT_FUZZ=ON -DPREFSIFT_ONLY="core;io;sketch;screen;stats;report;stages;pipeline" >/dev/null || exit 2
 cmake --build "$build" -j"$(nproc)" --target $(printf 'fuzz_%s ' "${targets[@]}") || exit 2
 
 status=0

@@ -3,6 +3,9 @@
 # Safe to run again; needs root (or sudo). clang + libclang-rt-14-dev: libFuzzer
 # targets in fuzz/ (scripts/fuzz.sh). chromium: the report.html tests in tests/e2e.
 # python3-colorspacious: the report palette check (tests/reference/palette_cvd.py).
+# slurm-wlm + munge: the single-node cluster the Slurm test starts
+# (scripts/slurm/, tests/e2e/slurm/; docs/scale.md). The test's cluster uses its
+# own key, socket, ports and files; it needs none of the packages' own services.
 set -euo pipefail
 SUDO=""
 if [ "$(id -u)" -ne 0 ]; then SUDO="sudo"; fi
@@ -14,7 +17,8 @@ PKGS=(build-essential cmake ninja-build pkg-config git
   python3-colorspacious
   unicode-data
   chromium
-  clang libclang-rt-14-dev)
+  clang libclang-rt-14-dev
+  slurm-wlm munge)
 missing=()
 for p in "${PKGS[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")

@@ -26,8 +26,9 @@ if [ "${PREFSIFT_SANITIZE_TESTS:-1}" != 0 ]; then
   # Excluded under the sanitizers: the *_fixture_current tests, which re-run
   # the Python/Node reference scripts and compare text files (no prefsift
   # code runs in them; they already ran above), and any test labelled
-  # no_asan (for tests that cannot run under ASan, e.g. ones that shell out
-  # to a browser; none today).
+  # no_asan: the Slurm cluster test (tests/e2e/slurm/; it ran above with the
+  # release binary; it checks the job plumbing, and the commands it runs are
+  # covered under the sanitizers by their own tests).
   (cd "$asan" && ASAN_OPTIONS="detect_leaks=1:abort_on_error=1:strict_string_checks=1" \
      UBSAN_OPTIONS="print_stacktrace=1:halt_on_error=1" \
      ctest --output-on-failure -j"$jobs" --timeout 900 -E '_fixtures?_current$' -LE no_asan)

@@ -11,6 +11,7 @@
 #include <iostream>
 #include <tuple>
 
+#include "cli/cut_command.h"
 #include "cli/exit_codes.h"
 #include "cli/stage_options.h"
 #include "core/limits.h"
@@ -440,6 +441,7 @@ int prefsift::Main(int argc, char** argv) {
 #ifdef PREFSIFT_HAVE_STORE
   auto store_commands = AddStoreCommands(&app);
 #endif
+  auto cut_command = AddCutCommand(&app);  // parts for many machines (docs/scale.md)
 
   app.footer("\nExample:\n  prefsift run --plan samples/demo-plan.json --out demo-out\n"
              "Each command's --help has an example of its own (prefsift dedup --help).\n");
@@ -480,6 +482,7 @@ int prefsift::Main(int argc, char** argv) {
 #ifdef PREFSIFT_HAVE_STORE
   if (int rc = store_commands->RunIfParsed(); rc >= 0) return rc;
 #endif
+  if (int rc = cut_command->RunIfParsed(); rc >= 0) return rc;
   for (size_t i = 0; i < commands.size(); ++i) {
     if (subs[i]->parsed()) return RunWith(options[i], commands[i].stages, commands[i].name);
   }

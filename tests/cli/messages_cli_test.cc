@@ -104,7 +104,7 @@ TEST(Messages, PlanValueErrorNamesTheKeyPathInThePlansTerms) {
 
 TEST(Messages, EveryCommandHelpHasAnExample) {
   for (const char* cmd : {"run", "check", "dedup", "near", "leakage", "screen", "bias", "split", "audit", "layouts",
-                          "add", "history", "store-summary", "store-report", "shard-sign", "merge"}) {
+                          "add", "history", "store-summary", "store-report", "shard-sign", "merge", "cut"}) {
     CliRun r = Prefsift(std::string(cmd) + " --help");
     EXPECT_EQ(r.code, 0) << cmd;
     size_t at = r.out.find("Example:\n  prefsift " + std::string(cmd));
