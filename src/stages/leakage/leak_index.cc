@@ -454,25 +454,47 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     std::sort(set.begin(), set.end());
     set.erase(std::unique(set.begin(), set.end()), set.end());
     const uint32_t K = s.num_slots;
-    std::vector<uint32_t> cand;
+    // Candidates from the bands and from the prefix filter, each sorted and
+    // distinct. Only a prefix candidate can pass the containment test (the
+    // filter is exact: an item with containment >= c shares one of its
+    // indexed prefix shingles), so the set intersection, the costly part of
+    // verification, is made only for those, and only when the Jaccard test
+    // has not already matched. Most band candidates share only template text
+    // and are turned down by the signature comparison alone.
+    thread_local std::vector<uint32_t> band_cand, prefix_cand;
+    band_cand.clear();
+    prefix_cand.clear();
     std::vector<uint8_t> sig(K);
     if (s.jaccard > 0) {
       sketch::Compact(sketch::Sign(set, m.minhash), sig);
       std::vector<uint64_t> keys(m.banding.bands);
       sketch::BandKeys(sig, m.banding, kBandSeed, keys);
       for (uint64_t k : keys) {
-        for (uint32_t item : m.bands.Find(k)) cand.push_back(item);
+        for (uint32_t item : m.bands.Find(k)) band_cand.push_back(item);
       }
     }
     if (s.containment > 0) {
       for (uint64_t g : set) {
-        for (uint32_t item : m.prefixes.Find(g)) cand.push_back(item);
+        for (uint32_t item : m.prefixes.Find(g)) prefix_cand.push_back(item);
       }
     }
-    std::sort(cand.begin(), cand.end());
-    cand.erase(std::unique(cand.begin(), cand.end()), cand.end());
+    for (auto* v : {&band_cand, &prefix_cand}) {
+      std::sort(v->begin(), v->end());
+      v->erase(std::unique(v->begin(), v->end()), v->end());
+    }
     std::vector<LeakFinding> found;
-    for (uint32_t item : cand) {
+    size_t bi = 0, pi = 0;
+    while (bi < band_cand.size() || pi < prefix_cand.size()) {
+      uint32_t item;
+      bool in_prefix;
+      if (pi == prefix_cand.size() || (bi < band_cand.size() && band_cand[bi] < prefix_cand[pi])) {
+        item = band_cand[bi++];
+        in_prefix = false;
+      } else {
+        item = prefix_cand[pi++];
+        in_prefix = true;
+        if (bi < band_cand.size() && band_cand[bi] == item) ++bi;
+      }
       const auto& e = m.near_sets[item];
       double j = 0, c = 0;
       bool jok = false, cok = false;
@@ -480,7 +502,7 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
         j = sketch::EstimateJaccardCompact(sig, std::span<const uint8_t>(m.sigs.data() + size_t(item) * K, K));
         jok = j >= s.jaccard;
       }
-      if (s.containment > 0 && e.size() >= s.min_eval_shingles) {
+      if (!jok && in_prefix && s.containment > 0 && e.size() >= s.min_eval_shingles) {
         size_t need = static_cast<size_t>(std::ceil(s.containment * static_cast<double>(e.size()) - 1e-9));
         need = std::max<size_t>(need, 1);
         uint64_t inter = sketch::IntersectionSize(e, set);
