@@ -285,6 +285,10 @@ struct LeakIndex::Impl {
   std::vector<uint32_t> prompt_train_df;  // after SetTrainingFrequencies
   uint64_t prompt_docs = 0;
   uint32_t near_template_shingles = 0;
+  // Template shingles (sorted). When there are any, the bands are keyed by a
+  // second signature of the informative shingles only (candidate generation);
+  // the Jaccard test still compares the whole-set signatures in `sigs`.
+  std::vector<uint64_t> template_shingles;
   // answers
   std::vector<std::string> ref_text;
   std::vector<uint32_t> answer_train_df;
@@ -370,6 +374,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.near_template_shingles = static_cast<uint32_t>(template_shingles.size());
     }
     m.near_sets.resize(items);
+    std::vector<uint8_t> inf_sig(K);
     for (uint32_t i = 0; i < items; ++i) {
       auto sig = sketch::Sign(m.sets[i], m.minhash);
       auto& informative = m.near_sets[i];
@@ -377,8 +382,16 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
                           std::back_inserter(informative));
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
       sketch::Compact(sig, compact);
-      if (settings.jaccard > 0) {
+      if (settings.jaccard > 0 && template_shingles.empty()) {
         sketch::BandKeys(compact, m.banding, kBandSeed, keys);
+        for (uint64_t k : keys) band_entries.emplace_back(k, i);
+      } else if (settings.jaccard > 0 && !informative.empty()) {
+        // Template text shared by many items would make every training
+        // prompt written with the same stock sentences a candidate of every
+        // item: band the informative shingles instead. An item with none
+        // (all stock text) is left to the exact detector.
+        sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
+        sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
         for (uint64_t k : keys) band_entries.emplace_back(k, i);
       }
       const size_t s = informative.size();
@@ -393,6 +406,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     }
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
+    m.template_shingles = std::move(template_shingles);
   }
   if (settings.enabled[3]) {
     std::vector<std::pair<uint64_t, uint32_t>> e;
@@ -468,7 +482,21 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     if (s.jaccard > 0) {
       sketch::Compact(sketch::Sign(set, m.minhash), sig);
       std::vector<uint64_t> keys(m.banding.bands);
-      sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      if (m.template_shingles.empty()) {
+        sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      } else {
+        thread_local std::vector<uint64_t> informative;
+        informative.clear();
+        for (uint64_t g : set) {
+          if (!std::binary_search(m.template_shingles.begin(), m.template_shingles.end(), g)) informative.push_back(g);
+        }
+        if (informative.empty()) keys.clear();  // stock text only: no band candidates
+        else {
+          std::vector<uint8_t> inf_sig(K);
+          sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
+          sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
+        }
+      }
       for (uint64_t k : keys) {
         for (uint32_t item : m.bands.Find(k)) band_cand.push_back(item);
       }
