@@ -16,7 +16,8 @@
 #        STAGES="exact near leakage screen bias split"  (subset for quick runs)
 #
 # Data and outputs go under $DATA (never into the repository). Peak RSS comes
-# from /usr/bin/time -v ("Maximum resident set size"). "B/rec" is
+# from /usr/bin/time -v ("Maximum resident set size"); cpu_s is its user + system
+# time (on a shared machine a steadier figure than the wall seconds). "B/rec" is
 # (peak RSS - peak RSS of the same command on a 100-record file) / records:
 # an upper bound on the index memory per record (it also counts allocator slack
 # and per-chunk buffers).
@@ -77,6 +78,7 @@ timed() {
   local wall kb
   wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {print $2}' "$log")
   kb=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$log")
+  awk -F': ' '/User time|System time/ {s += $2} END {print s}' "$log" >"$DATA/cpu.log"
   # h:mm:ss or m:ss.ss -> seconds
   echo "$(echo "$wall" | awk -F: '{s=0; for (i=1;i<=NF;i++) s=s*60+$i; print s}') $kb"
 }
@@ -124,13 +126,14 @@ for n in "${SIZES[@]}"; do
   ceil=$("$BUILD/bench/pipeline/ceiling" "$f" 2>/dev/null)
   echo "$ceil" | tail -n 4 | sed 's/^/  ceiling: /'
   ceil_s=$(echo "$ceil" | awk '$1=="ceiling" {print $2}')
-  printf '  %-8s %9s %11s %9s %10s %8s %9s\n' stage seconds records/s MB/s peakRSS_MB B/rec "ceiling%"
+  printf '  %-8s %9s %8s %11s %9s %10s %8s %9s\n' stage seconds cpu_s records/s MB/s peakRSS_MB B/rec "ceiling%"
   for stage in $STAGES run; do
     read -r s kb < <(timed $(run_cmd "$n" "$stage"))
-    awk -v st="$stage" -v s="$s" -v kb="$kb" -v base="${BASE[$stage]}" -v n="$n" -v b="$bytes" -v c="$ceil_s" \
+    awk -v st="$stage" -v s="$s" -v cpu="$(cat "$DATA/cpu.log")" -v kb="$kb" -v base="${BASE[$stage]}" -v n="$n" \
+      -v b="$bytes" -v c="$ceil_s" \
       'BEGIN { if (s <= 0) s = 0.01;
-               printf "  %-8s %9.2f %11.0f %9.1f %10.1f %8.0f %8.1f%%\n", st, s, n / s, b / 1e6 / s, kb / 1024,
-                      (kb - base) * 1024 / n, 100 * c / s }'
+               printf "  %-8s %9.2f %8.2f %11.0f %9.1f %10.1f %8.0f %8.1f%%\n", st, s, cpu, n / s, b / 1e6 / s,
+                      kb / 1024, (kb - base) * 1024 / n, 100 * c / s }'
     [ "$stage" = run ] && sed 's/^timing: /    /' "$DATA/timings.log"  # per-phase seconds of the whole run
     rm -rf "$DATA/out-$n-$stage"
   done
