@@ -310,6 +310,43 @@ TEST(LeakIndex, ContainmentPrefixFilterIsExact) {
   }
 }
 
+TEST(LeakIndex, NearWithTemplateItemsBandsInformativeShingles) {
+  // 40 items that all open with the same 40 stock words (36 shingles in every
+  // item: template text, set aside) and go on with 40 words of their own. The
+  // bands are keyed by the informative shingles; copies are still found by
+  // the whole-set Jaccard test, stock text alone is not a match.
+  LeakSettings s;
+  s.enabled[0] = s.enabled[1] = false;  // near only
+  const std::string stock = Words(40, 0);
+  std::vector<std::string> items;
+  for (int i = 0; i < 40; ++i) items.push_back(stock + " " + Words(40, 1000 + 100 * i));
+  auto f = MakeIndex(items, s);
+  Json tmpl;
+  f.index->TemplateJson(5, &tmpl);
+  EXPECT_EQ(tmpl["near"]["shingles_set_aside"], 36);
+  std::vector<LeakFinding> out;
+  f.index->CheckPrompt(items[7], false, &out);  // verbatim: Jaccard 1
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].item, 7u);
+  EXPECT_STREQ(out[0].measure, "jaccard");
+  // One word of the item's own text changed: 5 of its 40 informative shingles
+  // lost (containment 35/40 = 0.875), whole-set Jaccard 71/81 = 0.877.
+  std::string edited = items[7];
+  edited.replace(edited.find("word1720 "), 9, "other ");
+  out.clear();
+  f.index->CheckPrompt(edited, false, &out);
+  ASSERT_EQ(out.size(), 1u);
+  EXPECT_EQ(out[0].item, 7u);
+  // The stock text with 40 words of other text: whole-set Jaccard 36/120 = 0.3, nothing.
+  out.clear();
+  f.index->CheckPrompt(stock + " " + Words(40, 90000), false, &out);
+  EXPECT_TRUE(out.empty());
+  // The stock text alone: every shingle is template text, no band candidate and containment 0.
+  out.clear();
+  f.index->CheckPrompt(stock, false, &out);
+  EXPECT_TRUE(out.empty());
+}
+
 TEST(LeakIndex, ReferenceAnswers) {
   LeakSettings s;
   s.enabled[3] = true;

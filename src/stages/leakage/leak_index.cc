@@ -285,6 +285,10 @@ struct LeakIndex::Impl {
   std::vector<uint32_t> prompt_train_df;  // after SetTrainingFrequencies
   uint64_t prompt_docs = 0;
   uint32_t near_template_shingles = 0;
+  // Template shingles (sorted). When there are any, the bands are keyed by a
+  // second signature of the informative shingles only (candidate generation);
+  // the Jaccard test still compares the whole-set signatures in `sigs`.
+  std::vector<uint64_t> template_shingles;
   // answers
   std::vector<std::string> ref_text;
   std::vector<uint32_t> answer_train_df;
@@ -370,6 +374,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.near_template_shingles = static_cast<uint32_t>(template_shingles.size());
     }
     m.near_sets.resize(items);
+    std::vector<uint8_t> inf_sig(K);
     for (uint32_t i = 0; i < items; ++i) {
       auto sig = sketch::Sign(m.sets[i], m.minhash);
       auto& informative = m.near_sets[i];
@@ -377,8 +382,16 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
                           std::back_inserter(informative));
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
       sketch::Compact(sig, compact);
-      if (settings.jaccard > 0) {
+      if (settings.jaccard > 0 && template_shingles.empty()) {
         sketch::BandKeys(compact, m.banding, kBandSeed, keys);
+        for (uint64_t k : keys) band_entries.emplace_back(k, i);
+      } else if (settings.jaccard > 0 && !informative.empty()) {
+        // Template text shared by many items would make every training
+        // prompt written with the same stock sentences a candidate of every
+        // item: band the informative shingles instead. An item with none
+        // (all stock text) is left to the exact detector.
+        sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
+        sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
         for (uint64_t k : keys) band_entries.emplace_back(k, i);
       }
       const size_t s = informative.size();
@@ -393,6 +406,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     }
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
+    m.template_shingles = std::move(template_shingles);
   }
   if (settings.enabled[3]) {
     std::vector<std::pair<uint64_t, uint32_t>> e;
@@ -454,25 +468,61 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     std::sort(set.begin(), set.end());
     set.erase(std::unique(set.begin(), set.end()), set.end());
     const uint32_t K = s.num_slots;
-    std::vector<uint32_t> cand;
+    // Candidates from the bands and from the prefix filter, each sorted and
+    // distinct. Only a prefix candidate can pass the containment test (the
+    // filter is exact: an item with containment >= c shares one of its
+    // indexed prefix shingles), so the set intersection, the costly part of
+    // verification, is made only for those, and only when the Jaccard test
+    // has not already matched. Most band candidates share only template text
+    // and are turned down by the signature comparison alone.
+    thread_local std::vector<uint32_t> band_cand, prefix_cand;
+    band_cand.clear();
+    prefix_cand.clear();
     std::vector<uint8_t> sig(K);
     if (s.jaccard > 0) {
       sketch::Compact(sketch::Sign(set, m.minhash), sig);
       std::vector<uint64_t> keys(m.banding.bands);
-      sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      if (m.template_shingles.empty()) {
+        sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      } else {
+        thread_local std::vector<uint64_t> informative;
+        informative.clear();
+        for (uint64_t g : set) {
+          if (!std::binary_search(m.template_shingles.begin(), m.template_shingles.end(), g)) informative.push_back(g);
+        }
+        if (informative.empty()) keys.clear();  // stock text only: no band candidates
+        else {
+          std::vector<uint8_t> inf_sig(K);
+          sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
+          sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
+        }
+      }
       for (uint64_t k : keys) {
-        for (uint32_t item : m.bands.Find(k)) cand.push_back(item);
+        for (uint32_t item : m.bands.Find(k)) band_cand.push_back(item);
       }
     }
     if (s.containment > 0) {
       for (uint64_t g : set) {
-        for (uint32_t item : m.prefixes.Find(g)) cand.push_back(item);
+        for (uint32_t item : m.prefixes.Find(g)) prefix_cand.push_back(item);
       }
     }
-    std::sort(cand.begin(), cand.end());
-    cand.erase(std::unique(cand.begin(), cand.end()), cand.end());
+    for (auto* v : {&band_cand, &prefix_cand}) {
+      std::sort(v->begin(), v->end());
+      v->erase(std::unique(v->begin(), v->end()), v->end());
+    }
     std::vector<LeakFinding> found;
-    for (uint32_t item : cand) {
+    size_t bi = 0, pi = 0;
+    while (bi < band_cand.size() || pi < prefix_cand.size()) {
+      uint32_t item;
+      bool in_prefix;
+      if (pi == prefix_cand.size() || (bi < band_cand.size() && band_cand[bi] < prefix_cand[pi])) {
+        item = band_cand[bi++];
+        in_prefix = false;
+      } else {
+        item = prefix_cand[pi++];
+        in_prefix = true;
+        if (bi < band_cand.size() && band_cand[bi] == item) ++bi;
+      }
       const auto& e = m.near_sets[item];
       double j = 0, c = 0;
       bool jok = false, cok = false;
@@ -480,7 +530,7 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
         j = sketch::EstimateJaccardCompact(sig, std::span<const uint8_t>(m.sigs.data() + size_t(item) * K, K));
         jok = j >= s.jaccard;
       }
-      if (s.containment > 0 && e.size() >= s.min_eval_shingles) {
+      if (!jok && in_prefix && s.containment > 0 && e.size() >= s.min_eval_shingles) {
         size_t need = static_cast<size_t>(std::ceil(s.containment * static_cast<double>(e.size()) - 1e-9));
         need = std::max<size_t>(need, 1);
         uint64_t inter = sketch::IntersectionSize(e, set);

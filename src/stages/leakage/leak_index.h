@@ -10,7 +10,9 @@
 //          least min_coverage of the item's informative tokens, the rule
 //          "any" one shared informative gram (Brown et al. 2020);
 //   near   MinHash Jaccard estimate >= "jaccard", found by LSH banding over
-//          the evaluation signatures (sketch/), or containment of the
+//          the evaluation signatures (sketch/; when shingles in many items are
+//          set aside as template text, the bands are keyed by a signature of
+//          the remaining, informative shingles), or containment of the
 //          evaluation item's shingle set in the training prompt's >=
 //          "containment", found exactly by a prefix filter over the
 //          evaluation shingle sets and verified with sketch::Containment.
