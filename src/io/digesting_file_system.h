@@ -15,14 +15,10 @@
 #include <string>
 #include <vector>
 
+#include "core/file_digest.h"
 #include "io/file_system.h"
 
 namespace prefsift {
-
-struct FileDigest {
-  std::string sha256;  // lower-case hex
-  uint64_t bytes = 0;
-};
 
 class DigestingFileSystem : public FileSystem {
  public:

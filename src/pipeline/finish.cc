@@ -12,6 +12,7 @@
 #include <filesystem>
 #include <vector>
 
+#include "core/file_digest.h"
 #include "core/sha256.h"
 #include "core/thread_pool.h"
 #include "report/datasheet.h"
@@ -30,22 +31,7 @@ constexpr const char* kDocuments[] = {"summary.json", "datasheet.md", "datasheet
 
 using Digest = FileDigest;
 
-Result<Digest> HashFile(FileSystem* fs, const std::string& path) {
-  auto f = fs->OpenRead(path);
-  if (!f.ok()) return f.status();
-  Sha256 h;
-  Digest d;
-  std::string buf(1 << 20, '\0');
-  for (;;) {
-    auto n = f.value()->Read(buf.data(), buf.size());
-    if (!n.ok()) return n.status();
-    if (n.value() == 0) break;
-    h.Update(std::string_view(buf.data(), n.value()));
-    d.bytes += n.value();
-  }
-  d.sha256 = h.HexDigest();
-  return d;
-}
+Result<Digest> HashFile(FileSystem* fs, const std::string& path) { return DigestFile(fs, path); }
 
 // HashFile of every path, up to one thread per core at a time; results in
 // the order of `paths`.
@@ -59,12 +45,12 @@ std::vector<Result<Digest>> HashFiles(FileSystem* fs, const std::vector<std::str
 }
 
 // Plain file names in the staging folder, sorted, without the documents.
-std::vector<std::string> OutputFiles(const OutputDir& out) {
+std::vector<std::string> OutputFiles(FileSystem* fs, const OutputDir& out) {
   std::vector<std::string> names;
-  std::error_code ec;
-  for (std::filesystem::directory_iterator it(out.StagingPath(""), ec), end; !ec && it != end; it.increment(ec)) {
-    if (!it->is_regular_file(ec)) continue;
-    std::string name = it->path().filename().string();
+  auto listed = fs->List(out.StagingPath(""));
+  if (!listed.ok()) return names;
+  for (const std::string& name : listed.value()) {
+    if (fs->IsDirectory(out.StagingPath(name))) continue;
     if (std::find(std::begin(kDocuments), std::end(kDocuments), name) != std::end(kDocuments)) continue;
     names.push_back(name);
   }
@@ -203,7 +189,7 @@ Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Jso
   for (size_t i = 0; i < plan.inputs.size(); ++i) {
     paths.push_back(i < input_digests.size() && input_digests[i] ? std::string() : plan.inputs[i].path);
   }
-  const std::vector<std::string> names = OutputFiles(out);
+  const std::vector<std::string> names = OutputFiles(fs, out);
   for (const auto& name : names) paths.push_back(out.StagingPath(name));
   std::vector<Result<Digest>> digests = HashFiles(fs, paths);
   Json inputs = Json::array();
