@@ -13,6 +13,11 @@ jobs="$(nproc)"
 build="${PREFSIFT_BUILD_DIR:-build}"
 cmake -S . -B "$build" -G Ninja -DCMAKE_BUILD_TYPE=Release ${PREFSIFT_CMAKE_ARGS:-} >/dev/null
 cmake --build "$build" -j"$jobs"
+# Tests write under a temporary folder of this checkout's own, so two
+# checkouts tested at once on one machine never share a path (GoogleTest's
+# TempDir() reads TEST_TMPDIR; std::filesystem and mktemp read TMPDIR).
+export TEST_TMPDIR="$PWD/$build/test-tmp/" TMPDIR="$PWD/$build/test-tmp"
+rm -rf "$TMPDIR" && mkdir -p "$TMPDIR"
 (cd "$build" && ctest --output-on-failure -j"$jobs" --timeout 600)
 echo "test.sh: release build and tests done after $(( $(date +%s) - t0 )) s"
 
