@@ -242,20 +242,37 @@ class StoreCompanion : public RunCompanion {
  private:
   int64_t Seq(size_t i) const { return first_seq_ + static_cast<int64_t>(i); }
 
-  // 4. The batch's facts into the store (inside the caller's transaction).
+  // 4. The batch's facts into the store (inside the caller's transaction), in
+  // steps: counts for the batch row, the bound configuration, merges of stored
+  // groups and clusters the batch bridged, new groups, then the records.
   Status Write(RunState& st) {
+    CountBatch(st);
+    std::map<int64_t, int64_t> parent;  // stored group -> the group it merged into
+    std::vector<int64_t> new_grp;
+    Status s = WriteConfig();
+    if (s.ok()) s = MergeGroups(&parent);
+    if (s.ok()) s = MergeClusters();
+    if (s.ok()) s = InsertNewGroups(st, &new_grp);
+    if (s.ok()) s = InsertRecords(st, parent, new_grp);
+    return s;
+  }
+
+  void CountBatch(RunState& st) {
     const size_t n = st.records.size();
     records_ = n;
     for (size_t e = 0; e < st.decisions.size(); ++e) {
       const Decision& d = st.decisions[e];
       if (d.rejected) ++rejected_by_reason_[std::string(d.stage) + "/" + std::string(d.reason)];
     }
-    const PriorJoin& j = *join_;
     std::map<std::string, uint64_t> by_split;
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) ++by_split[st.split_names[st.DecisionOf(i).split]];
     }
     for (const auto& [k, v] : by_split) kept_by_split_[k] = v;
+  }
+
+  Status WriteConfig() {
+    const PriorJoin& j = *join_;
     Json config = BoundConfig(plan_);
     auto stored_config = db_->Meta("config");
     if (!stored_config.ok()) return stored_config.status();
@@ -266,8 +283,13 @@ class StoreCompanion : public RunCompanion {
         if (Status s = db_->SetMeta("near_banding", j.banding_json); !s.ok()) return s;
       }
     }
+    return Status::Ok();
+  }
+
+  Status MergeGroups(std::map<int64_t, int64_t>* parent_out) {
+    const PriorJoin& j = *join_;
+    std::map<int64_t, int64_t>& parent = *parent_out;
     // Group merges (union-find over stored group ids).
-    std::map<int64_t, int64_t> parent;
     std::function<int64_t(int64_t)> find = [&](int64_t g) {
       auto it = parent.find(g);
       if (it == parent.end() || it->second == g) return g;
@@ -291,6 +313,11 @@ class StoreCompanion : public RunCompanion {
         if (Status s = u.value()->Run(); !s.ok()) return s;
       }
     }
+    return Status::Ok();
+  }
+
+  Status MergeClusters() {
+    const PriorJoin& j = *join_;
     // Cluster merges.
     for (const auto& [target, other] : j.cluster_merges) {
       ++clusters_merged_;
@@ -313,8 +340,14 @@ class StoreCompanion : public RunCompanion {
         if (Status s = t.value()->Run(); !s.ok()) return s;
       }
     }
+    return Status::Ok();
+  }
+
+  Status InsertNewGroups(RunState& st, std::vector<int64_t>* new_grp_out) {
+    const PriorJoin& j = *join_;
+    std::vector<int64_t>& new_grp = *new_grp_out;
     // New groups: key = smallest prompt hash, as the split stage computes it.
-    std::vector<int64_t> new_grp(j.new_groups.size(), -1);
+    new_grp.assign(j.new_groups.size(), -1);
     auto ig = db_->Prepare("INSERT INTO groups(gkey, split, first_batch) VALUES(?, ?, ?)");
     if (!ig.ok()) return ig.status();
     for (size_t k = 0; k < j.new_groups.size(); ++k) {
@@ -335,6 +368,12 @@ class StoreCompanion : public RunCompanion {
       ++new_groups_;
       in_new_groups_ += list.size();
     }
+    return Status::Ok();
+  }
+
+  Status InsertRecords(RunState& st, std::map<int64_t, int64_t>& parent, const std::vector<int64_t>& new_grp) {
+    const PriorJoin& j = *join_;
+    const size_t n = st.records.size();
     // Records, signatures, band keys, ties.
     auto ir = db_->Prepare(
         "INSERT INTO records(seq, batch, id, prompt, comparison, judgment, cluster, kept, grp, split) "
@@ -400,6 +439,7 @@ class StoreCompanion : public RunCompanion {
     }
     return Status::Ok();
   }
+
 
   static int64_t FindTarget(std::map<int64_t, int64_t>& parent, int64_t g) {
     for (;;) {
