@@ -147,7 +147,21 @@ class SplitStage : public Stage {
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
     }
-    const NearClusters* near = ctx.results.Find<NearClusters>();
+    FormGroups(st, kept, ctx.results.Find<NearClusters>());
+    AssignSplits(st);
+    if (prior_split.size() == n) KeepPriorSplits(prior_split);
+    RecordSplitsAndCheck(st, kept);
+    if (!s_.previous.empty()) {
+      Status s = ComparePrevious(st, ctx.fs);
+      if (!s.ok()) return s;
+    }
+    return Status::Ok();
+  }
+
+  // Groups: kept records tied by the plan's tie kinds (union-find), numbered
+  // by first kept member; each group's key is its smallest prompt hash.
+  void FormGroups(const RunState& st, const std::vector<uint32_t>& kept, const NearClusters* near) {
+    const size_t n = st.records.size();
     near_available_ = near && near->cluster.size() == n;
     sketch::UnionFind uf(static_cast<uint32_t>(n));
     std::vector<uint8_t> tie_bits(n, 0);  // per record: which tie kinds joined it
@@ -200,6 +214,11 @@ class SplitStage : public Stage {
       }
       group_of_[i] = it->second;
     }
+  }
+
+  // Each group's split: the hash of its key against the cumulative ratios, or
+  // (stratified) cut by records within its source.
+  void AssignSplits(const RunState& st) {
     std::vector<double> cum;
     double acc = 0;
     for (const auto& [name, r] : s_.splits) cum.push_back(acc += r);
@@ -234,15 +253,21 @@ class SplitStage : public Stage {
         }
       }
     }
-    // A store (docs/store.md): a group holding a record that inherits a
-    // stored split takes that split (JoinGroups checked they agree).
-    if (prior_split.size() == n) {
-      for (Group& g : groups_) {
-        for (uint32_t i : g.members) {
-          if (prior_split[i] >= 0) g.split = static_cast<uint32_t>(prior_split[i]);
-        }
+  }
+
+  // A store (docs/store.md): a group holding a record that inherits a stored
+  // split takes that split (JoinGroups checked they agree).
+  void KeepPriorSplits(const std::vector<int32_t>& prior_split) {
+    for (Group& g : groups_) {
+      for (uint32_t i : g.members) {
+        if (prior_split[i] >= 0) g.split = static_cast<uint32_t>(prior_split[i]);
       }
     }
+  }
+
+  // Every kept record's decision gets its group's split; the checks are read
+  // back from the decisions.
+  void RecordSplitsAndCheck(RunState& st, const std::vector<uint32_t>& kept) {
     st.split_names.clear();
     for (const auto& [name, r] : s_.splits) st.split_names.push_back(name);
     for (const Group& g : groups_) {
@@ -264,11 +289,6 @@ class SplitStage : public Stage {
     prompts_apart_ = apart.size();
     distinct_prompts_ = prompt_split.size();
     kept_ = kept.size();
-    if (!s_.previous.empty()) {
-      Status s = ComparePrevious(st, ctx.fs);
-      if (!s.ok()) return s;
-    }
-    return Status::Ok();
   }
 
   Status JoinStored(StageContext& ctx, std::vector<int32_t>* prior_split) const {
