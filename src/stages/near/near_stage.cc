@@ -274,6 +274,21 @@ class NearDupsStage : public Stage {
     }
     compared_ = kept.size();
     for (size_t i : kept) chars_records_ += chars_mode_[i];
+    if (Status s = ClusterKept(kept); !s.ok()) return s;
+    ctx.results.Publish(NearClusters{cluster_of_});
+    for (const auto& co : clusters_) {
+      records_in_clusters_ += co.members.size();
+      largest_ = std::max<uint64_t>(largest_, co.members.size());
+      ++size_histogram_[co.members.size()];
+    }
+    JudgeCandidates(st, kept);
+    CapClusters(st);
+    if (ctx.prior) return JoinStored(ctx);
+    return Status::Ok();
+  }
+
+  // 1. Clusters among the kept records (cluster_of_, clusters_).
+  Status ClusterKept(const std::vector<size_t>& kept) {
     const uint32_t K = s_.slots;
     // 1. Clusters among the kept records.
     if (kept.size() >= 2) {
@@ -321,13 +336,11 @@ class NearDupsStage : public Stage {
         cluster_of_[kept[j]] = static_cast<int64_t>(co.id);
       }
     }
-    ctx.results.Publish(NearClusters{cluster_of_});
-    for (const auto& co : clusters_) {
-      records_in_clusters_ += co.members.size();
-      largest_ = std::max<uint64_t>(largest_, co.members.size());
-      ++size_histogram_[co.members.size()];
-    }
-    // 2. Near-identical candidates within one comparison.
+    return Status::Ok();
+  }
+
+  // 2. Near-identical candidates within one comparison: flagged or rejected.
+  void JudgeCandidates(RunState& st, const std::vector<size_t>& kept) {
     if (s_.cand_action != CandidateAction::kOff) {
       for (size_t i : kept) {
         if (cand_pairs_[i].empty()) continue;
@@ -348,7 +361,10 @@ class NearDupsStage : public Stage {
         }
       }
     }
-    // 3. Cap per cluster: the first kept members in input order stay.
+  }
+
+  // 3. Cap per cluster: the first kept members in input order stay.
+  void CapClusters(RunState& st) {
     if (s_.max_per_cluster > 0) {
       for (auto& co : clusters_) {
         uint32_t stay = 0;
@@ -373,8 +389,6 @@ class NearDupsStage : public Stage {
         }
       }
     }
-    if (ctx.prior) return JoinStored(ctx);
-    return Status::Ok();
   }
 
   // A store: batch records join stored clusters (stages/prior_join.h).
