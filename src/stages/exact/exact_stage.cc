@@ -30,6 +30,28 @@ class ExactDupsStage : public Stage {
 
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
+    RejectDegenerate(st);
+    std::vector<std::vector<size_t>> groups;
+    std::vector<Hash128> judgment;
+    GroupByComparison(st, &groups, &judgment);
+    comparisons_ = groups.size();
+    // Resolve each group with more than one record.
+    uint64_t agree_pairs = 0, all_pairs = 0;
+    for (const auto& g : groups) {
+      if (g.size() >= 2) ResolveGroup(st, g, judgment, &agree_pairs, &all_pairs);
+    }
+    agreement_ = all_pairs ? static_cast<double>(agree_pairs) / static_cast<double>(all_pairs) : 1.0;
+    judged_pairs_ = all_pairs;
+    if (ctx.prior) {  // a store: comparisons it already holds (stages/prior_join.h)
+      PriorJoin join;
+      if (Status s = JoinComparisons(*ctx.prior, st, &join); !s.ok()) return s;
+      ctx.results.Publish(std::move(join));
+    }
+    return Status::Ok();
+  }
+
+  // 1. Degenerate comparisons: the same text ranked above itself.
+  void RejectDegenerate(RunState& st) {
     const size_t n = st.records.size();
     // 1. Degenerate comparisons.
     for (size_t i = 0; i < n; ++i) {
@@ -51,10 +73,17 @@ class ExactDupsStage : public Stage {
         if (done) break;
       }
     }
+  }
+
+  // 2. Kept records grouped by comparison key, in input order; each record's judgment.
+  void GroupByComparison(const RunState& st, std::vector<std::vector<size_t>>* groups_out,
+                         std::vector<Hash128>* judgment_out) {
+    const size_t n = st.records.size();
+    std::vector<std::vector<size_t>>& groups = *groups_out;
+    std::vector<Hash128>& judgment = *judgment_out;
+    judgment.assign(n, Hash128{});
     // 2. Group by comparison key, in input order.
     std::unordered_map<Hash128, size_t, Hash128Hasher> group_of;
-    std::vector<std::vector<size_t>> groups;
-    std::vector<Hash128> judgment(n);
     for (size_t i = 0; i < n; ++i) {
       if (!st.IsKept(i)) continue;
       Hash128 key = ComparisonKeyOf(st.records[i], &judgment[i]);
@@ -63,86 +92,81 @@ class ExactDupsStage : public Stage {
       groups[it->second].push_back(i);
     }
     comparisons_ = groups.size();
-    // 3. Resolve each group with more than one record.
-    uint64_t agree_pairs = 0, all_pairs = 0;
-    for (auto& g : groups) {
-      if (g.size() < 2) continue;
-      ++repeated_;
-      ConflictGroup cg;
-      cg.members = g;
-      std::vector<Hash128> distinct;
-      for (size_t i : g) {
-        auto it = std::find(distinct.begin(), distinct.end(), judgment[i]);
-        size_t j = static_cast<size_t>(it - distinct.begin());
-        if (it == distinct.end()) {
-          distinct.push_back(judgment[i]);
-          cg.judgment_count.push_back(0);
-        }
-        cg.judgment_of.push_back(j);
-        ++cg.judgment_count[j];
+  }
+
+  // 3. One comparison judged more than once: duplicates and label conflicts
+  // by the policy; agreeing pairs counted.
+  void ResolveGroup(RunState& st, const std::vector<size_t>& g, const std::vector<Hash128>& judgment,
+                    uint64_t* agree_pairs_out, uint64_t* all_pairs_out) {
+    uint64_t& agree_pairs = *agree_pairs_out;
+    uint64_t& all_pairs = *all_pairs_out;
+    ++repeated_;
+    ConflictGroup cg;
+    cg.members = g;
+    std::vector<Hash128> distinct;
+    for (size_t i : g) {
+      auto it = std::find(distinct.begin(), distinct.end(), judgment[i]);
+      size_t j = static_cast<size_t>(it - distinct.begin());
+      if (it == distinct.end()) {
+        distinct.push_back(judgment[i]);
+        cg.judgment_count.push_back(0);
       }
-      all_pairs += g.size() * (g.size() - 1) / 2;
-      for (uint64_t c : cg.judgment_count) agree_pairs += c * (c - 1) / 2;
-      const std::string& first_id = st.records[g[0]].id;
-      if (distinct.size() == 1) {
-        for (size_t k = 1; k < g.size(); ++k) {
-          if (st.Reject(g[k], name(), "duplicate_comparison", "the same comparison with the same judgment as " + first_id,
-                        Json{{"kept", first_id}}.dump())) {
+      cg.judgment_of.push_back(j);
+      ++cg.judgment_count[j];
+    }
+    all_pairs += g.size() * (g.size() - 1) / 2;
+    for (uint64_t c : cg.judgment_count) agree_pairs += c * (c - 1) / 2;
+    const std::string& first_id = st.records[g[0]].id;
+    if (distinct.size() == 1) {
+      for (size_t k = 1; k < g.size(); ++k) {
+        if (st.Reject(g[k], name(), "duplicate_comparison", "the same comparison with the same judgment as " + first_id,
+                      Json{{"kept", first_id}}.dump())) {
+          ++duplicates_;
+        }
+      }
+      return;
+    }
+    ++conflict_groups_;
+    conflict_records_ += g.size();
+    // The first record of each distinct judgment (input order).
+    std::vector<size_t> first_of(distinct.size(), SIZE_MAX);
+    for (size_t k = 0; k < g.size(); ++k) {
+      if (first_of[cg.judgment_of[k]] == SIZE_MAX) first_of[cg.judgment_of[k]] = k;
+    }
+    size_t best = static_cast<size_t>(
+        std::max_element(cg.judgment_count.begin(), cg.judgment_count.end()) - cg.judgment_count.begin());
+    bool majority = 2 * cg.judgment_count[best] > g.size();
+    for (size_t k = 0; k < g.size(); ++k) {
+      size_t rec = g[k];
+      size_t j = cg.judgment_of[k];
+      const std::string& head_id = st.records[g[first_of[j]]].id;
+      if (policy_ == ConflictPolicy::kDropAll) {
+        st.Reject(rec, name(), "label_conflict_dropped",
+                  "the same comparison was judged differently elsewhere; policy drop-all",
+                  Json{{"comparison_of", first_id}}.dump());
+      } else if (policy_ == ConflictPolicy::kKeepAll || (majority && j == best)) {
+        if (k != first_of[j]) {
+          if (st.Reject(rec, name(), "duplicate_comparison", "the same comparison with the same judgment as " + head_id,
+                        Json{{"kept", head_id}}.dump())) {
             ++duplicates_;
           }
         }
-        continue;
+      } else if (majority) {
+        st.Reject(rec, name(), "label_conflict_minority",
+                  "the majority of judgments of this comparison disagree with this one",
+                  Json{{"kept", st.records[g[first_of[best]]].id},
+                       {"majority_share", static_cast<double>(cg.judgment_count[best]) / static_cast<double>(g.size())}}
+                      .dump());
+      } else {
+        st.Reject(rec, name(), "label_conflict_no_majority",
+                  "the judgments of this comparison disagree and none has a majority",
+                  Json{{"comparison_of", first_id}, {"judgments", distinct.size()}}.dump());
       }
-      ++conflict_groups_;
-      conflict_records_ += g.size();
-      // The first record of each distinct judgment (input order).
-      std::vector<size_t> first_of(distinct.size(), SIZE_MAX);
-      for (size_t k = 0; k < g.size(); ++k) {
-        if (first_of[cg.judgment_of[k]] == SIZE_MAX) first_of[cg.judgment_of[k]] = k;
-      }
-      size_t best = static_cast<size_t>(
-          std::max_element(cg.judgment_count.begin(), cg.judgment_count.end()) - cg.judgment_count.begin());
-      bool majority = 2 * cg.judgment_count[best] > g.size();
-      for (size_t k = 0; k < g.size(); ++k) {
-        size_t rec = g[k];
-        size_t j = cg.judgment_of[k];
-        const std::string& head_id = st.records[g[first_of[j]]].id;
-        if (policy_ == ConflictPolicy::kDropAll) {
-          st.Reject(rec, name(), "label_conflict_dropped",
-                    "the same comparison was judged differently elsewhere; policy drop-all",
-                    Json{{"comparison_of", first_id}}.dump());
-        } else if (policy_ == ConflictPolicy::kKeepAll || (majority && j == best)) {
-          if (k != first_of[j]) {
-            if (st.Reject(rec, name(), "duplicate_comparison", "the same comparison with the same judgment as " + head_id,
-                          Json{{"kept", head_id}}.dump())) {
-              ++duplicates_;
-            }
-          }
-        } else if (majority) {
-          st.Reject(rec, name(), "label_conflict_minority",
-                    "the majority of judgments of this comparison disagree with this one",
-                    Json{{"kept", st.records[g[first_of[best]]].id},
-                         {"majority_share", static_cast<double>(cg.judgment_count[best]) / static_cast<double>(g.size())}}
-                        .dump());
-        } else {
-          st.Reject(rec, name(), "label_conflict_no_majority",
-                    "the judgments of this comparison disagree and none has a majority",
-                    Json{{"comparison_of", first_id}, {"judgments", distinct.size()}}.dump());
-        }
-      }
-      cg.resolution = policy_ == ConflictPolicy::kDropAll ? "dropped all"
-                      : policy_ == ConflictPolicy::kKeepAll ? "kept one per judgment"
-                      : majority ? "kept the majority" : "no majority: dropped all";
-      conflicts_.push_back(std::move(cg));
     }
-    agreement_ = all_pairs ? static_cast<double>(agree_pairs) / static_cast<double>(all_pairs) : 1.0;
-    judged_pairs_ = all_pairs;
-    if (ctx.prior) {  // a store: comparisons it already holds (stages/prior_join.h)
-      PriorJoin join;
-      if (Status s = JoinComparisons(*ctx.prior, st, &join); !s.ok()) return s;
-      ctx.results.Publish(std::move(join));
-    }
-    return Status::Ok();
+    cg.resolution = policy_ == ConflictPolicy::kDropAll ? "dropped all"
+                    : policy_ == ConflictPolicy::kKeepAll ? "kept one per judgment"
+                    : majority ? "kept the majority" : "no majority: dropped all";
+    conflicts_.push_back(std::move(cg));
   }
 
   void Figures(const RunState&, GateFigures* g) const override { g->label_conflict_records = conflict_records_; }
