@@ -79,17 +79,6 @@ bool ForEachLine(FileSystem* fs, const std::string& path, Fn fn) {
   return true;
 }
 
-// The string value of the first `"key":"` in a line, or "" (rejects.jsonl
-// writes input, file, line, id, stage and reason before the record, and any
-// quote inside a string value is escaped, so the first match is the key).
-std::string FirstString(std::string_view line, std::string_view key) {
-  std::string pat = "\"" + std::string(key) + "\":\"";
-  size_t at = line.find(pat);
-  if (at == std::string_view::npos) return "";
-  size_t from = at + pat.size(), to = line.find('"', from);
-  return to == std::string_view::npos ? "" : std::string(line.substr(from, to - from));
-}
-
 std::string Text(const Json& j, const char* key) {
   return j.is_object() && j.contains(key) && j[key].is_string() ? j[key].get<std::string>() : "";
 }
@@ -103,8 +92,8 @@ Json MaskedFinding(const Json& f) {
   return m;
 }
 
-// One example per stage and reason from rejects.jsonl (the first in file
-// order) and one per personal-data kind from the findings file. Examples never
+// The reject examples (passes.h RejectExamples) with their records' masked
+// findings, and one example per personal-data kind from the findings file. Examples never
 // carry record text: the place, the reason's sentence, and for records with
 // personal-data findings the findings' masked forms.
 struct Examples {
@@ -112,25 +101,14 @@ struct Examples {
   Json personal_data = Json::array();
 };
 
-Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summary) {
+Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summary, Json reject_examples) {
   Examples ex;
-  std::set<std::pair<std::string, std::string>> seen;
+  ex.rejects = std::move(reject_examples);
   std::map<std::pair<std::string, uint64_t>, size_t> example_of;  // (input, line) -> index in ex.rejects
-  ForEachLine(fs, out.StagingPath("rejects.jsonl"), [&](std::string_view line) {
-    std::string stage = FirstString(line, "stage"), reason = FirstString(line, "reason");
-    if (stage.empty() || !seen.insert({stage, reason}).second) return;
-    Json j = Json::parse(line, nullptr, false);
-    if (!j.is_object()) return;
-    Json e{{"stage", stage}, {"reason", reason}, {"input", Text(j, "input")}};
-    e["line"] = j.contains("line") ? j["line"] : Json(nullptr);
-    e["id"] = j.contains("id") ? j["id"] : Json(nullptr);
-    if (!Text(j, "field").empty()) e["field"] = Text(j, "field");
-    e["message"] = Text(j, "message");
-    if (j.contains("line") && j["line"].is_number_unsigned()) {
-      example_of[{Text(j, "input"), j["line"].get<uint64_t>()}] = ex.rejects.size();
-    }
-    ex.rejects.push_back(std::move(e));
-  });
+  for (size_t k = 0; k < ex.rejects.size(); ++k) {
+    const Json& e = ex.rejects[k];
+    if (e["line"].is_number_unsigned()) example_of[{Text(e, "input"), e["line"].get<uint64_t>()}] = k;
+  }
   const Json* sec = FindPath(summary, {"stages", "screen"});
   if (!sec) return ex;
   std::string name = Text(*sec, "findings_file").empty() ? "personal_data_findings.jsonl" : Text(*sec, "findings_file");
@@ -167,8 +145,9 @@ Status ValidateFinishPlan(const Plan& plan) {
 }
 
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, const Json& gate,
-                     const RunClock& clock, const std::vector<std::optional<FileDigest>>& input_digests) {
-  Examples ex = CollectExamples(fs, out, *summary);
+                     Json reject_examples, const RunClock& clock,
+                     const std::vector<std::optional<FileDigest>>& input_digests) {
+  Examples ex = CollectExamples(fs, out, *summary, std::move(reject_examples));
   (*summary)["gate"] = gate;
   (*summary)["examples"] = Json{
       {"note", "one rejected record per stage and reason (the first in rejects.jsonl) and one finding per "

@@ -29,12 +29,14 @@ namespace prefsift {
 Status ValidateFinishPlan(const Plan& plan);
 
 // Adds "gate" (decided before pass 2: DecideGate in report/gate.h),
-// "examples" (one reject per stage and reason, one finding per personal-data
-// kind, masked) and "provenance" to the summary. Hashes every input file and
-// every file already in `out`. REQUIRES: every output file except
-// summary.json is written and closed.
+// "examples" (`reject_examples`, passes.h RejectExamples, each with the masked
+// forms of its record's personal-data findings; one finding per personal-data
+// kind) and "provenance" to the summary. Hashes every input file and every
+// file already in `out`. REQUIRES: every output file except summary.json is
+// written and closed.
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
-                     const nlohmann::ordered_json& gate, const RunClock& clock = RunClock(),
+                     const nlohmann::ordered_json& gate, nlohmann::ordered_json reject_examples,
+                     const RunClock& clock = RunClock(),
                      const std::vector<std::optional<FileDigest>>& input_digests = {});
 
 // Writes datasheet.md, datasheet.json and report.html from the finished

@@ -380,10 +380,11 @@ Status ObservedRun::CheckInputs() const {
   return Status::Ok();
 }
 
-Status ObservedRun::Decide() {
-  StageResults results;
-  StageContext ctx{plan_, fs_, st_, results, nullptr};
-  auto gate = DecideStages(plan_, stages_, nullptr, ctx, command_stages_, &outcome_);
+Status ObservedRun::Decide(const PipelineOptions& options) {
+  results_ = std::make_unique<StageResults>();
+  results_->want_signatures = options.want_signatures;
+  StageContext ctx{plan_, fs_, st_, *results_, options.prior};
+  auto gate = DecideStages(plan_, stages_, options.companion, ctx, command_stages_, &outcome_);
   if (!gate.ok()) return gate.status();
   gate_ = std::make_unique<nlohmann::ordered_json>(std::move(gate).value());
   return Status::Ok();

@@ -29,6 +29,7 @@
 namespace prefsift {
 
 class Stage;
+class StageResults;
 struct InputIngest;
 
 // A part merged into a run, and where its entries and records sit.
@@ -63,9 +64,11 @@ class ObservedRun {
   // After the last part: every input of the plan was read to its end, and
   // each passes the sanity checks `run` makes after reading it.
   Status CheckInputs() const;
-  // Each stage's Decide, in pipeline order, then the gate (passes.h:
-  // DecideStages); gate() and outcome() hold the results.
-  Status Decide();
+  // Each stage's Decide, in pipeline order (options.companion's last, with
+  // options.prior as the stages' prior data), then the gate (passes.h:
+  // DecideStages); gate() and outcome() hold the results. The stages' typed
+  // results live as long as the run (a companion may read them afterwards).
+  Status Decide(const PipelineOptions& options = {});
   const nlohmann::ordered_json& gate() const { return *gate_; }
   const RunOutcome& outcome() const { return outcome_; }
 
@@ -88,6 +91,7 @@ class ObservedRun {
   FileSystem* fs_ = nullptr;
   std::vector<std::string> command_stages_;  // as given to Start
   std::unique_ptr<nlohmann::ordered_json> gate_;
+  std::unique_ptr<StageResults> results_;  // the stages' typed results (Decide)
   RunOutcome outcome_;
 };
 

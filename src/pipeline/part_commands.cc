@@ -134,7 +134,7 @@ Result<RunOutcome> DecideFromStates(const Plan& plan, const PipelineOptions& opt
   if (Status clear = CheckOutputClear(plan.output, ReadsOf(plan, options.stages, extra)); !clear.ok()) return clear;
   auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
   if (!out.ok()) return out.status();
-  if (Status s = run.Decide(); !s.ok()) return s;
+  if (Status s = run.Decide(options); !s.ok()) return s;
   RunState& st = run.state();
 
   // One decision file per part, then the stages' own files.
@@ -143,6 +143,9 @@ Result<RunOutcome> DecideFromStates(const Plan& plan, const PipelineOptions& opt
   }
   for (const auto& stage : run.stages()) {
     if (Status s = stage->WriteOutputs(st, *out.value()); !s.ok()) return s;
+  }
+  if (options.companion) {
+    if (Status s = options.companion->WriteOutputs(st, *out.value()); !s.ok()) return s;
   }
 
   // The lines pass 2 will write, per file (the ledger was counted when deciding).
@@ -158,35 +161,21 @@ Result<RunOutcome> DecideFromStates(const Plan& plan, const PipelineOptions& opt
     else ++written[OutputName(plan, st.split_names[d.split], st.entries[i].input)];
   }
 
-  Json summary = BuildSummary(plan, st, StageSections(run.stages(), nullptr, st), written);
-  // The summary's examples are read from rejects.jsonl (pipeline/finish.h),
-  // which `apply` writes per part: a stand-in with every reject's place and
-  // reason (no record) is there while the summary is finished, then removed.
-  {
-    std::string heads;
-    for (size_t i = 0; i < st.entries.size(); ++i) {
-      if (st.decisions[i].rejected) heads += RejectLine(plan, st, st.entries[i], st.decisions[i], "null");
-    }
-    if (Status s = out.value()->Write("rejects.jsonl", heads); !s.ok()) return s;
-  }
+  Json summary = BuildSummary(plan, st, StageSections(run.stages(), options.companion, st), written);
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
-  Status s = FinishSummary(plan, fs, *out.value(), &summary, run.gate(), clock);
-  if (Status rm = fs->RemoveAll(out.value()->StagingPath("rejects.jsonl")); s.ok()) s = rm;
-  if (!s.ok()) return s;
-  if (summary.contains("provenance") && summary["provenance"].contains("outputs")) {
-    Json kept = Json::array();
-    for (const auto& o : summary["provenance"]["outputs"]) {
-      if (o.value("file", "") != "rejects.jsonl") kept.push_back(o);
-    }
-    summary["provenance"]["outputs"] = std::move(kept);
+  if (Status s = FinishSummary(plan, fs, *out.value(), &summary, run.gate(), RejectExamples(plan, st), clock);
+      !s.ok()) {
+    return s;
+  }
+  if (summary.contains("provenance")) {
     summary["provenance"]["parts"] = Json{
         {"parts", run.merged_parts().size()},
         {"note", "decided from state files (prefsift decide); the split files and rejects.jsonl are written per part "
                  "by prefsift apply, and are not listed here"}};
   }
-  s = out.value()->Write("summary.json", summary.dump(2) + "\n");
+  Status s = out.value()->Write("summary.json", summary.dump(2) + "\n");
   if (s.ok()) s = WriteDocuments(plan, fs, *out.value(), summary);
   if (s.ok()) s = out.value()->Commit();
   if (!s.ok()) return s;

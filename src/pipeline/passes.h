@@ -88,6 +88,12 @@ std::string OutputName(const Plan& plan, const std::string& split, uint32_t inpu
 // read (or as rewritten).
 std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, const Decision& d, std::string_view raw);
 
+// The summary's reject examples: the first rejected line of each stage and
+// reason, in output order (input by input, line by line): its input, line, id,
+// field and message (texts with invalid UTF-8 replaced, as rejects.jsonl
+// writes them), never record text. From the decisions, so no file is read.
+nlohmann::ordered_json RejectExamples(const Plan& plan, const RunState& st);
+
 // Pass 2 of the whole plan, or of one part (then `st` holds that part's
 // entries only): every entry's line to its split file or rejects.jsonl in
 // `out` (every split file of every input is made, even when empty); lines

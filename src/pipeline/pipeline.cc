@@ -9,6 +9,7 @@
 #include <filesystem>
 #include <future>
 #include <optional>
+#include <set>
 #include <thread>
 
 #include "core/normalize.h"
@@ -426,6 +427,30 @@ std::string OutputName(const Plan& plan, const std::string& split, uint32_t inpu
   return split + "." + plan.inputs[input].name + ".jsonl";
 }
 
+Json RejectExamples(const Plan& plan, const RunState& st) {
+  Json examples = Json::array();
+  std::set<std::pair<std::string_view, std::string_view>> seen;
+  for (size_t i = 0; i < st.entries.size(); ++i) {
+    const Decision& d = st.decisions[i];
+    if (!d.rejected || d.stage.empty() || !seen.insert({d.stage, d.reason}).second) continue;
+    const Entry& e = st.entries[i];
+    const RejectText& t = st.RejectTextOf(d);
+    Json j;  // the texts as rejects.jsonl writes them (invalid UTF-8 replaced)
+    j["input"] = plan.inputs[e.input].name;
+    j["id"] = e.record >= 0 ? Json(st.records[e.record].id) : t.id.empty() ? Json(nullptr) : Json(t.id);
+    j["field"] = t.field;
+    j["message"] = t.message;
+    j = Json::parse(j.dump(-1, ' ', false, Json::error_handler_t::replace));
+    Json ex{{"stage", std::string(d.stage)}, {"reason", std::string(d.reason)}, {"input", j["input"]}};
+    ex["line"] = e.line;
+    ex["id"] = j["id"];
+    if (!t.field.empty()) ex["field"] = j["field"];
+    ex["message"] = j["message"];
+    examples.push_back(std::move(ex));
+  }
+  return examples;
+}
+
 std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, const Decision& d, std::string_view raw) {
   Json j;
   j["input"] = plan.inputs[e.input].name;
@@ -824,7 +849,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
   std::vector<std::optional<FileDigest>> input_digests;
   for (const auto& in : plan.inputs) input_digests.push_back(digesting.DigestOf(in.path));
-  s = FinishSummary(plan, fs, *out.value(), &summary, gate.value(), clock, input_digests);  // examples and provenance
+  s = FinishSummary(plan, fs, *out.value(), &summary, gate.value(), RejectExamples(plan, st), clock, input_digests);  // examples and provenance
   if (!s.ok()) return s;
   timer.Mark("provenance");
   s = out.value()->Write("summary.json", summary.dump(2) + "\n");
