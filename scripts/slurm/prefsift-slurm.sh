@@ -20,6 +20,8 @@
 #   --observe-mem M, --decide-mem M, --apply-mem M   memory per task for sbatch --mem (defaults 2G, 8G, 2G)
 #   --time T             time limit per task for sbatch --time (default 2:00:00)
 #   --no-collect         leave the outputs in WORK/apply/part-*/ (no concatenated copy)
+#   --store FILE         add the batch to this growing store in the decide step (decide --store;
+#                        docs/store.md): only the decide node opens it, so it need not be on the shared folder
 #   -- SBATCH_ARGS...    more sbatch options for every job (partition, account, ...)
 #
 # Prints the job ids (one line: "observe=ID decide=ID apply=ID collect=ID") on stdout.
@@ -36,7 +38,7 @@ set -euo pipefail
 usage() { sed -n '2,/^set -euo/p' "$0" | sed '$d; s/^# \{0,1\}//' >&2; exit 2; }
 die() { echo "prefsift-slurm: $*" >&2; exit 2; }
 
-plan="" work="" parts="" part_bytes="" bin="" threads=2 collect=1
+plan="" work="" parts="" part_bytes="" bin="" threads=2 collect=1 store=
 observe_mem=2G decide_mem=8G apply_mem=2G time_limit=2:00:00
 extra=()
 while [ $# -gt 0 ]; do
@@ -52,6 +54,7 @@ while [ $# -gt 0 ]; do
     --apply-mem) apply_mem="$2"; shift 2 ;;
     --time) time_limit="$2"; shift 2 ;;
     --no-collect) collect=0; shift ;;
+    --store) store="$2"; shift 2 ;;
     --) shift; extra=("$@"); break ;;
     -h|--help) usage ;;
     *) die "unknown option $1 (see --help)" ;;
@@ -66,6 +69,7 @@ if [ -z "$bin" ]; then bin="$(command -v prefsift || true)"; fi
 abs() { (cd "$(dirname "$1")" && echo "$(pwd)/$(basename "$1")"); }
 bin="$(abs "$bin")"
 plan="$(abs "$plan")"
+if [ -n "$store" ]; then store="$(abs "$store")"; fi
 mkdir -p "$work"
 work="$(cd "$work" && pwd)"
 mkdir -p "$work/states" "$work/apply" "$work/logs" "$work/jobs"
@@ -85,7 +89,7 @@ write_job() {  # name, body
     echo "#!/usr/bin/env bash"
     echo "# prefsift on Slurm, step $1 (written by scripts/slurm/prefsift-slurm.sh)."
     echo "set -euo pipefail"
-    printf 'BIN=%q\nPLAN=%q\nWORK=%q\nTHREADS=%q\nCOUNT=%q\n' "$bin" "$plan" "$work" "$threads" "$count"
+    printf 'BIN=%q\nPLAN=%q\nWORK=%q\nTHREADS=%q\nCOUNT=%q\nSTORE=%q\n' "$bin" "$plan" "$work" "$threads" "$count" "$store"
     echo 'part="${SLURM_ARRAY_TASK_ID:-0}"'
     echo 'name="$(printf "part-%06d" "$part")"'
     echo 'tmp_tag="tmp-${SLURM_JOB_ID:-$$}-$(hostname -s)"'
@@ -113,12 +117,23 @@ rc=0
 # The state files in part order (their names sort in part order).
 states=()
 for ((i = 0; i < COUNT; i++)); do states+=("$WORK/states/$(printf 'part-%06d' "$i").state"); done
-"$BIN" decide --plan "$PLAN" --threads "$THREADS" -q --out "$tmp" --state "${states[@]}" || rc=$?
-case "$rc" in 0|4|5|6) ;; *) echo "decide failed with exit code $rc" >&2; exit "$rc" ;; esac
-rm -rf "$final.old"
-if [ -e "$final" ]; then mv "$final" "$final.old"; fi
-mv "$tmp" "$final"
-rm -rf "$final.old"
+if [ -n "$STORE" ]; then
+  # With a store, prefsift writes the folder itself (atomically, before the
+  # store's commit): a re-run after a crash before the commit decides again
+  # the same way; one after the commit finds the batch already added and
+  # leaves the folder of the first run in place.
+  "$BIN" decide --plan "$PLAN" --threads "$THREADS" -q --store "$STORE" --overwrite --out "$final" \
+    --state "${states[@]}" || rc=$?
+  case "$rc" in 0|4|5|6) ;; *) echo "decide failed with exit code $rc" >&2; exit "$rc" ;; esac
+  [ -d "$final" ] || { echo "the store holds this batch but $final is missing" >&2; exit 3; }
+else
+  "$BIN" decide --plan "$PLAN" --threads "$THREADS" -q --out "$tmp" --state "${states[@]}" || rc=$?
+  case "$rc" in 0|4|5|6) ;; *) echo "decide failed with exit code $rc" >&2; exit "$rc" ;; esac
+  rm -rf "$final.old"
+  if [ -e "$final" ]; then mv "$final" "$final.old"; fi
+  mv "$tmp" "$final"
+  rm -rf "$final.old"
+fi
 echo "$rc" > "$WORK/.verdict.$tmp_tag" && mv -f "$WORK/.verdict.$tmp_tag" "$WORK/verdict"
 EOF
 

@@ -24,6 +24,7 @@
 #include "pipeline/parts.h"
 #include "pipeline/pipeline.h"
 #include "audit/split_audit.h"
+#include "store/add_batch.h"
 #include "stages/stage.h"
 #ifdef PREFSIFT_HAVE_STORE
 #include "cli/store_commands.h"  // growing stores (docs/store.md)
@@ -195,6 +196,8 @@ struct PartsCli {
   long long part = -1;
   std::vector<std::string> states;
   std::string decisions;
+  std::string store;  // decide: add the batch to this store (docs/store.md)
+  double wait_s = 30;
 };
 
 // The part numbered `pc.part` of parts.json (or of the whole-file parts).
@@ -231,27 +234,56 @@ int RunObserve(const PartsCli& pc, const std::vector<std::string>& stages) {
   return kExitOk;
 }
 
+// `decide --store`: the parts' batch added to a growing store, as `add` adds a
+// whole batch (docs/store.md, "A batch in parts").
+int RunDecideIntoStore(const PartsCli& pc, const Plan& plan) {
+  store::AddOptions o;
+  o.store_path = pc.store;
+  o.wait_ms = static_cast<int>(pc.wait_s * 1000);
+  o.table = !pc.common.quiet;
+  auto r = store::AddBatchFromStates(plan, o, pc.states, DefaultFileSystem(), stderr);
+  if (!r.ok()) return Fail(pc.common, r.status());
+  const store::AddOutcome& oc = r.value();
+  if (oc.already_added) {
+    std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
+                 static_cast<long long>(oc.batch));
+    return kExitOk;
+  }
+  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.strict});
+  if (oc.gate_failed) {
+    std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's decisions for review; the store is unchanged\n",
+                 plan.output.c_str());
+  } else if (!pc.common.quiet) {
+    std::fprintf(stderr, "added batch %lld to the store %s; wrote %s (apply each part next)\n",
+                 static_cast<long long>(oc.batch), pc.store.c_str(), plan.output.c_str());
+  }
+  if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
+  if (code == kExitStrict) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
+  }
+  return code;
+}
+
 int RunDecide(const PartsCli& pc, const std::vector<std::string>& stages) {
   auto plan = BuildPlan(pc.common);
   if (!plan.ok()) return Fail(pc.common, plan.status());
+  if (!pc.store.empty()) return RunDecideIntoStore(pc, plan.value());
   PipelineOptions opts;
   opts.stages = stages;
   opts.table = !pc.common.quiet;
   auto outcome = DecideFromStates(plan.value(), opts, pc.states, DefaultFileSystem(), stderr);
   if (!outcome.ok()) return Fail(pc.common, outcome.status());
   if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
-  if (outcome.value().nothing_kept()) {
+  const RunOutcome& oc = outcome.value();
+  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
+  if (code == kExitNothingKept) {
     std::fprintf(stderr, "prefsift: every one of the %llu records was rejected (exit %d)\n",
-                 static_cast<unsigned long long>(outcome.value().entries), kExitNothingKept);
-    return kExitNothingKept;
+                 static_cast<unsigned long long>(oc.entries), kExitNothingKept);
   }
-  if (outcome.value().gate_failed) return kExitGate;
-  if (plan.value().strict && outcome.value().rejected > 0) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
-                 static_cast<unsigned long long>(outcome.value().rejected));
-    return kExitStrict;
+  if (code == kExitStrict) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
   }
-  return kExitOk;
+  return code;
 }
 
 int RunApply(const PartsCli& pc, const std::vector<std::string>& stages) {
@@ -427,13 +459,18 @@ int prefsift::Main(int argc, char** argv) {
   }
   decide_cmd->add_option("--state", decide_o.states, "The parts' state files, in part order (repeatable)")
       ->required();
+  decide_cmd->add_option("--store", decide_o.store,
+                         "Add the batch to this store (SQLite; created when missing), as `add` does (docs/store.md)");
+  decide_cmd->add_option("--wait", decide_o.wait_s,
+                         "With --store: seconds to wait while another run writes the store (default 30), then exit 3");
   apply_cmd->add_option("--decisions", apply_o.decisions, "The part's decision file, from decide's output folder")
       ->required();
   observe_cmd->get_option("--out")->description("The state file to write");
   observe_cmd->footer(
       "\nExample:\n  prefsift observe --plan plan.json --parts parts.json --part 3 --out state/part-3.state\n");
   decide_cmd->footer(
-      "\nExample:\n  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --out decided\n");
+      "\nExamples:\n  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --out decided\n"
+      "  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --store lantern.db --out decided\n");
   apply_cmd->footer("\nExample:\n  prefsift apply --plan plan.json --parts parts.json --part 3 "
                     "--decisions decided/part-3.decisions --out parts-out/part-3\n");
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");

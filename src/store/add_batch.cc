@@ -11,6 +11,7 @@
 #include <ctime>
 #include <functional>
 #include <map>
+#include <optional>
 #include <set>
 #include <span>
 #include <unordered_map>
@@ -28,6 +29,7 @@
 #include "stages/exact/exact_stage.h"
 #include "stages/prior_join.h"
 #include "stages/split/split_stage.h"
+#include "pipeline/part_commands.h"
 #include "pipeline/pipeline.h"
 #include "stages/stage.h"
 #include "store/store_db.h"
@@ -533,25 +535,25 @@ Result<StoreSettings> StoreSettingsFromPlan(FileSystem* fs, const Plan& plan) {
   return out;
 }
 
-Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log) {
-  auto settings = StoreSettingsFromPlan(fs, plan);
-  if (!settings.ok()) return settings.status();
-  std::string path = options.store_path.empty() ? settings.value().path : options.store_path;
-  if (path.empty()) return Status::Usage("no store: pass --store FILE or set \"store\" in the plan");
-  if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
-  auto view = ReadSplitView(plan);
-  if (!view.ok()) return view.status();
-  // Digests of the batch: inputs, plan, evaluation sets.
+namespace {
+
+// What identifies a batch: its inputs' and evaluation sets' digests.
+struct BatchDigests {
   Json inputs = Json::array();
+  std::string inputs_digest;  // SHA-256 over the inputs' SHA-256s
+  Json evals = Json::array();
+};
+
+Result<BatchDigests> DigestBatch(const Plan& plan, FileSystem* fs) {
+  BatchDigests d;
   std::string joined;
   for (const auto& in : plan.inputs) {
-    auto d = DigestFile(fs, in.path);
-    if (!d.ok()) return d.status();
-    inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", d.value().sha256}});
-    joined += d.value().sha256 + "\n";
+    auto f = DigestFile(fs, in.path);
+    if (!f.ok()) return f.status();
+    d.inputs.push_back(Json{{"name", in.name}, {"path", in.path}, {"sha256", f.value().sha256}});
+    joined += f.value().sha256 + "\n";
   }
-  std::string inputs_digest = Sha256Hex(joined);
-  Json evals = Json::array();
+  d.inputs_digest = Sha256Hex(joined);
   const Json& leak = StageSettings(plan, "leakage");
   if (leak.contains("eval_sets") && leak["eval_sets"].is_array()) {
     std::string base = plan.plan_path.empty() ? "" : plan.plan_path.substr(0, plan.plan_path.rfind('/') + 1);
@@ -559,10 +561,67 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
       if (!e.is_object() || !e.contains("path") || !e["path"].is_string()) continue;
       std::string p = e["path"].get<std::string>();
       if (!p.empty() && p[0] != '/') p = base + p;
-      auto d = DigestFile(fs, p);
-      evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", d.ok() ? d.value().sha256 : "unreadable"}});
+      auto f = DigestFile(fs, p);
+      d.evals.push_back(Json{{"name", e.value("name", "")}, {"sha256", f.ok() ? f.value().sha256 : "unreadable"}});
     }
   }
+  return d;
+}
+
+// The batch already added with these inputs and this plan, if any.
+Result<std::optional<int64_t>> FindAddedBatch(StoreDb& store, const std::string& inputs_digest, const Plan& plan) {
+  auto q = store.Prepare("SELECT batch FROM batches WHERE inputs_digest = ? AND plan_digest = ?");
+  if (!q.ok()) return q.status();
+  q.value()->Bind(1, inputs_digest).Bind(2, plan.plan_digest);
+  Status err;
+  std::optional<int64_t> batch;
+  if (q.value()->Step(&err)) batch = q.value()->Int(0);
+  if (!err.ok()) return err;
+  return batch;
+}
+
+// The next batch number and the first record number after the stored ones.
+Result<std::pair<int64_t, int64_t>> NextBatch(StoreDb& store) {
+  auto q = store.Prepare("SELECT COALESCE(MAX(batch), 0) + 1, COALESCE(MAX(first_seq + records), 0) FROM batches");
+  if (!q.ok()) return q.status();
+  Status err;
+  std::pair<int64_t, int64_t> next{1, 0};
+  if (q.value()->Step(&err)) next = {q.value()->Int(0), q.value()->Int(1)};
+  if (!err.ok()) return err;
+  return next;
+}
+
+Status InsertBatchRow(StoreDb& store, const Plan& plan, const BatchDigests& d, int64_t batch, int64_t first_seq,
+                      const StoreCompanion& companion, const RunOutcome& run) {
+  auto ib = store.Prepare(
+      "INSERT INTO batches(batch, added_at, plan_digest, inputs_digest, inputs, eval_sets, first_seq, records, entries, "
+      "kept, rejected, stored, counts) VALUES(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
+  if (!ib.ok()) return ib.status();
+  Statement& b = *ib.value();
+  b.Bind(1, batch).Bind(2, UtcText(NowOrSourceDate())).Bind(3, plan.plan_digest).Bind(4, d.inputs_digest);
+  b.Bind(5, d.inputs.dump()).Bind(6, d.evals.dump()).Bind(7, first_seq);
+  b.Bind(8, static_cast<int64_t>(companion.records()));
+  b.Bind(9, static_cast<int64_t>(run.entries)).Bind(10, static_cast<int64_t>(run.kept));
+  b.Bind(11, static_cast<int64_t>(run.rejected)).Bind(12, static_cast<int64_t>(companion.stored()));
+  b.Bind(13, companion.Counts().dump());
+  return b.Run();
+}
+
+// Decides the batch against the store with `decide` (the whole pipeline, or
+// decide over parts' state files) inside one transaction, and commits the
+// store when the gate passes (docs/store.md).
+using DecideBatch = std::function<Result<RunOutcome>(const PipelineOptions&)>;
+
+Result<AddOutcome> AddWith(const Plan& plan, const AddOptions& options, FileSystem* fs, const DecideBatch& decide) {
+  auto settings = StoreSettingsFromPlan(fs, plan);
+  if (!settings.ok()) return settings.status();
+  std::string path = options.store_path.empty() ? settings.value().path : options.store_path;
+  if (path.empty()) return Status::Usage("no store: pass --store FILE or set \"store\" in the plan");
+  if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
+  auto view = ReadSplitView(plan);
+  if (!view.ok()) return view.status();
+  auto digests = DigestBatch(plan, fs);
+  if (!digests.ok()) return digests.status();
   auto db = StoreDb::Open(path, options.wait_ms, /*create=*/true);
   if (!db.ok()) return db.status();
   StoreDb& store = *db.value();
@@ -576,17 +635,12 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
     }
   } guard{&store};
   AddOutcome outcome;
-  {
-    auto q = store.Prepare("SELECT batch FROM batches WHERE inputs_digest = ? AND plan_digest = ?");
-    if (!q.ok()) return q.status();
-    q.value()->Bind(1, inputs_digest).Bind(2, plan.plan_digest);
-    Status err;
-    if (q.value()->Step(&err)) {
-      outcome.already_added = true;
-      outcome.batch = q.value()->Int(0);
-      return outcome;
-    }
-    if (!err.ok()) return err;
+  auto added = FindAddedBatch(store, digests.value().inputs_digest, plan);
+  if (!added.ok()) return added.status();
+  if (added.value()) {
+    outcome.already_added = true;
+    outcome.batch = *added.value();
+    return outcome;
   }
   auto stored_config = store.Meta("config");
   if (!stored_config.ok()) return stored_config.status();
@@ -595,17 +649,9 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
     return Status::Usage("store " + path + ": the plan's settings " + config + " differ from the store's " +
                          stored_config.value() + "; a store keeps one configuration (docs/store.md)");
   }
-  int64_t batch = 1, first_seq = 0;
-  {
-    auto q = store.Prepare("SELECT COALESCE(MAX(batch), 0) + 1, COALESCE(MAX(first_seq + records), 0) FROM batches");
-    if (!q.ok()) return q.status();
-    Status err;
-    if (q.value()->Step(&err)) {
-      batch = q.value()->Int(0);
-      first_seq = q.value()->Int(1);
-    }
-    if (!err.ok()) return err;
-  }
+  auto next = NextBatch(store);
+  if (!next.ok()) return next.status();
+  const auto [batch, first_seq] = next.value();
   StorePriorData prior(&store, settings.value().group_conflicts, first_seq);
   if (Status s = prior.Prepare(); !s.ok()) return s;
   StoreCompanion companion(&store, plan, view.value(), settings.value().group_conflicts, batch, first_seq);
@@ -618,40 +664,36 @@ Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSys
   popts.want_signatures = true;  // the store keeps the near stage's signatures
   popts.also_reads.push_back({path, "store"});
   // The batch row goes in from the companion's facts after the run; the
-  // output folder is committed inside RunPipeline, the store right after.
-  auto run = RunPipeline(plan, popts, fs, log);
+  // output folder is committed by `decide`, the store right after.
+  auto run = decide(popts);
   if (!run.ok()) return run.status();
-  if (run.value().gate_failed) {
-    // A batch that fails the gate is written out for review but not added.
-    outcome.gate_failed = true;
-    outcome.entries = run.value().entries;
-    outcome.kept = run.value().kept;
-    outcome.rejected = run.value().rejected;
-    return outcome;  // the guard rolls the transaction back
+  outcome.entries = run.value().entries;
+  outcome.kept = run.value().kept;
+  outcome.rejected = run.value().rejected;
+  outcome.gate_failed = run.value().gate_failed;
+  // A batch that fails the gate is written out for review but not added: the guard rolls back.
+  if (outcome.gate_failed) return outcome;
+  if (Status s = InsertBatchRow(store, plan, digests.value(), batch, first_seq, companion, run.value()); !s.ok()) {
+    return s;
   }
-  // Count parsed records from the outputs' ledger: the next batch's numbers start after them.
-  Json counts = companion.Counts();
-  auto ib = store.Prepare(
-      "INSERT INTO batches(batch, added_at, plan_digest, inputs_digest, inputs, eval_sets, first_seq, records, entries, "
-      "kept, rejected, stored, counts) VALUES(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)");
-  if (!ib.ok()) return ib.status();
-  Statement& b = *ib.value();
-  b.Bind(1, batch).Bind(2, UtcText(NowOrSourceDate())).Bind(3, plan.plan_digest).Bind(4, inputs_digest).Bind(5, inputs.dump());
-  b.Bind(6, evals.dump()).Bind(7, first_seq).Bind(8, static_cast<int64_t>(companion.records()));
-  b.Bind(9, static_cast<int64_t>(run.value().entries)).Bind(10, static_cast<int64_t>(run.value().kept));
-  b.Bind(11, static_cast<int64_t>(run.value().rejected)).Bind(12, static_cast<int64_t>(companion.stored()));
-  b.Bind(13, counts.dump());
-  if (Status s = b.Run(); !s.ok()) return s;
   MaybeKill("before-commit");
   if (Status s = store.Commit(); !s.ok()) return s;
   guard.armed = false;
   MaybeKill("after-commit");
   outcome.batch = batch;
-  outcome.entries = run.value().entries;
-  outcome.kept = run.value().kept;
-  outcome.rejected = run.value().rejected;
-  outcome.gate_failed = run.value().gate_failed;
   return outcome;
+}
+
+}  // namespace
+
+Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log) {
+  return AddWith(plan, options, fs, [&](const PipelineOptions& o) { return RunPipeline(plan, o, fs, log); });
+}
+
+Result<AddOutcome> AddBatchFromStates(const Plan& plan, const AddOptions& options,
+                                      const std::vector<std::string>& state_paths, FileSystem* fs, std::FILE* log) {
+  return AddWith(plan, options, fs,
+                 [&](const PipelineOptions& o) { return DecideFromStates(plan, o, state_paths, fs, log); });
 }
 
 }  // namespace prefsift::store

@@ -1,20 +1,22 @@
 // Incremental runs: one batch added to a growing store (docs/store.md).
 //
-// AddBatch runs the whole pipeline over the batch with a store companion
-// (stages/stage.h RunCompanion) that, between the stages:
-//   after exact   rejects records whose comparison key is already stored
-//                 (store_duplicate, or store_label_conflict when the stored
-//                 judgment differs);
-//   after near    matches the batch's signatures against the stored band keys
-//                 (same banding and verification as the near stage), so batch
-//                 records join stored clusters and bridged clusters merge;
-//   before split  ties batch records to stored groups (prompt, near cluster,
-//                 thread, annotator, group key as the plan's tie_by says);
-//                 a record inherits its stored group's split; a component tying
-//                 groups in different splits is rejected (store_group_conflict)
-//                 or, with the policy join-first, joins the group accepted
-//                 first (nothing stored moves);
-//   at the end    writes the batch's facts into the store.
+// AddBatch runs the whole pipeline over the batch with the store as the
+// stages' read-only prior data (stages/prior_data.h), and the stages decide
+// against it themselves (stages/prior_join.h):
+//   exact   rejects records whose comparison key is already stored
+//           (store_duplicate, or store_label_conflict when the stored
+//           judgment differs);
+//   near    matches the batch's signatures against the stored band keys
+//           (same banding and verification), so batch records join stored
+//           clusters and bridged clusters merge;
+//   split   ties batch records to stored groups (prompt, near cluster,
+//           thread, annotator, group key as the plan's tie_by says); a record
+//           inherits its stored group's split; a component tying groups in
+//           different splits is rejected (store_group_conflict) or, with the
+//           policy join-first, joins the group accepted first (nothing stored
+//           moves).
+// A store companion (stages/stage.h RunCompanion) runs after the last stage
+// and writes the batch's facts into the store.
 // The whole batch is one transaction (BEGIN IMMEDIATE before reading the
 // store, COMMIT after the output folder is in place).
 //
@@ -24,6 +26,7 @@
 
 #include <cstdio>
 #include <string>
+#include <vector>
 
 #include "core/plan.h"
 #include "core/status.h"
@@ -62,6 +65,15 @@ struct AddOutcome {
 // stages; "verify": "exact" (near) and "stratify_by": "source" (split) are
 // refused. REQUIRES: plan.output set.
 Result<AddOutcome> AddBatch(const Plan& plan, const AddOptions& options, FileSystem* fs, std::FILE* log);
+
+// The same, for a batch observed in parts (docs/parts.md): the parts' state
+// files (in part order, observed with every stage) are decided against the
+// store as AddBatch decides the whole batch, into plan.output (decision files,
+// summary, stage files, store_conflicts.jsonl); `prefsift apply` then writes
+// each part's outputs. Stored groups keep their splits; the store is changed
+// only when the gate passes, in one transaction.
+Result<AddOutcome> AddBatchFromStates(const Plan& plan, const AddOptions& options,
+                                      const std::vector<std::string>& state_paths, FileSystem* fs, std::FILE* log);
 
 // The "store" value of a plan file, read again through `fs` (usage errors
 // name the key).

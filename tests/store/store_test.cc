@@ -13,6 +13,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
@@ -578,6 +579,86 @@ TEST_F(StoreTest, StoreSettingsInThePlanAreChecked) {
   EXPECT_NE(r.err.find("store.policy: unknown key"), std::string::npos) << r.err;
   EXPECT_FALSE(fs::exists(dir_ + "/s.db"));
   EXPECT_FALSE(fs::exists(dir_ + "/o"));
+}
+
+// A batch observed in parts and added through `decide --store` (issue 20,
+// item 5) changes the store exactly as `add` of the whole batch does, and the
+// parts' outputs, concatenated in part order, are `add`'s. Three parts of the
+// second batch, the middle one empty; stored groups keep their splits.
+TEST_F(StoreTest, BatchInPartsAddsAsTheWholeBatch) {
+  ASSERT_EQ(Add(0).exit, 0);
+  fs::copy_file(Store(), dir_ + "/parts.db");
+  Json plan = Json::parse(Slurp(dir_ + "/plan.json"));
+  plan["inputs"][0]["path"] = "part2.jsonl";
+  std::ofstream(dir_ + "/plan2.json") << plan.dump(2);
+  const std::string plan2 = " --plan " + dir_ + "/plan2.json";
+  Ran whole = RunBin("add -q --threads 2 --store " + Store() + plan2 + " --out " + dir_ + "/whole");
+  ASSERT_EQ(whole.exit, 0) << whole.err;
+
+  // Parts: lines 1-400, nothing, lines 401-1000.
+  const std::string text = Slurp(Part(1));
+  size_t cut = 0;
+  for (int k = 0; k < 400; ++k) cut = text.find('\n', cut) + 1;
+  Json parts = {{"format", "prefsift-parts"}, {"version", 1}, {"parts", Json::array()}};
+  const Json ranges[3][3] = {{0, cut, 1}, {cut, cut, 401}, {cut, nullptr, 401}};
+  for (int k = 0; k < 3; ++k) {
+    parts["parts"].push_back(Json{{"part", k}, {"input", 0}, {"path", dir_ + "/part2.jsonl"}, {"begin", ranges[k][0]},
+                                  {"end", ranges[k][1]}, {"first_line", ranges[k][2]}});
+  }
+  std::ofstream(dir_ + "/parts.json") << parts.dump(2);
+  std::string states;
+  for (int k = 0; k < 3; ++k) {
+    const std::string state = dir_ + "/part-" + std::to_string(k) + ".state";
+    Ran o = RunBin("observe -q" + plan2 + " --parts " + dir_ + "/parts.json --part " + std::to_string(k) + " --out " +
+                   state);
+    ASSERT_EQ(o.exit, 0) << o.err;
+    states += " " + state;
+  }
+  const std::string decide = "decide -q" + plan2 + " --store " + dir_ + "/parts.db --state" + states + " --out ";
+  Ran d = RunBin(decide + dir_ + "/decided");
+  ASSERT_EQ(d.exit, 0) << d.err;
+  std::string joined_rejects, joined_splits[3];
+  const char* splits[3] = {"train", "valid", "test"};
+  for (int k = 0; k < 3; ++k) {
+    const std::string out = dir_ + "/applied" + std::to_string(k);
+    Ran a = RunBin("apply -q" + plan2 + " --parts " + dir_ + "/parts.json --part " + std::to_string(k) +
+                   " --decisions " + dir_ + "/decided/part-" + std::to_string(k) + ".decisions --out " + out);
+    ASSERT_EQ(a.exit, 0) << a.err;
+    joined_rejects += Slurp(out + "/rejects.jsonl");
+    for (int s = 0; s < 3; ++s) joined_splits[s] += Slurp(out + "/" + splits[s] + ".jsonl");
+  }
+
+  // The store: the same content digest (SOURCE_DATE_EPOCH fixes the batch time).
+  auto a = StoreContentDigest(Store()), b = StoreContentDigest(dir_ + "/parts.db");
+  ASSERT_TRUE(a.ok() && b.ok());
+  EXPECT_EQ(a.value(), b.value());
+  EXPECT_EQ(IntegrityCheck(dir_ + "/parts.db"), "ok");
+  // The outputs: split files and rejects concatenated in part order, the
+  // store's conflicts file, and the summary's store section.
+  EXPECT_EQ(joined_rejects, Slurp(dir_ + "/whole/rejects.jsonl"));
+  size_t kept = 0;
+  for (int s = 0; s < 3; ++s) {
+    EXPECT_EQ(joined_splits[s], Slurp(dir_ + "/whole/" + splits[s] + ".jsonl")) << splits[s];
+    kept += std::count(joined_splits[s].begin(), joined_splits[s].end(), '\n');
+  }
+  EXPECT_GT(kept, 800u);
+  EXPECT_EQ(Slurp(dir_ + "/decided/store_conflicts.jsonl"), Slurp(dir_ + "/whole/store_conflicts.jsonl"));
+  Json sw = Json::parse(Slurp(dir_ + "/whole/summary.json")), sp = Json::parse(Slurp(dir_ + "/decided/summary.json"));
+  sp["stages"]["store"].erase("store");  // the two stores' paths
+  sw["stages"]["store"].erase("store");
+  EXPECT_EQ(sp["stages"]["store"], sw["stages"]["store"]);
+  EXPECT_GT(sw["stages"]["store"]["groups"]["records_inheriting_a_split"].get<int>(), 0);
+  EXPECT_GT(sw["stages"]["store"]["exact"]["store_duplicates"].get<int>(), 0);
+  EXPECT_EQ(sp["examples"], sw["examples"]);
+  EXPECT_EQ(sp["gate"], sw["gate"]);
+
+  // The same parts again: already added, nothing changes.
+  Ran again = RunBin(decide + dir_ + "/decided-again");
+  EXPECT_EQ(again.exit, 0) << again.err;
+  EXPECT_NE(again.err.find("already added as batch 2"), std::string::npos) << again.err;
+  auto c = StoreContentDigest(dir_ + "/parts.db");
+  ASSERT_TRUE(c.ok());
+  EXPECT_EQ(c.value(), b.value());
 }
 
 // shard-sign over the three parts + merge gives the near stage's clusters over

@@ -17,6 +17,7 @@
 
 #include <chrono>
 #include <filesystem>
+#include <fstream>
 #include <map>
 #include <set>
 #include <sstream>
@@ -287,6 +288,58 @@ TEST(SlurmCluster, JobScriptMatchesOneMachineRun) {
             0)
       << again;
   EXPECT_NE(again.find("observe=- decide=- apply=- collect=-"), std::string::npos) << again;
+
+  // 3. A growing store fed from parts (issue 20, item 5): the samples' second
+  // half added by the job script with --store equals `prefsift add` of the
+  // whole half on a copy of the same store (history and every record file).
+  const std::string sd = cluster.dir() + "/store";
+  fs::create_directories(sd);
+  std::string lines = ReadFile(SourceDir() + "/samples/comparisons.jsonl");
+  size_t half = 0;
+  for (int k = 0; k < 1500; ++k) half = lines.find('\n', half) + 1;
+  std::ofstream(sd + "/b1.jsonl") << lines.substr(0, half);
+  std::ofstream(sd + "/b2.jsonl") << lines.substr(half);
+  std::string store_plan = ReadFile(SourceDir() + "/samples/store-plan.json");
+  for (int b = 1; b <= 2; ++b) {
+    std::string p = store_plan;
+    p.replace(p.find("\"comparisons.jsonl\""), 19, "\"" + sd + "/b" + std::to_string(b) + ".jsonl\"");
+    std::ofstream(sd + "/p" + std::to_string(b) + ".json") << p;
+  }
+  const std::string env = "SOURCE_DATE_EPOCH=1775000000 ";
+  const std::string bin = std::string(PREFSIFT_BINARY);
+  std::string out;
+  ASSERT_EQ(Shell(env + bin + " add -q --plan " + Quote(sd + "/p1.json") + " --store " + Quote(sd + "/one.db") +
+                      " --out " + Quote(sd + "/o1"), &out), 0) << out;
+  fs::copy_file(sd + "/one.db", sd + "/cluster.db");
+  ASSERT_EQ(Shell(env + bin + " add -q --plan " + Quote(sd + "/p2.json") + " --store " + Quote(sd + "/one.db") +
+                      " --out " + Quote(sd + "/o2"), &out), 0) << out;
+  std::string submitted2;
+  ASSERT_EQ(Shell(env + cluster.Env() + Quote(SourceDir() + "/scripts/slurm/prefsift-slurm.sh") + " --plan " +
+                      Quote(sd + "/p2.json") + " --work " + Quote(sd + "/work") + " --parts 3 --threads 1" +
+                      " --store " + Quote(sd + "/cluster.db") + " --observe-mem 1G --decide-mem 2G --apply-mem 1G" +
+                      " --prefsift " + Quote(PREFSIFT_BINARY), &submitted2), 0) << submitted2;
+  std::vector<std::string> jobs2;
+  for (const char* step : {"observe", "decide", "apply", "collect"}) jobs2.push_back(JobId(submitted2, step));
+  std::string waited2 = cluster.Wait(jobs2, kJobSeconds);
+  if (!waited2.empty()) {
+    std::string logs;
+    Shell("tail -n 20 " + Quote(sd + "/work") + "/logs/*.out", &logs);
+    FAIL() << waited2 << "\n" << logs << cluster.Logs();
+  }
+  EXPECT_EQ(ReadFile(sd + "/work/verdict"), "0\n");
+  std::string h1, h2;
+  ASSERT_EQ(Shell(bin + " history --store " + Quote(sd + "/one.db"), &h1), 0);
+  ASSERT_EQ(Shell(bin + " history --store " + Quote(sd + "/cluster.db"), &h2), 0);
+  EXPECT_EQ(h1, h2);
+  EXPECT_NE(h2.find("\n    2  "), std::string::npos) << h2;  // the second batch is in
+  size_t files = 0;
+  for (const auto& e : fs::directory_iterator(sd + "/o2")) {
+    if (e.path().extension() != ".jsonl") continue;
+    EXPECT_TRUE(ReadFile(sd + "/work/out/" + e.path().filename().string()) == ReadFile(e.path().string()))
+        << e.path().filename() << " differs";
+    ++files;
+  }
+  EXPECT_GE(files, 5u);  // the splits, rejects and store_conflicts.jsonl at least
 }
 
 }  // namespace
