@@ -24,7 +24,9 @@
 #include "pipeline/parts.h"
 #include "pipeline/pipeline.h"
 #include "audit/split_audit.h"
+#ifdef PREFSIFT_HAVE_STORE
 #include "store/add_batch.h"
+#endif
 #include "stages/stage.h"
 #ifdef PREFSIFT_HAVE_STORE
 #include "cli/store_commands.h"  // growing stores (docs/store.md)
@@ -237,6 +239,9 @@ int RunObserve(const PartsCli& pc, const std::vector<std::string>& stages) {
 // `decide --store`: the parts' batch added to a growing store, as `add` adds a
 // whole batch (docs/store.md, "A batch in parts").
 int RunDecideIntoStore(const PartsCli& pc, const Plan& plan) {
+#ifndef PREFSIFT_HAVE_STORE
+  return Fail(pc.common, Status::Usage("--store: this prefsift was built without growing stores (SQLite)"));
+#else
   store::AddOptions o;
   o.store_path = pc.store;
   o.wait_ms = static_cast<int>(pc.wait_s * 1000);
@@ -262,6 +267,7 @@ int RunDecideIntoStore(const PartsCli& pc, const Plan& plan) {
     std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
   }
   return code;
+#endif
 }
 
 int RunDecide(const PartsCli& pc, const std::vector<std::string>& stages) {
