@@ -9,24 +9,18 @@
 #include <algorithm>
 #include <cstdio>
 #include <iostream>
-#include <tuple>
 
+#include "cli/common_options.h"
 #include "cli/cut_command.h"
+#include "cli/parts_commands.h"
 #include "cli/exit_codes.h"
 #include "cli/stage_options.h"
-#include "core/limits.h"
 #include "core/plan.h"
 #include "io/file_system.h"
 #include "io/signal_cleanup.h"
 #include "prefsift_version.h"
-#include "pipeline/observed_state.h"
-#include "pipeline/part_commands.h"
-#include "pipeline/parts.h"
 #include "pipeline/pipeline.h"
 #include "audit/split_audit.h"
-#ifdef PREFSIFT_HAVE_STORE
-#include "store/add_batch.h"
-#endif
 #include "stages/stage.h"
 #ifdef PREFSIFT_HAVE_STORE
 #include "cli/store_commands.h"  // growing stores (docs/store.md)
@@ -36,126 +30,6 @@ namespace prefsift {
 namespace {
 
 using Json = nlohmann::ordered_json;
-
-
-// Options every record-reading subcommand shares.
-struct CommonOptions {
-  std::vector<std::string> inputs;
-  std::string plan_path;
-  std::string layout = "";
-  std::vector<std::string> fields;
-  std::string out;
-  bool overwrite = false;
-  bool strict = false;
-  unsigned threads = 0;
-  bool quiet = false;
-  bool timings = false;
-  bool progress = false;
-  double progress_seconds = 5;
-  long long seed = -1;
-  StageOptions stage;  // the stages' essential settings (cli/stage_options.h)
-  // Input limits (docs/hardening.md); 0 = the plan's value or the default.
-  size_t max_line_bytes = 0, max_depth = 0, max_candidates = 0, max_text_bytes = 0;
-  double max_reject_share = 0;
-};
-
-void AddCommon(CLI::App* cmd, CommonOptions* o) {
-  cmd->add_option("inputs", o->inputs, "Input JSONL files (plain, .gz or .zst); or give them in --plan");
-  cmd->add_option("-p,--plan", o->plan_path, "Plan file (JSON, comments allowed): inputs, layouts, stage settings");
-  cmd->add_option("--layout", o->layout, "Layout preset for inputs named on the command line (see `prefsift layouts`)");
-  cmd->add_option("--field", o->fields,
-                  "Map one field with a JSON Pointer, KEY=POINTER, e.g. --field prompt=/question "
-                  "--field candidates=/answers --field ranks=/ranking (repeatable)");
-  cmd->add_option("-o,--out", o->out, "Output folder (must not exist unless --overwrite)");
-  cmd->add_flag("--overwrite", o->overwrite, "Replace an existing output folder (atomically, at the end)");
-  cmd->add_flag("--strict", o->strict, "Exit with code 5 if any record is rejected");
-  cmd->add_option("--threads", o->threads, "Worker threads (default: all cores); results do not depend on it");
-  cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
-  cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
-  cmd->add_flag("--timings", o->timings, "Print the wall time of each phase and stage on stderr (not in any output file)");
-  cmd->add_flag("--progress", o->progress,
-                "When stderr is not a terminal (logs, CI), print a progress line every 5 seconds (on a terminal "
-                "the line is always shown)");
-  cmd->add_option("--progress-seconds", o->progress_seconds, "Seconds between those lines (default 5)")
-      ->check(CLI::NonNegativeNumber);
-  // Input limits override the plan's limits.* (a record over one is rejected with its reason).
-  CLI::Option_group* lim = cmd->add_option_group("Limits", "Input limits (plan: limits.*); over a limit = reject");
-  lim->add_option("--max-line-bytes", o->max_line_bytes, "Longest input line in bytes (default 64 MiB)");
-  lim->add_option("--max-depth", o->max_depth, "Deepest JSON nesting (default 128, at most 1024)");
-  lim->add_option("--max-candidates", o->max_candidates, "Most candidates per record (default 256)");
-  lim->add_option("--max-text-bytes", o->max_text_bytes, "Longest prompt, turn or candidate text in bytes (default 4 MiB)");
-  lim->add_option("--max-reject-share", o->max_reject_share,
-                  "Stop (exit 8) when one ingest reason rejects more than this share of a file (default 0.5; 1 = never)");
-}
-
-Result<Plan> BuildPlan(const CommonOptions& o) {
-  Plan plan;
-  if (!o.plan_path.empty()) {
-    auto loaded = LoadPlanFile(DefaultFileSystem(), o.plan_path);
-    if (!loaded.ok()) return loaded.status();
-    plan = std::move(loaded).value();
-  }
-  if (!o.inputs.empty()) {
-    Json spec = Json::object();
-    if (!o.layout.empty()) spec["preset"] = o.layout;
-    for (const auto& f : o.fields) {
-      auto eq = f.find('=');
-      if (eq == std::string::npos || eq == 0) {
-        return Status::Usage("--field " + f + ": expected KEY=POINTER, e.g. prompt=/question");
-      }
-      std::string key = f.substr(0, eq), value = f.substr(eq + 1);
-      if (key == "choice_base" || key == "rank_base") {
-        if (value != "0" && value != "1") return Status::Usage("--field " + key + "=" + value + ": must be 0 or 1");
-        spec[key] = std::stoi(value);
-      } else if (key == "user_roles" || key == "system_roles") {
-        Json roles = Json::array();  // comma-separated on the command line
-        size_t start = 0;
-        while (start <= value.size()) {
-          size_t comma = value.find(',', start);
-          if (comma == std::string::npos) comma = value.size();
-          if (comma > start) roles.push_back(value.substr(start, comma - start));
-          start = comma + 1;
-        }
-        spec[key] = roles;
-      } else {
-        spec[key] = value;
-      }
-    }
-    if (spec.empty()) {
-      return Status::Usage("inputs on the command line need a layout: --layout PRESET and/or --field KEY=POINTER");
-    }
-    for (size_t i = 0; i < o.inputs.size(); ++i) {
-      Status s = AddInput(&plan, o.inputs[i], spec, "command line");
-      if (!s.ok()) return s;
-    }
-  } else if (!o.layout.empty() || !o.fields.empty()) {
-    return Status::Usage("--layout and --field apply to inputs named on the command line; none were given");
-  }
-  if (Status s = ApplyStageOptions(o.stage, &plan); !s.ok()) return s;
-  if (!o.out.empty()) plan.output = o.out;
-  if (o.overwrite) plan.overwrite = true;
-  if (o.strict) plan.strict = true;
-  if (o.threads) plan.threads = o.threads;
-  if (o.seed >= 0) plan.seed = static_cast<uint64_t>(o.seed);
-  for (auto [flag, key, v] : {std::tuple{"--max-line-bytes", "max_line_bytes", o.max_line_bytes},
-                              std::tuple{"--max-depth", "max_depth", o.max_depth},
-                              std::tuple{"--max-candidates", "max_candidates", o.max_candidates},
-                              std::tuple{"--max-text-bytes", "max_text_bytes", o.max_text_bytes}}) {
-    if (v == 0) continue;
-    Status s = LimitsFromJson(Json{{key, v}}, "limits", &plan.limits);
-    if (!s.ok()) return Status::Usage(std::string(flag) + ": " + s.message());
-  }
-  if (o.max_reject_share != 0) {
-    Status s = LimitsFromJson(Json{{"max_reject_share", o.max_reject_share}}, "limits", &plan.limits);
-    if (!s.ok()) return Status::Usage(std::string("--max-reject-share: ") + s.message());
-  }
-  return plan;
-}
-
-// A usage error about a plan setting, with its place in the plan file.
-std::string PlanMessage(const CommonOptions& o, const Status& s) {
-  return s.code() == StatusCode::kUsage ? PlaceInPlanFile(DefaultFileSystem(), o.plan_path, s.message()) : s.message();
-}
 
 int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, const std::string& command) {
   auto plan = BuildPlan(o);
@@ -188,119 +62,6 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
     std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
   }
   return code;
-}
-
-// `prefsift observe`, `decide` and `apply`: the pipeline over parts of the
-// inputs, for many machines (docs/parts.md).
-struct PartsCli {
-  CommonOptions common;
-  std::string parts;             // parts.json; "" = one whole-file part per input
-  long long part = -1;
-  std::vector<std::string> states;
-  std::string decisions;
-  std::string store;  // decide: add the batch to this store (docs/store.md)
-  double wait_s = 30;
-};
-
-// The part numbered `pc.part` of parts.json (or of the whole-file parts).
-Result<Part> PickPart(const PartsCli& pc, const Plan& plan) {
-  std::vector<Part> parts = WholeInputParts(plan);
-  if (!pc.parts.empty()) {
-    auto text = ReadWholeFile(DefaultFileSystem(), pc.parts);
-    if (!text.ok()) return text.status();
-    auto parsed = ParsePartsJson(text.value(), pc.parts, &plan);
-    if (!parsed.ok()) return parsed.status();
-    parts = std::move(parsed).value();
-  }
-  if (pc.part < 0 || static_cast<size_t>(pc.part) >= parts.size()) {
-    return Status::Usage("--part " + std::to_string(pc.part) + ": there are " + std::to_string(parts.size()) +
-                         " part(s), numbered from 0" + (pc.parts.empty() ? " (one per input without --parts)" : ""));
-  }
-  return parts[static_cast<size_t>(pc.part)];
-}
-
-int Fail(const CommonOptions& o, const Status& s) {
-  std::fprintf(stderr, "prefsift: %s\n", PlanMessage(o, s).c_str());
-  return ExitFor(s);
-}
-
-int RunObserve(const PartsCli& pc, const std::vector<std::string>& stages) {
-  auto plan = BuildPlan(pc.common);
-  if (!plan.ok()) return Fail(pc.common, plan.status());
-  if (pc.common.out.empty()) return Fail(pc.common, Status::Usage("--out: name the state file to write"));
-  auto part = PickPart(pc, plan.value());
-  if (!part.ok()) return Fail(pc.common, part.status());
-  Status s = ObservePartToFile(plan.value(), stages, part.value(), DefaultFileSystem(), pc.common.out);
-  if (!s.ok()) return Fail(pc.common, s);
-  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", pc.common.out.c_str());
-  return kExitOk;
-}
-
-// `decide --store`: the parts' batch added to a growing store, as `add` adds a
-// whole batch (docs/store.md, "A batch in parts").
-int RunDecideIntoStore(const PartsCli& pc, const Plan& plan) {
-#ifndef PREFSIFT_HAVE_STORE
-  return Fail(pc.common, Status::Usage("--store: this prefsift was built without growing stores (SQLite)"));
-#else
-  store::AddOptions o;
-  o.store_path = pc.store;
-  o.wait_ms = static_cast<int>(pc.wait_s * 1000);
-  o.table = !pc.common.quiet;
-  auto r = store::AddBatchFromStates(plan, o, pc.states, DefaultFileSystem(), stderr);
-  if (!r.ok()) return Fail(pc.common, r.status());
-  const store::AddOutcome& oc = r.value();
-  if (oc.already_added) {
-    std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
-                 static_cast<long long>(oc.batch));
-    return kExitOk;
-  }
-  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.strict});
-  if (oc.gate_failed) {
-    std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's decisions for review; the store is unchanged\n",
-                 plan.output.c_str());
-  } else if (!pc.common.quiet) {
-    std::fprintf(stderr, "added batch %lld to the store %s; wrote %s (apply each part next)\n",
-                 static_cast<long long>(oc.batch), pc.store.c_str(), plan.output.c_str());
-  }
-  if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
-  if (code == kExitStrict) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
-  }
-  return code;
-#endif
-}
-
-int RunDecide(const PartsCli& pc, const std::vector<std::string>& stages) {
-  auto plan = BuildPlan(pc.common);
-  if (!plan.ok()) return Fail(pc.common, plan.status());
-  if (!pc.store.empty()) return RunDecideIntoStore(pc, plan.value());
-  PipelineOptions opts;
-  opts.stages = stages;
-  opts.table = !pc.common.quiet;
-  auto outcome = DecideFromStates(plan.value(), opts, pc.states, DefaultFileSystem(), stderr);
-  if (!outcome.ok()) return Fail(pc.common, outcome.status());
-  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
-  const RunOutcome& oc = outcome.value();
-  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
-  if (code == kExitNothingKept) {
-    std::fprintf(stderr, "prefsift: every one of the %llu records was rejected (exit %d)\n",
-                 static_cast<unsigned long long>(oc.entries), kExitNothingKept);
-  }
-  if (code == kExitStrict) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
-  }
-  return code;
-}
-
-int RunApply(const PartsCli& pc, const std::vector<std::string>& stages) {
-  auto plan = BuildPlan(pc.common);
-  if (!plan.ok()) return Fail(pc.common, plan.status());
-  auto part = PickPart(pc, plan.value());
-  if (!part.ok()) return Fail(pc.common, part.status());
-  auto outcome = ApplyPart(plan.value(), stages, part.value(), pc.decisions, DefaultFileSystem());
-  if (!outcome.ok()) return Fail(pc.common, outcome.status());
-  if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());
-  return kExitOk;
 }
 
 // `prefsift audit`: train/held-out leakage check of existing files (docs/leakage.md).
@@ -359,12 +120,6 @@ std::string SuggestionFor(const std::string& typed, const std::vector<std::strin
     }
   }
   return best.empty() ? "" : " (did you mean \"" + best + "\"?)";
-}
-
-std::vector<std::string> AllStageNames() {
-  std::vector<std::string> names;
-  for (const auto& s : AllStages()) names.push_back(s.name);
-  return names;
 }
 
 }  // namespace
@@ -446,39 +201,7 @@ int prefsift::Main(int argc, char** argv) {
   audit_cmd->add_flag("--by-annotator", audit.by_annotator, "Also report annotators who appear on both sides");
   audit_cmd->add_flag("--gate", audit.gate, "Exit with code 4 if any leakage is found");
   audit_cmd->footer("\nExample:\n  prefsift audit --train train.jsonl --heldout test.jsonl --layout pairwise -o audit-out\n");
-  // The pipeline over parts (docs/parts.md): observe, decide, apply.
-  PartsCli observe_o, decide_o, apply_o;
-  CLI::App* observe_cmd = app.add_subcommand(
-      "observe", "Pass 1 over one part of the inputs: its observed state to a state file (for many machines)");
-  CLI::App* decide_cmd = app.add_subcommand(
-      "decide", "Decide over the state files of all parts: decision files, summary, datasheet, report, gate");
-  CLI::App* apply_cmd = app.add_subcommand(
-      "apply", "Pass 2 over one part with its decision file: the part's split files and rejects.jsonl");
-  for (auto [cmd, o] : {std::pair{observe_cmd, &observe_o}, std::pair{decide_cmd, &decide_o},
-                        std::pair{apply_cmd, &apply_o}}) {
-    AddCommon(cmd, &o->common);
-    AddStageOptions(cmd, AllStageNames(), &o->common.stage);
-  }
-  for (auto [cmd, o] : {std::pair{observe_cmd, &observe_o}, std::pair{apply_cmd, &apply_o}}) {
-    cmd->add_option("--parts", o->parts, "parts.json: the parts of the inputs (default: one whole-file part per input)");
-    cmd->add_option("--part", o->part, "The part to read, numbered from 0")->required();
-  }
-  decide_cmd->add_option("--state", decide_o.states, "The parts' state files, in part order (repeatable)")
-      ->required();
-  decide_cmd->add_option("--store", decide_o.store,
-                         "Add the batch to this store (SQLite; created when missing), as `add` does (docs/store.md)");
-  decide_cmd->add_option("--wait", decide_o.wait_s,
-                         "With --store: seconds to wait while another run writes the store (default 30), then exit 3");
-  apply_cmd->add_option("--decisions", apply_o.decisions, "The part's decision file, from decide's output folder")
-      ->required();
-  observe_cmd->get_option("--out")->description("The state file to write");
-  observe_cmd->footer(
-      "\nExample:\n  prefsift observe --plan plan.json --parts parts.json --part 3 --out state/part-3.state\n");
-  decide_cmd->footer(
-      "\nExamples:\n  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --out decided\n"
-      "  prefsift decide --plan plan.json --state state/part-0.state state/part-1.state --store lantern.db --out decided\n");
-  apply_cmd->footer("\nExample:\n  prefsift apply --plan plan.json --parts parts.json --part 3 "
-                    "--decisions decided/part-3.decisions --out parts-out/part-3\n");
+  auto parts_commands = AddPartsCommands(&app);  // observe, decide, apply (docs/parts.md)
   CLI::App* layouts = app.add_subcommand("layouts", "List the built-in layout presets and their JSON Pointers");
   layouts->footer("\nExample:\n  prefsift layouts\n");
 #ifdef PREFSIFT_HAVE_STORE
@@ -510,9 +233,7 @@ int prefsift::Main(int argc, char** argv) {
     return 2;
   }
   if (audit_cmd->parsed()) return RunAudit(audit);
-  if (observe_cmd->parsed()) return RunObserve(observe_o, AllStageNames());
-  if (decide_cmd->parsed()) return RunDecide(decide_o, AllStageNames());
-  if (apply_cmd->parsed()) return RunApply(apply_o, AllStageNames());
+  if (int rc = parts_commands->RunIfParsed(); rc >= 0) return rc;
   if (layouts->parsed()) {
     for (const auto& name : LayoutPresetNames()) {
       auto l = LayoutFromJson(nlohmann::ordered_json{{"preset", name}}, "preset");
