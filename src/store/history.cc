@@ -52,6 +52,129 @@ Result<std::string> HistoryTable(const std::string& store_path) {
   return out;
 }
 
+namespace {
+
+// The store's own counts, summed over batches (docs/store.md).
+constexpr const char* kStoreCounts[] = {"store_duplicates",      "store_label_conflicts",
+                                        "store_group_conflicts", "group_conflict_components",
+                                        "records_joined_first",  "records_inheriting_a_split",
+                                        "new_groups",            "stored_clusters_merged",
+                                        "stored_groups_merged"};
+
+// Every batch row, in order, and the totals over them.
+Status BatchesAndTotals(StoreDb& db, Json* batches_out, Json* totals_out, uint64_t* kept_out) {
+  Json batches = Json::array();
+  uint64_t entries = 0, kept = 0, rejected = 0, records = 0;
+  std::map<std::string, uint64_t> by_reason;
+  std::map<std::string, uint64_t> store_counts;
+  for (const char* k : kStoreCounts) store_counts[k] = 0;
+  auto q = db.Prepare(
+      "SELECT batch, added_at, plan_digest, inputs_digest, inputs, eval_sets, first_seq, records, entries, kept, "
+      "rejected, stored, counts FROM batches ORDER BY batch");
+  if (!q.ok()) return q.status();
+  Status err;
+  while (q.value()->Step(&err)) {
+    Statement& s = *q.value();
+    Json counts = Json::parse(s.Text(12), nullptr, false);
+    Json b{{"batch", s.Int(0)},
+           {"added_at", s.Text(1)},
+           {"plan_sha256", s.Text(2)},
+           {"inputs_sha256", s.Text(3)},
+           {"inputs", Json::parse(s.Text(4), nullptr, false)},
+           {"eval_sets", Json::parse(s.Text(5), nullptr, false)},
+           {"first_record_number", s.Int(6)},
+           {"records", s.Int(7)},
+           {"entries", s.Int(8)},
+           {"kept", s.Int(9)},
+           {"rejected", s.Int(10)},
+           {"stored", s.Int(11)},
+           {"counts", counts}};
+    entries += static_cast<uint64_t>(s.Int(8));
+    kept += static_cast<uint64_t>(s.Int(9));
+    rejected += static_cast<uint64_t>(s.Int(10));
+    records += static_cast<uint64_t>(s.Int(7));
+    for (const char* k : kStoreCounts) {
+      if (counts.is_object() && counts.contains(k) && counts[k].is_number_unsigned()) {
+        store_counts[k] += counts[k].get<uint64_t>();
+      }
+    }
+    if (counts.is_object() && counts.contains("rejected_by_reason")) {
+      for (auto it = counts["rejected_by_reason"].begin(); it != counts["rejected_by_reason"].end(); ++it) {
+        by_reason[it.key()] += it.value().get<uint64_t>();
+      }
+    }
+    batches.push_back(std::move(b));
+  }
+  if (!err.ok()) return err;
+  Json totals{{"batches", batches.size()}, {"entries", entries}, {"records", records}, {"kept", kept},
+              {"rejected", rejected}};
+  Json reasons = Json::object();
+  for (const auto& [k, v] : by_reason) reasons[k] = v;
+  totals["rejected_by_reason"] = std::move(reasons);
+  Json store_totals = Json::object();
+  for (const char* k : kStoreCounts) store_totals[k] = store_counts[k];
+  totals["store"] = std::move(store_totals);
+  *batches_out = std::move(batches);
+  *totals_out = std::move(totals);
+  *kept_out = kept;
+  return Status::Ok();
+}
+
+// Splits, from the records table (kept records only).
+Result<Json> SplitCounts(StoreDb& db, uint64_t kept) {
+  Json splits = Json::array();
+  auto q = db.Prepare(
+      "SELECT split, COUNT(*), COUNT(DISTINCT grp) FROM records WHERE kept = 1 GROUP BY split ORDER BY split");
+  if (!q.ok()) return q.status();
+  Status err;
+  while (q.value()->Step(&err)) {
+    double share = kept ? static_cast<double>(q.value()->Int(1)) / static_cast<double>(kept) : 0.0;
+    splits.push_back(Json{{"name", q.value()->Text(0)}, {"records", q.value()->Int(1)}, {"groups", q.value()->Int(2)},
+                          {"share", std::round(share * 1e6) / 1e6}});
+  }
+  if (!err.ok()) return err;
+  return splits;
+}
+
+// Checks over the whole store: a group is never split; a prompt can sit in
+// two splits only when a group conflict was resolved by join-first.
+Status SplitChecks(StoreDb& db, Json* j) {
+  auto q = db.Prepare(
+      "SELECT (SELECT COUNT(*) FROM (SELECT grp FROM records WHERE kept = 1 GROUP BY grp "
+      "HAVING COUNT(DISTINCT split) > 1)), "
+      "(SELECT COUNT(*) FROM (SELECT prompt FROM records WHERE kept = 1 GROUP BY prompt "
+      "HAVING COUNT(DISTINCT split) > 1))");
+  if (!q.ok()) return q.status();
+  Status err;
+  if (q.value()->Step(&err)) {
+    (*j)["split_checks"] = Json{{"groups_spanning_splits", q.value()->Int(0)},
+                                {"prompts_split_apart", q.value()->Int(1)},
+                                {"scope", "kept records of every batch"}};
+  }
+  return err;
+}
+
+// Near-duplicate cluster sizes over the store.
+Result<Json> NearClusterSizes(StoreDb& db) {
+  auto q = db.Prepare(
+      "SELECT n, COUNT(*) FROM (SELECT cluster, COUNT(*) AS n FROM records GROUP BY cluster HAVING n > 1) "
+      "GROUP BY n ORDER BY n");
+  if (!q.ok()) return q.status();
+  Status err;
+  Json hist = Json::object();
+  uint64_t count = 0, in = 0;
+  while (q.value()->Step(&err)) {
+    hist[std::to_string(q.value()->Int(0))] = q.value()->Int(1);
+    count += static_cast<uint64_t>(q.value()->Int(1));
+    in += static_cast<uint64_t>(q.value()->Int(0) * q.value()->Int(1));
+  }
+  if (!err.ok()) return err;
+  return Json{{"clusters", count}, {"records_in_clusters", in}, {"cluster_sizes", hist},
+              {"scope", "records that passed the exact checks (kept or rejected later), as in a full run"}};
+}
+
+}  // namespace
+
 Status CumulativeSummary(const std::string& store_path, Json* out) {
   auto opened = OpenExisting(store_path);
   if (!opened.ok()) return opened.status();
@@ -62,120 +185,20 @@ Status CumulativeSummary(const std::string& store_path, Json* out) {
   j["schema_version"] = schema.ok() ? schema.value() : "";
   auto config = db.Meta("config");
   if (config.ok() && !config.value().empty()) j["settings"] = Json::parse(config.value(), nullptr, false);
-  Json batches = Json::array();
-  uint64_t entries = 0, kept = 0, rejected = 0, records = 0;
-  std::map<std::string, uint64_t> by_reason;
-  // The store's own counts, summed over batches (docs/store.md).
-  static const char* const kStoreCounts[] = {"store_duplicates",      "store_label_conflicts",
-                                             "store_group_conflicts", "group_conflict_components",
-                                             "records_joined_first",  "records_inheriting_a_split",
-                                             "new_groups",            "stored_clusters_merged",
-                                             "stored_groups_merged"};
-  std::map<std::string, uint64_t> store_counts;
-  for (const char* k : kStoreCounts) store_counts[k] = 0;
-  {
-    auto q = db.Prepare(
-        "SELECT batch, added_at, plan_digest, inputs_digest, inputs, eval_sets, first_seq, records, entries, kept, "
-        "rejected, stored, counts FROM batches ORDER BY batch");
-    if (!q.ok()) return q.status();
-    Status err;
-    while (q.value()->Step(&err)) {
-      Statement& s = *q.value();
-      Json counts = Json::parse(s.Text(12), nullptr, false);
-      Json b{{"batch", s.Int(0)},
-             {"added_at", s.Text(1)},
-             {"plan_sha256", s.Text(2)},
-             {"inputs_sha256", s.Text(3)},
-             {"inputs", Json::parse(s.Text(4), nullptr, false)},
-             {"eval_sets", Json::parse(s.Text(5), nullptr, false)},
-             {"first_record_number", s.Int(6)},
-             {"records", s.Int(7)},
-             {"entries", s.Int(8)},
-             {"kept", s.Int(9)},
-             {"rejected", s.Int(10)},
-             {"stored", s.Int(11)},
-             {"counts", counts}};
-      entries += static_cast<uint64_t>(s.Int(8));
-      kept += static_cast<uint64_t>(s.Int(9));
-      rejected += static_cast<uint64_t>(s.Int(10));
-      records += static_cast<uint64_t>(s.Int(7));
-      for (const char* k : kStoreCounts) {
-        if (counts.is_object() && counts.contains(k) && counts[k].is_number_unsigned()) {
-          store_counts[k] += counts[k].get<uint64_t>();
-        }
-      }
-      if (counts.is_object() && counts.contains("rejected_by_reason")) {
-        for (auto it = counts["rejected_by_reason"].begin(); it != counts["rejected_by_reason"].end(); ++it) {
-          by_reason[it.key()] += it.value().get<uint64_t>();
-        }
-      }
-      batches.push_back(std::move(b));
-    }
-    if (!err.ok()) return err;
-  }
+  Json batches, totals;
+  uint64_t kept = 0;
+  if (Status s = BatchesAndTotals(db, &batches, &totals, &kept); !s.ok()) return s;
   // Evaluation sets: the same digests in every batch, or a note.
   bool eval_same = true;
   for (size_t k = 1; k < batches.size(); ++k) eval_same = eval_same && batches[k]["eval_sets"] == batches[0]["eval_sets"];
-  Json totals{{"batches", batches.size()}, {"entries", entries}, {"records", records}, {"kept", kept},
-              {"rejected", rejected}};
-  Json reasons = Json::object();
-  for (const auto& [k, v] : by_reason) reasons[k] = v;
-  totals["rejected_by_reason"] = std::move(reasons);
-  Json store_totals = Json::object();
-  for (const char* k : kStoreCounts) store_totals[k] = store_counts[k];
-  totals["store"] = std::move(store_totals);
   j["totals"] = std::move(totals);
-  // Splits, from the records table (kept records only).
-  Json splits = Json::array();
-  {
-    auto q = db.Prepare(
-        "SELECT split, COUNT(*), COUNT(DISTINCT grp) FROM records WHERE kept = 1 GROUP BY split ORDER BY split");
-    if (!q.ok()) return q.status();
-    Status err;
-    while (q.value()->Step(&err)) {
-      double share = kept ? static_cast<double>(q.value()->Int(1)) / static_cast<double>(kept) : 0.0;
-      splits.push_back(Json{{"name", q.value()->Text(0)}, {"records", q.value()->Int(1)}, {"groups", q.value()->Int(2)},
-                            {"share", std::round(share * 1e6) / 1e6}});
-    }
-    if (!err.ok()) return err;
-  }
-  j["splits"] = std::move(splits);
-  // Checks over the whole store: a group is never split; a prompt can sit in
-  // two splits only when a group conflict was resolved by join-first.
-  {
-    auto q = db.Prepare(
-        "SELECT (SELECT COUNT(*) FROM (SELECT grp FROM records WHERE kept = 1 GROUP BY grp "
-        "HAVING COUNT(DISTINCT split) > 1)), "
-        "(SELECT COUNT(*) FROM (SELECT prompt FROM records WHERE kept = 1 GROUP BY prompt "
-        "HAVING COUNT(DISTINCT split) > 1))");
-    if (!q.ok()) return q.status();
-    Status err;
-    if (q.value()->Step(&err)) {
-      j["split_checks"] = Json{{"groups_spanning_splits", q.value()->Int(0)},
-                               {"prompts_split_apart", q.value()->Int(1)},
-                               {"scope", "kept records of every batch"}};
-    }
-    if (!err.ok()) return err;
-  }
-  Json clusters;
-  {
-    auto q = db.Prepare(
-        "SELECT n, COUNT(*) FROM (SELECT cluster, COUNT(*) AS n FROM records GROUP BY cluster HAVING n > 1) "
-        "GROUP BY n ORDER BY n");
-    if (!q.ok()) return q.status();
-    Status err;
-    Json hist = Json::object();
-    uint64_t count = 0, in = 0;
-    while (q.value()->Step(&err)) {
-      hist[std::to_string(q.value()->Int(0))] = q.value()->Int(1);
-      count += static_cast<uint64_t>(q.value()->Int(1));
-      in += static_cast<uint64_t>(q.value()->Int(0) * q.value()->Int(1));
-    }
-    if (!err.ok()) return err;
-    clusters = Json{{"clusters", count}, {"records_in_clusters", in}, {"cluster_sizes", hist},
-                    {"scope", "records that passed the exact checks (kept or rejected later), as in a full run"}};
-  }
-  j["near"] = std::move(clusters);
+  auto splits = SplitCounts(db, kept);
+  if (!splits.ok()) return splits.status();
+  j["splits"] = std::move(splits).value();
+  if (Status s = SplitChecks(db, &j); !s.ok()) return s;
+  auto clusters = NearClusterSizes(db);
+  if (!clusters.ok()) return clusters.status();
+  j["near"] = std::move(clusters).value();
   j["evaluation_sets"] = Json{{"same_in_every_batch", eval_same},
                               {"note", eval_same ? "every batch was checked against the same evaluation files"
                                                  : "the evaluation files changed between batches: records of earlier "
