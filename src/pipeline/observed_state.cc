@@ -230,6 +230,83 @@ Status ObservedRun::Append(const std::string& path, FileSystem* fs) {
   return AppendBytes(std::move(bytes).value(), path);
 }
 
+Status ObservedRun::CheckNextPart(const Part& part, const std::string& which) const {
+  if (merged_.empty()) {
+    if (part.input != 0 || part.begin != 0) {
+      return Status::Usage(which + ": the first state file must be of the first part (input 0 from byte 0)");
+    }
+  } else {
+    const Part& prev = merged_.back().part;
+    if (part.part != prev.part + 1) {
+      return Status::Usage(which + ": comes after part " + std::to_string(prev.part) + "; give the parts in order");
+    }
+    if (part.input == prev.input) {
+      if (!prev.end || part.begin != *prev.end) {
+        return Status::Usage(which + ": does not start where part " + std::to_string(prev.part) + " ends");
+      }
+    } else if (part.input != prev.input + 1 || part.begin != 0) {
+      return Status::Usage(which + ": the parts must cover the inputs in order, each from byte 0");
+    } else if (!ingest_[prev.input].at_file_end) {
+      return Status::Usage(which + ": input " + std::to_string(prev.input) + " has bytes after part " +
+                           std::to_string(prev.part) + ", its last part");
+    }
+  }
+  const InputStats& stats = st_.inputs[part.input];
+  if (part.first_line != stats.lines + 1) {
+    return Status::Usage(which + ": starts at line " + std::to_string(part.first_line) + ", but the parts before "
+                         "it hold " + std::to_string(stats.lines) + " line(s) of that input");
+  }
+  return Status::Ok();
+}
+
+void ObservedRun::AppendEntries(StateReader& r, const Part& part, uint64_t* entries_out, uint64_t* with_record) {
+  const size_t entry_base = st_.entries.size(), record_base = st_.records.size();
+  const uint64_t entries = r.Count(17);
+  *entries_out = entries;
+  for (uint64_t i = 0; i < entries && r.ok(); ++i) {
+    Entry e;
+    e.input = part.input;
+    e.line = r.U64();
+    const int64_t rec = r.I64();
+    if (rec >= 0) {
+      e.record = static_cast<int64_t>(record_base) + rec;
+      ++*with_record;
+    }
+    st_.entries.push_back(e);
+    st_.decisions.emplace_back();
+    if (r.U8() != 0) {
+      std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
+      if (!r.ok()) break;
+      st_.RejectEntry(entry_base + i, stage, reason, std::move(field), std::move(message), std::move(id));
+      st_.reject_texts[st_.decisions.back().text].detail = std::move(detail);
+    }
+  }
+}
+
+void ObservedRun::AppendRecords(StateReader& r, const std::vector<uint32_t>& text_id, size_t entry_base,
+                                uint64_t entries, uint64_t with_record) {
+  const uint64_t records = r.Count(60);
+  if (records != with_record) r.Fail("the records do not match the entries");
+  for (uint64_t i = 0; i < records && r.ok(); ++i) {
+    RecordFacts f;
+    ReadFacts(r, &f);
+    uint32_t* ids[] = {&f.annotator_id, &f.thread_id, &f.source_id, &f.group_id};
+    for (uint32_t* id : ids) {
+      if (*id >= text_id.size()) {
+        r.Fail("a text id out of range");
+        *id = 0;
+      }
+      *id = text_id[*id];
+    }
+    if (f.entry >= entries) r.Fail("a record's entry out of range");
+    f.entry = static_cast<uint32_t>(entry_base + f.entry);
+    if (r.ok() && st_.entries[f.entry].record != static_cast<int64_t>(st_.records.size())) {
+      r.Fail("a record's entry does not name it");
+    }
+    st_.records.push_back(std::move(f));
+  }
+}
+
 Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
   if (part_) return Status::Internal("a run that observed a part cannot merge others");
   auto opened = StateReader::Open(std::move(bytes), kKind, path);
@@ -260,31 +337,8 @@ Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
   if (part.input >= plan_.inputs.size()) return Status::Usage(path + ": " + PartName(part) + " is not in this plan");
   part.path = plan_.inputs[part.input].path;
   const std::string which = path + " (" + PartName(part) + ")";
-  if (merged_.empty()) {
-    if (part.input != 0 || part.begin != 0) {
-      return Status::Usage(which + ": the first state file must be of the first part (input 0 from byte 0)");
-    }
-  } else {
-    const Part& prev = merged_.back().part;
-    if (part.part != prev.part + 1) {
-      return Status::Usage(which + ": comes after part " + std::to_string(prev.part) + "; give the parts in order");
-    }
-    if (part.input == prev.input) {
-      if (!prev.end || part.begin != *prev.end) {
-        return Status::Usage(which + ": does not start where part " + std::to_string(prev.part) + " ends");
-      }
-    } else if (part.input != prev.input + 1 || part.begin != 0) {
-      return Status::Usage(which + ": the parts must cover the inputs in order, each from byte 0");
-    } else if (!ingest_[prev.input].at_file_end) {
-      return Status::Usage(which + ": input " + std::to_string(prev.input) + " has bytes after part " +
-                           std::to_string(prev.part) + ", its last part");
-    }
-  }
+  if (Status s = CheckNextPart(part, which); !s.ok()) return s;
   InputStats& stats = st_.inputs[part.input];
-  if (part.first_line != stats.lines + 1) {
-    return Status::Usage(which + ": starts at line " + std::to_string(part.first_line) + ", but the parts before "
-                         "it hold " + std::to_string(stats.lines) + " line(s) of that input");
-  }
 
   // Lines and ingest figures.
   if (Status s = enter("input"); !s.ok()) return s;
@@ -305,53 +359,14 @@ Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
   for (uint64_t n = r.Count(8), i = 0; i < n && r.ok(); ++i) text_id.push_back(st_.InternText(r.Str()));
   if (Status s = r.LeaveSection(); !s.ok()) return s;
 
-  // Entries, with the rejects made while reading.
+  // Entries (with the rejects made while reading), then records.
   const size_t entry_base = st_.entries.size(), record_base = st_.records.size();
   if (Status s = enter("entries"); !s.ok()) return s;
-  const uint64_t entries = r.Count(17);
-  uint64_t with_record = 0;
-  for (uint64_t i = 0; i < entries && r.ok(); ++i) {
-    Entry e;
-    e.input = part.input;
-    e.line = r.U64();
-    const int64_t rec = r.I64();
-    if (rec >= 0) {
-      e.record = static_cast<int64_t>(record_base) + rec;
-      ++with_record;
-    }
-    st_.entries.push_back(e);
-    st_.decisions.emplace_back();
-    if (r.U8() != 0) {
-      std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
-      if (!r.ok()) break;
-      st_.RejectEntry(entry_base + i, stage, reason, std::move(field), std::move(message), std::move(id));
-      st_.reject_texts[st_.decisions.back().text].detail = std::move(detail);
-    }
-  }
+  uint64_t entries = 0, with_record = 0;
+  AppendEntries(r, part, &entries, &with_record);
   if (Status s = r.LeaveSection(); !s.ok()) return s;
-
-  // Records.
   if (Status s = enter("records"); !s.ok()) return s;
-  const uint64_t records = r.Count(60);
-  if (records != with_record) r.Fail("the records do not match the entries");
-  for (uint64_t i = 0; i < records && r.ok(); ++i) {
-    RecordFacts f;
-    ReadFacts(r, &f);
-    uint32_t* ids[] = {&f.annotator_id, &f.thread_id, &f.source_id, &f.group_id};
-    for (uint32_t* id : ids) {
-      if (*id >= text_id.size()) {
-        r.Fail("a text id out of range");
-        *id = 0;
-      }
-      *id = text_id[*id];
-    }
-    if (f.entry >= entries) r.Fail("a record's entry out of range");
-    f.entry = static_cast<uint32_t>(entry_base + f.entry);
-    if (r.ok() && st_.entries[f.entry].record != static_cast<int64_t>(st_.records.size())) {
-      r.Fail("a record's entry does not name it");
-    }
-    st_.records.push_back(std::move(f));
-  }
+  AppendRecords(r, text_id, entry_base, entries, with_record);
   if (Status s = r.LeaveSection(); !s.ok()) return s;
 
   // Each stage's observed state.

@@ -30,6 +30,7 @@ namespace prefsift {
 
 class Stage;
 class StageResults;
+class StateReader;
 struct InputIngest;
 
 // A part merged into a run, and where its entries and records sit.
@@ -81,6 +82,12 @@ class ObservedRun {
 
  private:
   explicit ObservedRun(const Plan& plan);
+  // AppendBytes' steps: the part follows the ones merged; the entries and
+  // records sections appended (errors recorded in the reader).
+  Status CheckNextPart(const Part& part, const std::string& which) const;
+  void AppendEntries(StateReader& r, const Part& part, uint64_t* entries, uint64_t* with_record);
+  void AppendRecords(StateReader& r, const std::vector<uint32_t>& text_id, size_t entry_base, uint64_t entries,
+                     uint64_t with_record);
   const Plan& plan_;
   RunState st_;
   std::vector<std::unique_ptr<Stage>> stages_;
