@@ -194,14 +194,7 @@ Result<std::string> ObservedRun::SaveToBytes() const {
     w.U64(e.line);
     w.I64(e.record);
     w.U8(d.rejected);
-    if (!d.rejected) continue;
-    const RejectText& t = st_.RejectTextOf(d);
-    w.Str(d.stage);
-    w.Str(d.reason);
-    w.Str(t.field);
-    w.Str(t.message);
-    w.Str(t.detail);
-    w.Str(t.id);
+    if (d.rejected) WriteReject(w, st_, d);
   }
   w.EndSection();
 
@@ -228,6 +221,24 @@ Status ObservedRun::Append(const std::string& path, FileSystem* fs) {
   auto bytes = ReadWholeFile(fs, path);
   if (!bytes.ok()) return bytes.status();
   return AppendBytes(std::move(bytes).value(), path);
+}
+
+void WriteReject(StateWriter& w, const RunState& st, const Decision& d) {
+  const RejectText& t = st.RejectTextOf(d);
+  w.Str(d.stage);
+  w.Str(d.reason);
+  w.Str(t.field);
+  w.Str(t.message);
+  w.Str(t.detail);
+  w.Str(t.id);
+}
+
+bool ReadReject(StateReader& r, RunState& st, size_t entry) {
+  std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
+  if (!r.ok()) return false;
+  st.RejectEntry(entry, stage, reason, std::move(field), std::move(message), std::move(id));
+  st.reject_texts[st.decisions[entry].text].detail = std::move(detail);
+  return true;
 }
 
 Status ObservedRun::CheckNextPart(const Part& part, const std::string& which) const {
@@ -274,12 +285,7 @@ void ObservedRun::AppendEntries(StateReader& r, const Part& part, uint64_t* entr
     }
     st_.entries.push_back(e);
     st_.decisions.emplace_back();
-    if (r.U8() != 0) {
-      std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
-      if (!r.ok()) break;
-      st_.RejectEntry(entry_base + i, stage, reason, std::move(field), std::move(message), std::move(id));
-      st_.reject_texts[st_.decisions.back().text].detail = std::move(detail);
-    }
+    if (r.U8() != 0 && !ReadReject(r, st_, entry_base + i)) break;
   }
 }
 

@@ -102,6 +102,12 @@ class ObservedRun {
   RunOutcome outcome_;
 };
 
+// A rejected entry's stage, reason and texts in a state or decision file, and
+// back into `st` for entry `entry` (false when the reader failed).
+class StateWriter;
+void WriteReject(StateWriter& w, const RunState& st, const Decision& d);
+bool ReadReject(StateReader& r, RunState& st, size_t entry);
+
 // The fingerprint of what shapes observation: inputs' layouts and names,
 // limits, normalisation, seed and stage settings (hex SHA-256).
 std::string ObservationFingerprint(const Plan& plan, const std::vector<std::string>& stage_names);

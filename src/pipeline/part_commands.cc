@@ -70,13 +70,7 @@ std::string DecisionBytes(const Plan& plan, const ObservedRun& run, const Merged
     w.I64(e.record >= 0 ? e.record - static_cast<int64_t>(mp.first_record) : -1);
     w.U8(d.rejected);
     if (d.rejected) {
-      const RejectText& t = st.RejectTextOf(d);
-      w.Str(d.stage);
-      w.Str(d.reason);
-      w.Str(t.field);
-      w.Str(t.message);
-      w.Str(t.detail);
-      w.Str(t.id);
+      WriteReject(w, st, d);
     } else {
       w.U32(d.split);
     }
@@ -231,10 +225,7 @@ Result<RunOutcome> ApplyPart(const Plan& plan, const std::vector<std::string>& s
     st.entries.push_back(e);
     st.decisions.emplace_back();
     if (r.U8() != 0) {
-      std::string stage = r.Str(), reason = r.Str(), field = r.Str(), message = r.Str(), detail = r.Str(), id = r.Str();
-      if (!r.ok()) break;
-      st.RejectEntry(i, stage, reason, std::move(field), std::move(message), std::move(id));
-      st.reject_texts[st.decisions.back().text].detail = std::move(detail);
+      if (!ReadReject(r, st, i)) break;
     } else {
       st.decisions.back().split = r.U32();
       if (st.decisions.back().split >= st.split_names.size()) r.Fail("a split out of range");
