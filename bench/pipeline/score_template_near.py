@@ -12,7 +12,7 @@ record it copies.
 
 Recall: planted pairs whose two records are in one cluster. Precision: of the
 records in clusters, those linked to another member of their cluster by
-planted pairs (directly or through other members). A cluster of prompts that
+planted pairs directly. A cluster of prompts that
 share only stock sentences counts against precision here even when their
 Jaccard similarity is at the threshold, so with PREFS.jsonl the script also
 gives the planted pairs whose word 5-gram Jaccard (lower-cased \\w+ words, an

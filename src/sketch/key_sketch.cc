@@ -33,6 +33,21 @@ void SortUnique(std::vector<uint64_t>* v) {
   v->erase(std::unique(v->begin(), v->end()), v->end());
 }
 
+// Sorts entries (key << 32 | place) by key, keeping the order of equal keys
+// (LSD radix sort on the key's four bytes; `tmp` is scratch). The entries
+// arrive in place order, so each key's run lists its places ascending: the
+// same order as sorting the whole words.
+void SortByKey(std::vector<uint64_t>* v, std::vector<uint64_t>* tmp) {
+  tmp->resize(v->size());
+  for (int shift = 32; shift < 64; shift += 8) {
+    size_t count[257] = {};
+    for (uint64_t x : *v) ++count[((x >> shift) & 0xff) + 1];
+    for (int b = 0; b < 256; ++b) count[b + 1] += count[b];
+    for (uint64_t x : *v) (*tmp)[count[(x >> shift) & 0xff]++] = x;
+    v->swap(*tmp);
+  }
+}
+
 struct PartResult {
   std::vector<uint64_t> pairs;  // one per shared informative key: repeats kept
   KeyPairStats stats;
@@ -77,12 +92,12 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   //    of the key), so the transient array is a share of the places. Entry =
   //    key << 32 | place; place = record * m + position.
   int bits = 0;
-  while (bits < 12 && (total >> bits) > (size_t{1} << 20)) ++bits;
+  while (bits < 12 && (total >> bits) > (size_t{1} << 21)) ++bits;
   const uint32_t parts = 1u << bits;
   const uint32_t threads = std::clamp<uint32_t>(options.threads, 1, parts);
   std::vector<PartResult> acc(threads);
   auto work = [&](uint32_t t) {
-    std::vector<uint64_t> buf, part_pairs;
+    std::vector<uint64_t> buf, part_pairs, scratch;
     PartResult& mine = acc[t];
     for (uint32_t part = t; part < parts; part += threads) {
       buf.clear();
@@ -91,7 +106,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
         if (k == kNoKey || (bits > 0 && (k >> (32 - bits)) != part)) continue;
         buf.push_back((static_cast<uint64_t>(k) << 32) | place);
       }
-      std::sort(buf.begin(), buf.end());
+      SortByKey(&buf, &scratch);
       part_pairs.clear();
       size_t s = 0;
       while (s < buf.size()) {
