@@ -25,7 +25,7 @@
 
 namespace prefsift {
 
-inline constexpr uint32_t kStateFormatVersion = 1;
+inline constexpr uint32_t kStateFormatVersion = 2;  // 2: the near stage keeps key sketches
 
 class StateWriter {
  public:

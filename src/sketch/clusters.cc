@@ -27,6 +27,20 @@ Status Validate(std::span<const uint8_t> signatures, uint32_t num_slots,
   return Status::Ok();
 }
 
+// Validate, and the pairs are sorted, distinct and a < b < N.
+Status ValidatePairs(std::span<const uint8_t> signatures, uint32_t num_slots, std::span<const uint64_t> pairs,
+                     const ClusterOptions& options) {
+  if (Status st = Validate(signatures, num_slots, options); !st.ok()) return st;
+  const auto n = static_cast<uint32_t>(signatures.size() / num_slots);
+  for (size_t p = 0; p < pairs.size(); ++p) {
+    if (PairFirst(pairs[p]) >= PairSecond(pairs[p]) || PairSecond(pairs[p]) >= n ||
+        (p > 0 && pairs[p - 1] >= pairs[p])) {
+      return Status::Usage("candidate pairs must be sorted, distinct, a < b < N");
+    }
+  }
+  return Status::Ok();
+}
+
 Result<Banding> ResolveBanding(uint32_t num_slots, const ClusterOptions& options) {
   Banding banding = options.banding;
   if (banding.bands == 0 || banding.rows == 0) {
@@ -148,15 +162,21 @@ Result<Clustering> ClusterCompactSignatures(std::span<const uint8_t> signatures,
 Result<Clustering> ClusterCandidates(std::span<const uint8_t> signatures, uint32_t num_slots,
                                      std::span<const uint64_t> pairs,
                                      const ClusterOptions& options) {
-  if (Status st = Validate(signatures, num_slots, options); !st.ok()) return st;
+  if (Status st = ValidatePairs(signatures, num_slots, pairs, options); !st.ok()) return st;
   const auto n = static_cast<uint32_t>(signatures.size() / num_slots);
-  for (size_t p = 0; p < pairs.size(); ++p) {
-    if (PairFirst(pairs[p]) >= PairSecond(pairs[p]) || PairSecond(pairs[p]) >= n ||
-        (p > 0 && pairs[p - 1] >= pairs[p])) {
-      return Status::Usage("candidate pairs must be sorted, distinct, a < b < N");
-    }
-  }
   return VerifyAndCluster(n, pairs, options, CompactSimilarity(signatures, num_slots));
+}
+
+Result<Clustering> ClusterCandidatesWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,
+                                                  std::span<const uint64_t> pairs,
+                                                  std::span<const std::vector<uint64_t>> sets,
+                                                  const ClusterOptions& options) {
+  if (num_slots == 0 || sets.size() * num_slots != signatures.size()) {
+    return Status::Usage("need one shingle set per signature");
+  }
+  if (Status st = ValidatePairs(signatures, num_slots, pairs, options); !st.ok()) return st;
+  auto sim = [&](uint32_t a, uint32_t b) { return ExactJaccard(sets[a], sets[b]); };
+  return VerifyAndCluster(static_cast<uint32_t>(sets.size()), pairs, options, sim);
 }
 
 Result<Clustering> ClusterWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,

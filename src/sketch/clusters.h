@@ -72,6 +72,13 @@ Result<Clustering> ClusterCandidates(std::span<const uint8_t> signatures, uint32
                                      std::span<const uint64_t> pairs,
                                      const ClusterOptions& options);
 
+// ClusterCandidates with the pairs verified by exact Jaccard of the given
+// shingle sets (sorted, duplicate-free; one per record).
+Result<Clustering> ClusterCandidatesWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,
+                                                  std::span<const uint64_t> pairs,
+                                                  std::span<const std::vector<uint64_t>> sets,
+                                                  const ClusterOptions& options);
+
 // As ClusterCompactSignatures, but candidate pairs are verified by exact Jaccard of the given
 // shingle sets (sorted, duplicate-free; one per record).
 Result<Clustering> ClusterWithExactSets(std::span<const uint8_t> signatures, uint32_t num_slots,

@@ -120,6 +120,25 @@ TEST(ObservedState, GeneratedInputInHalvesDecidesAsTheWhole) {
   ExpectSame(whole, DecideInParts(plan, CutAt(plan, {0.5}), "quayside2"));
 }
 
+// The near stage's key sketches (template text set aside): with
+// template_min_prompts 2 every key held by two prompts is set aside, so the
+// candidates come from the key sketches and the sorted neighbourhoods. The
+// decisions of three parts, merged, and of any thread count equal the whole.
+TEST(ObservedState, NearKeySketchesInPartsDecideAsTheWhole) {
+  Generated g = MakeQuaysideInput(20261203, 700);
+  Plan plan = QuaysidePlan(g);
+  plan.stages["near"]["template_min_prompts"] = 2;
+  plan.threads = 1;
+  Decided whole = DecideWhole(plan);
+  ASSERT_TRUE(whole.sections["near"].contains("template_text")) << whole.sections["near"].dump();
+  EXPECT_GT(whole.sections["near"]["template_text"]["keys_set_aside"].get<uint64_t>(), 0u);
+  EXPECT_GT(whole.sections["near"]["clusters"].get<uint64_t>(), 0u);
+  ExpectSame(whole, DecideInParts(plan, CutAt(plan, {0.3, 0.7}), "quayside_keys3"));
+  plan.threads = 3;
+  ExpectSame(whole, DecideWhole(plan));
+  ExpectSame(whole, DecideInParts(plan, CutAt(plan, {0.5}), "quayside_keys2"));
+}
+
 TEST(ObservedState, PartsWithAnEmptyOneDecideAsTheWhole) {
   Generated g = MakeQuaysideInput(20260416, 500);
   Plan plan = QuaysidePlan(g);
@@ -192,10 +211,10 @@ TEST_F(ObservedStateFiles, ATruncatedFileIsRefused) {
 
 TEST_F(ObservedStateFiles, AnotherVersionIsRefused) {
   std::string other = bytes_[0];
-  other[8] = 2;  // the format version's low byte
+  other[8] = 9;  // the format version's low byte
   Status s = Merge(other);
   ASSERT_FALSE(s.ok());
-  EXPECT_NE(s.message().find("format version 2"), std::string::npos) << s.message();
+  EXPECT_NE(s.message().find("format version 9"), std::string::npos) << s.message();
   EXPECT_NE(s.message().find("part0.state"), std::string::npos) << s.message();
 }
 

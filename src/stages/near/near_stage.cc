@@ -15,6 +15,7 @@
 #include "stages/prior_join.h"
 #include "stages/split/split_stage.h"
 #include "sketch/clusters.h"
+#include "sketch/key_sketch.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
 #include "sketch/set_similarity.h"
@@ -39,7 +40,17 @@ struct NearSettings {
   CandidateAction cand_action = CandidateAction::kFlag;
   double cand_threshold = 0.9;
   int cand_n = 3;
+  // Template text (docs/near-duplicates.md, "Template text"): each prompt's
+  // key sketch of `keys` keys (0 = off: whole-set bands only); a key in at
+  // least `template_min_prompts` kept prompts' sketches is set aside.
+  uint32_t keys = 32;
+  uint32_t template_min_prompts = 10;
+  uint32_t chain_keys = 3;
+  double shared_key_share = 0.34;
 };
+
+// Seed of the key sketch's mix (another than the signature's).
+constexpr uint64_t kKeySeed = 0x6b657973ULL;  // "keys"
 
 // A pair of candidates of one record at or above the candidate threshold.
 struct CandidatePair {
@@ -221,11 +232,13 @@ class NearDupsStage : public Stage {
 
   void Reserve(size_t n) override {
     signatures_.reserve(n * s_.slots);
+    keys_.reserve(n * s_.keys);
     chars_mode_.reserve(n);
     if (s_.cand_action != CandidateAction::kOff) cand_pairs_.reserve(n);
   }
   void Grow(size_t n) override {
     signatures_.resize(n * s_.slots);
+    keys_.resize(n * s_.keys, sketch::kNoKey);
     chars_mode_.resize(n);
     if (s_.exact) sets_.resize(n);
     if (s_.cand_action != CandidateAction::kOff) cand_pairs_.resize(n);
@@ -236,7 +249,15 @@ class NearDupsStage : public Stage {
     sketch::ShingleOptions so = shingle_;
     so.mode = sketch::ResolveMode(prompt, shingle_);
     chars_mode_[i] = so.mode == sketch::ShingleMode::kChars;
-    sketch::SignTextCompact(prompt, so, minhash_, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
+    // One shingling serves the signature and the key sketch.
+    thread_local std::vector<uint64_t> shingles;
+    thread_local std::vector<uint64_t> full;
+    shingles.clear();
+    sketch::AppendShingles(prompt, so, &shingles);
+    full.resize(s_.slots);
+    sketch::Sign(shingles, minhash_, full);
+    sketch::Compact(full, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
+    if (s_.keys > 0) sketch::KeySketch(shingles, kKeySeed, std::span<uint32_t>(keys_.data() + i * s_.keys, s_.keys));
     if (s_.exact) sets_[i] = sketch::Shingles(prompt, so);
     if (s_.cand_action == CandidateAction::kOff || rec.candidates.size() < 2) return;
     CandidateSets sets(text.candidates, s_.mode, s_.cand_n, shingle_.seed);
@@ -306,18 +327,41 @@ class NearDupsStage : public Stage {
       opt.banding = banding_;
       unsigned threads = threads_ ? threads_ : std::max(1u, std::thread::hardware_concurrency());
       opt.threads = threads;
+      // Candidates from the key sketches when some keys are template text;
+      // else (or with no sketches) from the whole-set bands, as before.
+      std::vector<uint64_t> pairs;
+      bool from_keys = false;
+      if (s_.keys > 0 && kept.size() * s_.keys < 0xffffffffULL) {  // places are numbered in 32 bits
+        const uint32_t M = s_.keys;
+        std::vector<uint32_t> keys = std::move(keys_);
+        for (size_t j = 0; j < kept.size(); ++j) {
+          if (kept[j] != j) std::memmove(keys.data() + j * M, keys.data() + kept[j] * M, M * sizeof(uint32_t));
+        }
+        keys.resize(kept.size() * M);
+        keys_.clear();
+        sketch::KeyPairOptions ko;
+        ko.min_records = s_.template_min_prompts;
+        ko.chain_keys = s_.chain_keys;
+        ko.min_shared_share = s_.shared_key_share;
+        ko.threads = threads;
+        pairs = sketch::KeySketchPairs(keys, M, ko, &kstats_);
+        from_keys = kstats_.keys_set_aside > 0;
+        if (!from_keys) std::vector<uint64_t>().swap(pairs);
+      }
       Result<sketch::Clustering> r = sketch::Clustering{};
       if (s_.exact) {
         std::vector<std::vector<uint64_t>> sets(kept.size());
         for (size_t j = 0; j < kept.size(); ++j) sets[j] = std::move(sets_[kept[j]]);
         std::vector<std::vector<uint64_t>>().swap(sets_);
-        r = sketch::ClusterWithExactSets(sub, K, sets, opt);
+        r = from_keys ? sketch::ClusterCandidatesWithExactSets(sub, K, pairs, sets, opt)
+                      : sketch::ClusterWithExactSets(sub, K, sets, opt);
       } else {
-        r = sketch::ClusterCompactSignatures(sub, K, opt);
+        r = from_keys ? sketch::ClusterCandidates(sub, K, pairs, opt) : sketch::ClusterCompactSignatures(sub, K, opt);
       }
       if (!r.ok()) return Status::Internal("near: clustering failed: " + r.status().message());
       const sketch::Clustering& c = r.value();
       cstats_ = c.stats;
+      template_mode_ = from_keys;
       std::vector<int64_t> pos(kept.size(), -1);
       for (const auto& cs : c.clusters) {
         pos[cs.id] = static_cast<int64_t>(clusters_.size());
@@ -441,6 +485,20 @@ class NearDupsStage : public Stage {
     (*s)["verified_pairs"] = cstats_.verified_edges;
     (*s)["pairs_below_threshold"] = cstats_.rejected_pairs;
     (*s)["capped_buckets"] = cstats_.candidates.capped_runs;
+    if (template_mode_) {  // only when keys were set aside, so outputs without template text stay as they were
+      (*s)["template_text"] = Json{{"keys", s_.keys},
+                                   {"template_min_prompts", s_.template_min_prompts},
+                                   {"chain_keys", s_.chain_keys},
+                                   {"shared_key_share", s_.shared_key_share},
+                                   {"distinct_keys", kstats_.keys},
+                                   {"keys_set_aside", kstats_.keys_set_aside},
+                                   {"places_set_aside", kstats_.entries_set_aside},
+                                   {"prompts_without_informative_keys", kstats_.records_without_informative},
+                                   {"informative_key_pairs", kstats_.informative_pairs},
+                                   {"pairs_sharing_too_few_keys", kstats_.pairs_below_share},
+                                   {"neighbour_pairs", kstats_.chain_pairs},
+                                   {"largest_informative_run", kstats_.largest_run}};
+    }
     (*s)["clusters"] = clusters_.size();
     (*s)["records_in_clusters"] = records_in_clusters_;
     (*s)["largest_cluster"] = largest_;
@@ -502,6 +560,7 @@ class NearDupsStage : public Stage {
   sketch::Banding banding_;
   // Per record (Observe).
   std::vector<uint8_t> signatures_;                  // K bytes a record
+  std::vector<uint32_t> keys_;                       // key sketch: s_.keys keys a record (4 bytes each)
   std::vector<int64_t> cluster_of_;                   // per record: its cluster id (smallest member), -1 = none
   std::vector<uint8_t> chars_mode_;                  // 1 = code-point shingles
   std::vector<std::vector<uint64_t>> sets_;          // "verify": "exact" only
@@ -510,6 +569,8 @@ class NearDupsStage : public Stage {
   std::vector<ClusterOut> clusters_;
   std::vector<size_t> flagged_;
   sketch::ClusterStats cstats_;
+  sketch::KeyPairStats kstats_;
+  bool template_mode_ = false;  // candidates came from the key sketches
   std::map<size_t, uint64_t> size_histogram_;
   uint64_t records_signed_ = 0, compared_ = 0, chars_records_ = 0, records_in_clusters_ = 0, largest_ = 0,
            over_cap_ = 0, cand_records_ = 0, cand_pair_count_ = 0, cand_rejected_ = 0;
@@ -517,7 +578,7 @@ class NearDupsStage : public Stage {
 
 constexpr const char* kKnown =
     "threshold, shingle, word_ngram, char_ngram, slots, bands, rows, verify, max_per_cluster, "
-    "candidates, candidate_threshold, candidate_ngram";
+    "candidates, candidate_threshold, candidate_ngram, keys, template_min_prompts, chain_keys, shared_key_share";
 
 }  // namespace
 
@@ -592,6 +653,17 @@ std::unique_ptr<Stage> MakeNearStage(const Plan& plan, FileSystem* /*fs*/, Statu
       if (!number(v, 0.0, 1.0, &ns.cand_threshold) || ns.cand_threshold <= 0) {
         return fail("candidate_threshold: must be a number in (0, 1]");
       }
+    } else if (k == "keys") {
+      if (!integer(v, 0, 64, &iv)) return fail("keys: must be an integer from 0 to 64 (0 = whole-set bands only)");
+      ns.keys = static_cast<uint32_t>(iv);
+    } else if (k == "template_min_prompts") {
+      if (!integer(v, 2, 1000000, &iv)) return fail("template_min_prompts: must be an integer from 2 to 1000000");
+      ns.template_min_prompts = static_cast<uint32_t>(iv);
+    } else if (k == "chain_keys") {
+      if (!integer(v, 0, 64, &iv)) return fail("chain_keys: must be an integer from 0 to 64");
+      ns.chain_keys = static_cast<uint32_t>(iv);
+    } else if (k == "shared_key_share") {
+      if (!number(v, 0.0, 1.0, &ns.shared_key_share)) return fail("shared_key_share: must be a number in [0, 1]");
     } else if (k == "candidate_ngram") {
       if (!integer(v, 1, 64, &iv)) return fail("candidate_ngram: must be an integer from 1 to 64");
       ns.cand_n = static_cast<int>(iv);
@@ -620,8 +692,8 @@ std::unique_ptr<Stage> MakeNearStage(const Plan& plan, FileSystem* /*fs*/, Statu
 
 }  // namespace prefsift
 
-// Observed state (state files, docs/parts.md): the signatures, the
-// shingle mode, the exact sets ("verify": "exact") and the candidate pairs.
+// Observed state (state files, docs/parts.md): the signatures, the key
+// sketches, the shingle mode, the exact sets ("verify": "exact") and the candidate pairs.
 namespace prefsift {
 namespace {
 
@@ -629,6 +701,8 @@ void NearDupsStage::SaveObserved(StateWriter& out) const {
   out.U32(s_.slots);
   out.Vec(chars_mode_);
   out.Vec(signatures_);
+  out.U32(s_.keys);
+  out.Vec(keys_);
   out.U8(s_.exact);
   if (s_.exact) {
     for (const auto& set : sets_) out.Vec(set);
@@ -647,6 +721,10 @@ Status NearDupsStage::AppendObserved(StateReader& in, size_t first) {
   signatures_.resize(first * s_.slots);
   in.AppendVec(&signatures_);
   if (signatures_.size() != chars_mode_.size() * s_.slots) in.Fail("signatures and records do not match");
+  if (in.U32() != s_.keys) in.Fail("made with another number of keys");
+  keys_.resize(first * s_.keys);
+  in.AppendVec(&keys_);
+  if (keys_.size() != chars_mode_.size() * s_.keys) in.Fail("key sketches and records do not match");
   if (in.U8() != uint8_t{s_.exact}) in.Fail("made with another \"verify\" setting");
   if (s_.exact) {
     sets_.resize(first + n);

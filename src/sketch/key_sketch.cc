@@ -1,0 +1,242 @@
+// Bottom-m key sketches and their candidate pairs; see key_sketch.h.
+#include "sketch/key_sketch.h"
+
+#include <algorithm>
+#include <cmath>
+#include <iterator>
+#include <thread>
+
+#include "sketch/lsh.h"
+
+namespace prefsift::sketch {
+namespace {
+
+// Murmur3 64-bit finaliser (a bijection with full avalanche), as minhash.cc.
+inline uint64_t Mix(uint64_t x) {
+  x ^= x >> 33;
+  x *= 0xff51afd7ed558ccdULL;
+  x ^= x >> 33;
+  x *= 0xc4ceb9fe1a85ec53ULL;
+  x ^= x >> 33;
+  return x;
+}
+
+void MergeInto(std::vector<uint64_t>* acc, const std::vector<uint64_t>& add, std::vector<uint64_t>* tmp) {
+  tmp->clear();
+  tmp->reserve(acc->size() + add.size());
+  std::set_union(acc->begin(), acc->end(), add.begin(), add.end(), std::back_inserter(*tmp));
+  acc->swap(*tmp);
+}
+
+void SortUnique(std::vector<uint64_t>* v) {
+  std::sort(v->begin(), v->end());
+  v->erase(std::unique(v->begin(), v->end()), v->end());
+}
+
+// Sorts entries (key << 32 | place) by key, keeping the order of equal keys
+// (LSD radix sort on the key's four bytes; `tmp` is scratch). The entries
+// arrive in place order, so each key's run lists its places ascending: the
+// same order as sorting the whole words.
+void SortByKey(std::vector<uint64_t>* v, std::vector<uint64_t>* tmp) {
+  tmp->resize(v->size());
+  for (int shift = 32; shift < 64; shift += 8) {
+    size_t count[257] = {};
+    for (uint64_t x : *v) ++count[((x >> shift) & 0xff) + 1];
+    for (int b = 0; b < 256; ++b) count[b + 1] += count[b];
+    for (uint64_t x : *v) (*tmp)[count[(x >> shift) & 0xff]++] = x;
+    v->swap(*tmp);
+  }
+}
+
+struct PartResult {
+  std::vector<uint64_t> pairs;  // one per shared informative key: repeats kept
+  KeyPairStats stats;
+};
+
+}  // namespace
+
+void KeySketch(std::span<const uint64_t> shingles, uint64_t seed, std::span<uint32_t> out) {
+  const size_t m = out.size();
+  thread_local std::vector<uint32_t> v;
+  v.clear();
+  const uint64_t seed_mix = Mix(seed);
+  for (uint64_t h : shingles) {
+    const auto k = static_cast<uint32_t>(Mix(h ^ seed_mix) >> 32);
+    if (k != kNoKey) v.push_back(k);
+  }
+  // The p smallest keys (repeats included) hold every distinct key below the
+  // p-th; if they hold m distinct keys, those are the m smallest.
+  size_t p = std::min(v.size(), 2 * m);
+  if (p < v.size()) std::nth_element(v.begin(), v.begin() + static_cast<std::ptrdiff_t>(p), v.end());
+  std::sort(v.begin(), v.begin() + static_cast<std::ptrdiff_t>(p));
+  size_t distinct = static_cast<size_t>(std::unique(v.begin(), v.begin() + static_cast<std::ptrdiff_t>(p)) - v.begin());
+  if (distinct < m && p < v.size()) {  // many repeats among the smallest: the whole set
+    std::sort(v.begin(), v.end());
+    distinct = static_cast<size_t>(std::unique(v.begin(), v.end()) - v.begin());
+  }
+  const size_t take = std::min(m, distinct);
+  std::copy(v.begin(), v.begin() + static_cast<std::ptrdiff_t>(take), out.begin());
+  std::fill(out.begin() + static_cast<std::ptrdiff_t>(take), out.end(), kNoKey);
+}
+
+std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m, const KeyPairOptions& options,
+                                     KeyPairStats* stats) {
+  const size_t total = keys.size();
+  const size_t n = m == 0 ? 0 : total / m;
+  const uint32_t min_records = std::max<uint32_t>(options.min_records, 2);
+  // Per place: 0 = informative (or no key), else the number of sketches
+  // holding its set-aside key (at most 65535).
+  std::vector<uint16_t> aside(total, 0);
+
+  // 1. Key runs, one partition of the key space at a time (the top `bits` bits
+  //    of the key), so the transient array is a share of the places. Entry =
+  //    key << 32 | place; place = record * m + position.
+  int bits = 0;
+  while (bits < 12 && (total >> bits) > (size_t{1} << 21)) ++bits;
+  const uint32_t parts = 1u << bits;
+  const uint32_t threads = std::clamp<uint32_t>(options.threads, 1, parts);
+  std::vector<PartResult> acc(threads);
+  auto work = [&](uint32_t t) {
+    std::vector<uint64_t> buf, part_pairs, scratch;
+    PartResult& mine = acc[t];
+    for (uint32_t part = t; part < parts; part += threads) {
+      buf.clear();
+      for (size_t place = 0; place < total; ++place) {
+        const uint32_t k = keys[place];
+        if (k == kNoKey || (bits > 0 && (k >> (32 - bits)) != part)) continue;
+        buf.push_back((static_cast<uint64_t>(k) << 32) | place);
+      }
+      SortByKey(&buf, &scratch);
+      part_pairs.clear();
+      size_t s = 0;
+      while (s < buf.size()) {
+        const uint64_t key = buf[s] >> 32;
+        size_t e = s + 1;
+        while (e < buf.size() && (buf[e] >> 32) == key) ++e;
+        const size_t run = e - s;
+        ++mine.stats.keys;
+        const bool frequent = run >= min_records;
+        if (frequent) {
+          ++mine.stats.keys_set_aside;
+          mine.stats.entries_set_aside += run;
+          const auto count = static_cast<uint16_t>(std::min<size_t>(run, 65535));
+          for (size_t x = s; x < e; ++x) aside[static_cast<uint32_t>(buf[x])] = count;  // distinct places: no race
+        } else {
+          mine.stats.largest_run = std::max<uint32_t>(mine.stats.largest_run, static_cast<uint32_t>(run));
+          // Places ascend within the run, so records do too (a sketch holds a key once).
+          for (size_t x = s; x < e; ++x) {
+            const auto a = static_cast<uint32_t>(static_cast<uint32_t>(buf[x]) / m);
+            for (size_t y = x + 1; y < e; ++y) {
+              part_pairs.push_back(PackPair(a, static_cast<uint32_t>(static_cast<uint32_t>(buf[y]) / m)));
+            }
+          }
+        }
+        s = e;
+      }
+      mine.pairs.insert(mine.pairs.end(), part_pairs.begin(), part_pairs.end());  // repeats kept: counted below
+    }
+  };
+  if (threads == 1) {
+    work(0);
+  } else {
+    std::vector<std::thread> pool;
+    for (uint32_t t = 0; t < threads; ++t) pool.emplace_back(work, t);
+    for (auto& th : pool) th.join();
+  }
+  std::vector<uint64_t> raw = std::move(acc[0].pairs);
+  KeyPairStats st = acc[0].stats;
+  std::vector<uint64_t> tmp;
+  for (uint32_t t = 1; t < threads; ++t) {
+    raw.insert(raw.end(), acc[t].pairs.begin(), acc[t].pairs.end());
+    std::vector<uint64_t>().swap(acc[t].pairs);
+    st.keys += acc[t].stats.keys;
+    st.keys_set_aside += acc[t].stats.keys_set_aside;
+    st.entries_set_aside += acc[t].stats.entries_set_aside;
+    st.largest_run = std::max(st.largest_run, acc[t].stats.largest_run);
+  }
+  // Informative keys a record holds, and how many each pair shares: a pair is
+  // a candidate when it shares at least min_shared_share of the smaller
+  // record's informative keys (and at least one).
+  std::vector<uint8_t> informative(n, 0);
+  for (size_t place = 0; place < total; ++place) {
+    informative[place / m] += static_cast<uint8_t>(keys[place] != kNoKey && !aside[place]);
+  }
+  std::sort(raw.begin(), raw.end());
+  std::vector<uint64_t> pairs;
+  for (size_t x = 0; x < raw.size();) {
+    size_t y = x + 1;
+    while (y < raw.size() && raw[y] == raw[x]) ++y;
+    const uint32_t fewer = std::min(informative[PairFirst(raw[x])], informative[PairSecond(raw[x])]);
+    const double need = std::max(1.0, std::ceil(options.min_shared_share * fewer));
+    if (static_cast<double>(y - x) >= need) {
+      pairs.push_back(raw[x]);
+    } else {
+      ++st.pairs_below_share;
+    }
+    x = y;
+  }
+  std::vector<uint64_t>().swap(raw);
+  st.informative_pairs = pairs.size();
+
+  // 2. Sorted neighbourhoods over set-aside keys, for the records with few
+  //    informative keys. A record's set-aside keys ordered rarest first
+  //    (fewest sketches, then key): its first chain_keys of them name the runs
+  //    it joins, its first kOrderKeys order it within a run (then the record
+  //    index). The rarest set-aside keys of copies of a popular prompt are the
+  //    prompt's own, held by the copies alone; a copy with a word inserted
+  //    loses a few of them but joins a run of the copies, and sits next to
+  //    them, while prompts that share only stock sentences differ early.
+  if (st.keys_set_aside > 0 && options.chain_keys > 0) {
+    constexpr uint32_t kOrderKeys = 8;
+    const auto below = static_cast<uint32_t>(std::max(1.0, std::ceil(options.chain_below_share * m)));
+    std::vector<uint64_t> items;   // key << 32 | record
+    std::vector<uint32_t> member;  // record -> its row in `order`
+    std::vector<uint64_t> order;   // a row of kOrderKeys (count << 32 | key) per chain member, padded with ~0
+    std::vector<uint64_t> own;
+    for (size_t r = 0; r < n; ++r) {
+      if (informative[r] >= below) continue;  // found through its informative keys
+      own.clear();
+      for (size_t q = 0; q < m; ++q) {
+        const size_t place = r * m + q;
+        if (aside[place]) own.push_back((static_cast<uint64_t>(aside[place]) << 32) | keys[place]);
+      }
+      if (own.empty()) continue;
+      std::sort(own.begin(), own.end());
+      for (size_t q = 0; q < own.size() && q < options.chain_keys; ++q) {
+        items.push_back((own[q] << 32) | r);  // the key (low half of own[q]) in the high half
+      }
+      own.resize(kOrderKeys, ~uint64_t{0});
+      if (member.empty()) member.assign(n, 0);
+      member[r] = static_cast<uint32_t>(order.size() / kOrderKeys);
+      order.insert(order.end(), own.begin(), own.end());
+    }
+    std::sort(items.begin(), items.end(), [&](uint64_t a, uint64_t b) {
+      if ((a >> 32) != (b >> 32)) return (a >> 32) < (b >> 32);
+      const auto ra = static_cast<uint32_t>(a), rb = static_cast<uint32_t>(b);
+      const uint64_t* oa = order.data() + size_t{member[ra]} * kOrderKeys;
+      const uint64_t* ob = order.data() + size_t{member[rb]} * kOrderKeys;
+      for (uint32_t q = 0; q < kOrderKeys; ++q) {
+        if (oa[q] != ob[q]) return oa[q] < ob[q];
+      }
+      return ra < rb;
+    });
+    std::vector<uint64_t> chain;
+    for (size_t x = 1; x < items.size(); ++x) {
+      for (size_t d = 1; d <= options.chain_window && d <= x; ++d) {
+        if ((items[x] >> 32) != (items[x - d] >> 32)) break;
+        const auto a = static_cast<uint32_t>(items[x - d]);
+        const auto b = static_cast<uint32_t>(items[x]);
+        chain.push_back(PackPair(std::min(a, b), std::max(a, b)));
+      }
+    }
+    SortUnique(&chain);
+    st.chain_pairs = chain.size();
+    MergeInto(&pairs, chain, &tmp);
+  }
+  for (size_t r = 0; r < n; ++r) st.records_without_informative += informative[r] == 0;
+  st.unique_pairs = pairs.size();
+  if (stats != nullptr) *stats = st;
+  return pairs;
+}
+
+}  // namespace prefsift::sketch
