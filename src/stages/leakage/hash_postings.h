@@ -64,6 +64,10 @@ class HashPostings {
 
   size_t entries() const { return values_.size(); }
   size_t keys() const { return starts_.empty() ? 0 : starts_.size() - 1; }
+  // Heap bytes held (capacities; docs/leakage.md "Memory").
+  uint64_t bytes() const {
+    return (slot_keys_.capacity() * 8 + slot_index_.capacity() * 4 + starts_.capacity() * 4 + values_.capacity() * 4);
+  }
 
  private:
   static uint64_t Fix(uint64_t k) { return k == 0 ? 1 : k; }

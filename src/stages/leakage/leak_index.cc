@@ -686,6 +686,26 @@ bool LeakIndex::MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, L
   return true;
 }
 
+std::vector<MemoryPart> LeakIndex::Memory() const {
+  const Impl& m = *impl_;
+  std::vector<MemoryPart> out;
+  out.push_back({"exact: prompt hashes", VectorBytes(m.prompt_hash)});
+  out.push_back({"exact: postings", m.exact.bytes()});
+  if (m.ngram) m.ngram->Memory("ngram: ", &out);
+  out.push_back({"normalised evaluation texts (spans)", StringsBytes(m.gram_text)});
+  out.push_back({"near: shingle sets", NestedBytes(m.sets)});
+  out.push_back({"near: informative shingle sets", NestedBytes(m.near_sets)});
+  out.push_back({"near: signatures", VectorBytes(m.sigs)});
+  out.push_back({"near: band postings", m.bands.bytes()});
+  out.push_back({"near: prefix postings", m.prefixes.bytes()});
+  out.push_back({"near: template shingles", VectorBytes(m.template_shingles)});
+  out.push_back({"training frequencies", VectorBytes(m.prompt_train_df) + VectorBytes(m.answer_train_df)});
+  out.push_back({"answers: texts, hashes, postings",
+                 StringsBytes(m.ref_text) + VectorBytes(m.ref_items) + VectorBytes(m.ref_hash) + m.ref_exact.bytes()});
+  if (m.ref_ngram) m.ref_ngram->Memory("answers ngram: ", &out);
+  return out;
+}
+
 void LeakIndex::TemplateJson(uint32_t limit, Json* out) const {
   const Impl& m = *impl_;
   auto list = [&](const NgramIndex& idx, const std::vector<uint32_t>& train_df, uint64_t train_docs,

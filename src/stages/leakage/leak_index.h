@@ -35,6 +35,7 @@
 #include "core/normalize.h"
 #include "core/status.h"
 #include "stages/leakage/eval_index.h"
+#include "stages/leakage/memory_use.h"
 
 namespace prefsift {
 
@@ -137,6 +138,8 @@ class LeakIndex {
   int ngram_n() const;             // the n in use (after "auto")
   uint64_t ngram_entries() const;
   uint64_t references() const;     // evaluation items with a reference answer
+  // Bytes held by the index, per structure (docs/leakage.md "Memory").
+  std::vector<MemoryPart> Memory() const;
 
  private:
   LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm);

@@ -203,6 +203,17 @@ NgramIndex::~NgramIndex() {
   delete ids_;
 }
 
+void NgramIndex::Memory(const std::string& prefix, std::vector<MemoryPart>* out) const {
+  out->push_back({prefix + "long gram postings (hash -> items)", long_->postings.bytes()});
+  out->push_back({prefix + "short gram postings (hash -> items)", short_->postings.bytes()});
+  out->push_back({prefix + "gram ids (hash -> id)", ids_->postings.bytes()});
+  out->push_back({prefix + "per-gram tables (df, example item/word, length)",
+                  VectorBytes(eval_df_) + VectorBytes(example_item_) + VectorBytes(example_word_) + VectorBytes(gram_words_)});
+  out->push_back({prefix + "gram -> items (CSR)", VectorBytes(gram_item_start_) + VectorBytes(gram_items_)});
+  out->push_back({prefix + "item -> gram ids (vector per item)", NestedBytes(item_grams_)});
+  out->push_back({prefix + "per-item informative words, template flags", VectorBytes(item_informative_) + VectorBytes(template_)});
+}
+
 uint64_t NgramIndex::indexed_grams() const { return long_->postings.entries() + short_->postings.entries(); }
 
 std::vector<NgramHit> NgramIndex::MatchAll(std::string_view text) const {

@@ -31,6 +31,8 @@
 #include <string_view>
 #include <vector>
 
+#include "stages/leakage/memory_use.h"
+
 namespace prefsift {
 
 struct NgramOptions {
@@ -103,6 +105,8 @@ class NgramIndex {
   uint64_t indexed_grams() const;   // distinct (gram, item) entries
   uint32_t short_items() const { return short_items_; }
   uint32_t skipped_items() const { return skipped_items_; }
+  // Bytes held, per structure, named `prefix` + the structure.
+  void Memory(const std::string& prefix, std::vector<MemoryPart>* out) const;
 
  private:
   struct Table;
