@@ -269,6 +269,7 @@ struct LeakIndex::Impl {
   NormalizeOptions gram_norm;
   bool same_norm = false;
   int n = 13;
+  uint64_t ngram_entries = 0;  // kept by ReleaseTables
   // exact
   std::vector<Hash128> prompt_hash;
   HashPostings exact;
@@ -310,7 +311,7 @@ LeakIndex::LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, con
 LeakIndex::~LeakIndex() = default;
 
 int LeakIndex::ngram_n() const { return impl_->n; }
-uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->indexed_grams() : 0; }
+uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->indexed_grams() : impl_->ngram_entries; }
 uint64_t LeakIndex::references() const { return impl_->ref_items.size(); }
 
 Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, const LeakSettings& settings,
@@ -705,6 +706,30 @@ bool LeakIndex::MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, L
   f->item = m.ref_items[hits[0].item];
   f->candidate = candidate;
   return true;
+}
+
+void LeakIndex::ReleaseCheckTables() {
+  Impl& m = *impl_;
+  m.prompt_hash = {};
+  m.exact = HashPostings();
+  m.shingles = FlatRows<uint64_t>();
+  m.informative_count = {};
+  m.sigs = {};
+  m.bands = HashPostings();
+  m.prefixes = HashPostings();
+  m.template_shingles = {};
+  m.ref_hash = {};
+  m.ref_exact = HashPostings();
+}
+
+void LeakIndex::ReleaseTables() {
+  Impl& m = *impl_;
+  m.ngram_entries = m.ngram ? m.ngram->indexed_grams() : 0;
+  Impl kept;
+  kept.n = m.n;
+  kept.ngram_entries = m.ngram_entries;
+  kept.ref_items = std::move(m.ref_items);
+  m = std::move(kept);
 }
 
 std::vector<MemoryPart> LeakIndex::Memory() const {

@@ -79,6 +79,10 @@ class LeakageStage : public Stage {
     grams_[record] = std::move(g);
   }
 
+  // Pass 1 made every exact, near and exact-answer finding: only the n-gram
+  // tables are looked up from here on.
+  void ObserveDone() override { index_->ReleaseCheckTables(); }
+
   void SaveObserved(StateWriter& out) const override;
   Status AppendObserved(StateReader& in, size_t first_record) override;
 
@@ -180,6 +184,21 @@ class LeakageStage : public Stage {
       }
       actions_.push_back(action);
     }
+    // Nothing after this step looks up the index: keep the template-text
+    // summary, then free the tables and the evaluation texts (only the items'
+    // ids and sets are reported from here on).
+    template_json_ = std::make_unique<Json>();
+    index_->TemplateJson(20, template_json_.get());
+    index_->ReleaseTables();
+    prompt_df_.reset();
+    answer_df_.reset();
+    for (EvalItem& item : corpus_->items) {
+      std::string().swap(item.text);
+      std::string().swap(item.reference);
+      std::string().swap(item.thread);
+      std::string().swap(item.annotator);
+      std::string().swap(item.group);
+    }
     return Status::Ok();
   }
 
@@ -221,7 +240,8 @@ class LeakageStage : public Stage {
     LeakSettingsToJson(s, index_->ngram_n(), &det);
     (*sec)["detectors"] = std::move(det);
     Json tmpl;
-    index_->TemplateJson(20, &tmpl);
+    if (template_json_) tmpl = *template_json_;
+    else index_->TemplateJson(20, &tmpl);
     (*sec)["template_text"] = std::move(tmpl);
     (*sec)["records_checked"] = records_;
     (*sec)["contaminated_records"] = contaminated_.size();
@@ -289,6 +309,7 @@ class LeakageStage : public Stage {
   std::unique_ptr<std::atomic<uint32_t>[]> prompt_df_, answer_df_;
   std::atomic<uint64_t> answer_docs_{0};
   std::vector<std::vector<LeakFinding>> findings_;
+  std::unique_ptr<Json> template_json_;  // made at the end of Decide, before the tables are freed
   std::vector<size_t> contaminated_;
   std::vector<std::string> actions_;
   uint64_t records_ = 0, dropped_ = 0, flagged_ = 0;
