@@ -34,7 +34,7 @@ std::vector<std::string> AuditFeatureNames(bool with_slot) {
 }
 
 AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& records,
-                             const std::vector<std::vector<CandidateSurface>>& surface,
+                             const std::vector<CandidateSurfaces>& surface,
                              const std::vector<std::vector<uint32_t>>* new_slot_of, uint64_t seed,
                              const AuditOptions& o) {
   AuditResult a;
