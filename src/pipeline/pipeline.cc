@@ -734,7 +734,7 @@ Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, con
 Result<Json> DecideStages(const Plan& plan, Stages& stages, RunCompanion* companion, StageContext& ctx,
                           const std::vector<std::string>& command_stages, RunOutcome* outcome,
                           const std::function<void(const std::string&)>& mark) {
-  for (auto& stage : stages) stage->ObserveDone();
+  for (auto& stage : stages) stage->ObserveDone(ctx.run);
   ReturnFreeMemory();
   for (auto& stage : stages) {
     if (Status s = stage->Decide(ctx); !s.ok()) return s;

@@ -5,7 +5,6 @@
 #include <algorithm>
 #include <cmath>
 #include <map>
-#include <set>
 
 #include "stats/choice_model.h"
 #include "stats/hypothesis_tests.h"
@@ -45,11 +44,12 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   }
   const std::vector<std::string> all_features = AuditFeatureNames(with_slot);
   const size_t dim = all_features.size();
-  std::vector<std::vector<double>> comparisons;
-  std::vector<uint32_t> chosen;
+  // Every comparison's rows with all `dim` features, one flat array; the
+  // features that never vary are taken out in place below.
+  stats::ChoiceData data;
+  data.dim = static_cast<int>(dim);
   std::vector<uint64_t> group_of;
   std::vector<char> varies(dim, 0);
-  std::set<uint64_t> groups;
   double chance = 0;
   std::map<uint32_t, std::vector<uint64_t>> slot_counts;  // B -> chosen slot counts (slot layouts)
   for (size_t r : records) {
@@ -59,8 +59,8 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
     const auto& cands = surface[r];
     const std::vector<uint32_t>* moved =
         new_slot_of && r < new_slot_of->size() && !(*new_slot_of)[r].empty() ? &(*new_slot_of)[r] : nullptr;
-    std::vector<double> rows;
-    rows.reserve(cands.size() * dim);
+    thread_local std::vector<double> rows;
+    rows.clear();
     for (size_t i = 0; i < cands.size(); ++i) {
       const CandidateSurface& cs = cands[i];
       rows.push_back(std::log1p(static_cast<double>(cs.words)));
@@ -77,11 +77,9 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
     for (size_t i = 1; i < cands.size(); ++i) {
       for (size_t k = 0; k < dim; ++k) varies[k] = varies[k] || rows[i * dim + k] != rows[k];
     }
-    comparisons.push_back(std::move(rows));
-    chosen.push_back(static_cast<uint32_t>(c));
+    data.Add(rows, static_cast<uint32_t>(c));
     const uint64_t g = f.prompt_hash.hi ^ (f.prompt_hash.lo * 0x9E3779B97F4A7C15ULL);
     group_of.push_back(g);
-    groups.insert(g);
     chance += 1.0 / static_cast<double>(cands.size());
     auto& sc = slot_counts[static_cast<uint32_t>(cands.size())];
     sc.resize(cands.size(), 0);
@@ -92,7 +90,7 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   std::vector<stats::BernoulliGroup> chance_groups;
   {
     std::map<uint32_t, uint64_t> n_by_b;
-    for (const auto& cmp : comparisons) ++n_by_b[static_cast<uint32_t>(cmp.size() / dim)];
+    for (size_t i = 0; i < data.size(); ++i) ++n_by_b[static_cast<uint32_t>(data.offsets[i + 1] - data.offsets[i])];
     double expected = 0;
     for (const auto& [b, n] : n_by_b) {
       const auto& sc = slot_counts[b];
@@ -102,7 +100,7 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
       chance_groups.push_back({n, rate});
       expected += static_cast<double>(n) * rate;
     }
-    a.uniform_chance = comparisons.empty() ? 0.0 : chance / static_cast<double>(comparisons.size());
+    a.uniform_chance = data.size() == 0 ? 0.0 : chance / static_cast<double>(data.size());
     chance = expected;
   }
   // Features that never differ between the candidates of one comparison
@@ -116,20 +114,24 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
       a.not_varying.push_back(all_features[k]);
     }
   }
-  stats::ChoiceData data;
-  data.dim = static_cast<int>(cols.size());
-  for (size_t i = 0; i < comparisons.size(); ++i) {
-    const size_t b = comparisons[i].size() / dim;
-    std::vector<double> rows;
-    rows.reserve(b * cols.size());
-    for (size_t j = 0; j < b; ++j) {
-      for (size_t k : cols) rows.push_back(comparisons[i][j * dim + k]);
+  if (cols.size() != dim) {
+    // Keep the varying columns of every candidate row, in order (in place:
+    // the write position never passes the read position).
+    const size_t candidate_rows = data.offsets.back();
+    size_t w = 0;
+    for (size_t row = 0; row < candidate_rows; ++row) {
+      for (size_t k : cols) data.features[w++] = data.features[row * dim + k];
     }
-    data.Add(rows, chosen[i]);
+    data.features.resize(w);
+  }
+  data.dim = static_cast<int>(cols.size());
+  {
+    std::vector<uint64_t> distinct = group_of;
+    std::sort(distinct.begin(), distinct.end());
+    a.prompt_groups = static_cast<uint64_t>(std::unique(distinct.begin(), distinct.end()) - distinct.begin());
   }
   data.group = std::move(group_of);
   a.comparisons = data.size();
-  a.prompt_groups = groups.size();
   a.chance_accuracy = data.size() ? chance / static_cast<double>(data.size()) : 0.0;
   if (a.comparisons < o.min_records) {
     a.skipped = "only " + std::to_string(a.comparisons) + " comparisons with a single chosen candidate (minimum " +

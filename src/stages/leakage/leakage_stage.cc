@@ -81,12 +81,36 @@ class LeakageStage : public Stage {
     grams_[record] = RecordGrams(prompt, answer, ends);
   }
 
-  // Pass 1 made every exact, near and exact-answer finding: only the n-gram
-  // tables are looked up from here on.
-  void ObserveDone() override { index_->ReleaseCheckTables(); }
+  // Pass 1 made every exact, near and exact-answer finding, and counted the
+  // training frequencies the n-gram and answer findings need: make those now
+  // and free the whole index before any stage decides.
+  void ObserveDone(const RunState& run) override {
+    index_->ReleaseCheckTables();
+    FinishGrams(run.records.size());
+  }
 
   void SaveObserved(StateWriter& out) const override;
   Status AppendObserved(StateReader& in, size_t first_record) override;
+
+  // Once: the n-gram and answer findings, then nothing looks up the index
+  // again: keep the template-text summary, then free the tables and the
+  // evaluation texts (only the items' ids and sets are reported from here on).
+  void FinishGrams(size_t records) {
+    if (template_json_) return;
+    DecideGrams(records);
+    template_json_ = std::make_unique<Json>();
+    index_->TemplateJson(20, template_json_.get());
+    index_->ReleaseTables();
+    prompt_df_.reset();
+    answer_df_.reset();
+    for (EvalItem& item : corpus_->items) {
+      std::string().swap(item.text);
+      std::string().swap(item.reference);
+      std::string().swap(item.thread);
+      std::string().swap(item.annotator);
+      std::string().swap(item.group);
+    }
+  }
 
   // The n-gram and answer findings, once the training frequencies are known.
   void DecideGrams(size_t records) {
@@ -143,7 +167,7 @@ class LeakageStage : public Stage {
     RunState& st = ctx.run;
     const LeakSettings& s = index_->settings();
     records_ = st.records.size();
-    DecideGrams(st.records.size());
+    FinishGrams(st.records.size());
     for (size_t r = 0; r < st.records.size() && r < findings_.size(); ++r) {
       const auto& fs = findings_[r];
       if (fs.empty()) continue;
@@ -187,21 +211,6 @@ class LeakageStage : public Stage {
         ++flagged_;
       }
       actions_.push_back(action);
-    }
-    // Nothing after this step looks up the index: keep the template-text
-    // summary, then free the tables and the evaluation texts (only the items'
-    // ids and sets are reported from here on).
-    template_json_ = std::make_unique<Json>();
-    index_->TemplateJson(20, template_json_.get());
-    index_->ReleaseTables();
-    prompt_df_.reset();
-    answer_df_.reset();
-    for (EvalItem& item : corpus_->items) {
-      std::string().swap(item.text);
-      std::string().swap(item.reference);
-      std::string().swap(item.thread);
-      std::string().swap(item.annotator);
-      std::string().swap(item.group);
     }
     return Status::Ok();
   }
