@@ -12,6 +12,7 @@
 #include <set>
 #include <thread>
 
+#include "core/free_memory.h"
 #include "core/normalize.h"
 #include "core/record_reader.h"
 #include "core/thread_pool.h"
@@ -758,8 +759,11 @@ Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, con
 Result<Json> DecideStages(const Plan& plan, Stages& stages, RunCompanion* companion, StageContext& ctx,
                           const std::vector<std::string>& command_stages, RunOutcome* outcome,
                           const std::function<void(const std::string&)>& mark) {
+  for (auto& stage : stages) stage->ObserveDone(ctx.run);
+  ReturnFreeMemory();
   for (auto& stage : stages) {
     if (Status s = stage->Decide(ctx); !s.ok()) return s;
+    ReturnFreeMemory();  // the step's working set, before the next step and pass 2
     if (mark) mark("decide " + stage->name());
   }
   if (companion) {

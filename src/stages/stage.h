@@ -49,6 +49,11 @@ class Stage {
   // Observe keeps nothing needs neither.
   virtual void SaveObserved(StateWriter& /*out*/) const {}
   virtual Status AppendObserved(StateReader& /*in*/, size_t /*first_record*/) { return Status::Ok(); }
+  // Pass 1 is over (and every part's observed state is loaded): free what
+  // only Observe needed, before any stage decides (docs/performance.md,
+  // "Memory"). Called once, before the first Decide; `run` holds every
+  // record's facts.
+  virtual void ObserveDone(const RunState& /*run*/) {}
   // Decides over the facts of every record (rejects, groups, splits), publishes
   // its typed results (stages/stage_results.h) and fills its gate figures.
   virtual Status Decide(StageContext& ctx) = 0;

@@ -3,10 +3,12 @@
 // to the set of its values: same values, in ascending order, for every key
 // looked up, on random keys with repeated pairs, keys that share a probe
 // chain, the keys 0 and 1 (stored as one key, as the header says), the empty
-// table and a rebuilt table. Seeded, so a failure reproduces.
+// table and a rebuilt table; and each key's ordinal (its rank in the map's
+// ascending order, the n-gram index's gram id). Seeded, so a failure reproduces.
 #include <gtest/gtest.h>
 
 #include <cstdint>
+#include <iterator>
 #include <map>
 #include <set>
 #include <utility>
@@ -30,11 +32,22 @@ Reference MakeReference(const Entries& entries) {
   return ref;
 }
 
+// Find, and Ordinal: the key's rank among the distinct stored keys in
+// ascending order (the map's order), -1 when absent; Values(rank) == Find.
 void ExpectSameLookup(const HashPostings& table, const Reference& ref, uint64_t key) {
   auto got = table.Find(key);
   std::vector<uint32_t> want;
-  if (auto it = ref.find(Stored(key)); it != ref.end()) want.assign(it->second.begin(), it->second.end());
+  int64_t want_rank = -1;
+  if (auto it = ref.find(Stored(key)); it != ref.end()) {
+    want.assign(it->second.begin(), it->second.end());
+    want_rank = std::distance(ref.begin(), it);
+  }
   EXPECT_EQ(std::vector<uint32_t>(got.begin(), got.end()), want) << "key " << key;
+  EXPECT_EQ(table.Ordinal(key), want_rank) << "key " << key;
+  if (want_rank >= 0) {
+    auto by_rank = table.Values(static_cast<uint32_t>(want_rank));
+    EXPECT_EQ(std::vector<uint32_t>(by_rank.begin(), by_rank.end()), want) << "key " << key;
+  }
 }
 
 // Builds the table, checks its sizes, every stored key and `probes` absent

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "core/run_state.h"
+#include "core/small_vector.h"
 
 namespace prefsift::bias {
 
@@ -24,6 +25,11 @@ struct CandidateSurface {
   uint8_t flags = 0;        // kCodeBlock | kHeading | kRefusal | kUrl
   static constexpr uint8_t kCodeBlock = 1, kHeading = 2, kRefusal = 4, kUrl = 8;
 };
+
+// One record's candidates' surface features, inside the record's slot for up
+// to 4 candidates (40 bytes, no heap block; a std::vector took 24 bytes and a
+// heap block of at least 32).
+using CandidateSurfaces = SmallVector<CandidateSurface, 4>;
 
 enum class Correction { kHolm, kBenjaminiHochberg };
 const char* CorrectionName(Correction c);  // "holm" or "benjamini-hochberg"

@@ -112,6 +112,7 @@ class BiasStage : public Stage {
       audit_after_ = RunShortcutAudit(st, kept, surface_, &new_slot_, seed_, s_.audit);
     }
     records_out_ = kept.size();
+    surface_ = {};  // only the audits above read it
     return Status::Ok();
   }
 
@@ -262,7 +263,7 @@ class BiasStage : public Stage {
  private:
   BiasSettings s_;
   uint64_t seed_;
-  std::vector<std::vector<CandidateSurface>> surface_;
+  std::vector<CandidateSurfaces> surface_;
   std::vector<std::vector<uint32_t>> new_slot_;
   uint64_t records_in_ = 0, records_out_ = 0, discarded_ = 0, permuted_ = 0, reordered_ = 0;
   bool any_rebalance_ = false;

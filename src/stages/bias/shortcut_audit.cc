@@ -5,7 +5,6 @@
 #include <algorithm>
 #include <cmath>
 #include <map>
-#include <set>
 
 #include "stats/choice_model.h"
 #include "stats/hypothesis_tests.h"
@@ -34,7 +33,7 @@ std::vector<std::string> AuditFeatureNames(bool with_slot) {
 }
 
 AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& records,
-                             const std::vector<std::vector<CandidateSurface>>& surface,
+                             const std::vector<CandidateSurfaces>& surface,
                              const std::vector<std::vector<uint32_t>>* new_slot_of, uint64_t seed,
                              const AuditOptions& o) {
   AuditResult a;
@@ -45,22 +44,17 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   }
   const std::vector<std::string> all_features = AuditFeatureNames(with_slot);
   const size_t dim = all_features.size();
-  std::vector<std::vector<double>> comparisons;
-  std::vector<uint32_t> chosen;
-  std::vector<uint64_t> group_of;
-  std::vector<char> varies(dim, 0);
-  std::set<uint64_t> groups;
-  double chance = 0;
-  std::map<uint32_t, std::vector<uint64_t>> slot_counts;  // B -> chosen slot counts (slot layouts)
-  for (size_t r : records) {
+  // One comparison's candidate rows with all `dim` features; -1 when the
+  // record has no single chosen candidate.
+  std::vector<double> rows;
+  auto rows_of = [&](size_t r) -> int {
     const RecordFacts& f = st.records[r];
     const int c = PreferredIndex(f);
-    if (c < 0) continue;
+    if (c < 0) return -1;
     const auto& cands = surface[r];
     const std::vector<uint32_t>* moved =
         new_slot_of && r < new_slot_of->size() && !(*new_slot_of)[r].empty() ? &(*new_slot_of)[r] : nullptr;
-    std::vector<double> rows;
-    rows.reserve(cands.size() * dim);
+    rows.clear();
     for (size_t i = 0; i < cands.size(); ++i) {
       const CandidateSurface& cs = cands[i];
       rows.push_back(std::log1p(static_cast<double>(cs.words)));
@@ -74,36 +68,20 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
         rows.push_back(HasSlots(f) ? static_cast<double>(moved ? (*moved)[i] : i) : 0.0);
       }
     }
-    for (size_t i = 1; i < cands.size(); ++i) {
+    return c;
+  };
+  // First pass: which features vary between the candidates of a comparison,
+  // and the sizes, so the choice data is made once at its final size.
+  std::vector<char> varies(dim, 0);
+  size_t comparisons = 0, candidate_rows = 0;
+  for (size_t r : records) {
+    if (rows_of(r) < 0) continue;
+    const size_t b = rows.size() / dim;
+    for (size_t i = 1; i < b; ++i) {
       for (size_t k = 0; k < dim; ++k) varies[k] = varies[k] || rows[i * dim + k] != rows[k];
     }
-    comparisons.push_back(std::move(rows));
-    chosen.push_back(static_cast<uint32_t>(c));
-    const uint64_t g = f.prompt_hash.hi ^ (f.prompt_hash.lo * 0x9E3779B97F4A7C15ULL);
-    group_of.push_back(g);
-    groups.insert(g);
-    chance += 1.0 / static_cast<double>(cands.size());
-    auto& sc = slot_counts[static_cast<uint32_t>(cands.size())];
-    sc.resize(cands.size(), 0);
-    if (HasSlots(f)) ++sc[moved ? (*moved)[static_cast<size_t>(c)] : static_cast<size_t>(c)];
-  }
-  // Expected rate per B: a model that always named the most common slot
-  // would reach that slot's share; below that, 1/B.
-  std::vector<stats::BernoulliGroup> chance_groups;
-  {
-    std::map<uint32_t, uint64_t> n_by_b;
-    for (const auto& cmp : comparisons) ++n_by_b[static_cast<uint32_t>(cmp.size() / dim)];
-    double expected = 0;
-    for (const auto& [b, n] : n_by_b) {
-      const auto& sc = slot_counts[b];
-      const uint64_t top = sc.empty() ? 0 : *std::max_element(sc.begin(), sc.end());
-      const double rate = std::max(1.0 / b, static_cast<double>(top) / static_cast<double>(n));
-      a.chance_by_b.push_back({b, n, rate});
-      chance_groups.push_back({n, rate});
-      expected += static_cast<double>(n) * rate;
-    }
-    a.uniform_chance = comparisons.empty() ? 0.0 : chance / static_cast<double>(comparisons.size());
-    chance = expected;
+    ++comparisons;
+    candidate_rows += b;
   }
   // Features that never differ between the candidates of one comparison
   // carry no information (their weight is not identified): left out, listed.
@@ -116,20 +94,61 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
       a.not_varying.push_back(all_features[k]);
     }
   }
+  // Second pass: the choice data over the varying features.
   stats::ChoiceData data;
   data.dim = static_cast<int>(cols.size());
-  for (size_t i = 0; i < comparisons.size(); ++i) {
-    const size_t b = comparisons[i].size() / dim;
-    std::vector<double> rows;
-    rows.reserve(b * cols.size());
+  data.features.reserve(candidate_rows * cols.size());
+  data.offsets.reserve(comparisons + 1);
+  data.chosen.reserve(comparisons);
+  std::vector<uint64_t> group_of;
+  group_of.reserve(comparisons);
+  double chance = 0;
+  std::map<uint32_t, std::vector<uint64_t>> slot_counts;  // B -> chosen slot counts (slot layouts)
+  std::map<uint32_t, uint64_t> n_by_b;
+  std::vector<double> kept;
+  for (size_t r : records) {
+    const int c = rows_of(r);
+    if (c < 0) continue;
+    const RecordFacts& f = st.records[r];
+    const size_t b = rows.size() / dim;
+    kept.clear();
     for (size_t j = 0; j < b; ++j) {
-      for (size_t k : cols) rows.push_back(comparisons[i][j * dim + k]);
+      for (size_t k : cols) kept.push_back(rows[j * dim + k]);
     }
-    data.Add(rows, chosen[i]);
+    data.Add(kept, static_cast<uint32_t>(c));
+    group_of.push_back(f.prompt_hash.hi ^ (f.prompt_hash.lo * 0x9E3779B97F4A7C15ULL));
+    chance += 1.0 / static_cast<double>(b);
+    ++n_by_b[static_cast<uint32_t>(b)];
+    auto& sc = slot_counts[static_cast<uint32_t>(b)];
+    sc.resize(b, 0);
+    const std::vector<uint32_t>* moved =
+        new_slot_of && r < new_slot_of->size() && !(*new_slot_of)[r].empty() ? &(*new_slot_of)[r] : nullptr;
+    if (HasSlots(f)) ++sc[moved ? (*moved)[static_cast<size_t>(c)] : static_cast<size_t>(c)];
+  }
+  std::vector<double>().swap(rows);
+  // Expected rate per B: a model that always named the most common slot
+  // would reach that slot's share; below that, 1/B.
+  std::vector<stats::BernoulliGroup> chance_groups;
+  {
+    double expected = 0;
+    for (const auto& [b, n] : n_by_b) {
+      const auto& sc = slot_counts[b];
+      const uint64_t top = sc.empty() ? 0 : *std::max_element(sc.begin(), sc.end());
+      const double rate = std::max(1.0 / b, static_cast<double>(top) / static_cast<double>(n));
+      a.chance_by_b.push_back({b, n, rate});
+      chance_groups.push_back({n, rate});
+      expected += static_cast<double>(n) * rate;
+    }
+    a.uniform_chance = data.size() == 0 ? 0.0 : chance / static_cast<double>(data.size());
+    chance = expected;
+  }
+  {
+    std::vector<uint64_t> distinct = group_of;
+    std::sort(distinct.begin(), distinct.end());
+    a.prompt_groups = static_cast<uint64_t>(std::unique(distinct.begin(), distinct.end()) - distinct.begin());
   }
   data.group = std::move(group_of);
   a.comparisons = data.size();
-  a.prompt_groups = groups.size();
   a.chance_accuracy = data.size() ? chance / static_cast<double>(data.size()) : 0.0;
   if (a.comparisons < o.min_records) {
     a.skipped = "only " + std::to_string(a.comparisons) + " comparisons with a single chosen candidate (minimum " +

@@ -67,7 +67,7 @@ std::vector<std::string> AuditFeatureNames(bool with_slot);
 // as in ComputePositionStats (null = file order). REQUIRES: surface sized
 // st.records.size() with entries for every record in `records`.
 AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& records,
-                             const std::vector<std::vector<CandidateSurface>>& surface,
+                             const std::vector<CandidateSurfaces>& surface,
                              const std::vector<std::vector<uint32_t>>* new_slot_of, uint64_t seed,
                              const AuditOptions& options);
 

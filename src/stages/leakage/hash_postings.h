@@ -35,6 +35,7 @@ class HashPostings {
       values_[i] = entries[i].second;
     }
     starts_.push_back(static_cast<uint32_t>(entries.size()));
+    std::vector<std::pair<uint64_t, uint32_t>>().swap(entries);  // free before the slots are made
     size_t cap = 16;
     while (cap * 7 < keys.size() * 10) cap *= 2;  // load factor <= 0.7
     mask_ = cap - 1;
@@ -50,20 +51,33 @@ class HashPostings {
 
   // The values stored under `key` (empty when absent).
   std::span<const uint32_t> Find(uint64_t key) const {
-    if (slot_keys_.empty()) return {};
+    const int64_t d = Ordinal(key);
+    return d < 0 ? std::span<const uint32_t>() : Values(static_cast<uint32_t>(d));
+  }
+
+  // The rank of `key` among the distinct keys in ascending order (keys 0 and
+  // 1 counted as 1), or -1 when absent. A caller can use it as a dense id.
+  int64_t Ordinal(uint64_t key) const {
+    if (slot_keys_.empty()) return -1;
     key = Fix(key);
     for (size_t s = Slot(key);; s = (s + 1) & mask_) {
       uint64_t k = slot_keys_[s];
-      if (k == 0) return {};
-      if (k == key) {
-        uint32_t d = slot_index_[s];
-        return std::span<const uint32_t>(values_.data() + starts_[d], starts_[d + 1] - starts_[d]);
-      }
+      if (k == 0) return -1;
+      if (k == key) return slot_index_[s];
     }
+  }
+
+  // The values of the key of rank `ordinal` (REQUIRES: ordinal < keys()).
+  std::span<const uint32_t> Values(uint32_t ordinal) const {
+    return std::span<const uint32_t>(values_.data() + starts_[ordinal], starts_[ordinal + 1] - starts_[ordinal]);
   }
 
   size_t entries() const { return values_.size(); }
   size_t keys() const { return starts_.empty() ? 0 : starts_.size() - 1; }
+  // Heap bytes held (capacities; docs/leakage.md "Memory").
+  uint64_t bytes() const {
+    return (slot_keys_.capacity() * 8 + slot_index_.capacity() * 4 + starts_.capacity() * 4 + values_.capacity() * 4);
+  }
 
  private:
   static uint64_t Fix(uint64_t k) { return k == 0 ? 1 : k; }

@@ -10,6 +10,7 @@
 #include "sketch/minhash.h"
 #include "sketch/set_similarity.h"
 #include "sketch/shingles.h"
+#include "stages/leakage/flat_rows.h"
 #include "stages/leakage/hash_postings.h"
 #include "stages/leakage/ngram_overlap.h"
 
@@ -100,7 +101,7 @@ std::vector<CoverageHit> Passing(const LeakSettings& s, const NgramIndex& idx, s
   return out;
 }
 
-LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, const std::string& item_text) {
+LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, std::string_view item_text) {
   LeakFinding f;
   f.detector = LeakDetector::kNgram;
   f.item = h.item;
@@ -268,6 +269,7 @@ struct LeakIndex::Impl {
   NormalizeOptions gram_norm;
   bool same_norm = false;
   int n = 13;
+  uint64_t ngram_entries = 0;  // kept by ReleaseTables
   // exact
   std::vector<Hash128> prompt_hash;
   HashPostings exact;
@@ -277,11 +279,16 @@ struct LeakIndex::Impl {
   sketch::ShingleOptions shingle;
   sketch::MinHashParams minhash;
   sketch::Banding banding;
-  std::vector<std::vector<uint64_t>> sets;       // whole shingle sets (Jaccard, spans)
-  std::vector<std::vector<uint64_t>> near_sets;  // without template shingles (containment)
+  // Each item's shingle set as one flat row: its informative shingles
+  // (sorted; the containment test and the prefix filter), then its template
+  // shingles (sorted). Together they are the whole set (spans).
+  FlatRows<uint64_t> shingles;
+  std::vector<uint32_t> informative_count;
+  std::span<const uint64_t> Informative(uint32_t item) const { return shingles[item].first(informative_count[item]); }
+  std::span<const uint64_t> TemplatePart(uint32_t item) const { return shingles[item].subspan(informative_count[item]); }
   std::vector<uint8_t> sigs;
   HashPostings bands, prefixes;
-  std::vector<std::string> gram_text;   // normalised evaluation prompts (spans)
+  FlatStrings gram_text;   // normalised evaluation prompts (spans)
   std::vector<uint32_t> prompt_train_df;  // after SetTrainingFrequencies
   uint64_t prompt_docs = 0;
   uint32_t near_template_shingles = 0;
@@ -290,7 +297,7 @@ struct LeakIndex::Impl {
   // the Jaccard test still compares the whole-set signatures in `sigs`.
   std::vector<uint64_t> template_shingles;
   // answers
-  std::vector<std::string> ref_text;
+  FlatStrings ref_text;
   std::vector<uint32_t> answer_train_df;
   uint64_t answer_docs = 0;
   std::vector<uint32_t> ref_items;
@@ -304,7 +311,7 @@ LeakIndex::LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, con
 LeakIndex::~LeakIndex() = default;
 
 int LeakIndex::ngram_n() const { return impl_->n; }
-uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->indexed_grams() : 0; }
+uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->indexed_grams() : impl_->ngram_entries; }
 uint64_t LeakIndex::references() const { return impl_->ref_items.size(); }
 
 Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, const LeakSettings& settings,
@@ -315,19 +322,22 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
   m.gram_norm = norm;
   m.gram_norm.strip_punctuation = settings.strip_punctuation || norm.strip_punctuation;
   m.same_norm = m.gram_norm.strip_punctuation == norm.strip_punctuation;
-  std::vector<std::string> gram_text(items);
   std::vector<uint32_t> word_counts(items);
   for (size_t i = 0; i < items; ++i) {
-    gram_text[i] = NormalizeForMatch(corpus.items[i].text, m.gram_norm);
-    word_counts[i] = static_cast<uint32_t>(sketch::CountWords(gram_text[i]));
+    const std::string t = NormalizeForMatch(corpus.items[i].text, m.gram_norm);
+    word_counts[i] = static_cast<uint32_t>(sketch::CountWords(t));
+    m.gram_text.Add(t);
   }
+  m.gram_text.ShrinkToFit();
   m.n = settings.ngram_n == 0 ? AutoNgramLength(word_counts) : settings.ngram_n;
-  m.gram_text = gram_text;
+  std::vector<uint32_t>().swap(word_counts);
   if (settings.enabled[0]) {
     std::vector<std::pair<uint64_t, uint32_t>> e;
+    e.reserve(items);
     m.prompt_hash.resize(items);
     for (uint32_t i = 0; i < items; ++i) {
-      m.prompt_hash[i] = HashBytes(NormalizeForMatch(corpus.items[i].text, norm));
+      // The n-gram text is the exact detector's text when the normalisations agree.
+      m.prompt_hash[i] = m.same_norm ? HashBytes(m.gram_text[i]) : HashBytes(NormalizeForMatch(corpus.items[i].text, norm));
       e.emplace_back(m.prompt_hash[i].lo, i);
     }
     m.exact.Build(std::move(e));
@@ -337,7 +347,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
   no.min_eval_words = settings.min_eval_words;
   no.min_shared = settings.min_shared;
   if (settings.enabled[1]) {
-    m.ngram = std::make_unique<NgramIndex>(gram_text, no);
+    m.ngram = std::make_unique<NgramIndex>(m.gram_text, no);
     MarkTemplate(settings, m.ngram.get(), items, nullptr, 0);
   }
   if (settings.enabled[2]) {
@@ -350,7 +360,6 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.banding = b.value();
     }
     const uint32_t K = settings.num_slots;
-    m.sets.resize(items);
     m.sigs.resize(items * K);
     std::vector<std::pair<uint64_t, uint32_t>> band_entries, prefix_entries;
     std::vector<uint64_t> keys(m.banding.bands);
@@ -358,11 +367,13 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     // containment: signatures keep the whole set, the prefix filter and the
     // containment test use the rest. This also keeps the prefix filter's
     // candidate lists short when every item shares stock text.
-    for (uint32_t i = 0; i < items; ++i) m.sets[i] = sketch::Shingles(gram_text[i], m.shingle);
+    FlatRows<uint64_t> whole;  // each item's sorted, distinct shingles
+    for (uint32_t i = 0; i < items; ++i) whole.Add(sketch::Shingles(m.gram_text[i], m.shingle));
     std::vector<uint64_t> template_shingles;
     {
       std::vector<uint64_t> all;
-      for (const auto& set : m.sets) all.insert(all.end(), set.begin(), set.end());
+      all.reserve(whole.values());
+      for (uint32_t i = 0; i < items; ++i) all.insert(all.end(), whole[i].begin(), whole[i].end());
       std::sort(all.begin(), all.end());
       const uint64_t cut = TemplateCut(settings, items);
       for (size_t a = 0; a < all.size();) {
@@ -373,13 +384,22 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       }
       m.near_template_shingles = static_cast<uint32_t>(template_shingles.size());
     }
-    m.near_sets.resize(items);
+    m.informative_count.resize(items);
+    m.shingles.Reserve(items, whole.values());
+    std::vector<uint64_t> informative, stock;
     std::vector<uint8_t> inf_sig(K);
     for (uint32_t i = 0; i < items; ++i) {
-      auto sig = sketch::Sign(m.sets[i], m.minhash);
-      auto& informative = m.near_sets[i];
-      std::set_difference(m.sets[i].begin(), m.sets[i].end(), template_shingles.begin(), template_shingles.end(),
+      const auto set = whole[i];
+      auto sig = sketch::Sign(set, m.minhash);
+      informative.clear();
+      stock.clear();
+      std::set_difference(set.begin(), set.end(), template_shingles.begin(), template_shingles.end(),
                           std::back_inserter(informative));
+      std::set_intersection(set.begin(), set.end(), template_shingles.begin(), template_shingles.end(),
+                            std::back_inserter(stock));
+      m.informative_count[i] = static_cast<uint32_t>(informative.size());
+      m.shingles.Add(informative);
+      m.shingles.Extend(stock);
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
       sketch::Compact(sig, compact);
       if (settings.jaccard > 0 && template_shingles.empty()) {
@@ -404,6 +424,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
         for (size_t q = 0; q < p; ++q) prefix_entries.emplace_back(informative[q], i);
       }
     }
+    whole = FlatRows<uint64_t>();
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
     m.template_shingles = std::move(template_shingles);
@@ -416,7 +437,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.ref_items.push_back(i);
       m.ref_hash.push_back(HashBytes(NormalizeForMatch(corpus.items[i].reference, norm)));
       e.emplace_back(m.ref_hash.back().lo, r);
-      m.ref_text.push_back(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
+      m.ref_text.Add(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
     }
     m.ref_exact.Build(std::move(e));
     m.ref_ngram = std::make_unique<NgramIndex>(m.ref_text, no);
@@ -523,7 +544,7 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
         in_prefix = true;
         if (bi < band_cand.size() && band_cand[bi] == item) ++bi;
       }
-      const auto& e = m.near_sets[item];
+      const auto e = m.Informative(item);
       double j = 0, c = 0;
       bool jok = false, cok = false;
       if (s.jaccard > 0) {
@@ -557,10 +578,11 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
       auto words = sketch::Words(gram_text);
       bool chars = sketch::ResolveMode(gram_text, m.shingle) == sketch::ShingleMode::kChars;
       for (auto& f : found) {
-        const auto& e = m.sets[f.item];
+        const auto e = m.Informative(f.item), t = m.TemplatePart(f.item);
         size_t best_start = 0, best_len = 0, run = 0;
         for (size_t p = 0; p < ordered.size(); ++p) {
-          run = std::binary_search(e.begin(), e.end(), ordered[p]) ? run + 1 : 0;
+          const bool in = std::binary_search(e.begin(), e.end(), ordered[p]) || std::binary_search(t.begin(), t.end(), ordered[p]);
+          run = in ? run + 1 : 0;
           if (run > best_len) {
             best_len = run;
             best_start = p + 1 - run;
@@ -686,10 +708,53 @@ bool LeakIndex::MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, L
   return true;
 }
 
+void LeakIndex::ReleaseCheckTables() {
+  Impl& m = *impl_;
+  m.prompt_hash = {};
+  m.exact = HashPostings();
+  m.shingles = FlatRows<uint64_t>();
+  m.informative_count = {};
+  m.sigs = {};
+  m.bands = HashPostings();
+  m.prefixes = HashPostings();
+  m.template_shingles = {};
+  m.ref_hash = {};
+  m.ref_exact = HashPostings();
+}
+
+void LeakIndex::ReleaseTables() {
+  Impl& m = *impl_;
+  m.ngram_entries = m.ngram ? m.ngram->indexed_grams() : 0;
+  Impl kept;
+  kept.n = m.n;
+  kept.ngram_entries = m.ngram_entries;
+  kept.ref_items = std::move(m.ref_items);
+  m = std::move(kept);
+}
+
+std::vector<MemoryPart> LeakIndex::Memory() const {
+  const Impl& m = *impl_;
+  std::vector<MemoryPart> out;
+  out.push_back({"exact: prompt hashes", VectorBytes(m.prompt_hash)});
+  out.push_back({"exact: postings", m.exact.bytes()});
+  if (m.ngram) m.ngram->Memory("ngram: ", &out);
+  out.push_back({"normalised evaluation texts (spans; flat)", m.gram_text.bytes()});
+  out.push_back({"near: shingle sets (flat rows: informative, then template)", m.shingles.bytes() + VectorBytes(m.informative_count)});
+  out.push_back({"near: signatures", VectorBytes(m.sigs)});
+  out.push_back({"near: band postings", m.bands.bytes()});
+  out.push_back({"near: prefix postings", m.prefixes.bytes()});
+  out.push_back({"near: template shingles", VectorBytes(m.template_shingles)});
+  out.push_back({"training frequencies", VectorBytes(m.prompt_train_df) + VectorBytes(m.answer_train_df)});
+  out.push_back({"answers: texts, hashes, postings",
+                 m.ref_text.bytes() + VectorBytes(m.ref_items) + VectorBytes(m.ref_hash) + m.ref_exact.bytes()});
+  if (m.ref_ngram) m.ref_ngram->Memory("answers ngram: ", &out);
+  return out;
+}
+
 void LeakIndex::TemplateJson(uint32_t limit, Json* out) const {
   const Impl& m = *impl_;
   auto list = [&](const NgramIndex& idx, const std::vector<uint32_t>& train_df, uint64_t train_docs,
-                  uint64_t eval_docs, const std::vector<std::string>& texts, Json* sec) {
+                  uint64_t eval_docs, const FlatStrings& texts, Json* sec) {
     std::vector<uint32_t> ids;
     for (uint32_t id = 0; id < idx.grams(); ++id) {
       if (idx.IsTemplate(id)) ids.push_back(id);

@@ -35,6 +35,7 @@
 #include "core/normalize.h"
 #include "core/status.h"
 #include "stages/leakage/eval_index.h"
+#include "stages/leakage/memory_use.h"
 
 namespace prefsift {
 
@@ -137,6 +138,18 @@ class LeakIndex {
   int ngram_n() const;             // the n in use (after "auto")
   uint64_t ngram_entries() const;
   uint64_t references() const;     // evaluation items with a reference answer
+  // Frees the tables only Check* needs (exact, near, the reference answers'
+  // exact hashes), keeping the n-gram tables that Collect* and Match* use:
+  // the two-phase caller, once its pass 1 is over. Afterwards Check* must not
+  // be called.
+  void ReleaseCheckTables();
+  // Frees every table the detectors use, once the last Check*, Collect* and
+  // Match* call is made (the pipeline stage, at the end of its decide step;
+  // docs/leakage.md "Memory"). Afterwards only corpus(), settings(),
+  // ngram_n(), ngram_entries() and references() may be called.
+  void ReleaseTables();
+  // Bytes held by the index, per structure (docs/leakage.md "Memory").
+  std::vector<MemoryPart> Memory() const;
 
  private:
   LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm);

@@ -51,12 +51,14 @@ class LeakageStage : public Stage {
     const std::string user_text = rec.prompt_is_chat ? rec.UserPromptText() : std::string();
     const std::string_view raw = rec.prompt_is_chat ? std::string_view(user_text) : std::string_view(rec.prompt);
     index_->CheckPrompt(raw, text.user_prompt(), false, &f, /*with_ngram=*/false);
-    RecordGrams g;
-    thread_local std::vector<uint32_t> ids;
+    thread_local std::vector<uint32_t> ids, prompt, answer, ends;
+    prompt.clear();
+    answer.clear();
+    ends.clear();
     if (prompt_df_) {
       index_->CollectPromptGrams(raw, text.user_prompt(), &ids);
       for (uint32_t id : ids) prompt_df_[id].fetch_add(1, std::memory_order_relaxed);
-      g.prompt = ids;
+      prompt = ids;
     }
     bool answer_found = false;
     for (size_t c = 0; c < rec.candidates.size() && c < text.candidates.size(); ++c) {
@@ -69,18 +71,46 @@ class LeakageStage : public Stage {
         index_->CollectAnswerGrams(rec.candidates[c], text.candidates[c], &ids);
         for (uint32_t id : ids) answer_df_[id].fetch_add(1, std::memory_order_relaxed);
         if (!ids.empty()) {
-          g.answer.insert(g.answer.end(), ids.begin(), ids.end());
-          g.answer_ends.push_back({static_cast<uint32_t>(c), static_cast<uint32_t>(g.answer.size())});
+          answer.insert(answer.end(), ids.begin(), ids.end());
+          ends.insert(ends.end(), {static_cast<uint32_t>(c), static_cast<uint32_t>(answer.size())});
         }
       }
     }
     answer_docs_.fetch_add(rec.candidates.size(), std::memory_order_relaxed);
     findings_[record] = std::move(f);
-    grams_[record] = std::move(g);
+    grams_[record] = RecordGrams(prompt, answer, ends);
+  }
+
+  // Pass 1 made every exact, near and exact-answer finding, and counted the
+  // training frequencies the n-gram and answer findings need: make those now
+  // and free the whole index before any stage decides.
+  void ObserveDone(const RunState& run) override {
+    index_->ReleaseCheckTables();
+    FinishGrams(run.records.size());
   }
 
   void SaveObserved(StateWriter& out) const override;
   Status AppendObserved(StateReader& in, size_t first_record) override;
+
+  // Once: the n-gram and answer findings, then nothing looks up the index
+  // again: keep the template-text summary, then free the tables and the
+  // evaluation texts (only the items' ids and sets are reported from here on).
+  void FinishGrams(size_t records) {
+    if (template_json_) return;
+    DecideGrams(records);
+    template_json_ = std::make_unique<Json>();
+    index_->TemplateJson(20, template_json_.get());
+    index_->ReleaseTables();
+    prompt_df_.reset();
+    answer_df_.reset();
+    for (EvalItem& item : corpus_->items) {
+      std::string().swap(item.text);
+      std::string().swap(item.reference);
+      std::string().swap(item.thread);
+      std::string().swap(item.annotator);
+      std::string().swap(item.group);
+    }
+  }
 
   // The n-gram and answer findings, once the training frequencies are known.
   void DecideGrams(size_t records) {
@@ -93,17 +123,19 @@ class LeakageStage : public Stage {
       RecordGrams& g = grams_[r];
       auto& fs = findings_[r];
       LeakFinding f;
-      if (!g.prompt.empty() && index_->MatchPromptGrams(g.prompt, &f)) {
+      if (!g.prompt().empty() && index_->MatchPromptGrams(g.prompt(), &f)) {
         // After exact (detector order: exact, ngram, near, answer).
         auto at = std::find_if(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector != LeakDetector::kExact; });
         fs.insert(at, std::move(f));
       }
       const bool have_answer = std::any_of(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector == LeakDetector::kAnswer; });
       uint32_t from = 0;
-      for (const auto& [cand, end] : g.answer_ends) {
+      const auto answer = g.answer();
+      for (size_t k = 0; k < g.answer_count(); ++k) {
+        const auto [cand, end] = g.answer_end(k);
         if (have_answer) break;
         LeakFinding a;
-        if (index_->MatchAnswerGrams(std::span<const uint32_t>(g.answer.data() + from, end - from), static_cast<int>(cand), &a)) {
+        if (index_->MatchAnswerGrams(answer.subspan(from, end - from), static_cast<int>(cand), &a)) {
           fs.push_back(std::move(a));
           break;
         }
@@ -135,7 +167,7 @@ class LeakageStage : public Stage {
     RunState& st = ctx.run;
     const LeakSettings& s = index_->settings();
     records_ = st.records.size();
-    DecideGrams(st.records.size());
+    FinishGrams(st.records.size());
     for (size_t r = 0; r < st.records.size() && r < findings_.size(); ++r) {
       const auto& fs = findings_[r];
       if (fs.empty()) continue;
@@ -221,7 +253,8 @@ class LeakageStage : public Stage {
     LeakSettingsToJson(s, index_->ngram_n(), &det);
     (*sec)["detectors"] = std::move(det);
     Json tmpl;
-    index_->TemplateJson(20, &tmpl);
+    if (template_json_) tmpl = *template_json_;
+    else index_->TemplateJson(20, &tmpl);
     (*sec)["template_text"] = std::move(tmpl);
     (*sec)["records_checked"] = records_;
     (*sec)["contaminated_records"] = contaminated_.size();
@@ -281,14 +314,39 @@ class LeakageStage : public Stage {
   std::unique_ptr<LeakIndex> index_;
   // Per record: the evaluation gram ids its prompt and candidates hold (pass
   // 1), dropped in Decide. answer_ends: (candidate, end offset in `answer`).
-  struct RecordGrams {
-    std::vector<uint32_t> prompt, answer;
-    std::vector<std::pair<uint32_t, uint32_t>> answer_ends;
+  // One vector (one heap block, none when the record holds no evaluation
+  // gram): [prompt ids, answer ids, answer ends (candidate, end) pairs]
+  // after three counts.
+  class RecordGrams {
+   public:
+    RecordGrams() = default;
+    RecordGrams(std::span<const uint32_t> prompt, std::span<const uint32_t> answer, std::span<const uint32_t> ends) {
+      if (prompt.empty() && answer.empty() && ends.empty()) return;
+      data_.reserve(3 + prompt.size() + answer.size() + ends.size());
+      data_ = {static_cast<uint32_t>(prompt.size()), static_cast<uint32_t>(answer.size()),
+               static_cast<uint32_t>(ends.size() / 2)};
+      data_.insert(data_.end(), prompt.begin(), prompt.end());
+      data_.insert(data_.end(), answer.begin(), answer.end());
+      data_.insert(data_.end(), ends.begin(), ends.end());
+    }
+    std::span<const uint32_t> prompt() const { return Part(3, Count(0)); }
+    std::span<const uint32_t> answer() const { return Part(3 + Count(0), Count(1)); }
+    std::span<const uint32_t> ends() const { return Part(3 + Count(0) + Count(1), 2 * Count(2)); }
+    size_t answer_count() const { return Count(2); }
+    std::pair<uint32_t, uint32_t> answer_end(size_t k) const { return {ends()[2 * k], ends()[2 * k + 1]}; }
+
+   private:
+    uint32_t Count(int k) const { return data_.empty() ? 0 : data_[k]; }
+    std::span<const uint32_t> Part(size_t at, size_t n) const {
+      return n == 0 ? std::span<const uint32_t>() : std::span<const uint32_t>(data_.data() + at, n);
+    }
+    std::vector<uint32_t> data_;
   };
   std::vector<RecordGrams> grams_;
   std::unique_ptr<std::atomic<uint32_t>[]> prompt_df_, answer_df_;
   std::atomic<uint64_t> answer_docs_{0};
   std::vector<std::vector<LeakFinding>> findings_;
+  std::unique_ptr<Json> template_json_;  // made at the end of Decide, before the tables are freed
   std::vector<size_t> contaminated_;
   std::vector<std::string> actions_;
   uint64_t records_ = 0, dropped_ = 0, flagged_ = 0;
@@ -361,11 +419,9 @@ void LeakageStage::SaveObserved(StateWriter& out) const {
     }
     const RecordGrams empty;
     const RecordGrams& g = r < grams_.size() ? grams_[r] : empty;
-    out.Vec(g.prompt);
-    out.Vec(g.answer);
-    std::vector<uint32_t> ends;
-    for (const auto& [cand, end] : g.answer_ends) ends.insert(ends.end(), {cand, end});
-    out.Vec(ends);
+    out.Vec(std::vector<uint32_t>(g.prompt().begin(), g.prompt().end()));
+    out.Vec(std::vector<uint32_t>(g.answer().begin(), g.answer().end()));
+    out.Vec(std::vector<uint32_t>(g.ends().begin(), g.ends().end()));
   }
 }
 
@@ -403,23 +459,22 @@ Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
       f.candidate = static_cast<int>(in.I64());
       f.span = in.Str();
     }
-    RecordGrams& g = grams_[r];
-    in.Vec(&g.prompt);
-    in.Vec(&g.answer);
-    std::vector<uint32_t> ends;
+    std::vector<uint32_t> prompt, answer, ends;
+    in.Vec(&prompt);
+    in.Vec(&answer);
     in.Vec(&ends);
     if (ends.size() % 2 != 0) in.Fail("an odd list of answer ends");
-    g.answer_ends.clear();
     for (size_t k = 0; k + 1 < ends.size(); k += 2) {
-      if (ends[k + 1] > g.answer.size() && in.ok()) in.Fail("an answer end out of range");
-      g.answer_ends.push_back({ends[k], ends[k + 1]});
+      if (ends[k + 1] > answer.size() && in.ok()) in.Fail("an answer end out of range");
     }
-    for (uint32_t id : g.prompt) {
+    for (uint32_t id : prompt) {
       if (id >= pg && in.ok()) in.Fail("a prompt gram id out of range");
     }
-    for (uint32_t id : g.answer) {
+    for (uint32_t id : answer) {
       if (id >= ag && in.ok()) in.Fail("an answer gram id out of range");
     }
+    if (ends.size() % 2 != 0) ends.pop_back();
+    grams_[r] = RecordGrams(prompt, answer, ends);
   }
   return Status::Ok();
 }

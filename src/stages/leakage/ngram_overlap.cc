@@ -1,16 +1,11 @@
 #include "stages/leakage/ngram_overlap.h"
 
 #include <algorithm>
-#include <map>
 
 #include "sketch/shingles.h"
 #include "stages/leakage/hash_postings.h"
 
 namespace prefsift {
-
-struct NgramIndex::Table {
-  HashPostings postings;
-};
 
 namespace {
 
@@ -35,89 +30,70 @@ int AutoNgramLength(std::vector<uint32_t> word_counts) {
 }
 
 NgramIndex::NgramIndex(std::span<const std::string> texts, const NgramOptions& options) : options_(options) {
-  long_ = new Table;
-  short_ = new Table;
-  ids_ = new Table;
-  std::vector<std::pair<uint64_t, uint32_t>> long_entries, short_entries;
+  FlatStrings flat;
+  for (const auto& t : texts) flat.Add(t);
+  Index(flat);
+}
+
+NgramIndex::NgramIndex(const FlatStrings& texts, const NgramOptions& options) : options_(options) { Index(texts); }
+
+void NgramIndex::Index(const FlatStrings& texts) {
+  // Every item's gram hashes in text order, one flat row per item.
+  FlatRows<uint64_t> item_hashes;
+  item_len_.assign(texts.size(), 0);
   std::vector<uint64_t> grams;
-  std::vector<std::vector<uint64_t>> item_hashes(texts.size());
-  std::vector<uint32_t> item_len(texts.size(), 0);
   const auto long_opts = WordGrams(options_.n, options_.seed);
   for (uint32_t i = 0; i < texts.size(); ++i) {
+    grams.clear();
     size_t words = sketch::CountWords(texts[i]);
     if (words < static_cast<size_t>(options_.min_eval_words)) {
       ++skipped_items_;
-      continue;
-    }
-    grams.clear();
-    if (words < static_cast<size_t>(options_.n)) {
+    } else if (words < static_cast<size_t>(options_.n)) {
       // Short example: the whole item is one gram of its own length.
       sketch::AppendShingles(texts[i], WordGrams(static_cast<int>(words), options_.seed), &grams);
-      short_entries.emplace_back(grams[0], i);
       short_lengths_.push_back(static_cast<int>(words));
       ++short_items_;
-      item_hashes[i] = grams;
-      item_len[i] = static_cast<uint32_t>(words);
-      continue;
+      item_len_[i] = static_cast<uint32_t>(words);
+    } else {
+      sketch::AppendShingles(texts[i], long_opts, &grams);
+      long_entries_ += grams.size();
+      item_len_[i] = static_cast<uint32_t>(options_.n);
     }
-    sketch::AppendShingles(texts[i], long_opts, &grams);
-    for (uint64_t g : grams) long_entries.emplace_back(g, i);
-    item_hashes[i] = grams;
-    item_len[i] = static_cast<uint32_t>(options_.n);
+    item_hashes.Add(grams);
   }
   std::sort(short_lengths_.begin(), short_lengths_.end());
   short_lengths_.erase(std::unique(short_lengths_.begin(), short_lengths_.end()), short_lengths_.end());
-  long_->postings.Build(std::move(long_entries));
-  short_->postings.Build(std::move(short_entries));
-  // Gram ids: distinct hashes in ascending order (deterministic).
-  std::vector<uint64_t> all;
-  for (const auto& h : item_hashes) all.insert(all.end(), h.begin(), h.end());
-  std::sort(all.begin(), all.end());
-  all.erase(std::unique(all.begin(), all.end()), all.end());
-  std::vector<std::pair<uint64_t, uint32_t>> id_entries;
-  id_entries.reserve(all.size());
-  for (uint32_t id = 0; id < all.size(); ++id) id_entries.emplace_back(all[id], id);
-  ids_->postings.Build(std::move(id_entries));
-  const size_t g = all.size();
-  eval_df_.assign(g, 0);
-  example_item_.assign(g, UINT32_MAX);
-  example_word_.assign(g, 0);
-  gram_words_.assign(g, 0);
-  item_grams_.resize(texts.size());
-  std::vector<std::pair<uint32_t, uint32_t>> id_item;
-  for (uint32_t i = 0; i < texts.size(); ++i) {
-    auto& ids = item_grams_[i];
-    ids.reserve(item_hashes[i].size());
-    for (uint32_t p = 0; p < item_hashes[i].size(); ++p) {
-      const uint32_t id = static_cast<uint32_t>(std::lower_bound(all.begin(), all.end(), item_hashes[i][p]) - all.begin());
-      ids.push_back(id);
-      id_item.emplace_back(id, i);
-      if (example_item_[id] == UINT32_MAX) {
-        example_item_[id] = i;
-        example_word_[id] = p;
-        gram_words_[id] = item_len[i];
-      }
+  {
+    std::vector<std::pair<uint64_t, uint32_t>> entries;
+    entries.reserve(item_hashes.values());
+    for (uint32_t i = 0; i < texts.size(); ++i) {
+      for (uint64_t h : item_hashes[i]) entries.emplace_back(h, i);
     }
+    grams_.Build(std::move(entries));
   }
-  std::sort(id_item.begin(), id_item.end());
-  id_item.erase(std::unique(id_item.begin(), id_item.end()), id_item.end());
-  gram_item_start_.assign(g + 1, 0);
-  gram_items_.reserve(id_item.size());
-  for (const auto& [id, item] : id_item) {
-    ++eval_df_[id];
-    gram_items_.push_back(item);
+  // Gram ids: ordinals of the hashes in the table (ascending, deterministic).
+  item_grams_.Reserve(texts.size(), item_hashes.values());
+  std::vector<uint32_t> ids;
+  for (uint32_t i = 0; i < texts.size(); ++i) {
+    ids.clear();
+    for (uint64_t h : item_hashes[i]) ids.push_back(static_cast<uint32_t>(grams_.Ordinal(h)));
+    item_grams_.Add(ids);
   }
-  for (size_t id = 0; id < g; ++id) gram_item_start_[id + 1] = gram_item_start_[id] + eval_df_[id];
-  SetTemplate(std::vector<uint8_t>(g, 0));
+  SetTemplate(std::vector<uint8_t>(this->grams(), 0));
+}
+
+uint32_t NgramIndex::ExampleWord(uint32_t id) const {
+  const auto g = item_grams_[ExampleItem(id)];
+  return static_cast<uint32_t>(std::find(g.begin(), g.end(), id) - g.begin());
 }
 
 void NgramIndex::SetTemplate(std::vector<uint8_t> flags) {
   template_ = std::move(flags);
   item_informative_.assign(item_grams_.size(), 0);
   for (size_t i = 0; i < item_grams_.size(); ++i) {
-    const auto& ids = item_grams_[i];
+    const auto ids = item_grams_[i];
     if (ids.empty()) continue;
-    const uint32_t len = gram_words_[ids[0]];
+    const uint32_t len = item_len_[i];
     // Union of [p, p + len) over informative grams, counted in one sweep.
     uint32_t covered = 0, reach = 0;
     for (uint32_t p = 0; p < ids.size(); ++p) {
@@ -143,11 +119,11 @@ void NgramIndex::CollectIds(std::string_view text, std::vector<uint32_t>* ids) c
   const size_t n = static_cast<size_t>(options_.n);
   auto add = [&]() {
     for (uint64_t h : grams) {
-      auto f = ids_->postings.Find(h);
-      if (!f.empty()) ids->push_back(f[0]);
+      const int64_t id = grams_.Ordinal(h);
+      if (id >= 0) ids->push_back(static_cast<uint32_t>(id));
     }
   };
-  if (long_->postings.entries() && words >= n) {
+  if (long_entries_ && words >= n) {
     grams.clear();
     sketch::AppendShingles(text, WordGrams(options_.n, options_.seed), &grams);
     add();
@@ -166,14 +142,14 @@ std::vector<CoverageHit> NgramIndex::Coverage(std::span<const uint32_t> ids) con
   std::vector<uint32_t> items;
   for (uint32_t id : ids) {
     if (template_[id]) continue;
-    for (uint32_t k = gram_item_start_[id]; k < gram_item_start_[id + 1]; ++k) items.push_back(gram_items_[k]);
+    for (uint32_t item : grams_.Values(id)) items.push_back(item);
   }
   std::sort(items.begin(), items.end());
   items.erase(std::unique(items.begin(), items.end()), items.end());
   std::vector<CoverageHit> hits;
   for (uint32_t item : items) {
-    const auto& g = item_grams_[item];
-    const uint32_t len = gram_words_[g[0]];
+    const auto g = item_grams_[item];
+    const uint32_t len = item_len_[item];
     CoverageHit h;
     h.item = item;
     h.informative = item_informative_[item];
@@ -197,13 +173,16 @@ std::vector<CoverageHit> NgramIndex::Coverage(std::span<const uint32_t> ids) con
   return hits;
 }
 
-NgramIndex::~NgramIndex() {
-  delete long_;
-  delete short_;
-  delete ids_;
+NgramIndex::~NgramIndex() = default;
+
+void NgramIndex::Memory(const std::string& prefix, std::vector<MemoryPart>* out) const {
+  out->push_back({prefix + "gram postings (hash -> items; id = ordinal)", grams_.bytes()});
+  out->push_back({prefix + "item -> gram ids (flat rows)", item_grams_.bytes()});
+  out->push_back({prefix + "per-item length, informative words; template flags",
+                  VectorBytes(item_len_) + VectorBytes(item_informative_) + VectorBytes(template_)});
 }
 
-uint64_t NgramIndex::indexed_grams() const { return long_->postings.entries() + short_->postings.entries(); }
+uint64_t NgramIndex::indexed_grams() const { return grams_.entries(); }
 
 std::vector<NgramHit> NgramIndex::MatchAll(std::string_view text) const {
   struct Raw {
@@ -220,11 +199,12 @@ std::vector<NgramHit> NgramIndex::MatchAll(std::string_view text) const {
   std::vector<Raw> raw;
   const size_t words = sketch::CountWords(text);
   const size_t n = static_cast<size_t>(options_.n);
-  if (long_->postings.entries() && words >= n) {
+  if (long_entries_ && words >= n) {
     grams.clear();
     sketch::AppendShingles(text, WordGrams(options_.n, options_.seed), &grams);
     for (uint32_t p = 0; p < grams.size(); ++p) {
-      for (uint32_t item : long_->postings.Find(grams[p])) {
+      for (uint32_t item : grams_.Find(grams[p])) {
+        if (item_len_[item] != n) continue;  // a short item's gram (only on a hash collision)
         raw.push_back({item, grams[p], p, static_cast<uint32_t>(n), false});
       }
     }
@@ -234,7 +214,10 @@ std::vector<NgramHit> NgramIndex::MatchAll(std::string_view text) const {
     grams.clear();
     sketch::AppendShingles(text, WordGrams(k, options_.seed), &grams);
     for (uint32_t p = 0; p < grams.size(); ++p) {
-      for (uint32_t item : short_->postings.Find(grams[p])) raw.push_back({item, grams[p], p, static_cast<uint32_t>(k), true});
+      for (uint32_t item : grams_.Find(grams[p])) {
+        if (item_len_[item] != static_cast<uint32_t>(k)) continue;  // another length's gram (only on a collision)
+        raw.push_back({item, grams[p], p, static_cast<uint32_t>(k), true});
+      }
     }
   }
   std::sort(raw.begin(), raw.end());

@@ -31,6 +31,10 @@
 #include <string_view>
 #include <vector>
 
+#include "stages/leakage/flat_rows.h"
+#include "stages/leakage/hash_postings.h"
+#include "stages/leakage/memory_use.h"
+
 namespace prefsift {
 
 struct NgramOptions {
@@ -68,6 +72,7 @@ class NgramIndex {
   // `texts`: normalised evaluation texts; item i is texts[i].
   // REQUIRES: options.n >= 1, options.min_eval_words >= 1, min_shared >= 1.
   NgramIndex(std::span<const std::string> texts, const NgramOptions& options);
+  NgramIndex(const FlatStrings& texts, const NgramOptions& options);
   ~NgramIndex();
   NgramIndex(const NgramIndex&) = delete;
   NgramIndex& operator=(const NgramIndex&) = delete;
@@ -79,14 +84,15 @@ class NgramIndex {
   // false when there is none.
   bool MatchBest(std::string_view text, NgramHit* hit) const;
 
-  // Distinct indexed grams (ids 0 .. grams()-1) and, for each, the number of
-  // evaluation items holding it, an item holding it and where (for a
-  // readable form), and its length in words.
-  uint32_t grams() const { return static_cast<uint32_t>(eval_df_.size()); }
-  uint32_t EvalFrequency(uint32_t id) const { return eval_df_[id]; }
-  uint32_t ExampleItem(uint32_t id) const { return example_item_[id]; }
-  uint32_t ExampleWord(uint32_t id) const { return example_word_[id]; }
-  uint32_t GramWords(uint32_t id) const { return gram_words_[id]; }
+  // Distinct indexed grams (ids 0 .. grams()-1, in ascending order of their
+  // hashes) and, for each, the number of evaluation items holding it, the
+  // first item holding it and where (for a readable form), and its length in
+  // words.
+  uint32_t grams() const { return static_cast<uint32_t>(grams_.keys()); }
+  uint32_t EvalFrequency(uint32_t id) const { return static_cast<uint32_t>(grams_.Values(id).size()); }
+  uint32_t ExampleItem(uint32_t id) const { return grams_.Values(id)[0]; }
+  uint32_t ExampleWord(uint32_t id) const;
+  uint32_t GramWords(uint32_t id) const { return item_len_[ExampleItem(id)]; }
   // Sorted, distinct ids of the indexed grams that `text` contains.
   void CollectIds(std::string_view text, std::vector<uint32_t>* ids) const;
   // Marks grams as template text (flags[id] != 0); recomputes each item's
@@ -103,18 +109,21 @@ class NgramIndex {
   uint64_t indexed_grams() const;   // distinct (gram, item) entries
   uint32_t short_items() const { return short_items_; }
   uint32_t skipped_items() const { return skipped_items_; }
+  // Bytes held, per structure, named `prefix` + the structure.
+  void Memory(const std::string& prefix, std::vector<MemoryPart>* out) const;
 
  private:
-  struct Table;
+  void Index(const FlatStrings& texts);
   NgramOptions options_;
   std::vector<int> short_lengths_;  // distinct k < n of indexed short items, ascending
   uint32_t short_items_ = 0, skipped_items_ = 0;
-  Table* long_ = nullptr;
-  Table* short_ = nullptr;
-  Table* ids_ = nullptr;                         // gram hash -> id
-  std::vector<uint32_t> eval_df_, example_item_, example_word_, gram_words_;
-  std::vector<uint32_t> gram_item_start_, gram_items_;  // id -> items (CSR)
-  std::vector<std::vector<uint32_t>> item_grams_;       // per item: gram id at each start word
+  uint64_t long_entries_ = 0;       // gram positions in items with >= n words
+  // Every indexed gram (n-grams of long items, the whole k-gram of short
+  // ones): hash -> the items holding it, ascending. A gram's id is its
+  // ordinal in this table.
+  HashPostings grams_;
+  std::vector<uint32_t> item_len_;  // per item: its grams' length in words (0: not indexed)
+  FlatRows<uint32_t> item_grams_;   // per item: gram id at each start word
   std::vector<uint32_t> item_informative_;
   std::vector<uint8_t> template_;
 };
