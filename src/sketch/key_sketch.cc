@@ -96,7 +96,11 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   const uint32_t parts = 1u << bits;
   const uint32_t threads = std::clamp<uint32_t>(options.threads, 1, parts);
   std::vector<PartResult> acc(threads);
-  auto work = [&](uint32_t t) {
+  // Sweep 1 counts the key runs and marks the set-aside places; sweep 2 (only
+  // when pairs are wanted) sorts the partitions again and pairs the members of
+  // informative runs. Two sweeps cost a second sort of every partition, but
+  // with none set aside and options.only_with_template no pair is ever made.
+  auto work = [&](uint32_t t, bool make_pairs) {
     std::vector<uint64_t> buf, part_pairs, scratch;
     PartResult& mine = acc[t];
     for (uint32_t part = t; part < parts; part += threads) {
@@ -114,15 +118,18 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
         size_t e = s + 1;
         while (e < buf.size() && (buf[e] >> 32) == key) ++e;
         const size_t run = e - s;
-        ++mine.stats.keys;
         const bool frequent = run >= min_records;
-        if (frequent) {
-          ++mine.stats.keys_set_aside;
-          mine.stats.entries_set_aside += run;
-          const auto count = static_cast<uint16_t>(std::min<size_t>(run, 65535));
-          for (size_t x = s; x < e; ++x) aside[static_cast<uint32_t>(buf[x])] = count;  // distinct places: no race
-        } else {
-          mine.stats.largest_run = std::max<uint32_t>(mine.stats.largest_run, static_cast<uint32_t>(run));
+        if (!make_pairs) {
+          ++mine.stats.keys;
+          if (frequent) {
+            ++mine.stats.keys_set_aside;
+            mine.stats.entries_set_aside += run;
+            const auto count = static_cast<uint16_t>(std::min<size_t>(run, 65535));
+            for (size_t x = s; x < e; ++x) aside[static_cast<uint32_t>(buf[x])] = count;  // distinct places: no race
+          } else {
+            mine.stats.largest_run = std::max<uint32_t>(mine.stats.largest_run, static_cast<uint32_t>(run));
+          }
+        } else if (!frequent) {
           // Places ascend within the run, so records do too (a sketch holds a key once).
           for (size_t x = s; x < e; ++x) {
             const auto a = static_cast<uint32_t>(static_cast<uint32_t>(buf[x]) / m);
@@ -136,13 +143,28 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
       mine.pairs.insert(mine.pairs.end(), part_pairs.begin(), part_pairs.end());  // repeats kept: counted below
     }
   };
-  if (threads == 1) {
-    work(0);
-  } else {
+  auto sweep = [&](bool make_pairs) {
+    if (threads == 1) {
+      work(0, make_pairs);
+      return;
+    }
     std::vector<std::thread> pool;
-    for (uint32_t t = 0; t < threads; ++t) pool.emplace_back(work, t);
+    for (uint32_t t = 0; t < threads; ++t) pool.emplace_back(work, t, make_pairs);
     for (auto& th : pool) th.join();
+  };
+  sweep(false);
+  uint64_t set_aside = 0;
+  for (const PartResult& r : acc) set_aside += r.stats.keys_set_aside;
+  if (set_aside == 0 && options.only_with_template) {
+    KeyPairStats st;
+    for (const PartResult& r : acc) {
+      st.keys += r.stats.keys;
+      st.largest_run = std::max(st.largest_run, r.stats.largest_run);
+    }
+    if (stats) *stats = st;
+    return {};
   }
+  sweep(true);
   std::vector<uint64_t> raw = std::move(acc[0].pairs);
   KeyPairStats st = acc[0].stats;
   std::vector<uint64_t> tmp;

@@ -54,6 +54,9 @@ struct KeyPairOptions {
   uint32_t chain_window = 2;  // a member of a run is paired with this many before it
   double chain_below_share = 0.25;  // records with fewer informative keys than this share of m join neighbourhoods
   uint32_t threads = 1;
+  // When no key is set aside: return no pair at all (stats hold the key
+  // counts only), for a caller that then takes candidates another way.
+  bool only_with_template = false;
 };
 
 struct KeyPairStats {

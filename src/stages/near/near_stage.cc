@@ -344,6 +344,7 @@ class NearDupsStage : public Stage {
         ko.chain_keys = s_.chain_keys;
         ko.min_shared_share = s_.shared_key_share;
         ko.threads = threads;
+        ko.only_with_template = true;  // without template text, the bands below give the candidates
         pairs = sketch::KeySketchPairs(keys, M, ko, &kstats_);
         from_keys = kstats_.keys_set_aside > 0;
         if (!from_keys) std::vector<uint64_t>().swap(pairs);
