@@ -7,19 +7,10 @@
 #include <thread>
 
 #include "sketch/lsh.h"
+#include "sketch/mix.h"
 
 namespace prefsift::sketch {
 namespace {
-
-// Murmur3 64-bit finaliser (a bijection with full avalanche), as minhash.cc.
-inline uint64_t Mix(uint64_t x) {
-  x ^= x >> 33;
-  x *= 0xff51afd7ed558ccdULL;
-  x ^= x >> 33;
-  x *= 0xc4ceb9fe1a85ec53ULL;
-  x ^= x >> 33;
-  return x;
-}
 
 void MergeInto(std::vector<uint64_t>* acc, const std::vector<uint64_t>& add, std::vector<uint64_t>* tmp) {
   tmp->clear();

@@ -6,21 +6,13 @@
 #include <limits>
 #include <thread>
 
+#include "sketch/mix.h"
+
 namespace prefsift::sketch {
 namespace {
 
 constexpr uint64_t kEmpty = std::numeric_limits<uint64_t>::max();
 constexpr uint64_t kProbeSeedTweak = 0x5851f42d4c957f2dULL;
-
-// Murmur3 64-bit finaliser (a bijection on 64-bit words with full avalanche).
-inline uint64_t Mix(uint64_t x) {
-  x ^= x >> 33;
-  x *= 0xff51afd7ed558ccdULL;
-  x ^= x >> 33;
-  x *= 0xc4ceb9fe1a85ec53ULL;
-  x ^= x >> 33;
-  return x;
-}
 
 // floor(x * k / 2^64): maps a uniform 64-bit word to [0, k) by its high bits.
 __extension__ typedef unsigned __int128 Uint128;
