@@ -15,7 +15,7 @@
 #include "pipeline/parts.h"
 #include "pipeline/pipeline.h"
 #ifdef PREFSIFT_HAVE_STORE
-#include "store/add_batch.h"
+#include "cli/store_commands.h"
 #endif
 
 namespace prefsift {
@@ -77,25 +77,9 @@ int RunDecideIntoStore(const PartsCli& pc, const Plan& plan) {
   o.table = !pc.common.quiet;
   auto r = store::AddBatchFromStates(plan, o, pc.states, DefaultFileSystem(), stderr);
   if (!r.ok()) return Fail(pc.common, r.status());
-  const store::AddOutcome& oc = r.value();
-  if (oc.already_added) {
-    std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
-                 static_cast<long long>(oc.batch));
-    return kExitOk;
-  }
-  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.strict});
-  if (oc.gate_failed) {
-    std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's decisions for review; the store is unchanged\n",
-                 plan.output.c_str());
-  } else if (!pc.common.quiet) {
-    std::fprintf(stderr, "added batch %lld to the store %s; wrote %s (apply each part next)\n",
-                 static_cast<long long>(oc.batch), pc.store.c_str(), plan.output.c_str());
-  }
-  if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
-  if (code == kExitStrict) {
-    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
-  }
-  return code;
+  return ReportAdded(r.value(), plan, pc.common.quiet,
+                     "added batch " + std::to_string(r.value().batch) + " to the store " + pc.store + "; wrote " +
+                         plan.output + " (apply each part next)");
 #endif
 }
 

@@ -180,26 +180,9 @@ class Commands : public StoreCommands {
     o.table = !add_args_.quiet;
     auto r = store::AddBatch(plan.value(), o, DefaultFileSystem(), stderr);
     if (!r.ok()) return Fail(r.status());
-    if (r.value().already_added) {
-      std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
-                   static_cast<long long>(r.value().batch));
-      return 0;
-    }
-    const store::AddOutcome& oc = r.value();
-    const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.value().strict});
-    if (oc.gate_failed) {
-      std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
-                   plan.value().output.c_str());
-      return code;
-    }
-    if (!add_args_.quiet) {
-      std::fprintf(stderr, "added batch %lld to the store; wrote %s\n", static_cast<long long>(oc.batch),
-                   plan.value().output.c_str());
-    }
-    if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
-    if (code == kExitStrict) std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n",
-                                          static_cast<unsigned long long>(oc.rejected));
-    return code;
+    return ReportAdded(r.value(), plan.value(), add_args_.quiet,
+                       "added batch " + std::to_string(r.value().batch) + " to the store; wrote " +
+                           plan.value().output);
   }
 
   CLI::App *add_, *history_, *summary_, *report_, *sign_, *merge_;
@@ -215,5 +198,25 @@ class Commands : public StoreCommands {
 }  // namespace
 
 std::unique_ptr<StoreCommands> AddStoreCommands(CLI::App* app) { return std::make_unique<Commands>(app); }
+
+int ReportAdded(const store::AddOutcome& oc, const Plan& plan, bool quiet, const std::string& added) {
+  if (oc.already_added) {
+    std::fprintf(stderr, "prefsift: these inputs with this plan were already added as batch %lld; nothing to do\n",
+                 static_cast<long long>(oc.batch));
+    return kExitOk;
+  }
+  const int code = ExitForRun({oc.entries, oc.kept, oc.rejected, oc.gate_failed, plan.strict});
+  if (oc.gate_failed) {
+    std::fprintf(stderr, "prefsift: the gate failed: %s holds the batch's outputs for review; the store is unchanged\n",
+                 plan.output.c_str());
+    return code;
+  }
+  if (!quiet) std::fprintf(stderr, "%s\n", added.c_str());
+  if (code == kExitNothingKept) std::fprintf(stderr, "prefsift: every record of the batch was rejected (exit %d)\n", code);
+  if (code == kExitStrict) {
+    std::fprintf(stderr, "prefsift: --strict: %llu record(s) rejected\n", static_cast<unsigned long long>(oc.rejected));
+  }
+  return code;
+}
 
 }  // namespace prefsift

@@ -4,6 +4,10 @@
 #pragma once
 
 #include <memory>
+#include <string>
+
+#include "core/plan.h"
+#include "store/add_batch.h"
 
 namespace CLI {
 class App;
@@ -19,5 +23,11 @@ class StoreCommands {
 };
 
 std::unique_ptr<StoreCommands> AddStoreCommands(CLI::App* app);
+
+// The messages and exit code of a batch added to a store (`add`, `decide
+// --store`): "already added" (exit 0), a failed gate (the folder is kept for
+// review, the store unchanged), else `added` unless quiet, then the run's exit
+// code (cli/exit_codes.h ExitForRun) with its message.
+int ReportAdded(const store::AddOutcome& oc, const Plan& plan, bool quiet, const std::string& added);
 
 }  // namespace prefsift

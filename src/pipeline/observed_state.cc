@@ -169,12 +169,7 @@ Result<std::string> ObservedRun::SaveToBytes() const {
   StateWriter w;
   w.BeginSection("run");
   w.Str(ObservationFingerprint(plan_, stage_names_));
-  w.U32(part_->part);
-  w.U32(part_->input);
-  w.U64(part_->begin);
-  w.U8(part_->end.has_value());
-  w.U64(part_->end.value_or(0));
-  w.U64(part_->first_line);
+  WritePart(w, *part_);
   w.EndSection();
 
   w.BeginSection("input");
@@ -221,6 +216,27 @@ Status ObservedRun::Append(const std::string& path, FileSystem* fs) {
   auto bytes = ReadWholeFile(fs, path);
   if (!bytes.ok()) return bytes.status();
   return AppendBytes(std::move(bytes).value(), path);
+}
+
+void WritePart(StateWriter& w, const Part& p) {
+  w.U32(p.part);
+  w.U32(p.input);
+  w.U64(p.begin);
+  w.U8(p.end.has_value());
+  w.U64(p.end.value_or(0));
+  w.U64(p.first_line);
+}
+
+Part ReadPart(StateReader& r) {
+  Part p;
+  p.part = r.U32();
+  p.input = r.U32();
+  p.begin = r.U64();
+  const bool has_end = r.U8() != 0;
+  const uint64_t end = r.U64();
+  if (has_end) p.end = end;
+  p.first_line = r.U64();
+  return p;
 }
 
 void WriteReject(StateWriter& w, const RunState& st, const Decision& d) {
@@ -326,14 +342,7 @@ Status ObservedRun::AppendBytes(std::string bytes, const std::string& path) {
   // The part, and whether it is the next one.
   if (Status s = enter("run"); !s.ok()) return s;
   const std::string fingerprint = r.Str();
-  Part part;
-  part.part = r.U32();
-  part.input = r.U32();
-  part.begin = r.U64();
-  const bool has_end = r.U8() != 0;
-  const uint64_t end = r.U64();
-  if (has_end) part.end = end;
-  part.first_line = r.U64();
+  Part part = ReadPart(r);
   if (Status s = r.LeaveSection(); !s.ok()) return s;
   if (fingerprint != ObservationFingerprint(plan_, stage_names_)) {
     return Status::Usage(path + ": the state file was made with another plan (inputs' layouts, limits, "

@@ -102,9 +102,15 @@ class ObservedRun {
   RunOutcome outcome_;
 };
 
+class StateWriter;
+
+// A part's place (number, input, byte range, first line) in the "run" section
+// of a state or decision file, and back.
+void WritePart(StateWriter& w, const Part& p);
+Part ReadPart(StateReader& r);
+
 // A rejected entry's stage, reason and texts in a state or decision file, and
 // back into `st` for entry `entry` (false when the reader failed).
-class StateWriter;
 void WriteReject(StateWriter& w, const RunState& st, const Decision& d);
 bool ReadReject(StateReader& r, RunState& st, size_t entry);
 

@@ -22,27 +22,6 @@ constexpr const char* kKind = "decisions";
 
 std::string StageSection(const std::string& name) { return "stage " + name; }
 
-void WritePart(StateWriter& w, const Part& p) {
-  w.U32(p.part);
-  w.U32(p.input);
-  w.U64(p.begin);
-  w.U8(p.end.has_value());
-  w.U64(p.end.value_or(0));
-  w.U64(p.first_line);
-}
-
-Part ReadPart(StateReader& r) {
-  Part p;
-  p.part = r.U32();
-  p.input = r.U32();
-  p.begin = r.U64();
-  const bool has_end = r.U8() != 0;
-  const uint64_t end = r.U64();
-  if (has_end) p.end = end;
-  p.first_line = r.U64();
-  return p;
-}
-
 std::string Describe(const Part& p) {
   return "part " + std::to_string(p.part) + " (input " + std::to_string(p.input) + ", bytes " +
          std::to_string(p.begin) + " to " + (p.end ? std::to_string(*p.end) : std::string("the end")) + ", line " +
