@@ -31,6 +31,9 @@
 
 namespace prefsift {
 
+class Progress;
+class ThreadPool;
+
 // The first reject of one ingest reason in one file, and how many there were.
 struct IngestTally {
   uint64_t count = 0;
@@ -97,8 +100,12 @@ nlohmann::ordered_json RejectExamples(const Plan& plan, const RunState& st);
 // Pass 2 of the whole plan, or of one part (then `st` holds that part's
 // entries only): every entry's line to its split file or rejects.jsonl in
 // `out` (every split file of every input is made, even when empty); lines
-// written per file name to *written.
+// written per file name to *written. Lines that change (rewritten by a stage,
+// or rejected) are built on `pool` (null: a pool of plan.threads), so a
+// stage's Rewrite may run on several threads at once; `progress` may be null
+// (silent). Implemented in apply_pass.cc.
 Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written);
+                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written,
+                   ThreadPool* pool = nullptr, Progress* progress = nullptr);
 
 }  // namespace prefsift

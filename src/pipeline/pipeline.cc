@@ -12,6 +12,7 @@
 #include <set>
 #include <thread>
 
+#include "core/blank.h"
 #include "core/free_memory.h"
 #include "core/normalize.h"
 #include "core/record_reader.h"
@@ -20,6 +21,7 @@
 #include "io/line_reader.h"
 #include "io/output_dir.h"
 #include "pipeline/passes.h"
+#include "pipeline/progress.h"
 #include "pipeline/finish.h"
 #include "report/gate.h"
 #include "report/summary.h"
@@ -53,10 +55,6 @@ std::string Base64(std::string_view in) {
     out += {k[v >> 18], k[(v >> 12) & 63], k[(v >> 6) & 63], '='};
   }
   return out;
-}
-
-bool IsBlank(std::string_view s) {
-  return std::all_of(s.begin(), s.end(), [](char c) { return c == ' ' || c == '\t' || c == '\r'; });
 }
 
 const char* CompressionName(Compression c) {
@@ -95,64 +93,6 @@ class PhaseTimer {
   bool on_;
   std::FILE* log_;
   std::chrono::steady_clock::time_point last_;
-};
-
-// The progress line on the log: lines and megabytes read in the current pass,
-// and, when the inputs' total size is known (every input uncompressed), the
-// percentage and the time left at the pass's rate so far. On a terminal it is
-// one line rewritten twice a second; for logs and CI (`--progress`) a new line
-// every few seconds (5 by default). Never written to an output file.
-class Progress {
- public:
-  Progress(bool terminal, bool lines, double every_s, std::FILE* log, uint64_t total_bytes)
-      : terminal_(terminal), lines_(lines && !terminal), every_(std::chrono::milliseconds(terminal ? 500 :
-                                                               static_cast<long long>(every_s * 1000))),
-        log_(log), total_(total_bytes) {
-    Phase("reading");
-  }
-  // Starts a pass: counts restart.
-  void Phase(const char* verb) {
-    verb_ = verb;
-    start_ = last_ = std::chrono::steady_clock::now();
-    done_bytes_ = 0;
-  }
-  // The size is unknown once an input turns out to be compressed (the reader
-  // counts decompressed bytes).
-  void Compressed() { total_ = 0; }
-  void InputDone(uint64_t bytes) { done_bytes_ += bytes; }
-  void Tick(const std::string& input, uint64_t lines, uint64_t bytes) {
-    if (!terminal_ && !lines_) return;
-    auto now = std::chrono::steady_clock::now();
-    if (now - last_ < every_) return;
-    last_ = now;
-    const double s = std::chrono::duration<double>(now - start_).count();
-    char buf[320];
-    int n = std::snprintf(buf, sizeof buf, "%s %s: %llu lines, %.1f MB, %.0f s", verb_, input.c_str(),
-                          static_cast<unsigned long long>(lines), static_cast<double>(bytes) / 1e6, s);
-    const double f = total_ > 0 ? static_cast<double>(done_bytes_ + bytes) / static_cast<double>(total_) : 0;
-    if (f > 0 && f <= 1 && n > 0 && static_cast<size_t>(n) < sizeof buf) {
-      if (f < 0.01) std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass", 100 * f);  // too early for a rate
-      else std::snprintf(buf + n, sizeof buf - n, ", %.0f%% of the pass, about %.0f s left", 100 * f, s * (1 - f) / f);
-    }
-    if (terminal_) std::fprintf(log_, "\r%-100s", buf);
-    else std::fprintf(log_, "progress: %s\n", buf);
-    std::fflush(log_);
-    shown_ = true;
-  }
-  void Done() {
-    if (shown_ && terminal_) std::fprintf(log_, "\r%100s\r", "");
-    shown_ = false;
-  }
-
- private:
-  bool terminal_, lines_;
-  std::chrono::milliseconds every_;
-  std::FILE* log_;
-  uint64_t total_;
-  const char* verb_ = "reading";
-  std::chrono::steady_clock::time_point start_, last_;
-  uint64_t done_bytes_ = 0;
-  bool shown_ = false;
 };
 
 // The inputs' total size on disk; 0 when one cannot be measured.
@@ -487,151 +427,6 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
 
 namespace {
 
-// Pass 2's writes, batched per output file and handed to one background
-// thread, so reading the input and writing the outputs overlap. Batches are
-// written strictly in order (one in flight at a time); the first error stops
-// everything and is returned by Flush or Finish.
-class BatchedWriter {
- public:
-  ~BatchedWriter() { (void)Finish(); }
-  // Queues bytes for `f` (in call order per file).
-  Status Append(WritableFile* f, std::string_view bytes) {
-    auto& buf = pending_[f];
-    buf.append(bytes);
-    pending_bytes_ += bytes.size();
-    return pending_bytes_ >= kBatchBytes ? Flush() : Status::Ok();
-  }
-  Status Flush() {
-    Status s = Wait();
-    if (!s.ok() || pending_.empty()) return s;
-    in_flight_ = std::async(std::launch::async, [batch = std::move(pending_)]() {
-      for (const auto& [f, bytes] : batch) {
-        Status ws = f->Append(bytes);
-        if (!ws.ok()) return ws;
-      }
-      return Status::Ok();
-    });
-    pending_.clear();
-    pending_bytes_ = 0;
-    return Status::Ok();
-  }
-  Status Finish() {
-    Status s = Flush();
-    Status w = Wait();
-    return s.ok() ? w : s;
-  }
-
- private:
-  static constexpr size_t kBatchBytes = 8u << 20;
-  Status Wait() {
-    if (!in_flight_.valid()) return Status::Ok();
-    return in_flight_.get();
-  }
-  std::map<WritableFile*, std::string> pending_;  // order between files does not matter
-  size_t pending_bytes_ = 0;
-  std::future<Status> in_flight_;
-};
-
-// `part`: only that part of one input; `st` holds its entries only.
-Status Apply(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-             OutputDir& out, std::map<std::string, uint64_t>* written, Progress& progress,
-             const Part* part = nullptr) {
-  progress.Phase("writing");
-  std::map<std::string, std::unique_ptr<WritableFile>> files;
-  auto file = [&](const std::string& name) -> Result<WritableFile*> {
-    auto it = files.find(name);
-    if (it != files.end()) return it->second.get();
-    auto f = out.Create(name);
-    if (!f.ok()) return f.status();
-    (*written)[name] = 0;
-    return (files[name] = std::move(f).value()).get();
-  };
-  // Every split file exists, even when empty, so downstream jobs find them.
-  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
-    for (const auto& split : st.split_names) {
-      auto f = file(OutputName(plan, split, in));
-      if (!f.ok()) return f.status();
-    }
-  }
-  auto rejects = file("rejects.jsonl");
-  if (!rejects.ok()) return rejects.status();
-  BatchedWriter writer;  // after `files`: destroyed (and drained) before the files it writes
-
-  size_t cursor = 0;
-  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
-    if (part && in != part->input) continue;
-    LineRange range;
-    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
-    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes, range);
-    if (!opened.ok()) return opened.status();
-    auto& reader = opened.value();
-    for (uint64_t n = 0;; ++n) {
-      std::string_view line;
-      uint64_t no = 0;
-      auto next = reader->Read(&line, &no);
-      if (!next.ok()) return next.status();
-      if (next.value() == LineReader::Next::kEnd) {
-        progress.InputDone(reader->bytes_read());
-        break;
-      }
-      if ((n & 4095) == 0) progress.Tick(plan.inputs[in].name, no, reader->bytes_read());
-      if (next.value() == LineReader::Next::kLine && IsBlank(line)) continue;
-      if (cursor >= st.entries.size() || st.entries[cursor].input != in || st.entries[cursor].line != no) {
-        return Status::Input(plan.inputs[in].path + " changed while prefsift was reading it (line " +
-                             std::to_string(no) + "); nothing was written");
-      }
-      const Entry& e = st.entries[cursor];
-      const Decision& d = st.decisions[cursor];
-      ++cursor;
-      bool rewrite = false;
-      if (e.record >= 0) {
-        for (auto& s : stages) rewrite = rewrite || s->Rewrites(static_cast<size_t>(e.record));
-      }
-      std::string rewritten;
-      if (rewrite) {
-        // A stage changes this record (e.g. masks personal data); kept or
-        // rejected, only the changed form is written.
-        // simdjson accepted this line in pass 1; parse without exceptions so a
-        // disagreement between the two parsers is an error value, never an abort.
-        Json doc = Json::parse(line, nullptr, /*allow_exceptions=*/false);
-        if (doc.is_discarded()) {
-          return Status::Internal(plan.inputs[in].path + ":" + std::to_string(no) +
-                                  ": the record parsed in pass 1 but not when rewriting it; nothing was written");
-        }
-        for (auto& stage : stages) {
-          if (!stage->Rewrites(static_cast<size_t>(e.record))) continue;
-          Status rs = stage->Rewrite(static_cast<size_t>(e.record), plan.inputs[in], &doc);
-          if (!rs.ok()) return rs;
-        }
-        rewritten = doc.dump();
-        line = rewritten;
-      }
-      if (d.rejected) {
-        Status s = writer.Append(rejects.value(), RejectLine(plan, st, e, d, line));
-        if (!s.ok()) return s;
-        ++(*written)["rejects.jsonl"];
-        continue;
-      }
-      std::string name = OutputName(plan, st.split_names[d.split], in);
-      auto f = file(name);
-      if (!f.ok()) return f.status();
-      Status s = writer.Append(f.value(), line);
-      if (s.ok()) s = writer.Append(f.value(), "\n");
-      if (!s.ok()) return s;
-      ++(*written)[name];
-    }
-  }
-  if (cursor != st.entries.size()) {
-    return Status::Input("an input file got shorter while prefsift was reading it; nothing was written");
-  }
-  if (Status s = writer.Finish(); !s.ok()) return s;
-  for (auto& [name, f] : files) {
-    Status s = f->Close();
-    if (!s.ok()) return s;
-  }
-  return Status::Ok();
-}
-
 // Collects path-valued settings wherever they sit in a stage's section.
 void CollectSettingPaths(const Json& j, const std::string& key, const std::string& base, const std::string& stage,
                          std::vector<ReadPath>* out) {
@@ -701,12 +496,6 @@ Status ObserveInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr
 
 Status CheckInputSanity(const Plan& plan, uint32_t input, const InputStats& stats, const InputIngest& ingest) {
   return CheckInputSanity(plan, plan.inputs[input], stats, ingest.tallies, ingest.evidence);
-}
-
-Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
-                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written) {
-  Progress progress(false, false, 5, stderr, 0);  // silent
-  return Apply(plan, st, stages, fs, out, written, progress, part);
 }
 
 std::vector<ReadPath> PathsReadBy(const Plan& plan) {
@@ -837,7 +626,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
 
   // Apply: pass 2, then the stages' files.
   std::map<std::string, uint64_t> written;
-  s = Apply(plan, st, stages, fs, *out.value(), &written, progress);
+  s = ApplyInputs(plan, st, stages, fs, *out.value(), nullptr, &written, &pool, &progress);
   progress.Done();
   if (!s.ok()) return s;
   timer.Mark("apply (pass 2)");

@@ -7,7 +7,8 @@
 //            to kept records and to the copy embedded in rejects.jsonl.
 //
 // Observe may be called from several threads for distinct record indexes,
-// after Grow(n) has sized the stage's storage; everything else runs on one
+// after Grow(n) has sized the stage's storage; Rewrites and Rewrite (const)
+// from several threads at once in pass 2; everything else runs on one
 // thread. A stage must be deterministic given the plan and its seed.
 #pragma once
 

@@ -1,0 +1,303 @@
+// Pass 2 (apply): every entry's line to its split file or rejects.jsonl; see
+// passes.h.
+//
+// The input is read in chunks on one thread (lines copied back to back into
+// one buffer and matched to their entries), the pool builds the lines that
+// change (a record a stage rewrites, a rejects.jsonl line) in parallel, and
+// the calling thread hands each chunk's lines to the writer in input order.
+// Kept lines that no stage changes are copied by byte range, never parsed.
+#include <nlohmann/json.hpp>
+
+#include <future>
+#include <map>
+#include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "core/blank.h"
+#include "core/thread_pool.h"
+#include "io/line_reader.h"
+#include "pipeline/passes.h"
+#include "pipeline/progress.h"
+
+namespace prefsift {
+namespace {
+
+using Json = nlohmann::ordered_json;
+
+// A chunk ends at this many lines or bytes, whichever comes first. Two chunks
+// are in memory at once (one read ahead), plus the changed lines.
+constexpr size_t kChunkLines = 4096;
+constexpr size_t kChunkBytes = 16u << 20;
+
+// Pass 2's writes, batched per output file and handed to one background
+// thread, so building lines and writing them overlap. Batches are written
+// strictly in order (one in flight at a time); the first error stops
+// everything and is returned by Flush or Finish.
+class BatchedWriter {
+ public:
+  ~BatchedWriter() { (void)Finish(); }
+  // Queues bytes for `f` (in call order per file).
+  Status Append(WritableFile* f, std::string_view bytes) {
+    auto& buf = pending_[f];
+    buf.append(bytes);
+    pending_bytes_ += bytes.size();
+    return pending_bytes_ >= kBatchBytes ? Flush() : Status::Ok();
+  }
+  Status Flush() {
+    Status s = Wait();
+    if (!s.ok() || pending_.empty()) return s;
+    in_flight_ = std::async(std::launch::async, [batch = std::move(pending_)]() {
+      for (const auto& [f, bytes] : batch) {
+        Status ws = f->Append(bytes);
+        if (!ws.ok()) return ws;
+      }
+      return Status::Ok();
+    });
+    pending_.clear();
+    pending_bytes_ = 0;
+    return Status::Ok();
+  }
+  Status Finish() {
+    Status s = Flush();
+    Status w = Wait();
+    return s.ok() ? w : s;
+  }
+
+ private:
+  static constexpr size_t kBatchBytes = 8u << 20;
+  Status Wait() {
+    if (!in_flight_.valid()) return Status::Ok();
+    return in_flight_.get();
+  }
+  std::map<WritableFile*, std::string> pending_;  // order between files does not matter
+  size_t pending_bytes_ = 0;
+  std::future<Status> in_flight_;
+};
+
+// Lines of one input as read, each matched to its entry.
+struct ApplyChunk {
+  std::string bytes;                // the lines back to back, without their newlines
+  std::vector<size_t> begins{0};    // line k is bytes[begins[k], begins[k + 1])
+  std::vector<size_t> entries;      // line k's entry index
+  bool end = false;                 // the input has no more lines
+  uint64_t bytes_read = 0;          // the reader's position after the chunk
+  Status status = Status::Ok();
+
+  size_t size() const { return entries.size(); }
+  std::string_view line(size_t k) const {
+    return std::string_view(bytes).substr(begins[k], begins[k + 1] - begins[k]);
+  }
+};
+
+// Reads the next chunk of input `in`, advancing *cursor over the entries; an
+// input that no longer matches the entries of pass 1 is an error.
+ApplyChunk ReadChunk(LineReader& reader, const Plan& plan, const RunState& st, uint32_t in, size_t* cursor,
+                     Progress* progress) {
+  ApplyChunk c;
+  while (c.size() < kChunkLines && c.bytes.size() < kChunkBytes) {
+    std::string_view line;
+    uint64_t no = 0;
+    auto next = reader.Read(&line, &no);
+    if (!next.ok()) {
+      c.status = next.status();
+      return c;
+    }
+    if (next.value() == LineReader::Next::kEnd) {
+      c.end = true;
+      break;
+    }
+    if ((no & 4095) == 0) progress->Tick(plan.inputs[in].name, no, reader.bytes_read());
+    if (next.value() == LineReader::Next::kLine && IsBlank(line)) continue;
+    if (*cursor >= st.entries.size() || st.entries[*cursor].input != in || st.entries[*cursor].line != no) {
+      c.status = Status::Input(plan.inputs[in].path + " changed while prefsift was reading it (line " +
+                               std::to_string(no) + "); nothing was written");
+      return c;
+    }
+    // A line over the limit was rejected unread in pass 1; its reject line
+    // names file and line only.
+    if (next.value() == LineReader::Next::kLine) c.bytes.append(line);
+    c.begins.push_back(c.bytes.size());
+    c.entries.push_back((*cursor)++);
+  }
+  c.bytes_read = reader.bytes_read();
+  return c;
+}
+
+bool StagesRewrite(const std::vector<std::unique_ptr<Stage>>& stages, const Entry& e) {
+  if (e.record < 0) return false;
+  for (const auto& s : stages) {
+    if (s->Rewrites(static_cast<size_t>(e.record))) return true;
+  }
+  return false;
+}
+
+// The line as written for entry `entry` (`raw` as read): rewritten by the
+// stages that change its record (kept or rejected, only the changed form is
+// written), then, when rejected, wrapped in its rejects.jsonl line.
+Status BuildLine(const Plan& plan, const RunState& st, const std::vector<std::unique_ptr<Stage>>& stages,
+                 size_t entry, std::string_view raw, std::string* out) {
+  const Entry& e = st.entries[entry];
+  const Decision& d = st.decisions[entry];
+  std::string rewritten;
+  if (StagesRewrite(stages, e)) {
+    const size_t r = static_cast<size_t>(e.record);
+    // simdjson accepted this line in pass 1; parse without exceptions so a
+    // disagreement between the two parsers is an error value, never an abort.
+    Json doc = Json::parse(raw, nullptr, /*allow_exceptions=*/false);
+    if (doc.is_discarded()) {
+      return Status::Internal(plan.inputs[e.input].path + ":" + std::to_string(e.line) +
+                              ": the record parsed in pass 1 but not when rewriting it; nothing was written");
+    }
+    for (const auto& stage : stages) {
+      if (!stage->Rewrites(r)) continue;
+      Status rs = stage->Rewrite(r, plan.inputs[e.input], &doc);
+      if (!rs.ok()) return rs;
+    }
+    rewritten = doc.dump();
+    raw = rewritten;
+  }
+  *out = d.rejected ? RejectLine(plan, st, e, d, raw) : std::move(rewritten);
+  return Status::Ok();
+}
+
+// The pass's output files: every split file of every input exists, even
+// when empty, so downstream jobs find them; rejects.jsonl last.
+class ApplyFiles {
+ public:
+  Status Open(const Plan& plan, const RunState& st, OutputDir& out) {
+    splits_ = st.split_names.size();
+    for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+      for (const auto& split : st.split_names) {
+        auto f = File(OutputName(plan, split, in), out);
+        if (!f.ok()) return f.status();
+        by_place_.push_back(f.value());
+      }
+    }
+    auto r = File("rejects.jsonl", out);
+    if (!r.ok()) return r.status();
+    rejects_ = r.value();
+    return Status::Ok();
+  }
+  // Index of the file a kept line of input `in` in split `split` goes to.
+  size_t Place(uint32_t in, uint32_t split) const { return in * splits_ + split; }
+  WritableFile* At(size_t place) const { return by_place_[place]; }
+  WritableFile* rejects() const { return rejects_; }
+  // Lines written per file, added to *written by file name.
+  void Count(WritableFile* f, uint64_t lines) { lines_[f] += lines; }
+  Status Close(std::map<std::string, uint64_t>* written) {
+    for (auto& [name, f] : files_) {
+      (*written)[name] += lines_[f.get()];
+      Status s = f->Close();
+      if (!s.ok()) return s;
+    }
+    return Status::Ok();
+  }
+
+ private:
+  Result<WritableFile*> File(const std::string& name, OutputDir& out) {
+    auto it = files_.find(name);
+    if (it != files_.end()) return it->second.get();
+    auto f = out.Create(name);
+    if (!f.ok()) return f.status();
+    return (files_[name] = std::move(f).value()).get();
+  }
+  std::map<std::string, std::unique_ptr<WritableFile>> files_;
+  std::vector<WritableFile*> by_place_;
+  WritableFile* rejects_ = nullptr;
+  size_t splits_ = 1;
+  std::map<WritableFile*, uint64_t> lines_;
+};
+
+// Builds the changed lines of one chunk on the pool; the first error in
+// input order wins, so a failing run reports the same line at any thread count.
+Status BuildChunk(const Plan& plan, const RunState& st, const std::vector<std::unique_ptr<Stage>>& stages,
+                  const ApplyChunk& c, ThreadPool& pool, std::vector<size_t>* todo,
+                  std::vector<std::string>* made) {
+  todo->clear();
+  for (size_t k = 0; k < c.size(); ++k) {
+    if (st.decisions[c.entries[k]].rejected || StagesRewrite(stages, st.entries[c.entries[k]])) todo->push_back(k);
+  }
+  made->resize(todo->size());
+  std::vector<Status> errors(todo->size(), Status::Ok());
+  pool.ParallelFor(todo->size(), [&](size_t j, unsigned) {
+    const size_t k = (*todo)[j];
+    errors[j] = BuildLine(plan, st, stages, c.entries[k], c.line(k), &(*made)[j]);
+  });
+  for (const Status& s : errors) {
+    if (!s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+// Hands one chunk's lines to the writer in input order.
+Status WriteChunk(const RunState& st, uint32_t in, const ApplyChunk& c, const std::vector<size_t>& todo,
+                  const std::vector<std::string>& made, ApplyFiles& files, BatchedWriter& writer) {
+  size_t j = 0;
+  for (size_t k = 0; k < c.size(); ++k) {
+    const Decision& d = st.decisions[c.entries[k]];
+    const bool changed = j < todo.size() && todo[j] == k;
+    if (d.rejected) {
+      if (Status s = writer.Append(files.rejects(), made[j]); !s.ok()) return s;
+      files.Count(files.rejects(), 1);
+    } else {
+      WritableFile* f = files.At(files.Place(in, d.split));
+      Status s = writer.Append(f, changed ? std::string_view(made[j]) : c.line(k));
+      if (s.ok()) s = writer.Append(f, "\n");
+      if (!s.ok()) return s;
+      files.Count(f, 1);
+    }
+    j += changed;
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
+                   OutputDir& out, const Part* part, std::map<std::string, uint64_t>* written, ThreadPool* pool,
+                   Progress* progress) {
+  std::unique_ptr<ThreadPool> own_pool;
+  if (!pool) pool = (own_pool = std::make_unique<ThreadPool>(plan.threads)).get();  // 0: one per hardware thread
+  Progress silent = Progress::Silent();
+  if (!progress) progress = &silent;
+  progress->Phase("writing");
+  ApplyFiles files;
+  if (Status s = files.Open(plan, st, out); !s.ok()) return s;
+  BatchedWriter writer;  // after `files`: destroyed (and drained) before the files it writes
+
+  size_t cursor = 0;
+  std::vector<size_t> todo;
+  std::vector<std::string> made;
+  for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
+    if (part && in != part->input) continue;
+    LineRange range;
+    if (part) range = LineRange{part->begin, part->end.value_or(UINT64_MAX), part->first_line};
+    auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes, range);
+    if (!opened.ok()) return opened.status();
+    LineReader& reader = *opened.value();
+    auto read = [&] { return ReadChunk(reader, plan, st, in, &cursor, progress); };
+    // The next chunk is read on its own thread while this one is built and
+    // written; every path out of the loop waits for that read first.
+    std::future<ApplyChunk> ahead = std::async(std::launch::async, read);
+    for (;;) {
+      ApplyChunk c = ahead.get();
+      if (!c.status.ok()) return c.status;
+      if (!c.end) ahead = std::async(std::launch::async, read);
+      if (Status s = BuildChunk(plan, st, stages, c, *pool, &todo, &made); !s.ok()) return s;
+      if (Status s = WriteChunk(st, in, c, todo, made, files, writer); !s.ok()) return s;
+      if (c.end) {
+        progress->InputDone(c.bytes_read);
+        break;
+      }
+    }
+  }
+  if (cursor != st.entries.size()) {
+    return Status::Input("an input file got shorter while prefsift was reading it; nothing was written");
+  }
+  if (Status s = writer.Finish(); !s.ok()) return s;
+  return files.Close(written);
+}
+
+}  // namespace prefsift
