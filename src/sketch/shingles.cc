@@ -7,6 +7,10 @@
 #include <array>
 #include <cstring>
 
+#if defined(__SSE2__)
+#include <emmintrin.h>
+#endif
+
 #define XXH_INLINE_ALL
 #include <xxhash.h>
 
@@ -82,6 +86,131 @@ inline bool IsWordish(WordClass c) {
   return c == WordClass::kLetter || c == WordClass::kNumeric || c == WordClass::kExtendNumLet;
 }
 
+bool IsAsciiText(std::string_view text) {
+  unsigned high = 0;
+  for (char ch : text) high |= static_cast<unsigned char>(ch);  // vectorised
+  return high < 0x80;
+}
+
+// ForEachWord for text that is all ASCII, by bit masks (one bit a byte, 64
+// bytes a word) instead of a branch a byte: no ASCII byte is Extend, Format
+// or Ideo, so a word is a maximal run of letters, digits, '_' and the joiners
+// of WB6/WB7 (a MidLetter or MidNumLet byte between two letters) and
+// WB11/WB12 (a MidNum or MidNumLet byte between two digits) that holds a letter
+// or a digit: the same segments as the general loop below (and a test checks
+// that they agree on random text).
+template <typename F>
+void ForEachAsciiWord(std::string_view text, F&& f) {
+  enum : uint8_t { kL = 1, kD = 2, kU = 4, kMl = 8, kMn = 16 };
+  struct Flags {
+    uint8_t of[128] = {};
+    Flags() {
+      for (int b = 0; b < 128; ++b) {
+        switch (WordClassOf(static_cast<char32_t>(b))) {
+          case WordClass::kLetter: of[b] = kL; break;
+          case WordClass::kNumeric: of[b] = kD; break;
+          case WordClass::kExtendNumLet: of[b] = kU; break;
+          case WordClass::kMidLetter: of[b] = kMl; break;
+          case WordClass::kMidNum: of[b] = kMn; break;
+          case WordClass::kMidNumLet: of[b] = kMl | kMn; break;
+          default: break;
+        }
+      }
+    }
+  };
+  static const Flags flags;
+  const auto* bytes = reinterpret_cast<const unsigned char*>(text.data());
+  const size_t n = text.size();
+  const size_t blocks = (n + 63) / 64;
+  // Per block: letters, digits, the rest of a word's bytes ('_'), joiners.
+  thread_local std::vector<uint64_t> letter, digit, under, mid_l, mid_n;
+  for (auto* v : {&letter, &digit, &under, &mid_l, &mid_n}) v->assign(blocks + 1, 0);  // one zero block after
+  size_t w = 0;
+#if defined(__SSE2__)
+  // Whole blocks of 64 bytes: 16 bytes a step, a compare and a movemask per
+  // class (the same classes as the table, which the tail below uses).
+  for (; (w + 1) * 64 <= n; ++w) {
+    uint64_t l = 0, d = 0, u = 0, ml = 0, mn = 0;
+    for (int q = 0; q < 4; ++q) {
+      const __m128i v = _mm_loadu_si128(reinterpret_cast<const __m128i*>(bytes + w * 64 + q * 16));
+      auto in_range = [&](__m128i x, char lo, char span) {  // lo <= x <= lo + span, unsigned
+        const __m128i off = _mm_sub_epi8(x, _mm_set1_epi8(lo));
+        return _mm_cmpeq_epi8(_mm_min_epu8(off, _mm_set1_epi8(span)), off);
+      };
+      auto eq = [&](char c) { return _mm_cmpeq_epi8(v, _mm_set1_epi8(c)); };
+      auto bits = [&](__m128i m) { return static_cast<uint64_t>(static_cast<uint16_t>(_mm_movemask_epi8(m))) << (q * 16); };
+      l |= bits(in_range(_mm_or_si128(v, _mm_set1_epi8(0x20)), 'a', 25));
+      d |= bits(in_range(v, '0', 9));
+      u |= bits(eq('_'));
+      const __m128i mid_num_let = _mm_or_si128(eq('.'), eq('\''));
+      ml |= bits(_mm_or_si128(mid_num_let, eq(':')));
+      mn |= bits(_mm_or_si128(mid_num_let, _mm_or_si128(eq(','), eq(';'))));
+    }
+    letter[w] = l;
+    digit[w] = d;
+    under[w] = u;
+    mid_l[w] = ml;
+    mid_n[w] = mn;
+  }
+#endif
+  for (; w < blocks; ++w) {
+    uint64_t l = 0, d = 0, u = 0, ml = 0, mn = 0;
+    const size_t end = std::min<size_t>(64, n - w * 64);
+    const unsigned char* block = bytes + w * 64;
+    for (size_t k = 0; k < end; ++k) {
+      const uint64_t c = flags.of[block[k]];
+      l |= (c & 1) << k;
+      d |= ((c >> 1) & 1) << k;
+      u |= ((c >> 2) & 1) << k;
+      ml |= ((c >> 3) & 1) << k;
+      mn |= ((c >> 4) & 1) << k;
+    }
+    letter[w] = l;
+    digit[w] = d;
+    under[w] = u;
+    mid_l[w] = ml;
+    mid_n[w] = mn;
+  }
+  // Bit p of before(x) is bit p - 1 of x; of after(x), bit p + 1.
+  auto before = [](const std::vector<uint64_t>& x, size_t w) { return x[w] << 1 | (w ? x[w - 1] >> 63 : 0); };
+  auto after = [](const std::vector<uint64_t>& x, size_t w) { return x[w] >> 1 | x[w + 1] << 63; };
+  thread_local std::vector<uint64_t> in_word, alnum;
+  in_word.assign(blocks + 1, 0);
+  alnum.assign(blocks + 1, 0);
+  for (w = 0; w < blocks; ++w) {
+    const uint64_t joins = (mid_l[w] & before(letter, w) & after(letter, w)) |
+                           (mid_n[w] & before(digit, w) & after(digit, w));
+    alnum[w] = letter[w] | digit[w];
+    in_word[w] = alnum[w] | under[w] | joins;
+  }
+  // Each maximal run of in_word bits is a segment; one with an alnum bit is a word.
+  w = 0;
+  uint64_t bits = blocks ? in_word[0] : 0;  // in_word[w] with the bits before the scan position cleared
+  while (w < blocks) {
+    if (bits == 0) {
+      if (++w < blocks) bits = in_word[w];
+      continue;
+    }
+    const size_t start = w * 64 + static_cast<size_t>(__builtin_ctzll(bits));
+    // The run's end: the first clear bit at or after start.
+    size_t ew = w;
+    uint64_t clear = ~in_word[ew] & ~((uint64_t{1} << (start % 64)) - 1);
+    while (clear == 0) clear = ~in_word[++ew];  // in_word[blocks] is 0, so this stops
+    const size_t end = ew * 64 + static_cast<size_t>(__builtin_ctzll(clear));
+    bool has_alnum = false;
+    for (size_t a = start / 64; a <= (end - 1) / 64 && !has_alnum; ++a) {
+      uint64_t m = alnum[a];
+      if (a == start / 64) m &= ~uint64_t{0} << (start % 64);
+      if (a == (end - 1) / 64 && end % 64) m &= (uint64_t{1} << (end % 64)) - 1;
+      has_alnum = m != 0;
+    }
+    if (has_alnum) f(start, end);
+    w = end / 64;
+    if (w >= blocks) break;
+    bits = in_word[w] & (~uint64_t{0} << (end % 64));
+  }
+}
+
 // Calls f(start, end) for every word segment (byte offsets) of `text`, in
 // order: UAX #29 rules WB4 (Extend and Format attach to what precedes),
 // WB5-WB7 (letters, and letters joined by MidLetter/MidNumLet), WB8-WB12
@@ -90,6 +219,12 @@ inline bool IsWordish(WordClass c) {
 // digit or no-space-script character are not words and are skipped.
 template <typename F>
 void ForEachWord(std::string_view text, F&& f) {
+  if (IsAsciiText(text)) {
+    ForEachAsciiWord(text, f);
+    return;
+  }
+  static const AsciiWordClasses ascii;
+  const auto* bytes = reinterpret_cast<const unsigned char*>(text.data());
   const size_t size = text.size();
   size_t i = 0;
   // Skips Extend/Format code points from j; returns the next position.
@@ -101,14 +236,23 @@ void ForEachWord(std::string_view text, F&& f) {
     }
     return j;
   };
+  // After a word character ending at j: no ASCII byte is Extend or Format,
+  // so the skip is needed only before a non-ASCII byte (the same position
+  // skip_extend would return, one call fewer a byte).
+  auto after_word_char = [&](size_t j) { return j < size && bytes[j] >= 0x80 ? skip_extend(j) : j; };
   while (i < size) {
-    size_t len;
-    const WordClass c = ClassAt(text, i, &len);
-    if (c == WordClass::kIdeo) {
-      const size_t end = skip_extend(i + len);
-      f(i, end);
-      i = end;
-      continue;
+    size_t len = 1;
+    WordClass c;
+    if (bytes[i] < 0x80) {
+      c = ascii.c[bytes[i]];  // never Ideo, Extend or Format
+    } else {
+      c = ClassAt(text, i, &len);
+      if (c == WordClass::kIdeo) {
+        const size_t end = skip_extend(i + len);
+        f(i, end);
+        i = end;
+        continue;
+      }
     }
     if (!IsWordish(c)) {
       i += len;
@@ -117,10 +261,21 @@ void ForEachWord(std::string_view text, F&& f) {
     const size_t start = i;
     WordClass prev = c;  // class of the last word character
     bool has_alnum = c != WordClass::kExtendNumLet;
-    i = skip_extend(i + len);
+    i = after_word_char(i + len);
     while (i < size) {
-      size_t l1;
-      const WordClass n1 = ClassAt(text, i, &l1);
+      size_t l1 = 1;
+      WordClass n1;
+      if (bytes[i] < 0x80) {
+        n1 = ascii.c[bytes[i]];
+        if (IsWordish(n1)) {  // the common case: the word goes on
+          prev = n1;
+          has_alnum = has_alnum || n1 != WordClass::kExtendNumLet;
+          i = after_word_char(i + 1);
+          continue;
+        }
+      } else {
+        n1 = ClassAt(text, i, &l1);
+      }
       if (IsWordish(n1)) {
         prev = n1;
         has_alnum = has_alnum || n1 != WordClass::kExtendNumLet;

@@ -104,6 +104,32 @@ TEST(Normalize, AsciiFastPathAgreesOnRandomText) {
   }
 }
 
+TEST(Normalize, AsciiFastPathAgreesOnSinglySpacedText) {
+  // Words of printable ASCII joined by single spaces (the lowercase-only
+  // path), and the same with one spacing fault (a double space, a tab, a line
+  // feed, a leading or trailing space) that sends it back to the byte loop;
+  // reference: utf8proc's NFKC + case folding (forced by a leading e-acute).
+  std::mt19937 rng(11);
+  for (int trial = 0; trial < 3000; ++trial) {
+    std::string s;
+    for (int w = 1 + static_cast<int>(rng() % 30); w > 0; --w) {
+      if (!s.empty()) s.push_back(' ');
+      for (int n = 1 + static_cast<int>(rng() % 9); n > 0; --n) s.push_back(static_cast<char>(0x21 + rng() % 94));
+    }
+    switch (trial % 6) {
+      case 1: s.insert(rng() % (s.size() + 1), 1, ' '); break;
+      case 2: s.insert(rng() % (s.size() + 1), 1, '\t'); break;
+      case 3: s.insert(rng() % (s.size() + 1), 1, '\n'); break;
+      case 4: s.insert(0, 1, ' '); break;
+      case 5: s.push_back(' '); break;
+      default: break;
+    }
+    std::string fast = NormalizeForMatch(s);
+    std::string slow = NormalizeForMatch("\xC3\xA9 " + s);
+    ASSERT_EQ("\xC3\xA9 " + fast, slow) << "text [" << s << "]";
+  }
+}
+
 // Look-alike punctuation (code points from the Unicode charts, General
 // Punctuation block U+2000-U+206F): matching text does not depend on which
 // quote, apostrophe or dash was typed. The ellipsis U+2026 and full-width

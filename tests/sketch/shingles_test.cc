@@ -12,6 +12,7 @@
 #include <cstdio>
 #include <fstream>
 #include <map>
+#include <random>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -148,6 +149,33 @@ TEST(Words, SplitsOnAsciiWhitespace) {
 // RFC 3629 section 7: "\x41\xE2\x89\xA2\xCE\x91\x2E" is U+0041 U+2262 U+0391 U+002E;
 // "\xED\x95\x9C\xEA\xB5\xAD\xEC\x96\xB4" is U+D55C U+AD6D U+C5B4;
 // "\xEF\xBB\xBF\xF0\xA3\x8E\xB4" is U+FEFF U+233B4.
+TEST(Words, AsciiMaskPathAgreesWithTheGeneralLoop) {
+  // All-ASCII text takes a bit-mask path; appending " \u00e9" (a letter
+  // outside ASCII) sends the same bytes through the general loop, which the
+  // Unicode WordBreakTest.txt check above covers. Random text dense in the
+  // classes that matter (letters, digits, '_', the MidLetter/MidNum/MidNumLet
+  // bytes ' . : , ;), across 64-byte block edges.
+  std::mt19937 rng(20261203);
+  const std::string alphabet = "aZk09_._.':,;  \t-!?\"(x";
+  for (int trial = 0; trial < 20000; ++trial) {
+    std::string s;
+    const int len = static_cast<int>(rng() % 200);
+    for (int i = 0; i < len; ++i) s.push_back(alphabet[rng() % alphabet.size()]);
+    std::vector<std::string_view> fast = Words(s);
+    const std::string forced = s + " \xC3\xA9";
+    std::vector<std::string_view> general = Words(forced);
+    ASSERT_FALSE(general.empty());
+    ASSERT_EQ(general.back(), "\xC3\xA9");
+    general.pop_back();
+    ASSERT_EQ(fast.size(), general.size()) << "text [" << s << "]";
+    for (size_t i = 0; i < fast.size(); ++i) {
+      ASSERT_EQ(fast[i].data() - s.data(), general[i].data() - forced.data()) << "text [" << s << "] word " << i;
+      ASSERT_EQ(fast[i], general[i]) << "text [" << s << "] word " << i;
+    }
+    ASSERT_EQ(CountWords(s), fast.size());
+  }
+}
+
 TEST(DecodeUtf8, Rfc3629Examples) {
   EXPECT_EQ(DecodeUtf8("\x41\xE2\x89\xA2\xCE\x91\x2E"),
             (std::vector<char32_t>{0x41, 0x2262, 0x391, 0x2E}));
