@@ -156,53 +156,64 @@ class CandidateSets {
   }
   // The common case (every candidate in word mode with at least n words, so
   // every pair uses the full n): one hash table over all candidates' n-gram
-  // hashes, each entry marked with the candidates that contain it. One pass
-  // over the table then gives every candidate's set size and every pair's
-  // intersection: no per-candidate sort. Same sets, same hashes, same
-  // division as ExactJaccard, so the same similarities to the last bit.
+  // hashes, each entry marked with the candidates that contain it. Each
+  // candidate's set size and each pair's intersection are counted as the
+  // marks are set (a mark new to an entry: the candidate's set grows by one,
+  // and it meets every candidate already on the entry): no per-candidate sort
+  // and no scan of the table. Same sets, same hashes, same division as
+  // ExactJaccard, so the same similarities to the last bit. The table is the
+  // thread's own and is never cleared: an entry counts only when its stamp is
+  // this record's.
   static constexpr size_t kTableMaxTexts = 8;
   void BuildTable() {
     thread_local std::vector<uint64_t> grams;
     thread_local std::vector<uint64_t> keys;
-    thread_local std::vector<uint8_t> marks;  // 0 = empty slot, else a bit per candidate
+    thread_local std::vector<uint32_t> stamps;  // the record an entry was filled for
+    thread_local std::vector<uint8_t> marks;   // a bit per candidate
+    thread_local uint32_t stamp = 0;
     sketch::ShingleOptions so;
     so.mode = sketch::ShingleMode::kWords;
     so.word_n = n_;
     so.seed = seed_;
+    const size_t b = texts_.size();
     std::vector<size_t> ends;
     grams.clear();
-    for (size_t i = 0; i < texts_.size(); ++i) {
+    for (size_t i = 0; i < b; ++i) {
       sketch::AppendShingles(texts_[i], so, &grams);
       ends.push_back(grams.size());
     }
     size_t cap = 16;
     while (cap < 2 * grams.size()) cap <<= 1;
-    keys.assign(cap, 0);
-    marks.assign(cap, 0);
+    if (keys.size() < cap || ++stamp == 0) {  // a bigger table, or the stamps wrapped: start clean
+      keys.assign(std::max(cap, keys.size()), 0);
+      stamps.assign(keys.size(), 0);
+      marks.assign(keys.size(), 0);
+      stamp = 1;
+    }
     const size_t mask = cap - 1;
+    size_.assign(b, 0);
+    inter_.assign(b * b, 0);
     size_t begin = 0;
-    for (size_t i = 0; i < texts_.size(); ++i) {
+    for (size_t i = 0; i < b; ++i) {
       const auto bit = static_cast<uint8_t>(1u << i);
       for (size_t g = begin; g < ends[i]; ++g) {
         const uint64_t h = grams[g];
         size_t slot = static_cast<size_t>(h ^ (h >> 29)) & mask;
-        while (marks[slot] != 0 && keys[slot] != h) slot = (slot + 1) & mask;
-        keys[slot] = h;
-        marks[slot] |= bit;
+        while (stamps[slot] == stamp && keys[slot] != h) slot = (slot + 1) & mask;
+        if (stamps[slot] != stamp) {  // new to this record
+          stamps[slot] = stamp;
+          keys[slot] = h;
+          marks[slot] = bit;
+          ++size_[i];
+          continue;
+        }
+        const unsigned m = marks[slot];
+        if (m & bit) continue;  // a repeat within candidate i
+        marks[slot] = static_cast<uint8_t>(m | bit);
+        ++size_[i];
+        for (unsigned rest = m; rest != 0; rest &= rest - 1) ++inter_[static_cast<size_t>(__builtin_ctz(rest)) * b + i];
       }
       begin = ends[i];
-    }
-    const size_t b = texts_.size();
-    size_.assign(b, 0);
-    inter_.assign(b * b, 0);
-    for (size_t slot = 0; slot < cap; ++slot) {
-      const unsigned m = marks[slot];
-      if (m == 0) continue;
-      for (size_t x = 0; x < b; ++x) {
-        if (!(m & (1u << x))) continue;
-        ++size_[x];
-        for (size_t y = x + 1; y < b; ++y) inter_[x * b + y] += (m >> y) & 1u;
-      }
     }
     table_built_ = true;
   }
