@@ -544,9 +544,12 @@ bool ParseFailure(simdjson::error_code err, const InputLimits& lim, RejectReason
 
 }  // namespace
 
-bool RecordReader::Read(std::string_view line, const std::string& default_id, Record* rec, RejectReason* why) {
+static_assert(RecordReader::kPadding >= simdjson::SIMDJSON_PADDING, "the parser reads past a line's end");
+
+bool RecordReader::Read(std::string_view line, const std::string& default_id, Record* rec, RejectReason* why,
+                        bool padded) {
   element root;
-  auto err = impl_->parser.parse(line.data(), line.size()).get(root);
+  auto err = impl_->parser.parse(line.data(), line.size(), /*realloc_if_needed=*/!padded).get(root);
   if (err) return ParseFailure(err, impl_->limits, why);
   LineReading reading(impl_->layout, impl_->limits, &impl_->evidence, root, why);
   if (root.type() != element_type::OBJECT) {

@@ -60,8 +60,12 @@ class RecordReader {
   RecordReader& operator=(const RecordReader&) = delete;
 
   // Returns true and fills *rec, or false and fills *why. `default_id` is used
-  // when the layout has no id pointer.
-  bool Read(std::string_view line, const std::string& default_id, Record* rec, RejectReason* why);
+  // when the layout has no id pointer. `padded`: at least kPadding readable
+  // bytes follow the line in memory (any values), so the parser reads it in
+  // place instead of copying it first.
+  bool Read(std::string_view line, const std::string& default_id, Record* rec, RejectReason* why,
+            bool padded = false);
+  static constexpr size_t kPadding = 64;
 
   // Evidence about the numbering base from every Read so far.
   const BaseEvidence& base_evidence() const;

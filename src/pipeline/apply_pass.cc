@@ -96,7 +96,7 @@ struct ApplyChunk {
 ApplyChunk ReadChunk(LineReader& reader, const Plan& plan, const RunState& st, uint32_t in, size_t* cursor,
                      Progress* progress) {
   ApplyChunk c;
-  while (c.size() < kChunkLines && c.bytes.size() < kChunkBytes) {
+  for (bool first = true; c.size() < kChunkLines && c.bytes.size() < kChunkBytes; first = false) {
     std::string_view line;
     uint64_t no = 0;
     auto next = reader.Read(&line, &no);
@@ -108,7 +108,7 @@ ApplyChunk ReadChunk(LineReader& reader, const Plan& plan, const RunState& st, u
       c.end = true;
       break;
     }
-    if ((no & 4095) == 0) progress->Tick(plan.inputs[in].name, no, reader.bytes_read());
+    if (first) progress->Tick(plan.inputs[in].name, no, reader.bytes_read());  // a chunk's first line
     if (next.value() == LineReader::Next::kLine && IsBlank(line)) continue;
     if (*cursor >= st.entries.size() || st.entries[*cursor].input != in || st.entries[*cursor].line != no) {
       c.status = Status::Input(plan.inputs[in].path + " changed while prefsift was reading it (line " +

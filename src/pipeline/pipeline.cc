@@ -107,22 +107,29 @@ uint64_t InputBytes(const Plan& plan) {
   return total;
 }
 
-// One chunk of lines as read from an input: the texts are copies (the line
-// reader's views are transient), so the next chunk can be read while this one
-// is parsed.
+// One chunk of lines as read from an input: copies (the line reader's views
+// are transient), back to back in one buffer with the parser's padding after
+// the last, so the next chunk can be read while this one is parsed in place.
 struct RawChunk {
-  std::vector<std::string> texts;  // empty for a line longer than the limit
+  std::string bytes;               // the lines, then RecordReader::kPadding bytes
+  std::vector<size_t> begins{0};   // line k is bytes[begins[k], begins[k + 1]); empty when too long
   std::vector<uint64_t> line_numbers;
   std::vector<uint8_t> too_long;
   uint64_t lines = 0, blank_lines = 0;  // every line read, blank ones included
   uint64_t bytes_read = 0;              // the reader's position after the chunk
   bool eof = false;
   Status status = Status::Ok();
+
+  size_t size() const { return line_numbers.size(); }
+  std::string_view line(size_t k) const {
+    return std::string_view(bytes).substr(begins[k], begins[k + 1] - begins[k]);
+  }
 };
 
 RawChunk ReadChunk(LineReader& reader) {
   RawChunk c;
-  while (c.texts.size() < kChunkLines) {
+  c.bytes.reserve(kChunkLines * 4096);  // typical records fit without regrowing
+  while (c.size() < kChunkLines) {
     std::string_view line;
     uint64_t no = 0;
     auto next = reader.Read(&line, &no);
@@ -140,10 +147,12 @@ RawChunk ReadChunk(LineReader& reader) {
       continue;
     }
     const bool too_long = next.value() == LineReader::Next::kTooLong;
-    c.texts.emplace_back(too_long ? std::string_view() : line);
+    if (!too_long) c.bytes.append(line);
+    c.begins.push_back(c.bytes.size());
     c.line_numbers.push_back(no);
     c.too_long.push_back(too_long);
   }
+  c.bytes.append(RecordReader::kPadding, ' ');
   c.bytes_read = reader.bytes_read();
   return c;
 }
@@ -269,7 +278,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader));
       stats.lines += raw.lines;
       stats.blank_lines += raw.blank_lines;
-      const size_t n = raw.texts.size();
+      const size_t n = raw.size();
       chunk.resize(n);
       pool.ParallelFor(n, [&](size_t i, unsigned t) {
         Parsed& p = chunk[i];
@@ -277,7 +286,8 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         p.too_long = raw.too_long[i] != 0;
         p.ok = false;
         if (p.too_long) return;
-        p.ok = parsers[t]->Read(raw.texts[i], spec.name + ":" + std::to_string(p.line), &p.rec, &p.why);
+        p.ok = parsers[t]->Read(raw.line(i), spec.name + ":" + std::to_string(p.line), &p.rec, &p.why,
+                                /*padded=*/true);
         if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text);
       });
       // Number entries and records in input order.
@@ -310,7 +320,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
           if (t.count++ == 0) {
             t.field = p.too_long ? "" : p.why.field;
             t.first_line = p.line;
-            t.first_keys = p.too_long ? "(not read: too long)" : KeysOf(raw.texts[i]);
+            t.first_keys = p.too_long ? "(not read: too long)" : KeysOf(raw.line(i));
           }
         }
       }
