@@ -3,7 +3,7 @@
 // ParallelFor(n, fn) runs fn(i, worker) for every i in [0, n) and returns when
 // all calls have finished. The calling thread works too (as worker 0), so a
 // pool of size T starts T - 1 threads, once, for its whole life. Indexes are
-// handed out in small batches (1 to 16, fewer when n is small) in increasing order; which worker runs which
+// handed out in small batches (1 to 16, fewer when n is small and towards the end) in increasing order; which worker runs which
 // index is not deterministic, so fn must write only to storage owned by i
 // (or by `worker`, e.g. a per-worker parser).
 //

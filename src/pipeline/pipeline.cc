@@ -2,6 +2,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include <time.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -87,6 +88,11 @@ class PhaseTimer {
     auto now = std::chrono::steady_clock::now();
     std::fprintf(log_, "timing: %-22s %8.3f s\n", phase.c_str(), std::chrono::duration<double>(now - last_).count());
     last_ = now;
+  }
+  // A figure inside the last phase (CPU seconds of a part of it); the clock
+  // runs on.
+  void Note(const std::string& what, double cpu_seconds) {
+    if (on_) std::fprintf(log_, "timing cpu:   %-18s %8.3f s\n", what.c_str(), cpu_seconds);
   }
 
  private:
@@ -244,11 +250,35 @@ Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStat
   return Status::Ok();
 }
 
+// CPU seconds of pass 1's parts, summed over the pool's workers (--timings):
+// reading a line into a record with its facts, and each stage's Observe.
+// Thread CPU clocks, so a busy machine does not inflate the figures.
+class Pass1Cpu {
+ public:
+  Pass1Cpu(size_t stages, unsigned workers) : parts_(stages + 1), seconds_(parts_ * workers, 0.0) {}
+  static double Now() {
+    timespec t{};
+    clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
+    return static_cast<double>(t.tv_sec) + 1e-9 * static_cast<double>(t.tv_nsec);
+  }
+  // Part 0 is reading; part 1 + s is stage s.
+  void Add(unsigned worker, size_t part, double seconds) { seconds_[worker * parts_ + part] += seconds; }
+  double Total(size_t part) const {
+    double sum = 0;
+    for (size_t w = 0; w < seconds_.size() / parts_; ++w) sum += seconds_[w * parts_ + part];
+    return sum;
+  }
+
+ private:
+  size_t parts_;
+  std::vector<double> seconds_;  // worker-major
+};
+
 // `part`: only that part of one input, its checks left to the caller, its
 // ingest figures to (*ingest)[part->input] (pass1.h).
 Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage>>& stages, FileSystem* fs,
                ThreadPool& pool, Progress& progress, const Part* part = nullptr,
-               std::vector<InputIngest>* ingest = nullptr) {
+               std::vector<InputIngest>* ingest = nullptr, Pass1Cpu* cpu = nullptr) {
   st.inputs.resize(plan.inputs.size());
   std::vector<Parsed> chunk;  // reused from chunk to chunk (buffers keep their capacity)
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
@@ -286,9 +316,11 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         p.too_long = raw.too_long[i] != 0;
         p.ok = false;
         if (p.too_long) return;
+        const double t0 = cpu ? Pass1Cpu::Now() : 0;
         p.ok = parsers[t]->Read(raw.line(i), spec.name + ":" + std::to_string(p.line), &p.rec, &p.why,
                                 /*padded=*/true);
         if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text);
+        if (cpu) cpu->Add(t, 0, Pass1Cpu::Now() - t0);
       });
       // Number entries and records in input order.
       std::vector<size_t> rec_of(n, SIZE_MAX);
@@ -326,9 +358,19 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       }
       if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
-      pool.ParallelFor(n, [&](size_t i, unsigned) {
+      pool.ParallelFor(n, [&](size_t i, unsigned t) {
         if (rec_of[i] == SIZE_MAX) return;
-        for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
+        if (!cpu) {
+          for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
+          return;
+        }
+        double t0 = Pass1Cpu::Now();
+        for (size_t k = 0; k < stages.size(); ++k) {
+          stages[k]->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
+          const double t1 = Pass1Cpu::Now();
+          cpu->Add(t, 1 + k, t1 - t0);
+          t0 = t1;
+        }
       });
       progress.Tick(spec.name, stats.lines, raw.bytes_read);
       if (eof) {
@@ -620,10 +662,16 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
   PhaseTimer timer(options.timings, log);
   DigestingFileSystem digesting(fs);  // inputs' SHA-256 while pass 1 reads them
-  Status s = Observe(plan, st, stages, &digesting, pool, progress);
+  std::optional<Pass1Cpu> cpu;
+  if (options.timings) cpu.emplace(stages.size(), pool.size());
+  Status s = Observe(plan, st, stages, &digesting, pool, progress, nullptr, nullptr, cpu ? &*cpu : nullptr);
   progress.Done();
   if (!s.ok()) return s;
   timer.Mark("observe (pass 1)");
+  if (cpu) {
+    timer.Note("read and facts", cpu->Total(0));
+    for (size_t k = 0; k < stages.size(); ++k) timer.Note("observe " + stages[k]->name(), cpu->Total(1 + k));
+  }
 
   // Decide, the gate last.
   StageResults results;
