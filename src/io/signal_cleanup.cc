@@ -52,6 +52,10 @@ void WaitAndClean() {
 }  // namespace
 
 void RemovePartialOutputsOnSignal() {
+  // A log or table whose reader has gone (`prefsift run ... | head`) must
+  // neither end the run half-way, leaving its staging folder, nor cost its
+  // outputs, which are files: writes to the closed pipe fail, the run goes on.
+  ::signal(SIGPIPE, SIG_IGN);
   sigset_t set = StopSignals();
   pthread_sigmask(SIG_BLOCK, &set, nullptr);
   std::thread(WaitAndClean).detach();

@@ -14,6 +14,8 @@ namespace prefsift {
 
 // Call once, early in main and before any other thread starts: blocks the
 // three signals in every thread and starts the thread that waits for them.
+// Also ignores SIGPIPE, so a closed log pipe fails writes instead of ending
+// the run without cleaning up.
 void RemovePartialOutputsOnSignal();
 
 // Adds / removes a path (file or folder) to remove if a signal stops the run.

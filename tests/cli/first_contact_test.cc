@@ -118,6 +118,23 @@ TEST(FirstContact, SigtermRemovesThePartialFolder) {
   EXPECT_FALSE(fs::exists(d + "/out"));
 }
 
+TEST(FirstContact, ClosedLogPipeLeavesNoPartialFolder) {
+  // `prefsift run ... 2>&1 | head -c 1`: the log's reader goes away after the
+  // first byte. The run neither dies half-way leaving its staging folder (the
+  // default action of SIGPIPE) nor loses its output: it finishes.
+  std::string d = Dir("closed_pipe");
+  std::string data;
+  for (int i = 0; i < 3000; ++i) data += Good(i, i % 2);
+  Write(d + "/in.jsonl", data);
+  std::string cmd = "cd '" + d + "' && { " + std::string(PREFSIFT_BINARY) +
+                    " run in.jsonl --layout choice -o out --progress --progress-seconds 0 --timings 2>&1; "
+                    "echo \"rc=$?\" > rc.txt; } | head -c 1 >/dev/null";
+  std::system(cmd.c_str());
+  EXPECT_FALSE(HasPartialFolder(d));
+  EXPECT_EQ(Slurp(d + "/rc.txt"), "rc=0\n");
+  EXPECT_TRUE(fs::exists(d + "/out/summary.json"));
+}
+
 // --- 2. Outputs never touch inputs ------------------------------------------
 
 TEST(FirstContact, OutputThatIsTheInputIsRefused) {
