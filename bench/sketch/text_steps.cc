@@ -1,0 +1,96 @@
+// text_steps: single-thread throughput of the per-text steps pass 1 runs on
+// every prompt and candidate (docs/performance.md): matching normalisation,
+// word segmentation (counting words), word 3-gram shingles (the near stage's
+// candidate check) and word 5-gram shingles with a 256-slot MinHash signature
+// (the near stage's prompt signature).
+//
+// Usage: text_steps PREFS.jsonl [RECORDS=20000]
+// Reads "prompt" (a string) and "candidates" (strings) of the first RECORDS
+// lines; prints MB/s of each step over those texts, best of 3 repetitions.
+#include <nlohmann/json.hpp>
+
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include "core/normalize.h"
+#include "sketch/minhash.h"
+#include "sketch/shingles.h"
+
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+template <typename F>
+double BestMBps(size_t bytes, F&& step) {
+  double best = 0;
+  for (int rep = 0; rep < 3; ++rep) {
+    const auto t0 = Clock::now();
+    step();
+    const double s = std::chrono::duration<double>(Clock::now() - t0).count();
+    best = std::max(best, static_cast<double>(bytes) / 1e6 / s);
+  }
+  return best;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  if (argc < 2) {
+    std::fprintf(stderr, "usage: text_steps PREFS.jsonl [RECORDS=20000]\n");
+    return 2;
+  }
+  const size_t records = argc > 2 ? std::strtoull(argv[2], nullptr, 10) : 20000;
+  std::ifstream in(argv[1]);
+  std::vector<std::string> texts;
+  size_t bytes = 0;
+  std::string line;
+  for (size_t n = 0; n < records && std::getline(in, line); ++n) {
+    auto j = nlohmann::json::parse(line, nullptr, false);
+    if (j.is_discarded() || !j.is_object()) continue;
+    if (j.contains("prompt") && j["prompt"].is_string()) texts.push_back(j["prompt"].get<std::string>());
+    if (j.contains("candidates") && j["candidates"].is_array()) {
+      for (const auto& c : j["candidates"]) {
+        if (c.is_string()) texts.push_back(c.get<std::string>());
+      }
+    }
+  }
+  for (const auto& t : texts) bytes += t.size();
+  std::printf("%zu texts, %.1f MB\n", texts.size(), static_cast<double>(bytes) / 1e6);
+  size_t sink = 0;
+  std::printf("normalise for matching   %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) sink += prefsift::NormalizeForMatch(t).size();
+              }));
+  std::printf("count words (UAX #29)    %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) sink += prefsift::sketch::CountWords(t);
+              }));
+  std::vector<uint64_t> grams;
+  prefsift::sketch::ShingleOptions w3;
+  w3.mode = prefsift::sketch::ShingleMode::kWords;
+  w3.word_n = 3;
+  std::printf("word 3-gram shingles     %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) {
+                  grams.clear();
+                  prefsift::sketch::AppendShingles(t, w3, &grams);
+                  sink += grams.size();
+                }
+              }));
+  prefsift::sketch::ShingleOptions w5;
+  prefsift::sketch::MinHashParams mh;
+  mh.num_slots = 256;
+  std::vector<uint64_t> sig(mh.num_slots);
+  std::printf("5-gram shingles + MinHash %6.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) {
+                  grams.clear();
+                  prefsift::sketch::AppendShingles(t, w5, &grams);
+                  prefsift::sketch::Sign(grams, mh, sig);
+                  sink += sig[0] & 1;
+                }
+              }));
+  std::printf("(checksum %zu)\n", sink);
+  return 0;
+}
