@@ -91,11 +91,17 @@ struct ApplyChunk {
   }
 };
 
-// Reads the next chunk of input `in`, advancing *cursor over the entries; an
-// input that no longer matches the entries of pass 1 is an error.
+// Reads the next chunk of input `in` into `c` (a written chunk's storage,
+// reused so that its buffers are not allocated, faulted in and regrown for
+// every chunk), advancing *cursor over the entries; an input that no longer
+// matches the entries of pass 1 is an error.
 ApplyChunk ReadChunk(LineReader& reader, const Plan& plan, const RunState& st, uint32_t in, size_t* cursor,
-                     Progress* progress) {
-  ApplyChunk c;
+                     Progress* progress, ApplyChunk c) {
+  c.bytes.clear();
+  c.begins.assign(1, 0);
+  c.entries.clear();
+  c.end = false;
+  c.status = Status::Ok();
   for (bool first = true; c.size() < kChunkLines && c.bytes.size() < kChunkBytes; first = false) {
     std::string_view line;
     uint64_t no = 0;
@@ -277,20 +283,25 @@ Status ApplyInputs(const Plan& plan, RunState& st, std::vector<std::unique_ptr<S
     auto opened = LineReader::Open(fs, plan.inputs[in].path, plan.limits.max_line_bytes, range);
     if (!opened.ok()) return opened.status();
     LineReader& reader = *opened.value();
-    auto read = [&] { return ReadChunk(reader, plan, st, in, &cursor, progress); };
+    auto read = [&](ApplyChunk storage) {
+      return ReadChunk(reader, plan, st, in, &cursor, progress, std::move(storage));
+    };
     // The next chunk is read on its own thread while this one is built and
-    // written; every path out of the loop waits for that read first.
-    std::future<ApplyChunk> ahead = std::async(std::launch::async, read);
+    // written; every path out of the loop waits for that read first. Two
+    // chunks' storage take turns.
+    ApplyChunk spare;
+    std::future<ApplyChunk> ahead = std::async(std::launch::async, read, ApplyChunk());
     for (;;) {
       ApplyChunk c = ahead.get();
       if (!c.status.ok()) return c.status;
-      if (!c.end) ahead = std::async(std::launch::async, read);
+      if (!c.end) ahead = std::async(std::launch::async, read, std::move(spare));
       if (Status s = BuildChunk(plan, st, stages, c, *pool, &todo, &made); !s.ok()) return s;
       if (Status s = WriteChunk(st, in, c, todo, made, files, writer); !s.ok()) return s;
       if (c.end) {
         progress->InputDone(c.bytes_read);
         break;
       }
+      spare = std::move(c);
     }
   }
   if (cursor != st.entries.size()) {

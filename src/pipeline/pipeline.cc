@@ -132,9 +132,16 @@ struct RawChunk {
   }
 };
 
-RawChunk ReadChunk(LineReader& reader) {
-  RawChunk c;
-  c.bytes.reserve(kChunkLines * 4096);  // typical records fit without regrowing
+// Fills `c`, a handled chunk's storage (reused, so that its buffers are not
+// allocated, faulted in and regrown for every chunk).
+RawChunk ReadChunk(LineReader& reader, RawChunk c) {
+  c.bytes.clear();
+  c.begins.assign(1, 0);
+  c.line_numbers.clear();
+  c.too_long.clear();
+  c.lines = c.blank_lines = c.bytes_read = 0;
+  c.eof = false;
+  c.status = Status::Ok();
   while (c.size() < kChunkLines) {
     std::string_view line;
     uint64_t no = 0;
@@ -300,12 +307,14 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     // The next chunk is read on its own thread while the current one is parsed
     // and observed; chunks are still handled strictly in input order. Every
     // path out of the loop waits for that read first (the future's destructor).
-    std::future<RawChunk> ahead = std::async(std::launch::async, ReadChunk, std::ref(reader));
+    // Two chunks' storage take turns.
+    RawChunk spare;
+    std::future<RawChunk> ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), RawChunk());
     for (;;) {
       RawChunk raw = ahead.get();
       if (!raw.status.ok()) return raw.status;
       const bool eof = raw.eof;
-      if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader));
+      if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), std::move(spare));
       stats.lines += raw.lines;
       stats.blank_lines += raw.blank_lines;
       const size_t n = raw.size();
@@ -377,6 +386,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         progress.InputDone(raw.bytes_read);
         break;
       }
+      spare = std::move(raw);
     }
     BaseEvidence evidence;
     for (const auto& r : parsers) evidence.Add(r->base_evidence());
