@@ -34,7 +34,9 @@ constexpr size_t kChunkBytes = 16u << 20;
 // Pass 2's writes, batched per output file and handed to one background
 // thread, so building lines and writing them overlap. Batches are written
 // strictly in order (one in flight at a time); the first error stops
-// everything and is returned by Flush or Finish.
+// everything and is returned by Flush or Finish. A written batch's buffers
+// come back and take the next batch (cleared, their capacity kept), so a run
+// does not allocate and fault in fresh megabytes for every batch.
 class BatchedWriter {
  public:
   ~BatchedWriter() { (void)Finish(); }
@@ -47,15 +49,18 @@ class BatchedWriter {
   }
   Status Flush() {
     Status s = Wait();
-    if (!s.ok() || pending_.empty()) return s;
-    in_flight_ = std::async(std::launch::async, [batch = std::move(pending_)]() {
+    if (!s.ok() || pending_bytes_ == 0) return s;
+    in_flight_ = std::async(std::launch::async, [batch = std::move(pending_)]() mutable {
+      Status ws = Status::Ok();
       for (const auto& [f, bytes] : batch) {
-        Status ws = f->Append(bytes);
-        if (!ws.ok()) return ws;
+        if (!bytes.empty()) ws = f->Append(bytes);
+        if (!ws.ok()) break;
       }
-      return Status::Ok();
+      return Written{std::move(ws), std::move(batch)};
     });
-    pending_.clear();
+    pending_ = std::move(spare_);
+    for (auto& [f, bytes] : pending_) bytes.clear();
+    spare_.clear();
     pending_bytes_ = 0;
     return Status::Ok();
   }
@@ -67,13 +72,20 @@ class BatchedWriter {
 
  private:
   static constexpr size_t kBatchBytes = 8u << 20;
+  using Batch = std::map<WritableFile*, std::string>;  // order between files does not matter
+  struct Written {
+    Status status;
+    Batch buffers;
+  };
   Status Wait() {
     if (!in_flight_.valid()) return Status::Ok();
-    return in_flight_.get();
+    Written w = in_flight_.get();
+    spare_ = std::move(w.buffers);
+    return w.status;
   }
-  std::map<WritableFile*, std::string> pending_;  // order between files does not matter
+  Batch pending_, spare_;
   size_t pending_bytes_ = 0;
-  std::future<Status> in_flight_;
+  std::future<Written> in_flight_;
 };
 
 // Lines of one input as read, each matched to its entry.
