@@ -114,11 +114,17 @@ int Log2Bin(uint32_t v) {
   return k;
 }
 
+// The order statistics at floor(p (n - 1)): selected, not sorted (the same values).
 Json Quantiles(std::vector<uint32_t> v) {
   if (v.empty()) return Json(nullptr);
-  std::sort(v.begin(), v.end());
-  auto q = [&](double p) { return v[static_cast<size_t>(std::floor(p * static_cast<double>(v.size() - 1)))]; };
-  return Json{{"min", v.front()}, {"p10", q(0.1)}, {"median", q(0.5)}, {"p90", q(0.9)}, {"max", v.back()}};
+  auto q = [&](double p) {
+    auto at = v.begin() + static_cast<std::ptrdiff_t>(std::floor(p * static_cast<double>(v.size() - 1)));
+    std::nth_element(v.begin(), at, v.end());
+    return *at;
+  };
+  const uint32_t lo = *std::min_element(v.begin(), v.end()), hi = *std::max_element(v.begin(), v.end());
+  const uint32_t p10 = q(0.1), median = q(0.5), p90 = q(0.9);
+  return Json{{"min", lo}, {"p10", p10}, {"median", median}, {"p90", p90}, {"max", hi}};
 }
 
 class SplitStage : public Stage {
@@ -588,6 +594,8 @@ class SplitStage : public Stage {
     std::map<size_t, std::vector<uint64_t>> slots;
     uint64_t top_tied = 0, pairwise = 0;
     std::map<std::string, uint64_t> sources, annotators, shapes;
+    std::vector<uint64_t> per_source(st.text_count(), 0), per_annotator_id(st.text_count(), 0);  // by text id, named below
+    uint64_t no_source = 0;
     uint64_t with_annotator = 0, with_thread = 0;
     uint64_t scripts[kScriptCount] = {};
     std::vector<uint32_t> prompt_len, chosen_len, rejected_len;
@@ -606,9 +614,10 @@ class SplitStage : public Stage {
       } else {
         ++top_tied;
       }
-      ++sources[f.source_id == 0 ? "(not given)" : st.Text(f.source_id)];
+      if (f.source_id == 0) ++no_source;
+      else ++per_source[f.source_id];
       if (f.annotator_id != 0) {
-        ++annotators[st.Text(f.annotator_id)];
+        ++per_annotator_id[f.annotator_id];
         ++with_annotator;
       }
       with_thread += f.thread_id == 0 ? 0 : 1;
@@ -620,6 +629,11 @@ class SplitStage : public Stage {
         (best ? chosen_len : rejected_len).push_back(f.cand_chars[k]);
         ++(best ? chosen_bins : rejected_bins)[Log2Bin(f.cand_chars[k])];
       }
+    }
+    if (no_source) sources["(not given)"] += no_source;
+    for (uint32_t id = 1; id < per_source.size(); ++id) {
+      if (per_source[id]) sources[st.Text(id)] += per_source[id];
+      if (per_annotator_id[id]) annotators[st.Text(id)] += per_annotator_id[id];
     }
     Json jc = Json::object();
     for (const auto& [b, k] : cands) jc[std::to_string(b)] = k;
