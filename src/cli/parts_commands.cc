@@ -90,6 +90,7 @@ int RunDecide(const PartsCli& pc, const std::vector<std::string>& stages) {
   PipelineOptions opts;
   opts.stages = stages;
   opts.table = !pc.common.quiet;
+  opts.timings = pc.common.timings;  // each decide step's wall seconds on stderr
   auto outcome = DecideFromStates(plan.value(), opts, pc.states, DefaultFileSystem(), stderr);
   if (!outcome.ok()) return Fail(pc.common, outcome.status());
   if (!pc.common.quiet) std::fprintf(stderr, "wrote %s\n", plan.value().output.c_str());

@@ -13,13 +13,22 @@ Hash128 HashBytes(std::string_view bytes) {
 }
 
 Hash128 HashOfHashes(const Hash128* begin, size_t count) {
-  std::vector<unsigned char> buf(count * 16);
+  // Up to 16 hashes (every comparison key of up to 15 candidates) on the
+  // stack: this runs once or twice per record in several decide steps.
+  constexpr size_t kOnStack = 16;
+  unsigned char stack[kOnStack * 16];
+  std::vector<unsigned char> heap;
+  unsigned char* buf = stack;
+  if (count > kOnStack) {
+    heap.resize(count * 16);
+    buf = heap.data();
+  }
   for (size_t i = 0; i < count; ++i) {
     XXH128_canonical_t c;
     XXH128_canonicalFromHash(&c, XXH128_hash_t{begin[i].lo, begin[i].hi});
-    std::memcpy(buf.data() + i * 16, c.digest, 16);
+    std::memcpy(buf + i * 16, c.digest, 16);
   }
-  XXH128_hash_t h = XXH3_128bits(buf.data(), buf.size());
+  XXH128_hash_t h = XXH3_128bits(buf, count * 16);
   return Hash128{h.high64, h.low64};
 }
 

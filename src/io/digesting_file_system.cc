@@ -32,6 +32,44 @@ class DigestingFile : public ReadableFile {
   bool done_ = false;
 };
 
+class DigestingWritableFile : public WritableFile {
+ public:
+  DigestingWritableFile(std::unique_ptr<WritableFile> base, DigestingFileSystem* owner, std::string path)
+      : base_(std::move(base)), owner_(owner), path_(std::move(path)) {}
+
+  Status Append(std::string_view bytes) override {
+    Status s = base_->Append(bytes);
+    if (s.ok()) {
+      hash_.Update(bytes);
+      bytes_ += bytes.size();
+    } else {
+      failed_ = true;
+    }
+    return s;
+  }
+  Status Close() override {
+    Status s = base_->Close();
+    if (s.ok() && !failed_ && !closed_) owner_->Record(path_, FileDigest{hash_.HexDigest(), bytes_});
+    closed_ = true;
+    return s;
+  }
+
+ private:
+  std::unique_ptr<WritableFile> base_;
+  DigestingFileSystem* owner_;
+  std::string path_;
+  Sha256 hash_;
+  uint64_t bytes_ = 0;
+  bool failed_ = false, closed_ = false;
+};
+
+Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenWrite(const std::string& path) {
+  Forget(path);
+  auto f = base_->OpenWrite(path);
+  if (!f.ok()) return f.status();
+  return std::unique_ptr<WritableFile>(std::make_unique<DigestingWritableFile>(std::move(f).value(), this, path));
+}
+
 Result<std::unique_ptr<ReadableFile>> DigestingFileSystem::OpenRead(const std::string& path) {
   auto f = base_->OpenRead(path);
   if (!f.ok()) return f.status();
@@ -48,6 +86,42 @@ std::optional<FileDigest> DigestingFileSystem::DigestOf(const std::string& path)
 void DigestingFileSystem::Record(const std::string& path, FileDigest d) {
   std::lock_guard<std::mutex> lock(mu_);
   digests_[path] = std::move(d);
+}
+
+std::map<std::string, FileDigest> DigestingFileSystem::TakeUnder(const std::string& path) {
+  std::lock_guard<std::mutex> lock(mu_);
+  std::map<std::string, FileDigest> taken;
+  for (auto it = digests_.begin(); it != digests_.end();) {
+    const std::string& p = it->first;
+    if (p == path || (p.size() > path.size() && p.compare(0, path.size(), path) == 0 && p[path.size()] == '/')) {
+      taken.emplace(p.substr(path.size()), std::move(it->second));  // the rest of the path, "" for `path` itself
+      it = digests_.erase(it);
+    } else {
+      ++it;
+    }
+  }
+  return taken;
+}
+
+Status DigestingFileSystem::Rename(const std::string& from, const std::string& to) {
+  Status s = base_->Rename(from, to);
+  std::map<std::string, FileDigest> moved = TakeUnder(from);
+  TakeUnder(to);  // whatever `to` held is gone
+  if (s.ok()) {
+    std::lock_guard<std::mutex> lock(mu_);
+    for (auto& [rest, d] : moved) digests_[to + rest] = std::move(d);
+  }
+  return s;
+}
+
+Status DigestingFileSystem::RemoveAll(const std::string& path) {
+  TakeUnder(path);
+  return base_->RemoveAll(path);
+}
+
+void DigestingFileSystem::Forget(const std::string& path) {
+  std::lock_guard<std::mutex> lock(mu_);
+  digests_.erase(path);
 }
 
 }  // namespace prefsift

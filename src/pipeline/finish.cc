@@ -146,7 +146,7 @@ Status ValidateFinishPlan(const Plan& plan) {
 
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Json* summary, const Json& gate,
                      Json reject_examples, const RunClock& clock,
-                     const std::vector<std::optional<FileDigest>>& input_digests) {
+                     const std::vector<std::optional<FileDigest>>& input_digests, const DigestingFileSystem* written) {
   Examples ex = CollectExamples(fs, out, *summary, std::move(reject_examples));
   (*summary)["gate"] = gate;
   (*summary)["examples"] = Json{
@@ -160,17 +160,24 @@ Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, Jso
   p["plan_sha256"] = plan.plan_digest.empty() ? Json("no plan file (command line only)") : Json(plan.plan_digest);
   p["seed"] = plan.seed;
   p["time"] = ProvenanceTime(clock);
-  // Inputs were hashed while pass 1 read them (DigestingFileSystem); an input
-  // without a digest there, and every output, is hashed here, each on its own
-  // thread (SHA-256 is the cost: gigabytes at about 1.5 GB/s a core), then
-  // listed in plan / file order.
+  // Inputs were hashed while pass 1 read them and outputs while they were
+  // written (DigestingFileSystem); a file without a digest there is hashed
+  // here, each on its own thread (SHA-256 is the cost: gigabytes at about
+  // 1.5 GB/s a core), then listed in plan / file order.
   std::vector<std::string> paths;
   for (size_t i = 0; i < plan.inputs.size(); ++i) {
     paths.push_back(i < input_digests.size() && input_digests[i] ? std::string() : plan.inputs[i].path);
   }
   const std::vector<std::string> names = OutputFiles(fs, out);
-  for (const auto& name : names) paths.push_back(out.StagingPath(name));
+  std::vector<std::optional<FileDigest>> known(names.size());
+  for (size_t k = 0; k < names.size(); ++k) {
+    if (written) known[k] = written->DigestOf(out.StagingPath(names[k]));
+    paths.push_back(known[k] ? std::string() : out.StagingPath(names[k]));
+  }
   std::vector<Result<Digest>> digests = HashFiles(fs, paths);
+  for (size_t k = 0; k < names.size(); ++k) {
+    if (known[k]) digests[plan.inputs.size() + k] = *known[k];
+  }
   Json inputs = Json::array();
   for (size_t i = 0; i < plan.inputs.size(); ++i) {
     const Result<Digest> d = paths[i].empty() ? Result<Digest>(*input_digests[i]) : digests[i];

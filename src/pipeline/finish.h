@@ -32,12 +32,15 @@ Status ValidateFinishPlan(const Plan& plan);
 // "examples" (`reject_examples`, passes.h RejectExamples, each with the masked
 // forms of its record's personal-data findings; one finding per personal-data
 // kind) and "provenance" to the summary. Hashes every input file and every
-// file already in `out`. REQUIRES: every output file except summary.json is
-// written and closed.
+// file already in `out`, except an input with a digest in `input_digests` and
+// an output that `written` digested as it was written (the folder's file
+// system; io/digesting_file_system.h). REQUIRES: every output file except
+// summary.json is written and closed.
 Status FinishSummary(const Plan& plan, FileSystem* fs, const OutputDir& out, nlohmann::ordered_json* summary,
                      const nlohmann::ordered_json& gate, nlohmann::ordered_json reject_examples,
                      const RunClock& clock = RunClock(),
-                     const std::vector<std::optional<FileDigest>>& input_digests = {});
+                     const std::vector<std::optional<FileDigest>>& input_digests = {},
+                     const DigestingFileSystem* written = nullptr);
 
 // Writes datasheet.md, datasheet.json and report.html from the finished
 // summary (hashing summary.json, which must be written and closed).

@@ -2,6 +2,12 @@
 
 #include <nlohmann/json.hpp>
 
+#include <chrono>
+#include <cstdio>
+#include <functional>
+
+#include <sys/resource.h>
+
 #include "core/sha256.h"
 #include "core/state_file.h"
 #include "io/output_dir.h"
@@ -414,7 +420,27 @@ Status ObservedRun::Decide(const PipelineOptions& options) {
   results_ = std::make_unique<StageResults>();
   results_->want_signatures = options.want_signatures;
   StageContext ctx{plan_, fs_, st_, *results_, options.prior};
-  auto gate = DecideStages(plan_, stages_, options.companion, ctx, command_stages_, &outcome_);
+  // --timings: each decide step's wall seconds on stderr, as `run` prints
+  // them, and the process's CPU seconds in the step (all threads; on a busy
+  // machine the wall time says little about the work).
+  auto cpu_seconds = [] {
+    struct rusage u;
+    getrusage(RUSAGE_SELF, &u);
+    return static_cast<double>(u.ru_utime.tv_sec + u.ru_stime.tv_sec) +
+           static_cast<double>(u.ru_utime.tv_usec + u.ru_stime.tv_usec) * 1e-6;
+  };
+  auto last = std::chrono::steady_clock::now();
+  double last_cpu = cpu_seconds();
+  auto mark = [&](const std::string& step) {
+    const auto now = std::chrono::steady_clock::now();
+    const double cpu = cpu_seconds();
+    std::fprintf(stderr, "timing: %-22s %8.3f s  cpu %8.3f s\n", step.c_str(),
+                 std::chrono::duration<double>(now - last).count(), cpu - last_cpu);
+    last = now;
+    last_cpu = cpu;
+  };
+  auto gate = DecideStages(plan_, stages_, options.companion, ctx, command_stages_, &outcome_,
+                           options.timings ? std::function<void(const std::string&)>(mark) : nullptr);
   if (!gate.ok()) return gate.status();
   gate_ = std::make_unique<nlohmann::ordered_json>(std::move(gate).value());
   return Status::Ok();

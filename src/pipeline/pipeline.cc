@@ -663,7 +663,10 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (Status s = MakeRunStages(plan, options.stages, fs, &stages); !s.ok()) return s;
   if (Status s = ValidateFinishPlan(plan); !s.ok()) return s;
   if (Status s = CheckOutputIsClear(plan, options); !s.ok()) return s;
-  auto out = OutputDir::Begin(fs, plan.output, plan.overwrite);
+  // Inputs' SHA-256 while pass 1 reads them, outputs' while they are written
+  // (the provenance then reads neither again).
+  DigestingFileSystem digesting(fs);
+  auto out = OutputDir::Begin(&digesting, plan.output, plan.overwrite);
   if (!out.ok()) return out.status();
 
   // Observe: pass 1.
@@ -671,7 +674,6 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   RunState st(plan);
   Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
   PhaseTimer timer(options.timings, log);
-  DigestingFileSystem digesting(fs);  // inputs' SHA-256 while pass 1 reads them
   std::optional<Pass1Cpu> cpu;
   if (options.timings) cpu.emplace(stages.size(), pool.size());
   Status s = Observe(plan, st, stages, &digesting, pool, progress, nullptr, nullptr, cpu ? &*cpu : nullptr);
@@ -710,7 +712,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   clock.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - steady_start).count();
   std::vector<std::optional<FileDigest>> input_digests;
   for (const auto& in : plan.inputs) input_digests.push_back(digesting.DigestOf(in.path));
-  s = FinishSummary(plan, fs, *out.value(), &summary, gate.value(), RejectExamples(plan, st), clock, input_digests);  // examples and provenance
+  s = FinishSummary(plan, fs, *out.value(), &summary, gate.value(), RejectExamples(plan, st), clock, input_digests,
+                    &digesting);  // examples and provenance
   if (!s.ok()) return s;
   timer.Mark("provenance");
   s = out.value()->Write("summary.json", summary.dump(2) + "\n");

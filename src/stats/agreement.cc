@@ -1,10 +1,13 @@
 #include "stats/agreement.h"
 
 #include "core/random.h"
+#include "core/thread_pool.h"
 
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <utility>
+#include <vector>
 #include <unordered_map>
 
 namespace prefsift::stats {
@@ -41,6 +44,20 @@ struct Tally {
     ++units;
   }
 
+  // What Add does for a unit, from its runs of equal values computed once
+  // (UnitRuns): the same additions in the same order, so the sums are bit for
+  // bit those of Add.
+  void AddRuns(const std::pair<uint32_t, double>* begin, const std::pair<uint32_t, double>* end, double m) {
+    for (const auto* r = begin; r != end; ++r) {
+      const double c = r->second;
+      diagonal += c * (c - 1.0) / (m - 1.0);
+      if (r->first >= nc.size()) nc.resize(r->first + 1, 0.0);
+      nc[r->first] += c;
+    }
+    n += m;
+    ++units;
+  }
+
   AlphaResult Result() const {
     AlphaResult r;
     r.units = units;
@@ -69,21 +86,55 @@ AlphaResult KrippendorffAlphaNominal(const std::vector<Unit>& units) {
   return t.Result();
 }
 
-Interval AlphaBootstrapInterval(const std::vector<Unit>& units, uint32_t replicates, uint64_t seed, double level) {
+Interval AlphaBootstrapInterval(const std::vector<Unit>& units, uint32_t replicates, uint64_t seed, double level,
+                                unsigned threads) {
   Interval out{kNaN, kNaN, 0};
   std::vector<const Unit*> pairable;
   for (const Unit& u : units) {
     if (u.size() >= 2) pairable.push_back(&u);
   }
   if (pairable.empty() || replicates == 0 || !(level > 0 && level < 1)) return out;
+  // Each pairable unit's runs (value, count) in sorted value order, once.
+  std::vector<std::pair<uint32_t, double>> runs;
+  std::vector<size_t> run_start{0};
+  {
+    std::vector<uint32_t> sorted;
+    for (const Unit* u : pairable) {
+      sorted.assign(u->begin(), u->end());
+      std::sort(sorted.begin(), sorted.end());
+      for (size_t i = 0; i < sorted.size();) {
+        size_t j = i;
+        while (j < sorted.size() && sorted[j] == sorted[i]) ++j;
+        runs.emplace_back(sorted[i], static_cast<double>(j - i));
+        i = j;
+      }
+      run_start.push_back(runs.size());
+    }
+  }
+  // The stream's state at the start of each replicate (the draws are cheap
+  // next to the tallies), then the replicates side by side, each from its own
+  // state: the same draws as one after the other.
+  const uint64_t p = pairable.size();
+  std::vector<uint64_t> start(replicates);
+  uint64_t state = seed;
+  for (uint32_t r = 0; r < replicates; ++r) {
+    start[r] = state;
+    for (uint64_t i = 0; i < p; ++i) Below(&state, p);
+  }
+  std::vector<double> alpha_of(replicates);
+  ThreadPool pool(threads);
+  pool.ParallelFor(replicates, [&](size_t r, unsigned) {
+    uint64_t s = start[r];
+    Tally t;
+    for (uint64_t i = 0; i < p; ++i) {
+      const size_t u = static_cast<size_t>(Below(&s, p));
+      t.AddRuns(runs.data() + run_start[u], runs.data() + run_start[u + 1], static_cast<double>(pairable[u]->size()));
+    }
+    alpha_of[r] = t.Result().alpha;
+  });
   std::vector<double> alphas;
   alphas.reserve(replicates);
-  uint64_t state = seed;
-  std::vector<uint32_t> scratch;
-  for (uint32_t r = 0; r < replicates; ++r) {
-    Tally t;
-    for (size_t i = 0; i < pairable.size(); ++i) t.Add(*pairable[Below(&state, pairable.size())], &scratch);
-    double a = t.Result().alpha;
+  for (double a : alpha_of) {
     if (!std::isnan(a)) alphas.push_back(a);
   }
   out.replicates = static_cast<uint32_t>(alphas.size());

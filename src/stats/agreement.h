@@ -40,8 +40,11 @@ struct Interval {
 // resamples of the pairable units with replacement, drawn from splitmix64
 // seeded with `seed`; the (1-level)/2 and (1+level)/2 quantiles (linear
 // interpolation between order statistics) of the replicates' alphas.
-// Deterministic given its arguments. REQUIRES: 0 < level < 1.
-Interval AlphaBootstrapInterval(const std::vector<Unit>& units, uint32_t replicates, uint64_t seed, double level);
+// Deterministic given its arguments; the replicates run on up to `threads`
+// threads (0 = one per core), with the same result for any number.
+// REQUIRES: 0 < level < 1.
+Interval AlphaBootstrapInterval(const std::vector<Unit>& units, uint32_t replicates, uint64_t seed, double level,
+                                unsigned threads = 1);
 
 // Fleiss' kappa (Fleiss 1971) from an items x categories table of counts;
 // every row must sum to the same number of raters r >= 2. NaN when the rows

@@ -15,6 +15,7 @@
 #include <cmath>
 #include <cstdio>
 #include <limits>
+#include <memory>
 #include <numeric>
 #include <utility>
 
@@ -70,7 +71,8 @@ Status Validate(const ChoiceData& data, const ChoiceFitOptions& options) {
 
 // Objective over a subset of comparisons (all when subset is null).
 // Hessian is only filled when want_hessian.
-ChoiceObjective Evaluate(const ChoiceData& data, const std::vector<size_t>* subset,
+// `features` is data.features or a rescaled copy of its rows (FitOnSubset).
+ChoiceObjective Evaluate(const ChoiceData& data, const double* features, const std::vector<size_t>* subset,
                          const std::vector<double>& w, double l2, bool want_hessian) {
   const size_t d = static_cast<size_t>(data.dim);
   ChoiceObjective out;
@@ -83,13 +85,13 @@ ChoiceObjective Evaluate(const ChoiceData& data, const std::vector<size_t>* subs
     const size_t i = subset ? (*subset)[idx] : idx;
     const size_t begin = data.offsets[i];
     const size_t b = data.offsets[i + 1] - begin;
-    const double* xc = &data.features[(begin + data.chosen[i]) * d];
+    const double* xc = &features[(begin + data.chosen[i]) * d];
     z.resize(b * d);
     s.resize(b);
     prob.resize(b);
     size_t arg = 0;
     for (size_t j = 0; j < b; ++j) {
-      const double* xj = &data.features[(begin + j) * d];
+      const double* xj = &features[(begin + j) * d];
       double sj = 0.0;
       for (size_t f = 0; f < d; ++f) {
         z[j * d + f] = xj[f] - xc[f];
@@ -138,10 +140,10 @@ ChoiceObjective Evaluate(const ChoiceData& data, const std::vector<size_t>* subs
   return out;
 }
 
-double NllOnly(const ChoiceData& data, const std::vector<size_t>* subset,
+double NllOnly(const ChoiceData& data, const double* features, const std::vector<size_t>* subset,
                const std::vector<double>& w, double l2) {
   // Cheap enough to reuse Evaluate without the Hessian.
-  return Evaluate(data, subset, w, l2, false).value;
+  return Evaluate(data, features, subset, w, l2, false).value;
 }
 
 // Cholesky factorisation in place (lower triangle). False if not positive
@@ -215,20 +217,27 @@ std::vector<double> SymmetricEigen(Matrix a, size_t d, Matrix& vectors) {
   return values;
 }
 
-// Scaled copy of the data: features divided per column by `scale`.
-ChoiceData Rescaled(const ChoiceData& data, const std::vector<double>& scale) {
-  ChoiceData out = data;
+// The feature rows of the comparisons in `subset` (all when null) divided per
+// column by `scale`, at their places in data.features; rows of comparisons
+// outside the subset are left unset (never read), so their pages are never
+// touched.
+std::unique_ptr<double[]> RescaledRows(const ChoiceData& data, const std::vector<size_t>* subset,
+                                       const std::vector<double>& scale) {
   const size_t d = static_cast<size_t>(data.dim);
-  for (size_t r = 0; r < out.features.size() / d; ++r)
-    for (size_t f = 0; f < d; ++f) out.features[r * d + f] /= scale[f];
+  std::unique_ptr<double[]> out(new double[data.features.size()]);
+  const size_t count = subset ? subset->size() : data.size();
+  for (size_t idx = 0; idx < count; ++idx) {
+    const size_t i = subset ? (*subset)[idx] : idx;
+    for (size_t r = data.offsets[i]; r < data.offsets[i + 1]; ++r)
+      for (size_t f = 0; f < d; ++f) out[r * d + f] = data.features[r * d + f] / scale[f];
+  }
   return out;
 }
-
 // After the iterations: is there a direction v in which the Hessian (unit-
 // normalised by its value at w = 0) is numerically singular? If so, say
 // whether v separates the data (v . (x_c - x_j) of one sign everywhere) or
 // does not vary within any comparison (not identified).
-ChoiceFitOutcome Diagnose(const ChoiceData& data, const std::vector<size_t>* subset,
+ChoiceFitOutcome Diagnose(const ChoiceData& data, const double* features, const std::vector<size_t>* subset,
                           const Matrix& h_end, const Matrix& h_zero) {
   const size_t d = static_cast<size_t>(data.dim);
   std::vector<double> unit(d);
@@ -253,10 +262,10 @@ ChoiceFitOutcome Diagnose(const ChoiceData& data, const std::vector<size_t>* sub
   for (size_t idx = 0; idx < count; ++idx) {
     const size_t i = subset ? (*subset)[idx] : idx;
     const size_t begin = data.offsets[i];
-    const double* xc = &data.features[(begin + data.chosen[i]) * d];
+    const double* xc = &features[(begin + data.chosen[i]) * d];
     for (size_t j = begin; j < data.offsets[i + 1]; ++j) {
       double proj = 0.0;
-      for (size_t f = 0; f < d; ++f) proj += v[f] * (xc[f] - data.features[j * d + f]);
+      for (size_t f = 0; f < d; ++f) proj += v[f] * (xc[f] - features[j * d + f]);
       max_abs = std::max(max_abs, std::fabs(proj));
       min_proj = std::min(min_proj, proj);
       max_proj = std::max(max_proj, proj);
@@ -296,17 +305,19 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
       if (sd > 0.0 && std::isfinite(sd)) scale[f] = sd;
     }
   }
-  ChoiceData scaled_copy;
-  const ChoiceData* data = &raw;
+  // The fit reads rescaled rows of the subset only (no copy of the rest).
+  std::unique_ptr<double[]> scaled;
+  const double* features = raw.features.data();
   if (options.standardize) {
-    scaled_copy = Rescaled(raw, scale);
-    data = &scaled_copy;
+    scaled = RescaledRows(raw, subset, scale);
+    features = scaled.get();
   }
+  const ChoiceData* data = &raw;
   const double l2 = options.l2;
   const size_t count = subset ? subset->size() : raw.size();
 
   std::vector<double> w(d, 0.0);
-  ChoiceObjective cur = Evaluate(*data, subset, w, l2, true);
+  ChoiceObjective cur = Evaluate(*data, features, subset, w, l2, true);
   const Matrix h_zero = cur.hessian;
   double trace0 = 0.0;
   for (size_t f = 0; f < d; ++f) trace0 += h_zero[f * d + f];
@@ -343,7 +354,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
       // Quadratic regime: the predicted drop is below what the objective can
       // resolve, so take the full Newton step without a line search.
       for (size_t f = 0; f < d; ++f) w[f] += step[f];
-      cur = Evaluate(*data, subset, w, l2, true);
+      cur = Evaluate(*data, features, subset, w, l2, true);
       if (0.5 * decrement <= options.tolerance * floor_value) {
         stopped_converged = true;
         ++it;
@@ -357,7 +368,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     bool moved = false;
     for (int half = 0; half < 60; ++half) {
       for (size_t f = 0; f < d; ++f) trial[f] = w[f] + t * step[f];
-      if (NllOnly(*data, subset, trial, l2) <= cur.value - 1e-4 * t * decrement) {
+      if (NllOnly(*data, features, subset, trial, l2) <= cur.value - 1e-4 * t * decrement) {
         moved = true;
         break;
       }
@@ -365,7 +376,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     }
     if (!moved) break;  // no decrease possible: reported as not converged
     w = trial;
-    cur = Evaluate(*data, subset, w, l2, true);
+    cur = Evaluate(*data, features, subset, w, l2, true);
     if (l2 == 0.0 && cur.value <= 1e-10 * static_cast<double>(count)) {
       separated_early = true;  // every chosen candidate already has P > 1 - 1e-10
       ++it;
@@ -388,7 +399,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
                                                : ChoiceFitOutcome::kMaxIterations;
   if (separated_early) outcome = ChoiceFitOutcome::kSeparated;
   if (l2 == 0.0) {
-    const ChoiceFitOutcome diag = Diagnose(*data, subset, cur.hessian, h_zero);
+    const ChoiceFitOutcome diag = Diagnose(*data, features, subset, cur.hessian, h_zero);
     if (diag != ChoiceFitOutcome::kConverged) outcome = diag;
   }
   if (outcome == ChoiceFitOutcome::kConverged) {
@@ -476,7 +487,7 @@ void ChoiceData::Add(const std::vector<double>& rows, uint32_t chosen_index) {
 
 ChoiceObjective EvaluateChoiceObjective(const ChoiceData& data, const std::vector<double>& w,
                                         double l2) {
-  return Evaluate(data, nullptr, w, l2, true);
+  return Evaluate(data, data.features.data(), nullptr, w, l2, true);
 }
 
 Result<ChoiceFit> FitChoiceModel(const ChoiceData& data, const ChoiceFitOptions& options) {
@@ -491,10 +502,12 @@ double ChoiceAccuracy(const ChoiceData& data, const std::vector<double>& w) {
   return credit / static_cast<double>(data.size());
 }
 
-Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
-                                               const ChoiceFitOptions& options, int folds,
-                                               uint64_t seed) {
-  if (Status s = Validate(data, options); !s.ok()) return s;
+namespace {
+
+// The fold of each comparison: groups (ChoiceData::group, or each comparison)
+// sorted, shuffled from `seed`, dealt round-robin. Errors: folds < 2, or fewer
+// groups than folds.
+Result<std::vector<int>> FoldsOf(const ChoiceData& data, int folds, uint64_t seed, ThreadPool& pool) {
   if (folds < 2) return Status::Input("cross-validation: folds must be >= 2");
   const size_t n = data.size();
   // Distinct groups, sorted, so the assignment does not depend on input order
@@ -517,35 +530,39 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
   for (size_t r = 0; r < units.size(); ++r)
     fold_of[r] = {units[r], static_cast<int>(r % static_cast<size_t>(folds))};
   std::sort(fold_of.begin(), fold_of.end());
-  std::vector<int> fold(n);
-  for (size_t i = 0; i < n; ++i) {
+  std::vector<int> fold(n);  // each comparison looked up on its own: in parallel
+  pool.ParallelFor(n, [&](size_t i, unsigned) {
     fold[i] = std::lower_bound(fold_of.begin(), fold_of.end(), std::make_pair(ids[i], -1))->second;
+  });
+  return fold;
+}
+
+struct FoldResult {
+  Status status = Status::Ok();
+  bool converged = false;
+  double credit = 0.0;
+  size_t size = 0;
+};
+
+// Fold k: fitted on the other folds, credited on its own comparisons.
+FoldResult RunFold(const ChoiceData& data, const ChoiceFitOptions& options, const std::vector<int>& fold, int k) {
+  FoldResult r;
+  std::vector<size_t> train, test;
+  for (size_t i = 0; i < fold.size(); ++i) (fold[i] == k ? test : train).push_back(i);
+  Result<ChoiceFit> fit = FitOnSubset(data, &train, options);
+  if (!fit.ok()) {
+    r.status = fit.status();
+    return r;
   }
-  // The folds are independent fits: run them on their own threads (at most one
-  // per core at a time), then combine in fold order, so the sums are the same
-  // whatever the number of cores.
-  struct FoldResult {
-    Status status = Status::Ok();
-    bool converged = false;
-    double credit = 0.0;
-    size_t size = 0;
-  };
-  std::vector<FoldResult> results(static_cast<size_t>(folds));
-  auto run_fold = [&](int k) {
-    FoldResult& r = results[static_cast<size_t>(k)];
-    std::vector<size_t> train, test;
-    for (size_t i = 0; i < n; ++i) (fold[i] == k ? test : train).push_back(i);
-    Result<ChoiceFit> fit = FitOnSubset(data, &train, options);
-    if (!fit.ok()) {
-      r.status = fit.status();
-      return;
-    }
-    r.converged = fit.value().converged;
-    for (size_t i : test) r.credit += Credit(data, i, fit.value().weights);
-    r.size = test.size();
-  };
-  ThreadPool pool(0);
-  pool.ParallelFor(static_cast<size_t>(folds), [&](size_t k, unsigned) { run_fold(static_cast<int>(k)); });
+  r.converged = fit.value().converged;
+  for (size_t i : test) r.credit += Credit(data, i, fit.value().weights);
+  r.size = test.size();
+  return r;
+}
+
+// The folds' results combined in fold order, so the sums are the same
+// whatever ran them.
+Result<CrossValidation> Combine(const std::vector<FoldResult>& results, size_t n) {
   CrossValidation cv;
   double total_credit = 0.0;
   for (const FoldResult& r : results) {
@@ -557,6 +574,48 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
   }
   cv.accuracy = total_credit / static_cast<double>(n);
   return cv;
+}
+
+}  // namespace
+
+Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
+                                               const ChoiceFitOptions& options, int folds,
+                                               uint64_t seed) {
+  if (Status s = Validate(data, options); !s.ok()) return s;
+  ThreadPool pool(0);
+  auto fold = FoldsOf(data, folds, seed, pool);
+  if (!fold.ok()) return fold.status();
+  // The folds are independent fits: run them on their own threads (at most one
+  // per core at a time), then combine in fold order.
+  std::vector<FoldResult> results(static_cast<size_t>(folds));
+  pool.ParallelFor(static_cast<size_t>(folds), [&](size_t k, unsigned) {
+    results[k] = RunFold(data, options, fold.value(), static_cast<int>(k));
+  });
+  return Combine(results, data.size());
+}
+
+CrossValidatedFit CrossValidateAndFit(const ChoiceData& data, const ChoiceFitOptions& options, int folds,
+                                      uint64_t seed, unsigned threads) {
+  CrossValidatedFit out;
+  if (Status s = Validate(data, options); !s.ok()) {
+    out.cv = s;
+    out.fit = s;
+    return out;
+  }
+  ThreadPool pool(threads);
+  auto fold = FoldsOf(data, folds, seed, pool);
+  std::vector<FoldResult> results(fold.ok() ? static_cast<size_t>(folds) : 0);
+  // Task 0 is the fit on every comparison (the largest, so it starts first),
+  // tasks 1..folds the folds; each task writes only its own result.
+  pool.ParallelFor(results.size() + 1, [&](size_t t, unsigned) {
+    if (t == 0) {
+      out.fit = FitOnSubset(data, nullptr, options);
+    } else {
+      results[t - 1] = RunFold(data, options, fold.value(), static_cast<int>(t - 1));
+    }
+  });
+  out.cv = fold.ok() ? Combine(results, data.size()) : Result<CrossValidation>(fold.status());
+  return out;
 }
 
 }  // namespace prefsift::stats

@@ -118,4 +118,15 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
                                                const ChoiceFitOptions& options, int folds,
                                                uint64_t seed);
 
+// The cross-validation above and FitChoiceModel on every comparison, the
+// fits run together (the whole fit and the folds' fits on up to `threads`
+// threads, 0 = one per core): each result is the same as from its own call.
+// cv and fit carry their own errors (a bad `data` fails both).
+struct CrossValidatedFit {
+  Result<CrossValidation> cv = Status::Internal("not run");
+  Result<ChoiceFit> fit = Status::Internal("not run");
+};
+CrossValidatedFit CrossValidateAndFit(const ChoiceData& data, const ChoiceFitOptions& options, int folds,
+                                      uint64_t seed, unsigned threads);
+
 }  // namespace prefsift::stats

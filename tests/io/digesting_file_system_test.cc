@@ -1,7 +1,8 @@
-// DigestingFileSystem: the SHA-256 of a file as it is read equals the digest
-// of its bytes. Check values: FIPS 180-4 / NIST's published SHA-256 examples
-// ("abc", and the empty message), and a file read through the line reader to
-// its end.
+// DigestingFileSystem: the SHA-256 of a file as it is read or written equals
+// the digest of its bytes. Check values: FIPS 180-4 / NIST's published SHA-256
+// examples ("abc", and the empty message), and a file read through the line
+// reader to its end. Writes: a digest only after a clean Close, forgotten on
+// reopening, carried along by renames, dropped by removals.
 #include "io/digesting_file_system.h"
 
 #include <gtest/gtest.h>
@@ -14,7 +15,9 @@
 #include <string>
 
 #include "core/sha256.h"
+#include "fault_fs.h"
 #include "io/line_reader.h"
+#include "io/memory_file_system.h"
 
 namespace prefsift {
 namespace {
@@ -80,6 +83,72 @@ TEST(DigestingFileSystem, LineReaderToTheEndGivesTheFilesDigest) {
   ASSERT_TRUE(d.has_value());
   EXPECT_EQ(d->bytes, text.size());
   EXPECT_EQ(d->sha256, Sha256Hex(text));
+}
+
+void WriteThrough(FileSystem& fs, const std::string& path, const std::vector<std::string>& pieces) {
+  auto f = fs.OpenWrite(path);
+  ASSERT_TRUE(f.ok());
+  for (const auto& p : pieces) ASSERT_TRUE(f.value()->Append(p).ok());
+  ASSERT_TRUE(f.value()->Close().ok());
+}
+
+TEST(DigestingFileSystem, WritesAreDigestedOnClose) {
+  MemoryFileSystem mem;
+  DigestingFileSystem fs(&mem);
+  ASSERT_TRUE(fs.MakeDir("/out").ok());
+  auto f = fs.OpenWrite("/out/abc");
+  ASSERT_TRUE(f.ok());
+  ASSERT_TRUE(f.value()->Append("a").ok());
+  ASSERT_TRUE(f.value()->Append("bc").ok());
+  EXPECT_FALSE(fs.DigestOf("/out/abc").has_value());  // not closed yet
+  ASSERT_TRUE(f.value()->Close().ok());
+  auto d = fs.DigestOf("/out/abc");
+  ASSERT_TRUE(d.has_value());
+  // FIPS 180-4 example (NIST CSRC "SHA256.pdf"): SHA-256("abc").
+  EXPECT_EQ(d->sha256, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+  EXPECT_EQ(d->bytes, 3u);
+  std::string big;
+  for (int i = 0; i < 3000; ++i) big += "line " + std::to_string(i) + "\n";
+  WriteThrough(fs, "/out/big", {big.substr(0, 7), big.substr(7, 5000), big.substr(5007)});
+  EXPECT_EQ(fs.DigestOf("/out/big")->sha256, Sha256Hex(big));
+  // Reopening forgets the old digest until the new bytes are closed.
+  auto again = fs.OpenWrite("/out/abc");
+  ASSERT_TRUE(again.ok());
+  EXPECT_FALSE(fs.DigestOf("/out/abc").has_value());
+  ASSERT_TRUE(again.value()->Close().ok());
+  // The empty message (NIST's published value).
+  EXPECT_EQ(fs.DigestOf("/out/abc")->sha256, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
+}
+
+TEST(DigestingFileSystem, RenamesCarryDigestsAndRemovalsDropThem) {
+  MemoryFileSystem mem;
+  DigestingFileSystem fs(&mem);
+  ASSERT_TRUE(fs.MakeDir("/stage").ok());
+  WriteThrough(fs, "/stage/a", {"abc"});
+  WriteThrough(fs, "/stage-b", {"other"});
+  ASSERT_TRUE(fs.Rename("/stage", "/final").ok());  // a folder: the files inside move
+  EXPECT_FALSE(fs.DigestOf("/stage/a").has_value());
+  ASSERT_TRUE(fs.DigestOf("/final/a").has_value());
+  EXPECT_EQ(fs.DigestOf("/final/a")->sha256, Sha256Hex("abc"));
+  EXPECT_TRUE(fs.DigestOf("/stage-b").has_value());  // a sibling that shares the prefix stays
+  WriteThrough(fs, "/tmp-x", {"new"});
+  ASSERT_TRUE(fs.Rename("/tmp-x", "/stage-b").ok());  // replaces a file: its digest with it
+  EXPECT_EQ(fs.DigestOf("/stage-b")->sha256, Sha256Hex("new"));
+  ASSERT_TRUE(fs.RemoveAll("/final").ok());
+  EXPECT_FALSE(fs.DigestOf("/final/a").has_value());
+}
+
+TEST(DigestingFileSystem, NoDigestWhenAWriteFails) {
+  MemoryFileSystem mem;
+  FaultFileSystem faulty(&mem);
+  faulty.fail_writes_after = 4;  // a full disk after 4 bytes
+  DigestingFileSystem fs(&faulty);
+  auto f = fs.OpenWrite("/x");
+  ASSERT_TRUE(f.ok());
+  EXPECT_TRUE(f.value()->Append("abc").ok());
+  EXPECT_FALSE(f.value()->Append("defgh").ok());
+  (void)f.value()->Close();
+  EXPECT_FALSE(fs.DigestOf("/x").has_value());
 }
 
 }  // namespace

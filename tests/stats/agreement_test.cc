@@ -2,8 +2,10 @@
 // strongly connected components of preference graphs, against outside references.
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 
+#include "core/random.h"
 #include "fixture_reader.h"
 #include "stats/agreement.h"
 #include "stats/preference_graph.h"
@@ -109,6 +111,50 @@ TEST(Agreement, BootstrapIsDeterministicAndBracketsAlpha) {
   EXPECT_GT(x.hi, a);
   Interval z = AlphaBootstrapInterval(units, 500, 8, 0.95);
   EXPECT_NE(x.lo, z.lo);  // another seed, another draw
+}
+
+// The bootstrap's definition, written out serially: replicate after replicate
+// from one stream, each resample's alpha by KrippendorffAlphaNominal, the
+// quantiles by linear interpolation. The parallel implementation must give
+// the same bits for any thread count.
+Interval SerialBootstrap(const std::vector<Unit>& units, uint32_t replicates, uint64_t seed, double level) {
+  std::vector<Unit> pairable;
+  for (const Unit& u : units) {
+    if (u.size() >= 2) pairable.push_back(u);
+  }
+  uint64_t state = seed;
+  std::vector<double> alphas;
+  for (uint32_t r = 0; r < replicates; ++r) {
+    std::vector<Unit> resample;
+    for (size_t i = 0; i < pairable.size(); ++i) resample.push_back(pairable[UniformBelow(&state, pairable.size())]);
+    const double a = KrippendorffAlphaNominal(resample).alpha;
+    if (!std::isnan(a)) alphas.push_back(a);
+  }
+  std::sort(alphas.begin(), alphas.end());
+  auto quantile = [&](double q) {
+    const double pos = q * static_cast<double>(alphas.size() - 1);
+    const size_t lo = static_cast<size_t>(std::floor(pos));
+    const size_t hi = std::min(lo + 1, alphas.size() - 1);
+    return alphas[lo] + (pos - static_cast<double>(lo)) * (alphas[hi] - alphas[lo]);
+  };
+  return Interval{quantile((1.0 - level) / 2.0), quantile((1.0 + level) / 2.0), static_cast<uint32_t>(alphas.size())};
+}
+
+TEST(Agreement, BootstrapIsTheSameSerialDrawOnAnyNumberOfThreads) {
+  std::vector<Unit> units;
+  for (uint32_t i = 0; i < 400; ++i) {
+    Unit u = {i % 3, (i % 7 == 0) ? (i + 1) % 3 : i % 3};
+    if (i % 4 == 0) u.push_back((i / 4) % 3);  // some units of three
+    if (i % 11 == 0) u = {i % 3};               // and some unpairable ones
+    units.push_back(u);
+  }
+  const Interval want = SerialBootstrap(units, 300, 99, 0.9);
+  for (unsigned threads : {1u, 2u, 5u}) {
+    const Interval got = AlphaBootstrapInterval(units, 300, 99, 0.9, threads);
+    EXPECT_EQ(got.lo, want.lo) << threads;  // bit for bit
+    EXPECT_EQ(got.hi, want.hi) << threads;
+    EXPECT_EQ(got.replicates, want.replicates) << threads;
+  }
 }
 
 // Tarjan (1972): components of a small graph worked by hand.

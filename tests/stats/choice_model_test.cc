@@ -299,5 +299,43 @@ TEST(ChoiceModel, CrossValidationIsDeterministicAndGrouped) {
   EXPECT_FALSE(CrossValidatedAccuracy(data, {}, 101, 42).ok());  // 100 groups
 }
 
+TEST(ChoiceModel, FitsRunTogetherEqualFitsRunAlone) {
+  // CrossValidateAndFit runs the folds' fits and the whole fit at once; each
+  // must be bit for bit what CrossValidatedAccuracy and FitChoiceModel give.
+  std::mt19937_64 gen(7);
+  std::uniform_real_distribution<double> u(-2.0, 2.0);
+  ChoiceData data;
+  data.dim = 3;
+  for (int i = 0; i < 600; ++i) {
+    const int b = 2 + i % 2;
+    std::vector<double> rows;
+    for (int k = 0; k < 3 * b; ++k) rows.push_back(k % 3 == 2 ? std::floor(u(gen)) : u(gen) * 10);
+    data.Add(rows, static_cast<uint32_t>(gen() % static_cast<uint64_t>(b)));
+    data.group.push_back(static_cast<uint64_t>(i / 2));
+  }
+  for (bool standardize : {false, true}) {
+    ChoiceFitOptions o;
+    o.standardize = standardize;
+    o.l2 = 0.5;
+    Result<CrossValidation> cv = CrossValidatedAccuracy(data, o, 5, 3);
+    Result<ChoiceFit> fit = FitChoiceModel(data, o);
+    ASSERT_TRUE(cv.ok() && fit.ok());
+    for (unsigned threads : {1u, 2u, 3u}) {
+      CrossValidatedFit both = CrossValidateAndFit(data, o, 5, 3, threads);
+      ASSERT_TRUE(both.cv.ok() && both.fit.ok());
+      EXPECT_EQ(both.cv.value().accuracy, cv.value().accuracy);
+      EXPECT_EQ(both.cv.value().fold_accuracy, cv.value().fold_accuracy);
+      EXPECT_EQ(both.cv.value().fold_size, cv.value().fold_size);
+      EXPECT_EQ(both.fit.value().weights, fit.value().weights);
+      EXPECT_EQ(both.fit.value().std_errors, fit.value().std_errors);
+      EXPECT_EQ(both.fit.value().iterations, fit.value().iterations);
+    }
+  }
+  // Errors stay apart: too many folds fails the cross-validation only.
+  CrossValidatedFit bad = CrossValidateAndFit(data, {}, 1000, 3, 2);
+  EXPECT_FALSE(bad.cv.ok());
+  EXPECT_TRUE(bad.fit.ok());
+}
+
 }  // namespace
 }  // namespace prefsift::stats

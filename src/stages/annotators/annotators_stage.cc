@@ -10,6 +10,8 @@
 #include <unordered_map>
 
 #include "core/json_pointer.h"
+#include "core/key_groups.h"
+#include "core/thread_pool.h"
 #include "core/state_file.h"
 #include "io/output_dir.h"
 #include "stages/annotators/annotator_time.h"
@@ -41,6 +43,7 @@ struct Settings {
   double rushed_fraction = 0.25;
   double session_gap = 1800;
   uint64_t min_gaps = 5;
+  unsigned threads = 0;  // the run's --threads (0: one per core); results do not depend on it
 };
 
 Json Round(double v, double scale = 1e6) { return std::isnan(v) ? Json(nullptr) : Json(std::round(v * scale) / scale); }
@@ -316,28 +319,44 @@ class AnnotatorsStage : public Stage {
     (*out)["pairwise_agreement_rate"] = Round(f.pairwise_agreement);
   }
 
+  // Units: the judgments of one comparison (same comparison key), in input
+  // order, one per annotator. Only comparisons judged more than once can make
+  // a unit of two or more, so only they are kept (every reader skips smaller
+  // units). Keys in parallel, grouped by hash partitions (core/key_groups.h).
   void BuildUnits(const RunState& st, const std::vector<size_t>& recs) {
-    std::unordered_map<Hash128, uint32_t, Hash128Hasher> unit_of;
-    for (size_t r : recs) {
-      const RecordFacts& f = st.records[r];
-      const int v = ChosenIdentity(f);
-      if (v < 0) {
+    ThreadPool pool(s_.threads);  // 0: one per hardware thread
+    std::vector<int> value(recs.size());
+    pool.ParallelFor(recs.size(), [&](size_t k, unsigned) { value[k] = ChosenIdentity(st.records[recs[k]]); });
+    std::vector<size_t> judged;  // records with a single chosen candidate
+    judged.reserve(recs.size());
+    for (size_t k = 0; k < recs.size(); ++k) {
+      if (value[k] < 0) {
         ++tied_top_;
-        continue;
+      } else {
+        judged.push_back(k);
       }
+    }
+    std::vector<Hash128> key(judged.size());
+    pool.ParallelFor(judged.size(), [&](size_t k, unsigned) {
       Hash128 judgment;
-      Hash128 key = ComparisonKeyOf(f, &judgment);
-      auto [it, fresh] = unit_of.try_emplace(key, static_cast<uint32_t>(units_.size()));
-      if (fresh) units_.emplace_back();
-      auto& u = units_[it->second];
-      const int64_t coder = f.annotator_id ? static_cast<int64_t>(f.annotator_id) : -static_cast<int64_t>(r) - 1;
-      bool repeat = false;
-      for (const auto& x : u) repeat = repeat || x.coder == coder;
-      if (repeat) {
-        ++same_annotator_repeats_;
-        continue;
+      key[k] = ComparisonKeyOf(st.records[recs[judged[k]]], &judgment);
+    });
+    const KeyGroups groups = GroupRepeatedKeys(key, pool);
+    std::vector<Hash128>().swap(key);
+    for (size_t g = 0; g < groups.size(); ++g) {
+      auto& u = units_.emplace_back();
+      for (uint32_t k : groups[g]) {
+        const size_t r = recs[judged[k]];
+        const RecordFacts& f = st.records[r];
+        const int64_t coder = f.annotator_id ? static_cast<int64_t>(f.annotator_id) : -static_cast<int64_t>(r) - 1;
+        bool repeat = false;
+        for (const auto& x : u) repeat = repeat || x.coder == coder;
+        if (repeat) {
+          ++same_annotator_repeats_;
+          continue;
+        }
+        u.push_back(Judgment{r, coder, static_cast<uint32_t>(value[judged[k]])});
       }
-      u.push_back(Judgment{r, coder, static_cast<uint32_t>(v)});
     }
   }
 
@@ -345,7 +364,7 @@ class AnnotatorsStage : public Stage {
     AgreementFigures f;
     f.alpha = stats::KrippendorffAlphaNominal(units);
     f.interval = stats::AlphaBootstrapInterval(units, s_.replicates, bias::SeededHash(seed_, "annotators-bootstrap", stream),
-                                               s_.confidence);
+                                               s_.confidence, s_.threads);
     uint64_t agree = 0, pairs = 0;
     for (const auto& u : units) {
       for (size_t a = 0; a < u.size(); ++a) {
@@ -392,26 +411,24 @@ class AnnotatorsStage : public Stage {
   }
 
   void TestAnnotators(const RunState& st, const std::vector<size_t>& recs) {
-    std::map<std::string, size_t> row_of;  // by name: deterministic order
-    std::unordered_map<uint32_t, size_t> index;
+    // Rows by annotator name (deterministic order). Annotator ids are interned
+    // texts (RunState::Text), so counting by id counts by name.
+    std::vector<uint64_t> judgments_of(st.text_count(), 0);
     for (size_t r : recs) {
       const uint32_t id = st.records[r].annotator_id;
-      if (!id) continue;
-      row_of.emplace(st.Text(id), 0);
+      if (id) ++judgments_of[id];
     }
-    for (auto& [name, i] : row_of) {
-      i = annotators_.size();
-      annotators_.emplace_back();
+    std::vector<uint32_t> ids;
+    for (uint32_t id = 1; id < judgments_of.size(); ++id) {
+      if (judgments_of[id]) ids.push_back(id);
     }
-    for (size_t r : recs) {
-      const uint32_t id = st.records[r].annotator_id;
-      if (!id) continue;
-      auto [it, fresh] = index.try_emplace(id, 0);
-      if (fresh) {
-        it->second = row_of[st.Text(id)];
-        annotators_[it->second].id = id;
-      }
-      ++annotators_[it->second].judgments;
+    std::sort(ids.begin(), ids.end(), [&](uint32_t a, uint32_t b) { return st.Text(a) < st.Text(b); });
+    std::vector<size_t> index(st.text_count(), 0);  // annotator id -> row
+    for (uint32_t id : ids) {
+      index[id] = annotators_.size();
+      AnnotatorRow& a = annotators_.emplace_back();
+      a.id = id;
+      a.judgments = judgments_of[id];
     }
     uint64_t total_agree = 0, total_trials = 0;
     std::vector<uint64_t> counts;
@@ -433,7 +450,7 @@ class AnnotatorsStage : public Stage {
         }
         ++counts[x.value];
         if (maj < 0) continue;
-        AnnotatorRow& a = annotators_[index.at(static_cast<uint32_t>(x.coder))];
+        AnnotatorRow& a = annotators_[index[static_cast<uint32_t>(x.coder)]];
         ++a.shared;
         ++total_trials;
         if (static_cast<int64_t>(x.value) == maj) {
@@ -471,25 +488,37 @@ class AnnotatorsStage : public Stage {
     }
   }
 
+  // Prompts judged more than once (grouped by prompt hash in parallel), each
+  // searched for cycles on its own; found cycles are kept in prompt-hash order
+  // before the final sort, as a serial scan in that order would find them.
   void FindCycles(const RunState& st, const std::vector<size_t>& recs) {
-    std::vector<size_t> order(recs);
-    std::stable_sort(order.begin(), order.end(),
-                     [&](size_t a, size_t b) { return st.records[a].prompt_hash < st.records[b].prompt_hash; });
-    for (size_t i = 0; i < order.size();) {
-      size_t j = i;
-      while (j < order.size() && st.records[order[j]].prompt_hash == st.records[order[i]].prompt_hash) ++j;
-      if (j - i >= 2) {
-        ++prompts_judged_;
-        std::vector<size_t> group(order.begin() + static_cast<long>(i), order.begin() + static_cast<long>(j));
-        std::sort(group.begin(), group.end());
-        CyclesOfPrompt(st, group);
+    ThreadPool pool(s_.threads);  // 0: one per hardware thread
+    std::vector<Hash128> prompt(recs.size());
+    pool.ParallelFor(recs.size(), [&](size_t k, unsigned) { prompt[k] = st.records[recs[k]].prompt_hash; });
+    const KeyGroups groups = GroupRepeatedKeys(prompt, pool);
+    prompts_judged_ += groups.size();
+    std::vector<uint32_t> by_hash(groups.size());
+    std::iota(by_hash.begin(), by_hash.end(), 0u);
+    std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
+      return prompt[groups[a][0]] < prompt[groups[b][0]];
+    });
+    std::vector<std::vector<Cycle>> found(groups.size());
+    pool.ParallelFor(groups.size(), [&](size_t i, unsigned) {
+      std::vector<size_t> group;
+      for (uint32_t k : groups[by_hash[i]]) group.push_back(recs[k]);  // increasing record order
+      CyclesOfPrompt(st, group, &found[i]);
+    });
+    for (auto& list : found) {
+      for (Cycle& c : list) {
+        cycle_records_ += c.records.size();
+        cycles_.push_back(std::move(c));
       }
-      i = j;
     }
     std::sort(cycles_.begin(), cycles_.end(), [](const Cycle& a, const Cycle& b) { return a.first_record < b.first_record; });
   }
 
-  void CyclesOfPrompt(const RunState& st, const std::vector<size_t>& group) {
+  // Thread-safe: reads `st`, writes only *out.
+  static void CyclesOfPrompt(const RunState& st, const std::vector<size_t>& group, std::vector<Cycle>* out) {
     std::vector<Hash128> nodes;
     for (size_t r : group) {
       for (const auto& h : st.records[r].cand_hashes) nodes.push_back(h);
@@ -534,8 +563,7 @@ class AnnotatorsStage : public Stage {
       std::sort(cy.records.begin(), cy.records.end());
       cy.records.erase(std::unique(cy.records.begin(), cy.records.end()), cy.records.end());
       cy.first_record = group.front();
-      cycle_records_ += cy.records.size();
-      cycles_.push_back(std::move(cy));
+      out->push_back(std::move(cy));
     }
   }
 
@@ -655,6 +683,7 @@ bool Count(Status* error, const Json& v, const std::string& key, uint64_t lo, ui
 std::unique_ptr<Stage> MakeAnnotatorsStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "annotators");
   Settings b;
+  b.threads = plan.threads;
   for (auto it = s.begin(); it != s.end(); ++it) {
     const std::string& k = it.key();
     const Json& v = it.value();

@@ -162,7 +162,19 @@ LengthStats ComputeLengthStats(const RunState& st, const std::vector<size_t>& re
                                const LengthOptions& o) {
   LengthStats s;
   Acc words, chars;
-  std::map<std::string, Acc> by_src, by_ann;
+  // Per source and per annotator, first by text id (RunState::Text: one id per
+  // distinct text), named once at the end.
+  std::vector<uint32_t> slot_of[2] = {std::vector<uint32_t>(st.text_count(), UINT32_MAX),
+                                      std::vector<uint32_t>(st.text_count(), UINT32_MAX)};
+  std::vector<std::pair<uint32_t, Acc>> accs[2];  // 0: sources, 1: annotators
+  auto acc_of = [&](int kind, uint32_t id) -> Acc& {
+    uint32_t& k = slot_of[kind][id];
+    if (k == UINT32_MAX) {
+      k = static_cast<uint32_t>(accs[kind].size());
+      accs[kind].emplace_back(id, Acc{});
+    }
+    return accs[kind][k].second;
+  };
   std::vector<double> diff, pref;
   s.chosen_words_hist.assign(WordBinEdges().size() + 1, 0);
   s.rejected_words_hist.assign(WordBinEdges().size() + 1, 0);
@@ -182,8 +194,8 @@ LengthStats ComputeLengthStats(const RunState& st, const std::vector<size_t>& re
     const int dc = LengthDirection(f, LengthUnit::kChars, &rc);
     words.Add(dw, rw);
     chars.Add(dc, rc);
-    if (f.source_id != 0) by_src[st.Text(f.source_id)].Add(dw, rw);
-    if (f.annotator_id != 0) by_ann[st.Text(f.annotator_id)].Add(dw, rw);
+    if (f.source_id != 0) acc_of(0, f.source_id).Add(dw, rw);
+    if (f.annotator_id != 0) acc_of(1, f.annotator_id).Add(dw, rw);
     const size_t b = f.ranks.size();
     for (size_t i = 0; i < b; ++i) {
       const bool is_chosen = static_cast<int>(i) == c;
@@ -206,6 +218,9 @@ LengthStats ComputeLengthStats(const RunState& st, const std::vector<size_t>& re
       }
     }
   }
+  std::map<std::string, Acc> by_src, by_ann;  // by name: the report's order
+  for (auto& [id, acc] : accs[0]) by_src.emplace(st.Text(id), std::move(acc));
+  for (auto& [id, acc] : accs[1]) by_ann.emplace(st.Text(id), std::move(acc));
   s.words = words.Finish();
   s.chars = chars.Finish();
   s.words.tested = s.words.records > 0;

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <map>
 #include <numeric>
+#include <unordered_map>
 #include <utility>
 
 #include "stats/hypothesis_tests.h"
@@ -114,7 +115,9 @@ PositionStats ComputePositionStats(const RunState& st, const std::vector<size_t>
                                    const PositionOptions& o) {
   PositionStats s;
   std::map<uint32_t, std::vector<uint64_t>> by_b;
-  std::map<std::pair<std::string, uint32_t>, std::vector<uint64_t>> by_ann, by_src;
+  // Per (annotator or source text id, B) first, named once at the end.
+  std::unordered_map<uint64_t, std::vector<uint64_t>> by_ann_id, by_src_id;
+  auto id_key = [](uint32_t id, uint32_t b) { return (static_cast<uint64_t>(id) << 32) | b; };
   std::vector<double> rank_slot, rank_value;
   for (size_t r : records) {
     const RecordFacts& f = st.records[r];
@@ -145,9 +148,12 @@ PositionStats ComputePositionStats(const RunState& st, const std::vector<size_t>
       ++v[slot];
     };
     bump(by_b[b]);
-    if (f.annotator_id != 0) bump(by_ann[{st.Text(f.annotator_id), b}]);
-    if (f.source_id != 0) bump(by_src[{st.Text(f.source_id), b}]);
+    if (f.annotator_id != 0) bump(by_ann_id[id_key(f.annotator_id, b)]);
+    if (f.source_id != 0) bump(by_src_id[id_key(f.source_id, b)]);
   }
+  std::map<std::pair<std::string, uint32_t>, std::vector<uint64_t>> by_ann, by_src;  // by name: the report's order
+  for (auto& [k, v] : by_ann_id) by_ann.emplace(std::make_pair(st.Text(static_cast<uint32_t>(k >> 32)), static_cast<uint32_t>(k)), std::move(v));
+  for (auto& [k, v] : by_src_id) by_src.emplace(std::make_pair(st.Text(static_cast<uint32_t>(k >> 32)), static_cast<uint32_t>(k)), std::move(v));
   for (const auto& [b, counts] : by_b) {
     SlotTest t;
     t.b = b;

@@ -6,6 +6,7 @@
 #include <cmath>
 
 #include "core/state_file.h"
+#include "core/thread_pool.h"
 #include "stages/bias/bias_common.h"
 #include "stages/bias/bias_length.h"
 #include "stages/bias/bias_position.h"
@@ -63,9 +64,14 @@ class BiasStage : public Stage {
     records_in_ = kept.size();
     PositionOptions po{s_.correction, s_.alpha, s_.min_group_records};
     LengthOptions lo{s_.correction, s_.alpha, s_.min_group_records};
-    position_before_ = ComputePositionStats(st, kept, nullptr, po);
-    length_before_ = ComputeLengthStats(st, kept, seed_, lo);
-    audit_before_ = RunShortcutAudit(st, kept, surface_, nullptr, seed_, s_.audit);
+    ThreadPool pool(ctx.plan.threads);  // 0: one per hardware thread
+    // The three measures only read the facts: side by side, the audit (the
+    // longest; its fits use threads of their own) first.
+    pool.ParallelFor(3, [&](size_t t, unsigned) {
+      if (t == 0) audit_before_ = RunShortcutAudit(st, kept, surface_, nullptr, seed_, s_.audit);
+      if (t == 1) length_before_ = ComputeLengthStats(st, kept, seed_, lo);
+      if (t == 2) position_before_ = ComputePositionStats(st, kept, nullptr, po);
+    });
 
     // 1. Length rebalancing: rejects.
     if (s_.rebalance_length) {
@@ -107,9 +113,11 @@ class BiasStage : public Stage {
     }
     any_rebalance_ = s_.rebalance_position || (s_.rebalance_length && length_plan_.applied);
     if (any_rebalance_) {
-      position_after_ = ComputePositionStats(st, kept, &new_slot_, po);
-      length_after_ = ComputeLengthStats(st, kept, seed_, lo);
-      audit_after_ = RunShortcutAudit(st, kept, surface_, &new_slot_, seed_, s_.audit);
+      pool.ParallelFor(3, [&](size_t t, unsigned) {
+        if (t == 0) audit_after_ = RunShortcutAudit(st, kept, surface_, &new_slot_, seed_, s_.audit);
+        if (t == 1) length_after_ = ComputeLengthStats(st, kept, seed_, lo);
+        if (t == 2) position_after_ = ComputePositionStats(st, kept, &new_slot_, po);
+      });
     }
     records_out_ = kept.size();
     surface_ = {};  // only the audits above read it
@@ -319,6 +327,7 @@ class Reader {
 std::unique_ptr<Stage> MakeBiasStage(const Plan& plan, FileSystem* /*fs*/, Status* error) {
   const Json& s = StageSettings(plan, "bias");
   BiasSettings b;
+  b.audit.threads = plan.threads;  // the run's --threads (0: one per core)
   Reader rd(error);
   for (auto it = s.begin(); it != s.end(); ++it) {
     const std::string& k = it.key();

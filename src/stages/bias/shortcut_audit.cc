@@ -167,12 +167,14 @@ AuditResult RunShortcutAudit(const RunState& st, const std::vector<size_t>& reco
   stats::ChoiceFitOptions fo;
   fo.l2 = o.l2;
   fo.standardize = true;
-  auto cv = stats::CrossValidatedAccuracy(data, fo, o.folds, seed);
+  // The folds' fits and the whole fit together (each the same as alone).
+  stats::CrossValidatedFit both = stats::CrossValidateAndFit(data, fo, o.folds, seed, o.threads);
+  const auto& cv = both.cv;
+  const auto& fit = both.fit;
   if (!cv.ok()) {
     a.skipped = "cross-validation failed: " + cv.status().message();
     return a;
   }
-  auto fit = stats::FitChoiceModel(data, fo);
   if (!fit.ok()) {
     a.skipped = "fit failed: " + fit.status().message();
     return a;

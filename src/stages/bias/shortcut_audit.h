@@ -29,6 +29,7 @@ struct AuditOptions {
   double min_lift = 0.05;      // held-out accuracy minus the expected rate
   double l2 = 1.0;             // penalty on the standardised scale
   uint64_t min_records = 50;   // fewer usable records: the audit is skipped, with a reason
+  unsigned threads = 0;        // fits run at once (the run's --threads; 0 = one per core); results do not depend on it
 };
 
 struct AuditResult {

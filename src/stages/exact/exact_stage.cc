@@ -4,8 +4,10 @@
 
 #include <algorithm>
 #include <numeric>
-#include <unordered_map>
 
+#include "core/key_groups.h"
+#include "core/small_vector.h"
+#include "core/thread_pool.h"
 #include "io/output_dir.h"
 #include "stages/prior_join.h"
 
@@ -30,15 +32,31 @@ class ExactDupsStage : public Stage {
 
   Status Decide(StageContext& ctx) override {
     RunState& st = ctx.run;
-    RejectDegenerate(st);
-    std::vector<std::vector<size_t>> groups;
-    std::vector<Hash128> judgment;
-    GroupByComparison(st, &groups, &judgment);
-    comparisons_ = groups.size();
-    // Resolve each group with more than one record.
+    ThreadPool pool(ctx.plan.threads);  // 0: one per hardware thread
+    RejectDegenerate(st, pool);
+    // Kept records grouped by comparison key (core/key_groups.h: hash
+    // partitions in parallel; groups in input order of their first record).
+    std::vector<size_t> kept;
+    for (size_t i = 0; i < st.records.size(); ++i) {
+      if (st.IsKept(i)) kept.push_back(i);
+    }
+    std::vector<Hash128> key(kept.size()), judgment(kept.size());
+    pool.ParallelFor(kept.size(), [&](size_t k, unsigned) { key[k] = ComparisonKeyOf(st.records[kept[k]], &judgment[k]); });
+    KeyGroups groups = GroupRepeatedKeys(key, pool);
+    std::vector<Hash128>().swap(key);
+    comparisons_ = groups.distinct;
+    // Resolve each group with more than one record, in that order.
     uint64_t agree_pairs = 0, all_pairs = 0;
-    for (const auto& g : groups) {
-      if (g.size() >= 2) ResolveGroup(st, g, judgment, &agree_pairs, &all_pairs);
+    std::vector<size_t> members;
+    std::vector<Hash128> judgments;
+    for (size_t g = 0; g < groups.size(); ++g) {
+      members.clear();
+      judgments.clear();
+      for (uint32_t k : groups[g]) {
+        members.push_back(kept[k]);
+        judgments.push_back(judgment[k]);
+      }
+      ResolveGroup(st, members, judgments, &agree_pairs, &all_pairs);
     }
     agreement_ = all_pairs ? static_cast<double>(agree_pairs) / static_cast<double>(all_pairs) : 1.0;
     judged_pairs_ = all_pairs;
@@ -50,52 +68,45 @@ class ExactDupsStage : public Stage {
     return Status::Ok();
   }
 
-  // 1. Degenerate comparisons: the same text ranked above itself.
-  void RejectDegenerate(RunState& st) {
+  // 1. Degenerate comparisons: the same text ranked above itself. Found in
+  // parallel, rejected in input order.
+  void RejectDegenerate(RunState& st, ThreadPool& pool) {
     const size_t n = st.records.size();
-    // 1. Degenerate comparisons.
-    for (size_t i = 0; i < n; ++i) {
-      if (!st.IsKept(i)) continue;
-      const RecordFacts& f = st.records[i];
-      for (size_t a = 0; a < f.cand_hashes.size(); ++a) {
+    constexpr size_t kChunk = 16384;
+    struct Found {
+      size_t record, a, b;
+    };
+    std::vector<std::vector<Found>> found((n + kChunk - 1) / kChunk);
+    pool.ParallelFor(found.size(), [&](size_t c, unsigned) {
+      for (size_t i = c * kChunk; i < std::min(n, (c + 1) * kChunk); ++i) {
+        if (!st.IsKept(i)) continue;
+        const RecordFacts& f = st.records[i];
         bool done = false;
-        for (size_t b = a + 1; b < f.cand_hashes.size(); ++b) {
-          if (f.cand_hashes[a] == f.cand_hashes[b] && f.ranks[a] != f.ranks[b]) {
-            st.Reject(i, name(), "degenerate_comparison",
-                      "candidates " + std::to_string(a) + " and " + std::to_string(b) +
-                          " are the same text after normalisation but one is ranked above the other",
-                      Json{{"candidates", {a, b}}}.dump());
-            ++degenerate_;
-            done = true;
-            break;
+        for (size_t a = 0; a < f.cand_hashes.size() && !done; ++a) {
+          for (size_t b = a + 1; b < f.cand_hashes.size(); ++b) {
+            if (f.cand_hashes[a] == f.cand_hashes[b] && f.ranks[a] != f.ranks[b]) {
+              found[c].push_back(Found{i, a, b});
+              done = true;
+              break;
+            }
           }
         }
-        if (done) break;
+      }
+    });
+    for (const auto& list : found) {
+      for (const Found& d : list) {
+        st.Reject(d.record, name(), "degenerate_comparison",
+                  "candidates " + std::to_string(d.a) + " and " + std::to_string(d.b) +
+                      " are the same text after normalisation but one is ranked above the other",
+                  Json{{"candidates", {d.a, d.b}}}.dump());
+        ++degenerate_;
       }
     }
   }
 
-  // 2. Kept records grouped by comparison key, in input order; each record's judgment.
-  void GroupByComparison(const RunState& st, std::vector<std::vector<size_t>>* groups_out,
-                         std::vector<Hash128>* judgment_out) {
-    const size_t n = st.records.size();
-    std::vector<std::vector<size_t>>& groups = *groups_out;
-    std::vector<Hash128>& judgment = *judgment_out;
-    judgment.assign(n, Hash128{});
-    // 2. Group by comparison key, in input order.
-    std::unordered_map<Hash128, size_t, Hash128Hasher> group_of;
-    for (size_t i = 0; i < n; ++i) {
-      if (!st.IsKept(i)) continue;
-      Hash128 key = ComparisonKeyOf(st.records[i], &judgment[i]);
-      auto [it, fresh] = group_of.try_emplace(key, groups.size());
-      if (fresh) groups.emplace_back();
-      groups[it->second].push_back(i);
-    }
-    comparisons_ = groups.size();
-  }
-
   // 3. One comparison judged more than once: duplicates and label conflicts
   // by the policy; agreeing pairs counted.
+  // `g` lists the group's records in input order, `judgment` their judgments.
   void ResolveGroup(RunState& st, const std::vector<size_t>& g, const std::vector<Hash128>& judgment,
                     uint64_t* agree_pairs_out, uint64_t* all_pairs_out) {
     uint64_t& agree_pairs = *agree_pairs_out;
@@ -104,11 +115,11 @@ class ExactDupsStage : public Stage {
     ConflictGroup cg;
     cg.members = g;
     std::vector<Hash128> distinct;
-    for (size_t i : g) {
-      auto it = std::find(distinct.begin(), distinct.end(), judgment[i]);
+    for (size_t k = 0; k < g.size(); ++k) {
+      auto it = std::find(distinct.begin(), distinct.end(), judgment[k]);
       size_t j = static_cast<size_t>(it - distinct.begin());
       if (it == distinct.end()) {
-        distinct.push_back(judgment[i]);
+        distinct.push_back(judgment[k]);
         cg.judgment_count.push_back(0);
       }
       cg.judgment_of.push_back(j);
@@ -217,13 +228,22 @@ class ExactDupsStage : public Stage {
 }  // namespace
 
 Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment) {
-  std::vector<size_t> order(f.cand_hashes.size());
-  std::iota(order.begin(), order.end(), 0);
-  std::stable_sort(order.begin(), order.end(),
-                   [&](size_t a, size_t b) { return f.cand_hashes[a] < f.cand_hashes[b]; });
-  std::vector<Hash128> key_parts{f.prompt_hash};
-  std::vector<Hash128> judg;
-  for (size_t k : order) {
+  // Candidates in a stable order of their hashes; no heap for up to 15
+  // candidates (this runs for every record in two decide steps).
+  const size_t b = f.cand_hashes.size();
+  SmallVector<uint32_t, 16> order(b);
+  for (size_t k = 0; k < b; ++k) order[k] = static_cast<uint32_t>(k);
+  auto by_hash = [&](uint32_t x, uint32_t y) { return f.cand_hashes[x] < f.cand_hashes[y]; };
+  if (b <= 16) {
+    for (size_t k = 1; k < b; ++k) {  // insertion sort: stable
+      for (size_t j = k; j > 0 && by_hash(order[j], order[j - 1]); --j) std::swap(order[j], order[j - 1]);
+    }
+  } else {
+    std::stable_sort(order.begin(), order.end(), by_hash);
+  }
+  SmallVector<Hash128, 16> key_parts, judg;
+  key_parts.push_back(f.prompt_hash);
+  for (uint32_t k : order) {
     key_parts.push_back(f.cand_hashes[k]);
     judg.push_back(Hash128{0, static_cast<uint64_t>(f.ranks[k])});
   }

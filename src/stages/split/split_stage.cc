@@ -7,12 +7,16 @@
 #include <cctype>
 #include <cmath>
 #include <map>
+#include <numeric>
+#include <span>
 #include <set>
 #include <tuple>
 #include <unordered_set>
 #include <unordered_map>
 
+#include "core/key_groups.h"
 #include "core/state_file.h"
+#include "core/thread_pool.h"
 #include "io/file_system.h"
 #include "io/line_reader.h"
 #include "io/output_dir.h"
@@ -92,7 +96,7 @@ struct Settings {
 struct Group {
   Hash128 key;               // smallest prompt hash among members
   uint32_t anchor = 0;       // the member holding the key (smallest id among equals)
-  std::vector<uint32_t> members;
+  std::span<const uint32_t> members;  // kept records, input order (a view of SplitStage::members_)
   std::string source;        // source of the anchor
   double u = 0;              // split position
   uint32_t split = 0;
@@ -110,11 +114,17 @@ int Log2Bin(uint32_t v) {
   return k;
 }
 
+// The order statistics at floor(p (n - 1)): selected, not sorted (the same values).
 Json Quantiles(std::vector<uint32_t> v) {
   if (v.empty()) return Json(nullptr);
-  std::sort(v.begin(), v.end());
-  auto q = [&](double p) { return v[static_cast<size_t>(std::floor(p * static_cast<double>(v.size() - 1)))]; };
-  return Json{{"min", v.front()}, {"p10", q(0.1)}, {"median", q(0.5)}, {"p90", q(0.9)}, {"max", v.back()}};
+  auto q = [&](double p) {
+    auto at = v.begin() + static_cast<std::ptrdiff_t>(std::floor(p * static_cast<double>(v.size() - 1)));
+    std::nth_element(v.begin(), at, v.end());
+    return *at;
+  };
+  const uint32_t lo = *std::min_element(v.begin(), v.end()), hi = *std::max_element(v.begin(), v.end());
+  const uint32_t p10 = q(0.1), median = q(0.5), p90 = q(0.9);
+  return Json{{"min", lo}, {"p10", p10}, {"median", median}, {"p90", p90}, {"max", hi}};
 }
 
 class SplitStage : public Stage {
@@ -147,10 +157,11 @@ class SplitStage : public Stage {
     for (size_t i = 0; i < n; ++i) {
       if (st.IsKept(i)) kept.push_back(static_cast<uint32_t>(i));
     }
-    FormGroups(st, kept, ctx.results.Find<NearClusters>());
-    AssignSplits(st);
+    ThreadPool pool(ctx.plan.threads);  // 0: one per hardware thread
+    FormGroups(st, kept, ctx.results.Find<NearClusters>(), pool);
+    AssignSplits(st, pool);
     if (prior_split.size() == n) KeepPriorSplits(prior_split);
-    RecordSplitsAndCheck(st, kept);
+    RecordSplitsAndCheck(st, kept, pool);
     if (!s_.previous.empty()) {
       Status s = ComparePrevious(st, ctx.fs);
       if (!s.ok()) return s;
@@ -160,9 +171,14 @@ class SplitStage : public Stage {
 
   // Groups: kept records tied by the plan's tie kinds (union-find), numbered
   // by first kept member; each group's key is its smallest prompt hash.
-  void FormGroups(const RunState& st, const std::vector<uint32_t>& kept, const NearClusters* near) {
+  // Each tie kind ties a record to the first kept record with the same value
+  // (prompts grouped by hash in parallel, core/key_groups.h; near clusters and
+  // interned texts by id); the unions run in input order, as the merge counts
+  // depend on it.
+  void FormGroups(const RunState& st, const std::vector<uint32_t>& kept, const NearClusters* near, ThreadPool& pool) {
     const size_t n = st.records.size();
     near_available_ = near && near->cluster.size() == n;
+    FirstOfPrompt(st, kept, pool);
     sketch::UnionFind uf(static_cast<uint32_t>(n));
     std::vector<uint8_t> tie_bits(n, 0);  // per record: which tie kinds joined it
     auto join = [&](Tie t, uint32_t a, uint32_t b) {
@@ -170,55 +186,90 @@ class SplitStage : public Stage {
       tie_bits[a] |= uint8_t(1u << t);
       tie_bits[b] |= uint8_t(1u << t);
     };
-    std::unordered_map<Hash128, uint32_t, Hash128Hasher> by_prompt;
-    std::unordered_map<int64_t, uint32_t> by_near;
-    std::unordered_map<std::string, uint32_t> by_text[kTieCount];
-    for (uint32_t i : kept) {
+    // First kept record per near cluster (ids are record indexes) and per text id.
+    size_t near_ids = 0;  // cluster ids are record indexes (stage_results.h); sized to the largest
+    if (near_available_ && s_.tie[kNear]) {
+      for (int64_t c : near->cluster) near_ids = std::max(near_ids, static_cast<size_t>(c + 1));
+    }
+    std::vector<uint32_t> first_near(near_ids, UINT32_MAX);
+    std::vector<uint32_t> first_text[kTieCount];
+    for (int t = kThread; t < kTieCount; ++t) {
+      if (s_.tie[t]) first_text[t].assign(st.text_count(), UINT32_MAX);
+    }
+    for (size_t k = 0; k < kept.size(); ++k) {
+      const uint32_t i = kept[k];
       const RecordFacts& f = st.records[i];
-      if (s_.tie[kPrompt]) {
-        auto [it, fresh] = by_prompt.try_emplace(f.prompt_hash, i);
-        if (!fresh) join(kPrompt, it->second, i);
+      if (s_.tie[kPrompt] && first_prompt_[k] != k) join(kPrompt, kept[first_prompt_[k]], i);
+      if (!first_near.empty() && near->cluster[i] >= 0) {
+        uint32_t& first = first_near[static_cast<size_t>(near->cluster[i])];
+        if (first == UINT32_MAX) first = i;
+        else join(kNear, first, i);
       }
-      if (s_.tie[kNear] && near_available_ && near->cluster[i] >= 0) {
-        auto [it, fresh] = by_near.try_emplace(near->cluster[i], i);
-        if (!fresh) join(kNear, it->second, i);
-      }
-      const std::string* text[kTieCount] = {nullptr, nullptr, &st.Text(f.thread_id), &st.Text(f.annotator_id),
-                                            &st.Text(f.group_id)};
+      const uint32_t id[kTieCount] = {0, 0, f.thread_id, f.annotator_id, f.group_id};
       for (int t = kThread; t < kTieCount; ++t) {
-        if (!s_.tie[t] || text[t]->empty()) continue;
-        auto [it, fresh] = by_text[t].try_emplace(*text[t], i);
-        if (!fresh) join(static_cast<Tie>(t), it->second, i);
+        if (!s_.tie[t] || id[t] == 0) continue;  // id 0 is the empty text
+        uint32_t& first = first_text[t][id[t]];
+        if (first == UINT32_MAX) first = i;
+        else join(static_cast<Tie>(t), first, i);
       }
     }
-    // Components, numbered by first kept member; keys are order-free.
-    std::unordered_map<uint32_t, uint32_t> group_of_root;
+    // Components, numbered by first kept member; members stored group by group.
     group_of_.assign(n, UINT32_MAX);
+    std::vector<uint32_t> group_of_root(n, UINT32_MAX);
+    std::vector<uint32_t> sizes;
     for (uint32_t i : kept) {
-      uint32_t root = uf.Find(i);
-      auto [it, fresh] = group_of_root.try_emplace(root, static_cast<uint32_t>(groups_.size()));
-      if (fresh) {
-        groups_.emplace_back();
-        groups_.back().key = st.records[i].prompt_hash;
-        groups_.back().anchor = i;
+      uint32_t& g = group_of_root[uf.Find(i)];
+      if (g == UINT32_MAX) {
+        g = static_cast<uint32_t>(sizes.size());
+        sizes.push_back(0);
       }
-      Group& g = groups_[it->second];
-      g.members.push_back(i);
-      g.ties |= tie_bits[i];
-      const RecordFacts& f = st.records[i];
-      const RecordFacts& a = st.records[g.anchor];
-      if (f.prompt_hash < g.key ||
-          (f.prompt_hash == g.key && std::tie(f.id, st.Text(f.source_id)) < std::tie(a.id, st.Text(a.source_id)))) {
-        g.key = f.prompt_hash;
-        g.anchor = i;
-      }
-      group_of_[i] = it->second;
+      ++sizes[g];
+      group_of_[i] = g;
     }
+    std::vector<uint32_t>().swap(group_of_root);
+    std::vector<uint32_t> start(sizes.size() + 1, 0);
+    for (size_t g = 0; g < sizes.size(); ++g) start[g + 1] = start[g] + sizes[g];
+    members_.assign(kept.size(), 0);
+    std::vector<uint32_t> fill(start.begin(), start.end() - 1);
+    for (uint32_t i : kept) members_[fill[group_of_[i]]++] = i;
+    groups_.assign(sizes.size(), Group{});
+    // Each group's key and anchor: the smallest (prompt hash, id, source) among
+    // its members, the first on a tie; groups on their own in parallel.
+    pool.ParallelFor(groups_.size(), [&](size_t gi, unsigned) {
+      Group& g = groups_[gi];
+      g.members = std::span<const uint32_t>(members_.data() + start[gi], sizes[gi]);
+      g.anchor = g.members[0];
+      g.key = st.records[g.anchor].prompt_hash;
+      for (uint32_t i : g.members) {
+        g.ties |= tie_bits[i];
+        const RecordFacts& f = st.records[i];
+        const RecordFacts& a = st.records[g.anchor];
+        if (f.prompt_hash < g.key ||
+            (f.prompt_hash == g.key && std::tie(f.id, st.Text(f.source_id)) < std::tie(a.id, st.Text(a.source_id)))) {
+          g.key = f.prompt_hash;
+          g.anchor = i;
+        }
+      }
+    });
+  }
+
+  // first_prompt_[k]: the position in `kept` of the first kept record with
+  // kept[k]'s prompt; distinct_prompts_ counts the prompts.
+  void FirstOfPrompt(const RunState& st, const std::vector<uint32_t>& kept, ThreadPool& pool) {
+    std::vector<Hash128> prompt(kept.size());
+    pool.ParallelFor(kept.size(), [&](size_t k, unsigned) { prompt[k] = st.records[kept[k]].prompt_hash; });
+    const KeyGroups groups = GroupRepeatedKeys(prompt, pool);
+    first_prompt_.resize(kept.size());
+    std::iota(first_prompt_.begin(), first_prompt_.end(), 0u);
+    for (size_t g = 0; g < groups.size(); ++g) {
+      for (uint32_t k : groups[g]) first_prompt_[k] = groups[g][0];
+    }
+    distinct_prompts_ = groups.distinct;
   }
 
   // Each group's split: the hash of its key against the cumulative ratios, or
   // (stratified) cut by records within its source.
-  void AssignSplits(const RunState& st) {
+  void AssignSplits(const RunState& st, ThreadPool& pool) {
     std::vector<double> cum;
     double acc = 0;
     for (const auto& [name, r] : s_.splits) cum.push_back(acc += r);
@@ -229,11 +280,12 @@ class SplitStage : public Stage {
       }
       return static_cast<uint32_t>(cum.size() - 1);
     };
-    for (Group& g : groups_) {
+    pool.ParallelFor(groups_.size(), [&](size_t k, unsigned) {
+      Group& g = groups_[k];
       g.source = st.Text(st.records[g.anchor].source_id);
       g.u = SplitPosition(s_.salt, g.key);
       if (!s_.stratify_source) g.split = split_at(g.u);
-    }
+    });
     if (s_.stratify_source) {
       // Per source: groups in order of their split position, cut by records at
       // the cumulative ratios (a group goes where its midpoint falls).
@@ -267,12 +319,13 @@ class SplitStage : public Stage {
 
   // Every kept record's decision gets its group's split; the checks are read
   // back from the decisions.
-  void RecordSplitsAndCheck(RunState& st, const std::vector<uint32_t>& kept) {
+  void RecordSplitsAndCheck(RunState& st, const std::vector<uint32_t>& kept, ThreadPool& pool) {
     st.split_names.clear();
     for (const auto& [name, r] : s_.splits) st.split_names.push_back(name);
-    for (const Group& g : groups_) {
-      for (uint32_t i : g.members) st.DecisionOf(i).split = g.split;
-    }
+    // Groups hold distinct records: each group writes its own decisions.
+    pool.ParallelFor(groups_.size(), [&](size_t k, unsigned) {
+      for (uint32_t i : groups_[k].members) st.DecisionOf(i).split = groups_[k].split;
+    });
     // Checks, read back from the decisions.
     spanning_ = 0;
     for (const Group& g : groups_) {
@@ -280,14 +333,14 @@ class SplitStage : public Stage {
         if (st.DecisionOf(i).split != g.split) { ++spanning_; break; }
       }
     }
-    std::unordered_map<Hash128, uint32_t, Hash128Hasher> prompt_split;
-    std::unordered_set<Hash128, Hash128Hasher> apart;
-    for (uint32_t i : kept) {
-      auto [it, fresh] = prompt_split.try_emplace(st.records[i].prompt_hash, st.DecisionOf(i).split);
-      if (!fresh && it->second != st.DecisionOf(i).split) apart.insert(st.records[i].prompt_hash);
+    // A prompt is split apart when some record's split differs from its first record's.
+    std::vector<uint8_t> apart(kept.size(), 0);  // by the prompt's first position
+    for (size_t k = 0; k < kept.size(); ++k) {
+      const uint32_t first = first_prompt_[k];
+      if (first != k && st.DecisionOf(kept[k]).split != st.DecisionOf(kept[first]).split) apart[first] = 1;
     }
-    prompts_apart_ = apart.size();
-    distinct_prompts_ = prompt_split.size();
+    prompts_apart_ = static_cast<uint64_t>(std::count(apart.begin(), apart.end(), uint8_t{1}));
+    std::vector<uint32_t>().swap(first_prompt_);
     kept_ = kept.size();
   }
 
@@ -447,20 +500,40 @@ class SplitStage : public Stage {
     j["composition"] = Composition(st);
   }
 
+  // One line per kept record, in record order: blocks of records formatted in
+  // parallel, a round of blocks at a time (bounded memory), appended in order.
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
     auto f = out.Create(kAssignmentsFile);
     if (!f.ok()) return f.status();
-    for (size_t i = 0; i < st.records.size(); ++i) {
-      if (group_of_.size() <= i || group_of_[i] == UINT32_MAX) continue;
-      const Entry& e = st.entries[st.records[i].entry];
-      const Group& g = groups_[group_of_[i]];
-      Json j{{"id", st.records[i].id},
-             {"input", st.plan().inputs[e.input].name},
-             {"line", e.line},
-             {"split", s_.splits[g.split].first},
-             {"group", Hex16(g.key)}};
-      Status s = f.value()->Append(j.dump() + "\n");
-      if (!s.ok()) return s;
+    constexpr size_t kBlock = 4096, kRound = 64;
+    const size_t n = st.records.size();
+    const size_t blocks = (n + kBlock - 1) / kBlock;
+    ThreadPool pool(st.plan().threads);  // 0: one per hardware thread
+    std::vector<std::string> text(kRound);
+    for (size_t first = 0; first < blocks; first += kRound) {
+      const size_t count = std::min(kRound, blocks - first);
+      pool.ParallelFor(count, [&](size_t b, unsigned) {
+        std::string& t = text[b];
+        t.clear();
+        const size_t begin = (first + b) * kBlock;
+        for (size_t i = begin; i < std::min(n, begin + kBlock); ++i) {
+          if (group_of_.size() <= i || group_of_[i] == UINT32_MAX) continue;
+          const Entry& e = st.entries[st.records[i].entry];
+          const Group& g = groups_[group_of_[i]];
+          Json j{{"id", st.records[i].id},
+                 {"input", st.plan().inputs[e.input].name},
+                 {"line", e.line},
+                 {"split", s_.splits[g.split].first},
+                 {"group", Hex16(g.key)}};
+          t += j.dump();
+          t += '\n';
+        }
+      });
+      for (size_t b = 0; b < count; ++b) {
+        if (text[b].empty()) continue;
+        Status s = f.value()->Append(text[b]);
+        if (!s.ok()) return s;
+      }
     }
     return f.value()->Close();
   }
@@ -521,6 +594,8 @@ class SplitStage : public Stage {
     std::map<size_t, std::vector<uint64_t>> slots;
     uint64_t top_tied = 0, pairwise = 0;
     std::map<std::string, uint64_t> sources, annotators, shapes;
+    std::vector<uint64_t> per_source(st.text_count(), 0), per_annotator_id(st.text_count(), 0);  // by text id, named below
+    uint64_t no_source = 0;
     uint64_t with_annotator = 0, with_thread = 0;
     uint64_t scripts[kScriptCount] = {};
     std::vector<uint32_t> prompt_len, chosen_len, rejected_len;
@@ -539,9 +614,10 @@ class SplitStage : public Stage {
       } else {
         ++top_tied;
       }
-      ++sources[f.source_id == 0 ? "(not given)" : st.Text(f.source_id)];
+      if (f.source_id == 0) ++no_source;
+      else ++per_source[f.source_id];
       if (f.annotator_id != 0) {
-        ++annotators[st.Text(f.annotator_id)];
+        ++per_annotator_id[f.annotator_id];
         ++with_annotator;
       }
       with_thread += f.thread_id == 0 ? 0 : 1;
@@ -553,6 +629,11 @@ class SplitStage : public Stage {
         (best ? chosen_len : rejected_len).push_back(f.cand_chars[k]);
         ++(best ? chosen_bins : rejected_bins)[Log2Bin(f.cand_chars[k])];
       }
+    }
+    if (no_source) sources["(not given)"] += no_source;
+    for (uint32_t id = 1; id < per_source.size(); ++id) {
+      if (per_source[id]) sources[st.Text(id)] += per_source[id];
+      if (per_annotator_id[id]) annotators[st.Text(id)] += per_annotator_id[id];
     }
     Json jc = Json::object();
     for (const auto& [b, k] : cands) jc[std::to_string(b)] = k;
@@ -611,7 +692,9 @@ class SplitStage : public Stage {
   std::vector<Script> script_;
   bool near_available_ = false;
   std::vector<Group> groups_;
+  std::vector<uint32_t> members_;       // every group's members, group by group (Group::members views)
   std::vector<uint32_t> group_of_;
+  std::vector<uint32_t> first_prompt_;  // Decide only: per kept position, its prompt's first position
   uint64_t merges_[kTieCount] = {};
   uint64_t spanning_ = 0, prompts_apart_ = 0, distinct_prompts_ = 0, kept_ = 0;
   Json previous_;
