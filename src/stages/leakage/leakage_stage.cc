@@ -59,6 +59,7 @@ class LeakageStage : public Stage {
       index_->CollectPromptGrams(raw, text.user_prompt(), &ids);
       for (uint32_t id : ids) prompt_df_[id].fetch_add(1, std::memory_order_relaxed);
       prompt = ids;
+      index_->DropEvalTemplatePromptGrams(&prompt);  // counted above; never matched, so not kept
     }
     bool answer_found = false;
     for (size_t c = 0; c < rec.candidates.size() && c < text.candidates.size(); ++c) {
@@ -70,6 +71,7 @@ class LeakageStage : public Stage {
       if (answer_df_) {
         index_->CollectAnswerGrams(rec.candidates[c], text.candidates[c], &ids);
         for (uint32_t id : ids) answer_df_[id].fetch_add(1, std::memory_order_relaxed);
+        index_->DropEvalTemplateAnswerGrams(&ids);
         if (!ids.empty()) {
           answer.insert(answer.end(), ids.begin(), ids.end());
           ends.insert(ends.end(), {static_cast<uint32_t>(c), static_cast<uint32_t>(answer.size())});
