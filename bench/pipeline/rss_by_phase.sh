@@ -21,6 +21,8 @@ PID=$!
 : >"$LOG/marks"
 while kill -0 "$PID" 2>/dev/null; do
   r=$(awk '/RssAnon/ {print $2}' "/proc/$PID/status" 2>/dev/null || true)
+  h=$(awk '/VmHWM/ {print $2}' "/proc/$PID/status" 2>/dev/null || true)
+  [ -n "$h" ] && echo "$h" >"$LOG/hwm"
   t=$(echo "$(now) - $T0" | bc)
   [ -n "$r" ] && echo "$t $r" >>"$LOG/rss"
   # A timing line appears when its phase ends: note the time of each new line.
@@ -38,3 +40,4 @@ paste -d' ' "$LOG/marks" <(grep '^timing:' "$LOG/stderr") |
         $1 = ""; if (mx < 0) printf "%-50s (shorter than a sample)\n", substr($0, 2);
         else printf "%-50s RssAnon max %5d MB\n", substr($0, 2), mx / 1024; prev = end}'
 awk '{if ($2 > m) m = $2} END {printf "peak RssAnon %d MB\n", m / 1024}' "$LOG/rss"
+[ -s "$LOG/hwm" ] && awk '{printf "peak RSS (VmHWM, last sample) %d MB\n", $1 / 1024}' "$LOG/hwm"

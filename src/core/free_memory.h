@@ -11,4 +11,7 @@ namespace prefsift {
 
 void ReturnFreeMemory();
 
+// Whether ReturnFreeMemory does anything in this build (true with glibc).
+bool ReturnsFreeMemory();
+
 }  // namespace prefsift

@@ -2,12 +2,14 @@
 #include "sketch/key_sketch.h"
 
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <iterator>
 #include <thread>
 
 #include "sketch/lsh.h"
 #include "sketch/mix.h"
+#include "sketch/radix_sort.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -24,23 +26,9 @@ void SortUnique(std::vector<uint64_t>* v) {
   v->erase(std::unique(v->begin(), v->end()), v->end());
 }
 
-// Sorts entries (key << 32 | place) by key, keeping the order of equal keys
-// (LSD radix sort on the key's four bytes; `tmp` is scratch). The entries
-// arrive in place order, so each key's run lists its places ascending: the
-// same order as sorting the whole words.
-void SortByKey(std::vector<uint64_t>* v, std::vector<uint64_t>* tmp) {
-  tmp->resize(v->size());
-  for (int shift = 32; shift < 64; shift += 8) {
-    size_t count[257] = {};
-    for (uint64_t x : *v) ++count[((x >> shift) & 0xff) + 1];
-    for (int b = 0; b < 256; ++b) count[b + 1] += count[b];
-    for (uint64_t x : *v) (*tmp)[count[(x >> shift) & 0xff]++] = x;
-    v->swap(*tmp);
-  }
-}
-
 struct PartResult {
   std::vector<uint64_t> pairs;  // one per shared informative key: repeats kept
+  std::vector<uint64_t> aside;  // set-aside keys: key << 32 | min(sketches holding it, 65535)
   KeyPairStats stats;
 };
 
@@ -75,24 +63,37 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   const size_t total = keys.size();
   const size_t n = m == 0 ? 0 : total / m;
   const uint32_t min_records = std::max<uint32_t>(options.min_records, 2);
-  // Per place: 0 = informative (or no key), else the number of sketches
-  // holding its set-aside key (at most 65535).
-  std::vector<uint16_t> aside(total, 0);
+  // Per place, one bit: its key is set aside (held by >= min_records
+  // sketches). The number of sketches holding each set-aside key is kept once
+  // per key (`aside_keys`), not per place.
+  std::vector<uint64_t> aside_bits((total + 63) / 64, 0);
+  auto is_aside = [&](size_t place) { return (aside_bits[place >> 6] >> (place & 63)) & 1u; };
 
   // 1. Key runs, one partition of the key space at a time (the top `bits` bits
   //    of the key), so the transient array is a share of the places. Entry =
-  //    key << 32 | place; place = record * m + position.
+  //    key << 32 | place; place = record * m + position. Sorting whole entries
+  //    orders each key's run by place, so its records ascend.
   int bits = 0;
   while (bits < 12 && (total >> bits) > (size_t{1} << 21)) ++bits;
   const uint32_t parts = 1u << bits;
   const uint32_t threads = std::clamp<uint32_t>(options.threads, 1, parts);
+  // Each partition's size, so a thread's buffer is allocated once at the size
+  // of its largest partition (no doubling growth).
+  std::vector<size_t> part_size(parts, 0);
+  for (size_t place = 0; place < total; ++place) {
+    const uint32_t k = keys[place];
+    if (k != kNoKey) ++part_size[bits > 0 ? k >> (32 - bits) : 0];
+  }
   std::vector<PartResult> acc(threads);
   // Sweep 1 counts the key runs and marks the set-aside places; sweep 2 (only
   // when pairs are wanted) sorts the partitions again and pairs the members of
   // informative runs. Two sweeps cost a second sort of every partition, but
   // with none set aside and options.only_with_template no pair is ever made.
   auto work = [&](uint32_t t, bool make_pairs) {
-    std::vector<uint64_t> buf, part_pairs, scratch;
+    size_t largest = 0;
+    for (uint32_t part = t; part < parts; part += threads) largest = std::max(largest, part_size[part]);
+    std::vector<uint64_t> buf, part_pairs;
+    buf.reserve(largest);
     PartResult& mine = acc[t];
     for (uint32_t part = t; part < parts; part += threads) {
       buf.clear();
@@ -101,7 +102,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
         if (k == kNoKey || (bits > 0 && (k >> (32 - bits)) != part)) continue;
         buf.push_back((static_cast<uint64_t>(k) << 32) | place);
       }
-      SortByKey(&buf, &scratch);
+      SortWords(buf);
       part_pairs.clear();
       size_t s = 0;
       while (s < buf.size()) {
@@ -115,8 +116,12 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
           if (frequent) {
             ++mine.stats.keys_set_aside;
             mine.stats.entries_set_aside += run;
-            const auto count = static_cast<uint16_t>(std::min<size_t>(run, 65535));
-            for (size_t x = s; x < e; ++x) aside[static_cast<uint32_t>(buf[x])] = count;  // distinct places: no race
+            mine.aside.push_back((key << 32) | std::min<size_t>(run, 65535));
+            for (size_t x = s; x < e; ++x) {  // words shared with other threads' places: atomic
+              const auto place = static_cast<uint32_t>(buf[x]);
+              std::atomic_ref<uint64_t>(aside_bits[place >> 6]).fetch_or(uint64_t{1} << (place & 63),
+                                                                          std::memory_order_relaxed);
+            }
           } else {
             mine.stats.largest_run = std::max<uint32_t>(mine.stats.largest_run, static_cast<uint32_t>(run));
           }
@@ -146,6 +151,17 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   sweep(false);
   uint64_t set_aside = 0;
   for (const PartResult& r : acc) set_aside += r.stats.keys_set_aside;
+  std::vector<uint64_t> aside_keys;  // key << 32 | count, ascending by key
+  aside_keys.reserve(set_aside);
+  for (PartResult& r : acc) {
+    aside_keys.insert(aside_keys.end(), r.aside.begin(), r.aside.end());
+    std::vector<uint64_t>().swap(r.aside);
+  }
+  std::sort(aside_keys.begin(), aside_keys.end());
+  auto aside_count = [&](uint32_t key) -> uint64_t {
+    auto it = std::lower_bound(aside_keys.begin(), aside_keys.end(), static_cast<uint64_t>(key) << 32);
+    return *it & 0xffffffffu;  // the key is there: its place is marked
+  };
   if (set_aside == 0 && options.only_with_template) {
     KeyPairStats st;
     for (const PartResult& r : acc) {
@@ -172,7 +188,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   // record's informative keys (and at least one).
   std::vector<uint8_t> informative(n, 0);
   for (size_t place = 0; place < total; ++place) {
-    informative[place / m] += static_cast<uint8_t>(keys[place] != kNoKey && !aside[place]);
+    informative[place / m] += static_cast<uint8_t>(keys[place] != kNoKey && !is_aside(place));
   }
   std::sort(raw.begin(), raw.end());
   std::vector<uint64_t> pairs;
@@ -211,7 +227,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
       own.clear();
       for (size_t q = 0; q < m; ++q) {
         const size_t place = r * m + q;
-        if (aside[place]) own.push_back((static_cast<uint64_t>(aside[place]) << 32) | keys[place]);
+        if (is_aside(place)) own.push_back((aside_count(keys[place]) << 32) | keys[place]);
       }
       if (own.empty()) continue;
       std::sort(own.begin(), own.end());

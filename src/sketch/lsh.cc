@@ -7,6 +7,8 @@
 #include <string>
 #include <thread>
 
+#include "sketch/radix_sort.h"
+
 #define XXH_INLINE_ALL
 #include <xxhash.h>
 
@@ -59,37 +61,6 @@ void EmitRuns(const std::vector<uint64_t>& buf, uint32_t max_run, std::vector<ui
   }
 }
 
-// In-place MSD radix sort (American flag sort): partition by the byte at
-// `shift`, then recurse into each bucket on the next byte; small buckets go
-// to std::sort. Same result as std::sort of the whole range.
-void RadixSortBytes(uint64_t* data, size_t n, int shift) {
-  if (n <= 64 || shift < 0) {
-    std::sort(data, data + n);
-    return;
-  }
-  std::array<size_t, 257> start{};
-  for (size_t i = 0; i < n; ++i) ++start[((data[i] >> shift) & 0xff) + 1];
-  for (int b = 0; b < 256; ++b) start[b + 1] += start[b];
-  std::array<size_t, 256> next;
-  std::copy(start.begin(), start.begin() + 256, next.begin());
-  for (int b = 0; b < 256; ++b) {
-    const size_t end = start[b + 1];
-    while (next[b] < end) {
-      uint64_t x = data[next[b]];
-      auto dest = static_cast<int>((x >> shift) & 0xff);
-      while (dest != b) {  // cycle x to its bucket, bringing back the displaced word
-        std::swap(x, data[next[dest]++]);
-        dest = static_cast<int>((x >> shift) & 0xff);
-      }
-      data[next[b]++] = x;
-    }
-  }
-  for (int b = 0; b < 256; ++b) {
-    RadixSortBytes(data + start[b], start[b + 1] - start[b], shift - 8);
-  }
-}
-
-void SortWords(std::vector<uint64_t>* v) { RadixSortBytes(v->data(), v->size(), 56); }
 
 // KeyFn: uint64_t(uint32_t record, uint32_t band).
 template <typename KeyFn>
@@ -106,7 +77,7 @@ std::vector<uint64_t> Generate(uint32_t n, uint32_t bands, const KeyFn& key,
       for (uint32_t i = 0; i < n; ++i) {
         buf[i] = (key(i, band) & 0xffffffff00000000ULL) | i;
       }
-      SortWords(&buf);
+      SortWords(buf);
       band_pairs.clear();
       EmitRuns(buf, std::max<uint32_t>(options.max_run, 2), &band_pairs, &mine.stats);
       mine.stats.bucket_pairs += band_pairs.size();

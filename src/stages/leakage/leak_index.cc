@@ -672,6 +672,19 @@ void LeakIndex::CollectAnswerGrams(std::string_view answer, std::string_view exa
   }
 }
 
+namespace {
+void DropTemplate(const NgramIndex* idx, std::vector<uint32_t>* ids) {
+  if (!idx) return;
+  ids->erase(std::remove_if(ids->begin(), ids->end(), [idx](uint32_t id) { return idx->IsTemplate(id); }),
+             ids->end());
+}
+}  // namespace
+
+void LeakIndex::DropEvalTemplatePromptGrams(std::vector<uint32_t>* ids) const { DropTemplate(impl_->ngram.get(), ids); }
+void LeakIndex::DropEvalTemplateAnswerGrams(std::vector<uint32_t>* ids) const {
+  DropTemplate(impl_->ref_ngram.get(), ids);
+}
+
 void LeakIndex::SetTrainingFrequencies(std::vector<uint32_t> prompt_df, uint64_t prompts,
                                        std::vector<uint32_t> answer_df, uint64_t answers) {
   Impl& m = *impl_;

@@ -110,6 +110,13 @@ class LeakIndex {
   uint32_t AnswerGrams() const;   // 0 when the answer detector is off
   void CollectPromptGrams(std::string_view prompt, std::string_view normalized, std::vector<uint32_t>* ids) const;
   void CollectAnswerGrams(std::string_view answer, std::string_view normalized, std::vector<uint32_t>* ids) const;
+  // Removes from `ids` (as Collect* gives them) the grams already set aside as
+  // template text by the evaluation side alone: Match*Grams never look at
+  // them, whatever the training frequencies turn out to be, so a caller that
+  // keeps each record's ids until then need not keep these (most of them on
+  // template text). The caller still counts them in the frequencies.
+  void DropEvalTemplatePromptGrams(std::vector<uint32_t>* ids) const;
+  void DropEvalTemplateAnswerGrams(std::vector<uint32_t>* ids) const;
   // Not thread-safe: call once, between pass 1 and any Match*Grams.
   void SetTrainingFrequencies(std::vector<uint32_t> prompt_df, uint64_t prompts, std::vector<uint32_t> answer_df,
                               uint64_t answers);

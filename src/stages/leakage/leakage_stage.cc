@@ -12,6 +12,7 @@
 #include "io/output_dir.h"
 #include "stages/facts.h"
 #include "stages/leakage/leak_index.h"
+#include "stages/sparse_rows.h"
 
 namespace prefsift {
 namespace {
@@ -59,6 +60,7 @@ class LeakageStage : public Stage {
       index_->CollectPromptGrams(raw, text.user_prompt(), &ids);
       for (uint32_t id : ids) prompt_df_[id].fetch_add(1, std::memory_order_relaxed);
       prompt = ids;
+      index_->DropEvalTemplatePromptGrams(&prompt);  // counted above; never matched, so not kept
     }
     bool answer_found = false;
     for (size_t c = 0; c < rec.candidates.size() && c < text.candidates.size(); ++c) {
@@ -70,6 +72,7 @@ class LeakageStage : public Stage {
       if (answer_df_) {
         index_->CollectAnswerGrams(rec.candidates[c], text.candidates[c], &ids);
         for (uint32_t id : ids) answer_df_[id].fetch_add(1, std::memory_order_relaxed);
+        index_->DropEvalTemplateAnswerGrams(&ids);
         if (!ids.empty()) {
           answer.insert(answer.end(), ids.begin(), ids.end());
           ends.insert(ends.end(), {static_cast<uint32_t>(c), static_cast<uint32_t>(answer.size())});
@@ -77,8 +80,8 @@ class LeakageStage : public Stage {
       }
     }
     answer_docs_.fetch_add(rec.candidates.size(), std::memory_order_relaxed);
-    findings_[record] = std::move(f);
-    grams_[record] = RecordGrams(prompt, answer, ends);
+    if (!f.empty()) findings_.Set(record, std::move(f));
+    if (!prompt.empty() || !answer.empty()) grams_.Set(record, RecordGrams(prompt, answer, ends));
   }
 
   // Pass 1 made every exact, near and exact-answer finding, and counted the
@@ -120,14 +123,16 @@ class LeakageStage : public Stage {
     for (uint32_t i = 0; i < ag; ++i) adf[i] = answer_df_[i].load();
     index_->SetTrainingFrequencies(std::move(pdf), records, std::move(adf), answer_docs_.load());
     for (size_t r = 0; r < records && r < grams_.size(); ++r) {
-      RecordGrams& g = grams_[r];
-      auto& fs = findings_[r];
+      if (!grams_.Has(r)) continue;  // no informative gram: no n-gram or answer finding
+      const RecordGrams& g = grams_[r];
       LeakFinding f;
       if (!g.prompt().empty() && index_->MatchPromptGrams(g.prompt(), &f)) {
         // After exact (detector order: exact, ngram, near, answer).
-        auto at = std::find_if(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector != LeakDetector::kExact; });
-        fs.insert(at, std::move(f));
+        auto& mine = findings_.Mutable(r);
+        auto at = std::find_if(mine.begin(), mine.end(), [](const LeakFinding& x) { return x.detector != LeakDetector::kExact; });
+        mine.insert(at, std::move(f));
       }
+      const auto& fs = findings_[r];
       const bool have_answer = std::any_of(fs.begin(), fs.end(), [](const LeakFinding& x) { return x.detector == LeakDetector::kAnswer; });
       uint32_t from = 0;
       const auto answer = g.answer();
@@ -136,15 +141,14 @@ class LeakageStage : public Stage {
         if (have_answer) break;
         LeakFinding a;
         if (index_->MatchAnswerGrams(answer.subspan(from, end - from), static_cast<int>(cand), &a)) {
-          fs.push_back(std::move(a));
+          findings_.Mutable(r).push_back(std::move(a));
           break;
         }
         from = end;
       }
-      g = RecordGrams();
+      grams_.Reset(r);
     }
     grams_.clear();
-    grams_.shrink_to_fit();
   }
 
   Json FindingJson(const LeakFinding& f) const {
@@ -342,10 +346,10 @@ class LeakageStage : public Stage {
     }
     std::vector<uint32_t> data_;
   };
-  std::vector<RecordGrams> grams_;
+  SparseRows<RecordGrams> grams_;  // only records holding an informative gram
   std::unique_ptr<std::atomic<uint32_t>[]> prompt_df_, answer_df_;
   std::atomic<uint64_t> answer_docs_{0};
-  std::vector<std::vector<LeakFinding>> findings_;
+  SparseRows<std::vector<LeakFinding>> findings_;  // only records with a finding
   std::unique_ptr<Json> template_json_;  // made at the end of Decide, before the tables are freed
   std::vector<size_t> contaminated_;
   std::vector<std::string> actions_;
@@ -418,7 +422,7 @@ void LeakageStage::SaveObserved(StateWriter& out) const {
       out.Str(f.span);
     }
     const RecordGrams empty;
-    const RecordGrams& g = r < grams_.size() ? grams_[r] : empty;
+    const RecordGrams& g = r < grams_.size() ? grams_[r] : empty;  // (grams_[r] is empty for a record without)
     out.Vec(std::vector<uint32_t>(g.prompt().begin(), g.prompt().end()));
     out.Vec(std::vector<uint32_t>(g.answer().begin(), g.answer().end()));
     out.Vec(std::vector<uint32_t>(g.ends().begin(), g.ends().end()));
@@ -438,8 +442,8 @@ Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
   findings_.resize(first + n);
   grams_.resize(first + n);
   for (size_t r = first; r < first + n && in.ok(); ++r) {
-    findings_[r].resize(in.Count(33));
-    for (LeakFinding& f : findings_[r]) {
+    std::vector<LeakFinding> found(in.Count(33));
+    for (LeakFinding& f : found) {
       const uint8_t d = in.U8();
       if (d >= kLeakDetectors) in.Fail("a detector code out of range");
       f.detector = static_cast<LeakDetector>(d);
@@ -474,7 +478,16 @@ Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
       if (id >= ag && in.ok()) in.Fail("an answer gram id out of range");
     }
     if (ends.size() % 2 != 0) ends.pop_back();
-    grams_[r] = RecordGrams(prompt, answer, ends);
+    if (found.empty()) {
+      findings_.Reset(r);
+    } else {
+      findings_.Set(r, std::move(found));
+    }
+    if (prompt.empty() && answer.empty()) {
+      grams_.Reset(r);
+    } else {
+      grams_.Set(r, RecordGrams(prompt, answer, ends));
+    }
   }
   return Status::Ok();
 }

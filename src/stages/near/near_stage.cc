@@ -13,6 +13,7 @@
 #include "io/output_dir.h"
 #include "stages/facts.h"
 #include "stages/prior_join.h"
+#include "stages/sparse_rows.h"
 #include "stages/split/split_stage.h"
 #include "sketch/clusters.h"
 #include "sketch/key_sketch.h"
@@ -273,14 +274,16 @@ class NearDupsStage : public Stage {
     if (s_.cand_action == CandidateAction::kOff || rec.candidates.size() < 2) return;
     CandidateSets sets(text.candidates, s_.mode, s_.cand_n, shingle_.seed);
     const size_t b = std::min<size_t>(text.candidates.size(), 65535);
+    std::vector<CandidatePair> found;
     for (size_t a = 0; a < b; ++a) {
       for (size_t c = a + 1; c < b; ++c) {
         float sim = sets.Similarity(a, c);
         if (sim >= s_.cand_threshold) {
-          cand_pairs_[i].push_back(CandidatePair{static_cast<uint16_t>(a), static_cast<uint16_t>(c), sim});
+          found.push_back(CandidatePair{static_cast<uint16_t>(a), static_cast<uint16_t>(c), sim});
         }
       }
     }
+    if (!found.empty()) cand_pairs_.Set(i, std::move(found));
   }
 
   void SaveObserved(StateWriter& out) const override;
@@ -576,7 +579,7 @@ class NearDupsStage : public Stage {
   std::vector<int64_t> cluster_of_;                   // per record: its cluster id (smallest member), -1 = none
   std::vector<uint8_t> chars_mode_;                  // 1 = code-point shingles
   std::vector<std::vector<uint64_t>> sets_;          // "verify": "exact" only
-  std::vector<std::vector<CandidatePair>> cand_pairs_;
+  SparseRows<std::vector<CandidatePair>> cand_pairs_;  // only records with a pair
   // Decide.
   std::vector<ClusterOut> clusters_;
   std::vector<size_t> flagged_;
@@ -721,7 +724,7 @@ void NearDupsStage::SaveObserved(StateWriter& out) const {
   }
   out.U8(s_.cand_action != CandidateAction::kOff);
   if (s_.cand_action != CandidateAction::kOff) {
-    for (const auto& pairs : cand_pairs_) out.Vec(pairs);
+    for (size_t i = 0; i < cand_pairs_.size(); ++i) out.Vec(cand_pairs_[i]);
   }
 }
 
@@ -746,7 +749,16 @@ Status NearDupsStage::AppendObserved(StateReader& in, size_t first) {
   if (in.U8() != uint8_t{cand}) in.Fail("made with another \"candidates\" setting");
   if (cand) {
     cand_pairs_.resize(first + n);
-    for (size_t i = first; i < first + n && in.ok(); ++i) in.Vec(&cand_pairs_[i]);
+    std::vector<CandidatePair> pairs;
+    for (size_t i = first; i < first + n && in.ok(); ++i) {
+      pairs.clear();
+      in.Vec(&pairs);
+      if (pairs.empty()) {
+        cand_pairs_.Reset(i);
+      } else {
+        cand_pairs_.Set(i, pairs);
+      }
+    }
   }
   return Status::Ok();
 }

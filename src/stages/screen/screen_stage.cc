@@ -22,6 +22,7 @@
 #include "screen/actions.h"
 #include "screen/rules.h"
 #include "screen/screener.h"
+#include "stages/sparse_rows.h"
 
 namespace prefsift {
 namespace {
@@ -134,7 +135,14 @@ class PersonalDataStage : public Stage {
   }
 
   void Observe(size_t record, const Record& rec, const RecordFacts&, const MatchText&) override {
-    RecordHits& out = per_record_[record];
+    RecordHits out;
+    ScanRecord(record, rec, &out);
+    if (!out.hits.empty() || out.drop || out.rewrite) per_record_.Set(record, std::move(out));
+  }
+
+  // Every screened text of `rec` into *out (stops at the first scan error).
+  void ScanRecord(size_t record, const Record& rec, RecordHits* out_hits) {
+    RecordHits& out = *out_hits;
     auto scan = [&](std::string_view text, Part part, uint32_t index, const std::string* meta_pointer) -> bool {
       FieldKind kind = KindOf(part);
       if (!settings_.fields[static_cast<int>(kind)]) return true;
@@ -386,7 +394,7 @@ class PersonalDataStage : public Stage {
   screen::Screener screener_;
   std::unique_ptr<screen::PseudonymKey> key_;
   std::map<std::string, uint32_t> rule_index_;
-  std::vector<RecordHits> per_record_;
+  SparseRows<RecordHits> per_record_;  // only records with a finding
   std::atomic<uint64_t> texts_{0};
   std::mutex error_mu_;
   size_t error_record_ = SIZE_MAX;
@@ -672,7 +680,8 @@ void PersonalDataStage::SaveObserved(StateWriter& out) const {
     out.Str(error_.message());
   }
   out.U64(per_record_.size());
-  for (const RecordHits& r : per_record_) {
+  for (size_t i = 0; i < per_record_.size(); ++i) {
+    const RecordHits& r = per_record_[i];
     out.U8(static_cast<uint8_t>((r.drop ? 1 : 0) | (r.rewrite ? 2 : 0)));
     out.U64(r.hits.size());
     for (const Hit& h : r.hits) {
@@ -700,7 +709,7 @@ Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
   const uint64_t n = in.Count(9);
   per_record_.resize(first + n);
   for (size_t i = first; i < first + n && in.ok(); ++i) {
-    RecordHits& r = per_record_[i];
+    RecordHits r;
     const uint8_t flags = in.U8();
     r.drop = (flags & 1) != 0;
     r.rewrite = (flags & 2) != 0;
@@ -721,6 +730,11 @@ Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
       h.text_hash = in.U64();
       h.meta_pointer = in.Str();
       h.preview = in.Str();
+    }
+    if (r.hits.empty() && !r.drop && !r.rewrite) {
+      per_record_.Reset(i);
+    } else {
+      per_record_.Set(i, std::move(r));
     }
   }
   return Status::Ok();
@@ -759,7 +773,8 @@ void PersonalDataStage::SaveRewrites(StateWriter& out, size_t first, size_t coun
 }
 
 Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
-  per_record_.assign(count, RecordHits());
+  per_record_.clear();
+  per_record_.resize(count);
   const uint64_t n = in.Count(17);
   for (uint64_t k = 0; k < n && in.ok(); ++k) {
     const uint64_t r = in.U64();
@@ -767,7 +782,7 @@ Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
       in.Fail("a record out of range");
       break;
     }
-    RecordHits& h = per_record_[r];
+    RecordHits& h = per_record_.Mutable(r);
     h.rewrite = true;
     h.drop = in.U8() != 0;
     h.hits.resize(in.Count(34));
