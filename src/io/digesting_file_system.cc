@@ -5,61 +5,68 @@
 
 namespace prefsift {
 
+// The SHA-256 and size of the bytes seen so far, recorded with the owner
+// for one path when the file is done.
+class RunningDigest {
+ public:
+  RunningDigest(DigestingFileSystem* owner, std::string path) : owner_(owner), path_(std::move(path)) {}
+  void Add(std::string_view bytes) {
+    hash_.Update(bytes);
+    bytes_ += bytes.size();
+  }
+  void Record() { owner_->Record(path_, FileDigest{hash_.HexDigest(), bytes_}); }
+
+ private:
+  DigestingFileSystem* owner_;
+  std::string path_;
+  Sha256 hash_;
+  uint64_t bytes_ = 0;
+};
+
 class DigestingFile : public ReadableFile {
  public:
   DigestingFile(std::unique_ptr<ReadableFile> base, DigestingFileSystem* owner, std::string path)
-      : base_(std::move(base)), owner_(owner), path_(std::move(path)) {}
+      : base_(std::move(base)), digest_(owner, std::move(path)) {}
 
   Result<size_t> Read(char* buf, size_t n) override {
     auto got = base_->Read(buf, n);
     if (!got.ok() || done_) return got;
     if (got.value() == 0) {
       done_ = true;
-      owner_->Record(path_, FileDigest{hash_.HexDigest(), bytes_});
+      digest_.Record();
       return got;
     }
-    hash_.Update(std::string_view(buf, got.value()));
-    bytes_ += got.value();
+    digest_.Add(std::string_view(buf, got.value()));
     return got;
   }
 
  private:
   std::unique_ptr<ReadableFile> base_;
-  DigestingFileSystem* owner_;
-  std::string path_;
-  Sha256 hash_;
-  uint64_t bytes_ = 0;
+  RunningDigest digest_;
   bool done_ = false;
 };
 
 class DigestingWritableFile : public WritableFile {
  public:
   DigestingWritableFile(std::unique_ptr<WritableFile> base, DigestingFileSystem* owner, std::string path)
-      : base_(std::move(base)), owner_(owner), path_(std::move(path)) {}
+      : base_(std::move(base)), digest_(owner, std::move(path)) {}
 
   Status Append(std::string_view bytes) override {
     Status s = base_->Append(bytes);
-    if (s.ok()) {
-      hash_.Update(bytes);
-      bytes_ += bytes.size();
-    } else {
-      failed_ = true;
-    }
+    if (s.ok()) digest_.Add(bytes);
+    else failed_ = true;
     return s;
   }
   Status Close() override {
     Status s = base_->Close();
-    if (s.ok() && !failed_ && !closed_) owner_->Record(path_, FileDigest{hash_.HexDigest(), bytes_});
+    if (s.ok() && !failed_ && !closed_) digest_.Record();
     closed_ = true;
     return s;
   }
 
  private:
   std::unique_ptr<WritableFile> base_;
-  DigestingFileSystem* owner_;
-  std::string path_;
-  Sha256 hash_;
-  uint64_t bytes_ = 0;
+  RunningDigest digest_;
   bool failed_ = false, closed_ = false;
 };
 

@@ -42,8 +42,7 @@ class DigestingFileSystem : public FileSystem {
   Result<std::vector<std::string>> List(const std::string& dir) override { return base_->List(dir); }
 
  private:
-  friend class DigestingFile;
-  friend class DigestingWritableFile;
+  friend class RunningDigest;
   void Record(const std::string& path, FileDigest d);
   void Forget(const std::string& path);
   // Digests of `path` and of paths inside it, removed from the map.
