@@ -151,15 +151,15 @@ bool StagesRewrite(const std::vector<std::unique_ptr<Stage>>& stages, const Entr
   return false;
 }
 
-// The line as written for entry `entry` (`raw` as read): rewritten by the
-// stages that change its record (kept or rejected, only the changed form is
+// The line as written for entry `entry` (`raw` as read): when `rewrite`
+// (StagesRewrite), rewritten by the stages that change its record (kept or rejected, only the changed form is
 // written), then, when rejected, wrapped in its rejects.jsonl line.
 Status BuildLine(const Plan& plan, const RunState& st, const std::vector<std::unique_ptr<Stage>>& stages,
-                 size_t entry, std::string_view raw, std::string* out) {
+                 size_t entry, bool rewrite, std::string_view raw, std::string* out) {
   const Entry& e = st.entries[entry];
   const Decision& d = st.decisions[entry];
   std::string rewritten;
-  if (StagesRewrite(stages, e)) {
+  if (rewrite) {
     const size_t r = static_cast<size_t>(e.record);
     // simdjson accepted this line in pass 1; parse without exceptions so a
     // disagreement between the two parsers is an error value, never an abort.
@@ -193,20 +193,26 @@ class ApplyFiles {
         by_place_.push_back(f.value());
       }
     }
+    kept_.assign(by_place_.size(), 0);
     auto r = File("rejects.jsonl", out);
     if (!r.ok()) return r.status();
     rejects_ = r.value();
     return Status::Ok();
   }
-  // Index of the file a kept line of input `in` in split `split` goes to.
+  // Index of the file a kept line of input `in` in split `split` goes to
+  // (places of several inputs can share a file).
   size_t Place(uint32_t in, uint32_t split) const { return in * splits_ + split; }
   WritableFile* At(size_t place) const { return by_place_[place]; }
   WritableFile* rejects() const { return rejects_; }
-  // Lines written per file, added to *written by file name.
-  void Count(WritableFile* f, uint64_t lines) { lines_[f] += lines; }
+  // One more line written at `place`, or to rejects.jsonl.
+  void CountKept(size_t place) { ++kept_[place]; }
+  void CountRejected() { ++rejected_; }
+  // Closes every file; lines written per file name are added to *written.
   Status Close(std::map<std::string, uint64_t>* written) {
+    std::map<const WritableFile*, uint64_t> lines{{rejects_, rejected_}};
+    for (size_t p = 0; p < by_place_.size(); ++p) lines[by_place_[p]] += kept_[p];
     for (auto& [name, f] : files_) {
-      (*written)[name] += lines_[f.get()];
+      (*written)[name] += lines[f.get()];
       Status s = f->Close();
       if (!s.ok()) return s;
     }
@@ -225,7 +231,8 @@ class ApplyFiles {
   std::vector<WritableFile*> by_place_;
   WritableFile* rejects_ = nullptr;
   size_t splits_ = 1;
-  std::map<WritableFile*, uint64_t> lines_;
+  std::vector<uint64_t> kept_;  // lines written per place
+  uint64_t rejected_ = 0;
 };
 
 // Builds the changed lines of one chunk on the pool; the first error in
@@ -234,14 +241,18 @@ Status BuildChunk(const Plan& plan, const RunState& st, const std::vector<std::u
                   const ApplyChunk& c, ThreadPool& pool, std::vector<size_t>* todo,
                   std::vector<std::string>* made) {
   todo->clear();
+  std::vector<uint8_t> rewrite;  // per todo line: a stage rewrites its record
   for (size_t k = 0; k < c.size(); ++k) {
-    if (st.decisions[c.entries[k]].rejected || StagesRewrite(stages, st.entries[c.entries[k]])) todo->push_back(k);
+    const bool r = StagesRewrite(stages, st.entries[c.entries[k]]);
+    if (!r && !st.decisions[c.entries[k]].rejected) continue;
+    todo->push_back(k);
+    rewrite.push_back(r);
   }
   made->resize(todo->size());
   std::vector<Status> errors(todo->size(), Status::Ok());
   pool.ParallelFor(todo->size(), [&](size_t j, unsigned) {
     const size_t k = (*todo)[j];
-    errors[j] = BuildLine(plan, st, stages, c.entries[k], c.line(k), &(*made)[j]);
+    errors[j] = BuildLine(plan, st, stages, c.entries[k], rewrite[j] != 0, c.line(k), &(*made)[j]);
   });
   for (const Status& s : errors) {
     if (!s.ok()) return s;
@@ -258,13 +269,14 @@ Status WriteChunk(const RunState& st, uint32_t in, const ApplyChunk& c, const st
     const bool changed = j < todo.size() && todo[j] == k;
     if (d.rejected) {
       if (Status s = writer.Append(files.rejects(), made[j]); !s.ok()) return s;
-      files.Count(files.rejects(), 1);
+      files.CountRejected();
     } else {
-      WritableFile* f = files.At(files.Place(in, d.split));
+      const size_t place = files.Place(in, d.split);
+      WritableFile* f = files.At(place);
       Status s = writer.Append(f, changed ? std::string_view(made[j]) : c.line(k));
       if (s.ok()) s = writer.Append(f, "\n");
       if (!s.ok()) return s;
-      files.Count(f, 1);
+      files.CountKept(place);
     }
     j += changed;
   }

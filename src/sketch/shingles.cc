@@ -125,6 +125,13 @@ void ForEachAsciiWord(std::string_view text, F&& f) {
   // Per block: letters, digits, the rest of a word's bytes ('_'), joiners.
   thread_local std::vector<uint64_t> letter, digit, under, mid_l, mid_n;
   for (auto* v : {&letter, &digit, &under, &mid_l, &mid_n}) v->assign(blocks + 1, 0);  // one zero block after
+  auto store = [&](size_t at, uint64_t l, uint64_t d, uint64_t u, uint64_t ml, uint64_t mn) {
+    letter[at] = l;
+    digit[at] = d;
+    under[at] = u;
+    mid_l[at] = ml;
+    mid_n[at] = mn;
+  };
   size_t w = 0;
 #if defined(__SSE2__)
   // Whole blocks of 64 bytes: 16 bytes a step, a compare and a movemask per
@@ -146,11 +153,7 @@ void ForEachAsciiWord(std::string_view text, F&& f) {
       ml |= bits(_mm_or_si128(mid_num_let, eq(':')));
       mn |= bits(_mm_or_si128(mid_num_let, _mm_or_si128(eq(','), eq(';'))));
     }
-    letter[w] = l;
-    digit[w] = d;
-    under[w] = u;
-    mid_l[w] = ml;
-    mid_n[w] = mn;
+    store(w, l, d, u, ml, mn);
   }
 #endif
   for (; w < blocks; ++w) {
@@ -165,11 +168,7 @@ void ForEachAsciiWord(std::string_view text, F&& f) {
       ml |= ((c >> 3) & 1) << k;
       mn |= ((c >> 4) & 1) << k;
     }
-    letter[w] = l;
-    digit[w] = d;
-    under[w] = u;
-    mid_l[w] = ml;
-    mid_n[w] = mn;
+    store(w, l, d, u, ml, mn);
   }
   // Bit p of before(x) is bit p - 1 of x; of after(x), bit p + 1.
   auto before = [](const std::vector<uint64_t>& x, size_t w) { return x[w] << 1 | (w ? x[w - 1] >> 63 : 0); };

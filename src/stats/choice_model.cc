@@ -312,12 +312,11 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     scaled = RescaledRows(raw, subset, scale);
     features = scaled.get();
   }
-  const ChoiceData* data = &raw;
   const double l2 = options.l2;
   const size_t count = subset ? subset->size() : raw.size();
 
   std::vector<double> w(d, 0.0);
-  ChoiceObjective cur = Evaluate(*data, features, subset, w, l2, true);
+  ChoiceObjective cur = Evaluate(raw, features, subset, w, l2, true);
   const Matrix h_zero = cur.hessian;
   double trace0 = 0.0;
   for (size_t f = 0; f < d; ++f) trace0 += h_zero[f * d + f];
@@ -354,7 +353,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
       // Quadratic regime: the predicted drop is below what the objective can
       // resolve, so take the full Newton step without a line search.
       for (size_t f = 0; f < d; ++f) w[f] += step[f];
-      cur = Evaluate(*data, features, subset, w, l2, true);
+      cur = Evaluate(raw, features, subset, w, l2, true);
       if (0.5 * decrement <= options.tolerance * floor_value) {
         stopped_converged = true;
         ++it;
@@ -368,7 +367,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     bool moved = false;
     for (int half = 0; half < 60; ++half) {
       for (size_t f = 0; f < d; ++f) trial[f] = w[f] + t * step[f];
-      if (NllOnly(*data, features, subset, trial, l2) <= cur.value - 1e-4 * t * decrement) {
+      if (NllOnly(raw, features, subset, trial, l2) <= cur.value - 1e-4 * t * decrement) {
         moved = true;
         break;
       }
@@ -376,7 +375,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     }
     if (!moved) break;  // no decrease possible: reported as not converged
     w = trial;
-    cur = Evaluate(*data, features, subset, w, l2, true);
+    cur = Evaluate(raw, features, subset, w, l2, true);
     if (l2 == 0.0 && cur.value <= 1e-10 * static_cast<double>(count)) {
       separated_early = true;  // every chosen candidate already has P > 1 - 1e-10
       ++it;
@@ -399,7 +398,7 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
                                                : ChoiceFitOutcome::kMaxIterations;
   if (separated_early) outcome = ChoiceFitOutcome::kSeparated;
   if (l2 == 0.0) {
-    const ChoiceFitOutcome diag = Diagnose(*data, features, subset, cur.hessian, h_zero);
+    const ChoiceFitOutcome diag = Diagnose(raw, features, subset, cur.hessian, h_zero);
     if (diag != ChoiceFitOutcome::kConverged) outcome = diag;
   }
   if (outcome == ChoiceFitOutcome::kConverged) {
