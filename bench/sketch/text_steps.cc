@@ -1,8 +1,12 @@
 // text_steps: single-thread throughput of the per-text steps pass 1 runs on
 // every prompt and candidate (docs/performance.md): matching normalisation,
-// word segmentation (counting words), word 3-gram shingles (the near stage's
-// candidate check) and word 5-gram shingles with a 256-slot MinHash signature
-// (the near stage's prompt signature).
+// word segmentation (counting words), word 3-gram shingles (XXH3, as before
+// the candidate check had its own keys), word 3-gram keys (the near stage's
+// candidate check, AppendWordGramKeys) and word 5-gram shingles with a
+// 256-slot MinHash signature (the near stage's prompt signature); and the
+// byte scans of the bias stage's surface features and of the record facts
+// (code points, words), each beside its plain byte-loop reference
+// (docs/performance.md, "Vectorised scans").
 //
 // Usage: text_steps PREFS.jsonl [RECORDS=20000]
 // Reads "prompt" (a string) and "candidates" (strings) of the first RECORDS
@@ -20,6 +24,8 @@
 #include "core/normalize.h"
 #include "sketch/minhash.h"
 #include "sketch/shingles.h"
+#include "stages/facts.h"
+#include "stats/surface_features.h"
 
 namespace {
 
@@ -79,6 +85,13 @@ int main(int argc, char** argv) {
                   sink += grams.size();
                 }
               }));
+  std::printf("word 3-gram keys (cand.) %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) {
+                  grams.clear();
+                  prefsift::sketch::AppendWordGramKeys(t, 3, &grams);
+                  sink += grams.size();
+                }
+              }));
   prefsift::sketch::ShingleOptions w5;
   prefsift::sketch::MinHashParams mh;
   mh.num_slots = 256;
@@ -90,6 +103,24 @@ int main(int argc, char** argv) {
                   prefsift::sketch::Sign(grams, mh, sig);
                   sink += sig[0] & 1;
                 }
+              }));
+  auto features = [&](auto compute) {
+    for (const auto& t : texts) {
+      const prefsift::stats::SurfaceFeatures f = compute(t);
+      sink += f.words + f.code_points + f.list_items + f.has_refusal + f.has_url;
+    }
+  };
+  std::printf("surface features, ref   %7.0f MB/s\n", BestMBps(bytes, [&] {
+                features([](std::string_view t) { return prefsift::stats::ComputeSurfaceFeaturesReference(t); });
+              }));
+  std::printf("surface features        %7.0f MB/s\n", BestMBps(bytes, [&] {
+                features([](std::string_view t) { return prefsift::stats::ComputeSurfaceFeatures(t); });
+              }));
+  std::printf("facts counts, ref       %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) sink += prefsift::CountCodePointsReference(t) + prefsift::CountWordsReference(t);
+              }));
+  std::printf("facts counts            %7.0f MB/s\n", BestMBps(bytes, [&] {
+                for (const auto& t : texts) sink += prefsift::CountCodePoints(t) + prefsift::CountWords(t);
               }));
   std::printf("(checksum %zu)\n", sink);
   return 0;

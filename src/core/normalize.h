@@ -26,6 +26,9 @@ struct NormalizeOptions {
 };
 
 std::string NormalizeForMatch(std::string_view text, const NormalizeOptions& options = {});
+// The same text into *out, reusing its buffer (no allocation when it is
+// large enough). REQUIRES: out does not alias text.
+void NormalizeForMatchInto(std::string_view text, const NormalizeOptions& options, std::string* out);
 
 // Step 1 only, without case folding (NFKC as defined by UAX #15); exposed for
 // the conformance test against the Unicode Consortium's NormalizationTest.txt.

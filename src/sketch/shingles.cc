@@ -5,11 +5,14 @@
 
 #include <algorithm>
 #include <array>
+#include <bit>
 #include <cstring>
 
 #if defined(__SSE2__)
 #include <emmintrin.h>
 #endif
+
+#include "sketch/mix.h"
 
 #define XXH_INLINE_ALL
 #include <xxhash.h>
@@ -322,6 +325,25 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
   }
 }
 
+// A word's key. Words of up to 7 bytes (most of them) are packed with their
+// length into one 64-bit value, which the bijective Mix spreads: two such
+// words never share a key. Longer words: XXH3 (seedless; these keys only meet
+// each other).
+inline uint64_t WordKey(std::string_view text, size_t start, size_t end) {
+  const size_t len = end - start;
+  if (len < 8) {
+    uint64_t v = 0;
+    if (std::endian::native == std::endian::little && start + 8 <= text.size()) {
+      std::memcpy(&v, text.data() + start, 8);
+      v &= (uint64_t{1} << (8 * len)) - 1;  // the word's bytes, as the memcpy below would place them
+    } else {
+      std::memcpy(&v, text.data() + start, len);
+    }
+    return Mix(v | (static_cast<uint64_t>(len) << 56));
+  }
+  return XXH3_64bits(text.data() + start, len);
+}
+
 void AppendCharShingles(std::string_view text, int n, uint64_t seed,
                         std::vector<uint64_t>* out) {
   thread_local std::vector<uint32_t> cps;
@@ -350,6 +372,28 @@ void SortUnique(std::vector<uint64_t>* v) {
 }
 
 }  // namespace
+
+void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out) {
+  thread_local std::vector<uint64_t> words;
+  words.clear();
+  ForEachWord(text, [&](size_t start, size_t end) { words.push_back(WordKey(text, start, end)); });
+  // An n-gram's key: its words' keys chained by multiply-rotate, then Mix.
+  const auto chain = [](const uint64_t* w, size_t count) {
+    uint64_t h = kGramSeedTweak;
+    for (size_t j = 0; j < count; ++j) h = std::rotl(h * 0x9e3779b97f4a7c15ULL, 27) ^ w[j];
+    return Mix(h ^ count);
+  };
+  const size_t un = static_cast<size_t>(n);
+  if (words.size() < un) {  // fewer than n words (including none): the whole text is one shingle
+    out->push_back(chain(words.data(), words.size()));
+    return;
+  }
+  const size_t count = words.size() - un + 1;
+  const size_t at = out->size();
+  out->resize(at + count);
+  uint64_t* dst = out->data() + at;
+  for (size_t k = 0; k < count; ++k) dst[k] = chain(words.data() + k, un);
+}
 
 WordClass WordClassOf(char32_t cp) {
   if (cp < 0x80) {

@@ -94,6 +94,17 @@ std::vector<uint64_t> WordNgramHashes(std::string_view text, int n, uint64_t see
 // REQUIRES: n >= 1.
 std::vector<uint64_t> CharNgramHashes(std::string_view text, int n, uint64_t seed);
 
+// Keys of the word n-grams of `text`, appended to *out in text order
+// (duplicates included), for comparing sets of n-grams within one run only
+// (the near stage's near-identical candidates): the same words and n-grams as
+// word mode of AppendShingles, but keyed by a cheaper mix than XXH3, so the
+// keys are not AppendShingles' hashes and must never be compared with them or
+// stored. Distinct n-grams share a key with chance about 2^-64 a pair, as
+// with XXH3; set sizes and intersections, and so Jaccard similarities, are the
+// same as over AppendShingles' hashes but for such a coincidence. A text with
+// fewer than n words is one shingle, as there. REQUIRES: n >= 1.
+void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out);
+
 // Appends the hash of every shingle of `text` to *out in text order,
 // duplicates included (no sort). The signer uses this to avoid building a set.
 // REQUIRES: as Shingles; out != nullptr.

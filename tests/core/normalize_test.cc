@@ -158,5 +158,35 @@ TEST(Utf8, RejectsOverlongSurrogatesAndTruncation) {
   EXPECT_FALSE(IsValidUtf8("\xFF"));
 }
 
+// The ASCII test runs 64 bytes a step: one non-ASCII letter at any place of
+// a text must still take the Unicode path. U+00C9 case-folds to U+00E9
+// (Unicode CaseFolding.txt, "00C9; C; 00E9"), which the ASCII path would not do.
+TEST(NormalizeForMatch, OneNonAsciiLetterAnywhereTakesTheUnicodePath) {
+  for (size_t at = 0; at < 200; ++at) {
+    const std::string text = std::string(at, 'A') + "\xC3\x89" + std::string(at % 70, 'B');
+    const std::string want = std::string(at, 'a') + "\xC3\xA9" + std::string(at % 70, 'b');
+    ASSERT_EQ(NormalizeForMatch(text), want) << at;
+  }
+}
+
+// NormalizeForMatchInto gives NormalizeForMatch's bytes whatever the buffer
+// held before (longer, shorter, empty), for both options.
+TEST(NormalizeForMatch, IntoAReusedBufferGivesTheSameText) {
+  const std::vector<std::string> texts = {
+      "", "  Hello,   WORLD!\t", "plain text", std::string(300, 'X') + " y", "Caf\xC3\xA9 \xE2\x80\x9Cquoted\xE2\x80\x9D",
+      "a\n\nb", "ALL  CAPS  --  dash", "\xEF\xBC\xA1\xEF\xBC\xA2"};
+  for (bool strip : {false, true}) {
+    NormalizeOptions o;
+    o.strip_punctuation = strip;
+    std::string buffer = std::string(1000, 'z');
+    for (int round = 0; round < 2; ++round) {
+      for (const std::string& t : texts) {
+        NormalizeForMatchInto(t, o, &buffer);
+        ASSERT_EQ(buffer, NormalizeForMatch(t, o)) << t;
+      }
+    }
+  }
+}
+
 }  // namespace
 }  // namespace prefsift

@@ -278,5 +278,51 @@ TEST(Shingles, NgramSizeIsAParameter) {
   EXPECT_NE(WordNgramHashes(text, 13, 1), WordNgramHashes(text, 13, 2));  // seed matters
 }
 
+// AppendWordGramKeys (the near-identical candidate check's cheaper keys) must
+// make the same sets as AppendShingles' word mode: across a pool of texts,
+// two n-grams share a key exactly when they share an XXH3 shingle hash (the
+// reference), so every set size and intersection, and so every Jaccard, is
+// the same. Words of 1-20 bytes (both sides of the 7/8-byte packing edge),
+// repeats, non-ASCII words, texts shorter than n words, the empty text, and
+// words at the very end of the buffer (no 8 readable bytes after them).
+TEST(Shingles, GramKeysPartitionNgramsLikeTheHashes) {
+  std::mt19937 rng(20261204);
+  const std::vector<std::string> vocab = {"a", "ab", "abc", "abcdefg", "abcdefgh", "abcdefghi", "abcdefghijklmnop",
+                                          "abcdefghijklmnopqrst", "b", "ba", "gfedcba", "hgfedcba", "x1", "x_1",
+                                          "don't", "3.5", "\xC3\xA9t\xC3\xA9", "na\xC3\xAFve", "zz", "zzzzzzz"};
+  for (int n : {1, 2, 3, 5}) {
+    std::vector<std::string> texts;
+    for (int t = 0; t < 400; ++t) {
+      std::string s;
+      const int words = static_cast<int>(rng() % 12);
+      for (int w = 0; w < words; ++w) {
+        if (w) s += rng() % 5 == 0 ? " , " : " ";
+        s += vocab[rng() % vocab.size()];
+      }
+      texts.push_back(s);
+    }
+    texts.push_back("");
+    texts.push_back("!!! ...");
+    ShingleOptions so;
+    so.mode = ShingleMode::kWords;
+    so.word_n = n;
+    std::map<uint64_t, uint64_t> key_of_hash, hash_of_key;
+    for (const std::string& text : texts) {
+      const std::string exact(text);  // its own buffer: the last word ends the allocation's text
+      std::vector<uint64_t> hashes, keys;
+      AppendShingles(exact, so, &hashes);
+      AppendWordGramKeys(exact, n, &keys);
+      ASSERT_EQ(keys.size(), hashes.size()) << "n=" << n << " [" << text << "]";
+      for (size_t i = 0; i < keys.size(); ++i) {
+        auto [h, h_new] = key_of_hash.emplace(hashes[i], keys[i]);
+        auto [k, k_new] = hash_of_key.emplace(keys[i], hashes[i]);
+        ASSERT_EQ(h->second, keys[i]) << "one shingle, two keys: n=" << n << " [" << text << "]";
+        ASSERT_EQ(k->second, hashes[i]) << "two shingles, one key: n=" << n << " [" << text << "]";
+      }
+    }
+    EXPECT_GT(key_of_hash.size(), n == 1 ? 20u : 100u);  // n = 1: the 20 words and the empty text
+  }
+}
+
 }  // namespace
 }  // namespace prefsift::sketch

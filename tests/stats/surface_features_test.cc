@@ -4,9 +4,12 @@
 #include "stats/surface_features.h"
 
 #include <cctype>
+#include <random>
 #include <string>
 
 #include <gtest/gtest.h>
+
+#include "adversarial_text.h"
 
 namespace prefsift::stats {
 namespace {
@@ -78,6 +81,80 @@ TEST(SurfaceFeatures, Urls) {
   EXPECT_TRUE(ComputeSurfaceFeatures("(www.example.net)").has_url);
   EXPECT_FALSE(ComputeSurfaceFeatures("awww.example").has_url);
   EXPECT_FALSE(ComputeSurfaceFeatures("no links here; http is a protocol").has_url);
+}
+
+// Differential tests: the one-pass block scan (ComputeSurfaceFeatures) gives
+// exactly the plain byte loops' features (ComputeSurfaceFeaturesReference,
+// the code before the block scan) on random and adversarial texts. The
+// reference is this project's own; the expected values of the tests above
+// come from the documented definitions.
+void ExpectSameFeatures(std::string_view text) {
+  const SurfaceFeatures fast = ComputeSurfaceFeatures(text);
+  const SurfaceFeatures ref = ComputeSurfaceFeaturesReference(text);
+  ASSERT_EQ(fast.words, ref.words) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.code_points, ref.code_points) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.list_items, ref.list_items) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.has_code_block, ref.has_code_block) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.has_heading, ref.has_heading) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.has_refusal, ref.has_refusal) << ::testing::PrintToString(std::string(text));
+  ASSERT_EQ(fast.has_url, ref.has_url) << ::testing::PrintToString(std::string(text));
+}
+
+TEST(SurfaceFeaturesDifferential, RandomAdversarialTexts) {
+  for (uint64_t seed = 1; seed <= 6; ++seed) {
+    std::mt19937_64 rng(seed);
+    for (size_t n : prefsift::testing::AdversarialLengths()) {
+      // A view of the first n bytes of a longer text: the bytes after the
+      // view's end are real text, so a scan that read past it would differ.
+      const std::string s = prefsift::testing::AdversarialText(rng, n + 24);
+      ExpectSameFeatures(std::string_view(s).substr(0, n));
+    }
+  }
+}
+
+TEST(SurfaceFeaturesDifferential, EveryPrefixEndsMidPattern) {
+  std::mt19937_64 rng(11);
+  for (int t = 0; t < 20; ++t) {
+    const std::string s = prefsift::testing::AdversarialText(rng, 300);
+    for (size_t k = 0; k <= s.size(); ++k) ExpectSameFeatures(std::string_view(s).substr(0, k));
+  }
+  for (const char* piece : {"I'm sorry", "i\xE2\x80\x99m sorry", "https://a", "www.b", "\xE3\x80\x80x"}) {
+    const std::string s = std::string(61, 'x') + " " + piece;
+    for (size_t k = 0; k <= s.size(); ++k) ExpectSameFeatures(std::string_view(s).substr(0, k));
+  }
+}
+
+TEST(SurfaceFeaturesDifferential, PhrasesAtEveryPlaceOfABlock) {
+  for (const char* phrase : RefusalPhrases()) {
+    for (size_t at = 0; at < 140; ++at) {
+      const std::string s = std::string(at, 'x') + " " + phrase + " " + std::string(at % 7, 'y');
+      ExpectSameFeatures(s);
+      ASSERT_TRUE(ComputeSurfaceFeatures(s).has_refusal) << phrase << " at " << at;
+    }
+  }
+  for (const char* url : {"http://h", "HTTPS://h", "www.h"}) {
+    for (size_t at = 0; at < 140; ++at) {
+      const std::string s = std::string(at, 'x') + " " + url;
+      ExpectSameFeatures(s);
+      ASSERT_TRUE(ComputeSurfaceFeatures(s).has_url) << url << " at " << at;
+    }
+  }
+}
+
+TEST(SurfaceFeaturesDifferential, AllByteValuesAndLongLines) {
+  std::string all;
+  for (int rep = 0; rep < 3; ++rep)
+    for (int c = 0; c < 256; ++c) all.push_back(static_cast<char>(c));
+  for (size_t k = 0; k <= all.size(); ++k) ExpectSameFeatures(std::string_view(all).substr(k));
+  std::mt19937_64 rng(12);
+  std::string one_line = prefsift::testing::AdversarialText(rng, 50000);
+  for (char& c : one_line) {
+    if (c == '\n') c = ' ';
+  }
+  ExpectSameFeatures(one_line);
+  ExpectSameFeatures(std::string(5000, ' ') + "word");
+  ExpectSameFeatures(std::string(5000, '\n') + "    code");
+  ExpectSameFeatures(std::string(5000, '\xE3'));
 }
 
 }  // namespace
