@@ -17,8 +17,7 @@ bool RunState::Reject(size_t record, const std::string& stage, const std::string
   Decision& d = DecisionOf(record);
   if (d.rejected) return false;
   d.rejected = true;
-  d.stage = Intern(stage);
-  d.reason = Intern(reason);
+  d.why = InternWhy(stage, reason);
   d.text = static_cast<uint32_t>(reject_texts.size());
   reject_texts.push_back(RejectText{std::move(field), std::move(message), std::move(detail), ""});
   Count(stage, reason);
@@ -29,11 +28,18 @@ void RunState::RejectEntry(size_t entry, const std::string& stage, const std::st
                            std::string message, std::string id) {
   Decision& d = decisions[entry];
   d.rejected = true;
-  d.stage = Intern(stage);
-  d.reason = Intern(reason);
+  d.why = InternWhy(stage, reason);
   d.text = static_cast<uint32_t>(reject_texts.size());
   reject_texts.push_back(RejectText{std::move(field), std::move(message), "", std::move(id)});
   Count(stage, reason);
+}
+
+uint32_t RunState::InternWhy(const std::string& stage, const std::string& reason) {
+  for (uint32_t i = 1; i < whys_.size(); ++i) {
+    if (whys_[i].first == stage && whys_[i].second == reason) return i;
+  }
+  whys_.emplace_back(*names_.insert(stage).first, *names_.insert(reason).first);
+  return static_cast<uint32_t>(whys_.size() - 1);
 }
 
 uint32_t RunState::InternText(std::string_view s) {

@@ -12,6 +12,7 @@
 #include <deque>
 #include <map>
 #include <set>
+#include <span>
 #include <string>
 #include <string_view>
 #include <unordered_map>
@@ -19,7 +20,7 @@
 
 #include "core/hash.h"
 #include "core/plan.h"
-#include "core/small_vector.h"
+#include "core/candidate_store.h"
 
 namespace prefsift {
 
@@ -38,33 +39,40 @@ struct RejectText {
   std::string id;         // for entries that never became records: the id if it was readable
 };
 
-// 48 bytes: one per input line, so kept small (docs/performance.md). stage and
-// reason view strings interned in RunState (stable for the run's life).
+// 16 bytes: one per input line, so kept small (docs/performance.md). The
+// stage that rejected it and the reason code are a pair interned in RunState:
+// RunState::StageOf and RunState::ReasonOf read them ("" when kept).
 struct Decision {
-  bool rejected = false;
-  uint32_t split = 0;     // index into RunState::split_names when kept
+  uint32_t split = 0;          // index into RunState::split_names when kept
   uint32_t text = UINT32_MAX;  // index into RunState::reject_texts when rejected
-  std::string_view stage;      // the stage that rejected it ("" when kept)
-  std::string_view reason;     // reason code (docs/reasons.md)
+  uint32_t why = 0;            // index of the (stage, reason) pair in RunState; 0 = ("", "")
+  bool rejected = false;
 };
 
 // Small, fixed facts about one parsed record; the text itself is not kept.
-// One per record, so kept small (docs/performance.md): the per-candidate facts
-// sit inside the struct for up to 4 candidates, and the annotator, thread,
-// source and group are ids of texts interned in RunState (RunState::Text).
+// One per record, so kept small (docs/performance.md): 96 bytes, plus 32 a
+// candidate in the run's CandidateStore (RunState::KeepCandidates); the
+// annotator, thread, source and group are ids of texts interned in RunState
+// (RunState::Text). A copy views the same candidates.
 struct RecordFacts {
   uint32_t entry = 0;
   int chosen = -1;                              // single best candidate or -1
   std::string id;
   Hash128 prompt_hash;                          // normalised prompt (chat: all turns with roles)
-  SmallVector<Hash128> cand_hashes;             // normalised candidates, file order
-  SmallVector<int> ranks;                       // dense ranks, 1 = best
-  SmallVector<uint32_t> cand_chars, cand_words; // code points and whitespace-separated words
+  std::span<const CandidateFacts> cands;        // file order; in RunState's CandidateStore (or the caller's, before)
   // RunState::Text ids; 0 (= "") when absent. Set in the serial part of Observe.
   uint32_t annotator_id = 0, thread_id = 0, source_id = 0, group_id = 0;
   uint32_t prompt_chars = 0;
   JudgmentShape shape = JudgmentShape::kChoice;
 };
+
+// The candidates' dense ranks, file order.
+inline std::vector<int> RanksOf(const RecordFacts& f) {
+  std::vector<int> ranks;
+  ranks.reserve(f.cands.size());
+  for (const CandidateFacts& c : f.cands) ranks.push_back(c.rank);
+  return ranks;
+}
 
 struct InputStats {
   uint64_t lines = 0, blank_lines = 0, entries = 0, records = 0, kept = 0, rejected = 0;
@@ -92,11 +100,21 @@ class RunState {
   // each distinct text is stored once. Id 0 is "". Intern is not thread-safe
   // (the pipeline calls it in input order); Text is safe for concurrent readers.
   uint32_t InternText(std::string_view s);
+  // Copies a record's candidate facts into the run's store and returns the
+  // kept copy (RecordFacts::cands). Not thread-safe: in input order, like
+  // InternText.
+  std::span<const CandidateFacts> KeepCandidates(std::span<const CandidateFacts> facts) {
+    return candidates_.Keep(facts);
+  }
   const std::string& Text(uint32_t id) const { return texts_[id]; }
   size_t text_count() const { return texts_.size(); }
 
   // The texts of a rejected entry's decision (empty texts for a kept one).
   const RejectText& RejectTextOf(const Decision& d) const;
+  // The stage that rejected the entry and the reason code (docs/reasons.md);
+  // "" for a kept one. The views stay valid for the run's life.
+  std::string_view StageOf(const Decision& d) const { return whys_[d.why].first; }
+  std::string_view ReasonOf(const Decision& d) const { return whys_[d.why].second; }
 
   bool IsKept(size_t record) const { return !decisions[records[record].entry].rejected; }
   Decision& DecisionOf(size_t record) { return decisions[records[record].entry]; }
@@ -116,9 +134,12 @@ class RunState {
 
  private:
   void Count(const std::string& stage, const std::string& reason);
-  std::string_view Intern(const std::string& s) { return *names_.insert(s).first; }
+  uint32_t InternWhy(const std::string& stage, const std::string& reason);
   const Plan& plan_;
+  CandidateStore candidates_;
   std::set<std::string, std::less<>> names_;  // stage and reason names (node-based: views stay valid)
+  // Decision::why: index 0 is ("", ""); views of names_. Few (one per stage and reason), so a linear search.
+  std::vector<std::pair<std::string_view, std::string_view>> whys_{{std::string_view(), std::string_view()}};
   std::vector<std::pair<std::string, std::map<std::string, uint64_t>>> by_stage_;
   std::deque<std::string> texts_{std::string()};  // by id (a deque: growing never moves a text)
   std::unordered_map<std::string_view, uint32_t> text_ids_{{std::string_view(), 0}};  // views of texts_

@@ -67,16 +67,26 @@ void ReadStats(StateReader& r, InputStats* s, InputIngest* g) {
   }
 }
 
-template <typename T>
-void WriteSmall(StateWriter& w, const SmallVector<T>& v) {
-  w.Array(v.data(), v.size());
+// Each candidate fact as its own array (hashes, ranks, code points, words),
+// the state file's layout since before CandidateFacts.
+template <typename T, typename Get>
+void WriteColumn(StateWriter& w, const RecordFacts& f, Get get) {
+  std::vector<T> column;
+  column.reserve(f.cands.size());
+  for (const CandidateFacts& c : f.cands) column.push_back(get(c));
+  w.Vec(column);
 }
 
-template <typename T>
-void ReadSmall(StateReader& r, SmallVector<T>* v) {
-  std::vector<T> tmp;
-  r.Vec(&tmp);
-  *v = tmp;
+template <typename T, typename Set>
+void ReadColumn(StateReader& r, std::vector<CandidateFacts>* cands, bool first, Set set) {
+  std::vector<T> column;
+  r.Vec(&column);
+  if (first) cands->resize(column.size());
+  if (column.size() != cands->size()) {
+    if (r.ok()) r.Fail("a record's candidate facts differ in count");
+    return;
+  }
+  for (size_t i = 0; i < column.size(); ++i) set((*cands)[i], column[i]);
 }
 
 void WriteFacts(StateWriter& w, const RecordFacts& f) {
@@ -85,10 +95,10 @@ void WriteFacts(StateWriter& w, const RecordFacts& f) {
   w.Str(f.id);
   w.U64(f.prompt_hash.hi);
   w.U64(f.prompt_hash.lo);
-  WriteSmall(w, f.cand_hashes);
-  WriteSmall(w, f.ranks);
-  WriteSmall(w, f.cand_chars);
-  WriteSmall(w, f.cand_words);
+  WriteColumn<Hash128>(w, f, [](const CandidateFacts& c) { return c.hash; });
+  WriteColumn<int>(w, f, [](const CandidateFacts& c) { return static_cast<int>(c.rank); });
+  WriteColumn<uint32_t>(w, f, [](const CandidateFacts& c) { return c.chars; });
+  WriteColumn<uint32_t>(w, f, [](const CandidateFacts& c) { return c.words; });
   w.U32(f.annotator_id);
   w.U32(f.thread_id);
   w.U32(f.source_id);
@@ -97,16 +107,18 @@ void WriteFacts(StateWriter& w, const RecordFacts& f) {
   w.U8(static_cast<uint8_t>(f.shape));
 }
 
-void ReadFacts(StateReader& r, RecordFacts* f) {
+void ReadFacts(StateReader& r, RunState& st, RecordFacts* f) {
   f->entry = r.U32();
   f->chosen = static_cast<int>(r.I64());
   f->id = r.Str();
   f->prompt_hash.hi = r.U64();
   f->prompt_hash.lo = r.U64();
-  ReadSmall(r, &f->cand_hashes);
-  ReadSmall(r, &f->ranks);
-  ReadSmall(r, &f->cand_chars);
-  ReadSmall(r, &f->cand_words);
+  thread_local std::vector<CandidateFacts> cands;
+  ReadColumn<Hash128>(r, &cands, true, [](CandidateFacts& c, const Hash128& v) { c.hash = v; });
+  ReadColumn<int>(r, &cands, false, [](CandidateFacts& c, int v) { c.rank = v; });
+  ReadColumn<uint32_t>(r, &cands, false, [](CandidateFacts& c, uint32_t v) { c.chars = v; });
+  ReadColumn<uint32_t>(r, &cands, false, [](CandidateFacts& c, uint32_t v) { c.words = v; });
+  f->cands = st.KeepCandidates(cands);
   f->annotator_id = r.U32();
   f->thread_id = r.U32();
   f->source_id = r.U32();
@@ -247,8 +259,8 @@ Part ReadPart(StateReader& r) {
 
 void WriteReject(StateWriter& w, const RunState& st, const Decision& d) {
   const RejectText& t = st.RejectTextOf(d);
-  w.Str(d.stage);
-  w.Str(d.reason);
+  w.Str(st.StageOf(d));
+  w.Str(st.ReasonOf(d));
   w.Str(t.field);
   w.Str(t.message);
   w.Str(t.detail);
@@ -317,7 +329,7 @@ void ObservedRun::AppendRecords(StateReader& r, const std::vector<uint32_t>& tex
   if (records != with_record) r.Fail("the records do not match the entries");
   for (uint64_t i = 0; i < records && r.ok(); ++i) {
     RecordFacts f;
-    ReadFacts(r, &f);
+    ReadFacts(r, st_, &f);
     uint32_t* ids[] = {&f.annotator_id, &f.thread_id, &f.source_id, &f.group_id};
     for (uint32_t* id : ids) {
       if (*id >= text_id.size()) {

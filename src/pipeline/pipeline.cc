@@ -74,6 +74,7 @@ struct Parsed {
   bool ok = false;
   Record rec;
   RecordFacts facts;
+  std::vector<CandidateFacts> cands;  // facts.cands until KeepRecordFacts
   MatchText text;
   RejectReason why;
 };
@@ -263,6 +264,9 @@ Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStat
 class Pass1Cpu {
  public:
   Pass1Cpu(size_t stages, unsigned workers) : parts_(stages + 1), seconds_(parts_ * workers, 0.0) {}
+  // Records timed together (between two clock reads).
+  static constexpr size_t kBlock = 64;
+  static size_t Blocks(size_t n) { return (n + kBlock - 1) / kBlock; }
   static double Now() {
     timespec t{};
     clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
@@ -287,7 +291,11 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
                ThreadPool& pool, Progress& progress, const Part* part = nullptr,
                std::vector<InputIngest>* ingest = nullptr, Pass1Cpu* cpu = nullptr) {
   st.inputs.resize(plan.inputs.size());
-  std::vector<Parsed> chunk;  // reused from chunk to chunk (buffers keep their capacity)
+  // Two chunks' parsed lines take turns (buffers keep their capacity): while
+  // one chunk's records are observed, the next chunk's lines are parsed, in
+  // the same parallel loop, so the workers meet at one barrier a chunk.
+  std::vector<Parsed> observing, parsing;
+  std::vector<size_t> observing_rec, parsing_rec;  // a line's record index, SIZE_MAX for none
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
     if (part && in != part->input) continue;
     const InputSpec& spec = plan.inputs[in];
@@ -310,6 +318,51 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     // Two chunks' storage take turns.
     RawChunk spare;
     std::future<RawChunk> ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), RawChunk());
+    // The records of `observing` (numbered, facts kept, stages grown), seen
+    // by every stage's Observe; lines of `parsing` (from `raw`) parsed into
+    // records with their facts. One parallel loop does both; the items are
+    // independent (each writes its own line or record).
+    const auto observe_one = [&](size_t i, size_t k) {
+      stages[k]->Observe(observing_rec[i], observing[i].rec, st.records[observing_rec[i]], observing[i].text);
+    };
+    const auto parse_one = [&](const RawChunk& raw, size_t i, unsigned t) {
+      Parsed& p = parsing[i];
+      p.line = raw.line_numbers[i];
+      p.too_long = raw.too_long[i] != 0;
+      p.ok = false;
+      if (p.too_long) return;
+      p.ok = parsers[t]->Read(raw.line(i), spec.name + ":" + std::to_string(p.line), &p.rec, &p.why,
+                              /*padded=*/true);
+      if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text, &p.cands);
+    };
+    const auto observe_and_parse = [&](const RawChunk* raw) {
+      const size_t to_observe = observing_rec.size(), to_parse = raw ? raw->size() : 0, total = to_observe + to_parse;
+      if (!cpu) {
+        pool.ParallelFor(total, [&](size_t i, unsigned t) {
+          if (i >= to_observe) return parse_one(*raw, i - to_observe, t);
+          if (observing_rec[i] == SIZE_MAX) return;
+          for (size_t k = 0; k < stages.size(); ++k) observe_one(i, k);
+        });
+        return;
+      }
+      // --timings: a block of records between two reads of the thread's CPU
+      // clock (a system call), not around every record, so timing does not
+      // slow the run it measures; each stage over the block's records in turn.
+      pool.ParallelFor(Pass1Cpu::Blocks(total), [&](size_t b, unsigned t) {
+        const size_t lo = b * Pass1Cpu::kBlock, hi = std::min(total, lo + Pass1Cpu::kBlock);
+        double t0 = Pass1Cpu::Now();
+        for (size_t k = 0; k < stages.size(); ++k) {
+          for (size_t i = lo; i < std::min(hi, to_observe); ++i) {
+            if (observing_rec[i] != SIZE_MAX) observe_one(i, k);
+          }
+          const double t1 = Pass1Cpu::Now();
+          cpu->Add(t, 1 + k, t1 - t0);
+          t0 = t1;
+        }
+        for (size_t i = std::max(lo, to_observe); i < hi; ++i) parse_one(*raw, i - to_observe, t);
+        cpu->Add(t, 0, Pass1Cpu::Now() - t0);
+      });
+    };
     for (;;) {
       RawChunk raw = ahead.get();
       if (!raw.status.ok()) return raw.status;
@@ -318,23 +371,12 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       stats.lines += raw.lines;
       stats.blank_lines += raw.blank_lines;
       const size_t n = raw.size();
-      chunk.resize(n);
-      pool.ParallelFor(n, [&](size_t i, unsigned t) {
-        Parsed& p = chunk[i];
-        p.line = raw.line_numbers[i];
-        p.too_long = raw.too_long[i] != 0;
-        p.ok = false;
-        if (p.too_long) return;
-        const double t0 = cpu ? Pass1Cpu::Now() : 0;
-        p.ok = parsers[t]->Read(raw.line(i), spec.name + ":" + std::to_string(p.line), &p.rec, &p.why,
-                                /*padded=*/true);
-        if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text);
-        if (cpu) cpu->Add(t, 0, Pass1Cpu::Now() - t0);
-      });
-      // Number entries and records in input order.
-      std::vector<size_t> rec_of(n, SIZE_MAX);
+      parsing.resize(n);
+      observe_and_parse(&raw);
+      // Number this chunk's entries and records in input order.
+      parsing_rec.assign(n, SIZE_MAX);
       for (size_t i = 0; i < n; ++i) {
-        Parsed& p = chunk[i];
+        Parsed& p = parsing[i];
         Entry e;
         e.input = in;
         e.line = p.line;
@@ -342,9 +384,9 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         ++stats.entries;
         if (p.ok) {
           e.record = static_cast<int64_t>(st.records.size());
-          rec_of[i] = st.records.size();
+          parsing_rec[i] = st.records.size();
           p.facts.entry = static_cast<uint32_t>(entry_index);
-          InternRecordTexts(p.rec, st, &p.facts);
+          KeepRecordFacts(p.rec, st, &p.facts);
           st.records.push_back(std::move(p.facts));
           ++stats.records;
         }
@@ -367,22 +409,12 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       }
       if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
-      pool.ParallelFor(n, [&](size_t i, unsigned t) {
-        if (rec_of[i] == SIZE_MAX) return;
-        if (!cpu) {
-          for (auto& s : stages) s->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
-          return;
-        }
-        double t0 = Pass1Cpu::Now();
-        for (size_t k = 0; k < stages.size(); ++k) {
-          stages[k]->Observe(rec_of[i], chunk[i].rec, st.records[rec_of[i]], chunk[i].text);
-          const double t1 = Pass1Cpu::Now();
-          cpu->Add(t, 1 + k, t1 - t0);
-          t0 = t1;
-        }
-      });
+      std::swap(observing, parsing);
+      std::swap(observing_rec, parsing_rec);
       progress.Tick(spec.name, stats.lines, raw.bytes_read);
       if (eof) {
+        observe_and_parse(nullptr);  // the last chunk's records
+        observing_rec.clear();       // the next input starts with nothing to observe
         progress.InputDone(raw.bytes_read);
         break;
       }
@@ -411,7 +443,7 @@ RunOutcome CountLedger(RunState& st) {
     InputStats& is = st.inputs[st.entries[i].input];
     if (st.decisions[i].rejected) {
       ++is.rejected;
-      ++is.rejected_by_reason[std::string(st.decisions[i].reason)];
+      ++is.rejected_by_reason[std::string(st.ReasonOf(st.decisions[i]))];
       ++outcome.rejected;
     } else {
       ++is.kept;
@@ -435,7 +467,8 @@ Json RejectExamples(const Plan& plan, const RunState& st) {
   std::set<std::pair<std::string_view, std::string_view>> seen;
   for (size_t i = 0; i < st.entries.size(); ++i) {
     const Decision& d = st.decisions[i];
-    if (!d.rejected || d.stage.empty() || !seen.insert({d.stage, d.reason}).second) continue;
+    const std::string_view stage = st.StageOf(d), reason = st.ReasonOf(d);
+    if (!d.rejected || stage.empty() || !seen.insert({stage, reason}).second) continue;
     const Entry& e = st.entries[i];
     const RejectText& t = st.RejectTextOf(d);
     Json j;  // the texts as rejects.jsonl writes them (invalid UTF-8 replaced)
@@ -444,7 +477,7 @@ Json RejectExamples(const Plan& plan, const RunState& st) {
     j["field"] = t.field;
     j["message"] = t.message;
     j = Json::parse(j.dump(-1, ' ', false, Json::error_handler_t::replace));
-    Json ex{{"stage", std::string(d.stage)}, {"reason", std::string(d.reason)}, {"input", j["input"]}};
+    Json ex{{"stage", std::string(stage)}, {"reason", std::string(reason)}, {"input", j["input"]}};
     ex["line"] = e.line;
     ex["id"] = j["id"];
     if (!t.field.empty()) ex["field"] = j["field"];
@@ -461,8 +494,9 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   j["line"] = e.line;
   const RejectText& t = st.RejectTextOf(d);
   j["id"] = e.record >= 0 ? Json(st.records[e.record].id) : t.id.empty() ? Json(nullptr) : Json(t.id);
-  j["stage"] = d.stage;
-  j["reason"] = d.reason;
+  const std::string_view reason = st.ReasonOf(d);
+  j["stage"] = st.StageOf(d);
+  j["reason"] = reason;
   if (!t.field.empty()) j["field"] = t.field;
   j["message"] = t.message;
   // Every text above comes from the run, but a message or id may quote input
@@ -471,12 +505,12 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
   std::string head = j.dump(-1, ' ', false, Json::error_handler_t::replace);
   head.pop_back();  // reopen the object to append raw JSON without re-serialising it
   if (!t.detail.empty()) head += ",\"detail\":" + t.detail;
-  if (d.reason == "line_too_long") {
+  if (reason == "line_too_long") {
     head += ",\"record_omitted\":\"longer than the line limit; see file and line\"";
   } else if (!IsValidUtf8(raw)) {
     // Not UTF-8 (whatever reason rejected it): the exact bytes, as base64.
     head += ",\"record_base64\":\"" + Base64(raw) + "\"";
-  } else if (e.record >= 0 || (d.reason != "not_json" && d.reason != "json_too_deep" && Json::accept(raw))) {
+  } else if (e.record >= 0 || (reason != "not_json" && reason != "json_too_deep" && Json::accept(raw))) {
     // A parsed record, or a line that is JSON but not a usable record: as it is.
     head += ",\"record\":";
     head.append(raw);

@@ -264,7 +264,7 @@ class StoreCompanion : public RunCompanion {
     records_ = n;
     for (size_t e = 0; e < st.decisions.size(); ++e) {
       const Decision& d = st.decisions[e];
-      if (d.rejected) ++rejected_by_reason_[std::string(d.stage) + "/" + std::string(d.reason)];
+      if (d.rejected) ++rejected_by_reason_[std::string(st.StageOf(d)) + "/" + std::string(st.ReasonOf(d))];
     }
     std::map<std::string, uint64_t> by_split;
     for (size_t i = 0; i < n; ++i) {

@@ -4,9 +4,11 @@
 // values are worked out by hand from the inputs written here.
 #include <gtest/gtest.h>
 
+#include <random>
 #include <string>
 #include <vector>
 
+#include "adversarial_text.h"
 #include "core/hash.h"
 #include "core/normalize.h"
 #include "run_helpers.h"
@@ -65,29 +67,42 @@ TEST(ComputeFacts, SixCandidatesGoToTheHeapWithEveryValue) {
   rec.annotator = "ann-a";
   rec.source = "web";
   MatchText text;
-  RecordFacts f = ComputeFacts(rec, NormalizeOptions{}, &text);
-  ASSERT_EQ(f.cand_hashes.size(), 6u);
-  EXPECT_FALSE(f.cand_hashes.is_inline());
-  for (size_t i = 0; i < 6; ++i) EXPECT_EQ(f.cand_hashes[i], HashBytes(NormalizeForMatch(rec.candidates[i]))) << i;
-  EXPECT_TRUE(f.ranks == rec.ranks);
-  EXPECT_EQ(f.cand_chars.to_vector(), (std::vector<uint32_t>{5, 4, 3, 4, 6, 13}));
-  EXPECT_EQ(f.cand_words.to_vector(), (std::vector<uint32_t>{1, 1, 1, 1, 1, 2}));
+  std::vector<CandidateFacts> cands;
+  RecordFacts f = ComputeFacts(rec, NormalizeOptions{}, &text, &cands);
+  ASSERT_EQ(f.cands.size(), 6u);
+  EXPECT_EQ(f.cands.data(), cands.data());  // ComputeFacts' buffer, until the run keeps them
+  for (size_t i = 0; i < 6; ++i) EXPECT_EQ(f.cands[i].hash, HashBytes(NormalizeForMatch(rec.candidates[i]))) << i;
+  EXPECT_EQ(RanksOf(f), rec.ranks);
+  std::vector<uint32_t> chars, words;
+  for (const CandidateFacts& c : f.cands) {
+    chars.push_back(c.chars);
+    words.push_back(c.words);
+  }
+  EXPECT_EQ(chars, (std::vector<uint32_t>{5, 4, 3, 4, 6, 13}));
+  EXPECT_EQ(words, (std::vector<uint32_t>{1, 1, 1, 1, 1, 2}));
   // Ids are set in input order by the pipeline, not by ComputeFacts (worker threads).
   EXPECT_EQ(f.annotator_id, 0u);
   Plan plan;
   RunState st(plan);
-  InternRecordTexts(rec, st, &f);
+  KeepRecordFacts(rec, st, &f);
+  EXPECT_NE(f.cands.data(), cands.data());  // the run's copy
+  cands.assign(cands.size(), CandidateFacts{});
+  EXPECT_EQ(RanksOf(f), rec.ranks);
   EXPECT_EQ(st.Text(f.annotator_id), "ann-a");
   EXPECT_EQ(st.Text(f.source_id), "web");
   EXPECT_EQ(f.thread_id, 0u);  // absent
   EXPECT_EQ(f.group_id, 0u);
 
-  // Copies and moves of the whole struct keep heap-held values.
+  // Copies and moves of the whole struct view the same kept values.
   RecordFacts copy = f;
   RecordFacts moved = std::move(f);
-  EXPECT_TRUE(copy.cand_hashes == moved.cand_hashes);
-  EXPECT_TRUE(copy.ranks == rec.ranks);
-  EXPECT_EQ(moved.cand_chars.to_vector(), copy.cand_chars.to_vector());
+  ASSERT_EQ(copy.cands.size(), moved.cands.size());
+  for (size_t i = 0; i < copy.cands.size(); ++i) {
+    EXPECT_EQ(copy.cands[i].hash, moved.cands[i].hash) << i;
+    EXPECT_EQ(copy.cands[i].chars, moved.cands[i].chars) << i;
+    EXPECT_EQ(copy.cands[i].words, moved.cands[i].words) << i;
+  }
+  EXPECT_EQ(RanksOf(copy), rec.ranks);
 }
 
 // Records with 5 and 6 candidates through exact dedup and the split composition.
@@ -147,6 +162,80 @@ TEST(RecordFactsPipeline, MoreThanFourCandidates) {
   EXPECT_EQ(c["annotators"]["records_with_annotator"], 2);
   EXPECT_EQ(c["records_with_thread"], 2);
   EXPECT_TRUE(summary["ledger"]["balanced"].get<bool>());
+}
+
+// One RecordFacts per record and one Decision per input line: their sizes set
+// the run's memory per record (docs/performance.md, "Memory"). 96 and 16 bytes
+// with libstdc++ on x86-64 (a std::string is 32 bytes there), plus 32 bytes a
+// candidate in the run's CandidateStore.
+TEST(RecordFacts, StayWithinTheirMemoryBudget) {
+  EXPECT_EQ(sizeof(CandidateFacts), 32u);
+  EXPECT_LE(sizeof(RecordFacts), 64 + sizeof(std::string));
+  EXPECT_LE(sizeof(Decision), 16u);
+}
+
+// The store keeps every record's candidates where they were put, across
+// blocks, and records larger than a block.
+TEST(CandidateStore, KeptFactsNeverMove) {
+  CandidateStore store;
+  std::vector<std::span<const CandidateFacts>> kept;
+  std::vector<CandidateFacts> facts;
+  for (int r = 0; r < 30000; ++r) {
+    const size_t b = r == 777 ? 40000 : 2 + static_cast<size_t>(r % 3);  // one record larger than a block
+    facts.assign(b, CandidateFacts{});
+    for (size_t i = 0; i < b; ++i) facts[i].rank = static_cast<int32_t>(r * 10 + static_cast<int>(i % 10));
+    kept.push_back(store.Keep(facts));
+  }
+  for (int r = 0; r < 30000; ++r) {
+    const auto& k = kept[static_cast<size_t>(r)];
+    ASSERT_EQ(k.size(), r == 777 ? 40000u : 2 + static_cast<size_t>(r % 3)) << r;
+    for (size_t i = 0; i < k.size(); ++i) ASSERT_EQ(k[i].rank, r * 10 + static_cast<int>(i % 10)) << r;
+  }
+  EXPECT_TRUE(store.Keep({}).empty());
+}
+
+// Differential tests: the block counts (CountCodePoints, CountWords) equal the
+// plain byte loops kept as their references, on random and adversarial texts
+// (every byte value, U+3000 whole, cut short and across a block's end, views
+// whose next bytes would change the count if read). Worked examples by hand
+// beside them.
+TEST(FactCounts, WorkedExamples) {
+  EXPECT_EQ(CountWords("  two\twords\n"), 2u);
+  EXPECT_EQ(CountWords("a\xE3\x80\x80" "b"), 2u);  // U+3000 separates
+  EXPECT_EQ(CountWords("a\xE3\x80" "b"), 1u);       // cut short: not a separator
+  EXPECT_EQ(CountCodePoints("na\xC3\xAFve \xE6\x97\xA5"), 7u);  // "naïve 日": Python len() gives 7
+}
+
+TEST(FactCounts, BlockCountsEqualTheByteLoops) {
+  for (uint64_t seed = 1; seed <= 6; ++seed) {
+    std::mt19937_64 rng(seed);
+    for (size_t n : testing::AdversarialLengths()) {
+      const std::string s = testing::AdversarialText(rng, n + 24);
+      const std::string_view v = std::string_view(s).substr(0, n);
+      ASSERT_EQ(CountCodePoints(v), CountCodePointsReference(v)) << ::testing::PrintToString(std::string(v));
+      ASSERT_EQ(CountWords(v), CountWordsReference(v)) << ::testing::PrintToString(std::string(v));
+    }
+  }
+}
+
+TEST(FactCounts, IdeographicSpaceAtEveryPlaceOfABlockAndCutShort) {
+  for (size_t at = 0; at < 140; ++at) {
+    for (const char* tail : {"\xE3\x80\x80", "\xE3\x80\x80" "b", "\xE3\x80", "\xE3", "\xE3\xE3\x80\x80" "c"}) {
+      const std::string s = std::string(at, 'a') + tail + "\xE3\x80\x80";
+      for (size_t k = 0; k <= s.size(); ++k) {
+        const std::string_view v = std::string_view(s).substr(0, k);
+        ASSERT_EQ(CountWords(v), CountWordsReference(v)) << at << " " << k;
+        ASSERT_EQ(CountCodePoints(v), CountCodePointsReference(v)) << at << " " << k;
+      }
+    }
+  }
+  std::string all;
+  for (int c = 0; c < 256; ++c) all.push_back(static_cast<char>(c));
+  for (size_t k = 0; k <= all.size(); ++k) {
+    const std::string_view v = std::string_view(all).substr(k);
+    ASSERT_EQ(CountWords(v), CountWordsReference(v));
+    ASSERT_EQ(CountCodePoints(v), CountCodePointsReference(v));
+  }
 }
 
 }  // namespace

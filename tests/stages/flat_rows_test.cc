@@ -2,7 +2,8 @@
 // index's flat storage) against the plain layout they replace: a
 // std::vector of std::vector, and a std::vector of std::string. Random rows
 // (empty ones included), rows grown with Extend, and text with NUL bytes and
-// UTF-8. Seeded, so a failure reproduces.
+// UTF-8; and rows packed (compressed) and unpacked again, which must give
+// the same rows. Seeded, so a failure reproduces.
 #include <gtest/gtest.h>
 
 #include <cstdint>
@@ -66,6 +67,47 @@ TEST(FlatStrings, SameTextsAsVectorOfStrings) {
   for (const auto& s : ref) texts.Add(s);
   ASSERT_EQ(texts.size(), ref.size());
   for (size_t i = 0; i < ref.size(); ++i) EXPECT_EQ(std::string(texts[i]), ref[i]) << "text " << i;
+}
+
+TEST(FlatRows, PackAndUnpackKeepTheRows) {
+  uint64_t state = 20261205;
+  for (int round = 0; round < 20; ++round) {
+    FlatRows<uint32_t> rows;
+    std::vector<std::vector<uint32_t>> ref;
+    const size_t n = UniformBelow(&state, 400);
+    for (size_t i = 0; i < n; ++i) {
+      std::vector<uint32_t> row(UniformBelow(&state, 30));
+      // Repetitive in some rounds (compresses well), random in others.
+      for (auto& v : row) {
+        v = static_cast<uint32_t>(round % 2 ? SplitMix64(&state) : UniformBelow(&state, 5));
+      }
+      rows.Add(row);
+      ref.push_back(row);
+    }
+    const size_t values = rows.values();
+    ASSERT_TRUE(rows.Pack());
+    EXPECT_TRUE(rows.packed() || values == 0);
+    EXPECT_EQ(rows.size(), ref.size());
+    EXPECT_EQ(rows.values(), values);
+    ASSERT_TRUE(rows.Pack());  // a second Pack changes nothing
+    ASSERT_TRUE(rows.Unpack());
+    EXPECT_FALSE(rows.packed());
+    ASSERT_EQ(rows.size(), ref.size());
+    for (size_t i = 0; i < ref.size(); ++i) {
+      EXPECT_EQ(std::vector<uint32_t>(rows[i].begin(), rows[i].end()), ref[i]) << "round " << round << " row " << i;
+    }
+    ASSERT_TRUE(rows.Unpack());  // so does a second Unpack
+    EXPECT_EQ(rows.values(), values);
+  }
+  FlatStrings texts;
+  texts.Add("salt marsh heron");
+  texts.Add(std::string("a\0b", 3));
+  texts.Add("");
+  ASSERT_TRUE(texts.Pack());
+  ASSERT_TRUE(texts.Unpack());
+  EXPECT_EQ(texts[0], "salt marsh heron");
+  EXPECT_EQ(texts[1], std::string_view("a\0b", 3));
+  EXPECT_EQ(texts[2], "");
 }
 
 }  // namespace

@@ -1,10 +1,12 @@
 // Differential test of HashPostings (src/stages/leakage/hash_postings.h, the
-// leakage detectors' open-addressing table) against a plain std::map from key
-// to the set of its values: same values, in ascending order, for every key
-// looked up, on random keys with repeated pairs, keys that share a probe
-// chain, the keys 0 and 1 (stored as one key, as the header says), the empty
-// table and a rebuilt table; and each key's ordinal (its rank in the map's
-// ascending order, the n-gram index's gram id). Seeded, so a failure reproduces.
+// leakage detectors' sorted keys with a bucket directory) against a plain
+// std::map from key to the set of its values: same values, in ascending
+// order, for every key looked up, on random keys with repeated pairs, keys
+// that shared a probe chain in the earlier open-addressing layout, keys that
+// share a bucket, the keys 0 and 1 (stored as one key, as the header says),
+// the empty table, a rebuilt table and a table with parts dropped and set
+// again; and each key's ordinal (its rank in the map's ascending order, the
+// n-gram index's gram id). Seeded, so a failure reproduces.
 #include <gtest/gtest.h>
 
 #include <cstdint>
@@ -44,6 +46,10 @@ void ExpectSameLookup(const HashPostings& table, const Reference& ref, uint64_t 
   }
   EXPECT_EQ(std::vector<uint32_t>(got.begin(), got.end()), want) << "key " << key;
   EXPECT_EQ(table.Ordinal(key), want_rank) << "key " << key;
+  const uint64_t one[] = {key};
+  int64_t batch[1] = {-2};
+  table.Ordinals(one, batch);
+  EXPECT_EQ(batch[0], want_rank) << "key " << key << " (Ordinals)";
   if (want_rank >= 0) {
     auto by_rank = table.Values(static_cast<uint32_t>(want_rank));
     EXPECT_EQ(std::vector<uint32_t>(by_rank.begin(), by_rank.end()), want) << "key " << key;
@@ -63,6 +69,16 @@ void ExpectSameAsMap(const Entries& entries, uint64_t* state, size_t probes) {
   for (const auto& [k, vs] : ref) ExpectSameLookup(table, ref, k);
   for (size_t i = 0; i < probes; ++i) ExpectSameLookup(table, ref, SplitMix64(state));
   for (uint64_t k : {uint64_t{0}, uint64_t{1}, uint64_t{2}, UINT64_MAX}) ExpectSameLookup(table, ref, k);
+  // Ordinals over a batch longer than its block of 16, stored and absent keys mixed.
+  std::vector<uint64_t> keys;
+  for (const auto& [k, vs] : ref) {
+    keys.push_back(k);
+    keys.push_back(SplitMix64(state));
+  }
+  keys.push_back(0);
+  std::vector<int64_t> got(keys.size(), -2);
+  table.Ordinals(keys, got);
+  for (size_t i = 0; i < keys.size(); ++i) EXPECT_EQ(got[i], table.Ordinal(keys[i])) << "key " << keys[i];
 }
 
 TEST(HashPostings, EmptyTable) {
@@ -95,8 +111,9 @@ TEST(HashPostings, RandomKeysWithRepeats) {
 }
 
 TEST(HashPostings, KeysThatCollideInTheirSlot) {
-  // The slot is bits 20 and up of key * 0x9E3779B97F4A7C15, masked: keys whose
-  // product differs only below bit 20 share a home slot and one probe chain.
+  // In the earlier open-addressing layout the slot was bits 20 and up of
+  // key * 0x9E3779B97F4A7C15, masked: keys whose product differs only below
+  // bit 20 shared a home slot and one probe chain. Kept as arbitrary keys.
   // Multiples of the inverse of the multiplier mod 2^64 give products 1, 2, 3...
   uint64_t inv = 0x9E3779B97F4A7C15ULL;  // Newton's iteration for the inverse mod 2^64
   for (int i = 0; i < 6; ++i) inv *= 2 - 0x9E3779B97F4A7C15ULL * inv;
@@ -113,6 +130,57 @@ TEST(HashPostings, KeysThatCollideInTheirSlot) {
   const Reference ref = MakeReference(entries);
   for (uint64_t i = 601; i < 1200; ++i) ExpectSameLookup(table, ref, inv * i);
   for (uint64_t i = 600; i < 1200; ++i) ExpectSameLookup(table, ref, inv * (i << 20));
+}
+
+TEST(HashPostings, KeysThatShareABucket) {
+  // Buckets are the keys' top bits: small keys all fall in the first bucket
+  // (a run searched by bisection), keys differing only in their low bits
+  // share one, and a bucket may be empty.
+  Entries entries;
+  for (uint32_t i = 0; i < 5000; ++i) entries.push_back({i * 3, i});
+  for (uint32_t i = 0; i < 40; ++i) entries.push_back({(uint64_t{0xABCD} << 48) | (i * 5), i});
+  for (uint32_t i = 0; i < 40; ++i) entries.push_back({UINT64_MAX - i * 2, i + 7});
+  uint64_t state = 5;
+  ExpectSameAsMap(entries, &state, 1000);
+  HashPostings table;
+  table.Build(entries);
+  const Reference ref = MakeReference(entries);
+  for (uint64_t k = 0; k < 15100; ++k) ExpectSameLookup(table, ref, k);
+  for (uint64_t k = 0; k < 210; ++k) ExpectSameLookup(table, ref, (uint64_t{0xABCD} << 48) | k);
+  for (uint64_t k = 0; k < 90; ++k) ExpectSameLookup(table, ref, UINT64_MAX - k);
+}
+
+TEST(HashPostings, DropAndSetValues) {
+  // DropValues keeps the ordinals, SetValues puts rows back; DropKeys keeps
+  // the values by ordinal and the counts.
+  uint64_t state = 6;
+  Entries entries;
+  for (int i = 0; i < 3000; ++i) {
+    entries.push_back({SplitMix64(&state) % 700, static_cast<uint32_t>(UniformBelow(&state, 90))});
+  }
+  HashPostings whole, table;
+  whole.Build(entries);
+  table.Build(entries);
+  const Reference ref = MakeReference(entries);
+  std::vector<uint32_t> starts = {0}, values;
+  for (uint32_t d = 0; d < whole.keys(); ++d) {
+    for (uint32_t v : whole.Values(d)) values.push_back(v);
+    starts.push_back(static_cast<uint32_t>(values.size()));
+  }
+  table.DropValues();
+  EXPECT_EQ(table.keys(), ref.size());
+  EXPECT_EQ(table.entries(), whole.entries());
+  for (const auto& [k, vs] : ref) EXPECT_EQ(table.Ordinal(k), whole.Ordinal(k)) << k;
+  for (uint64_t k = 0; k < 800; ++k) EXPECT_EQ(table.Ordinal(k), whole.Ordinal(k)) << k;
+  table.SetValues(starts, values);
+  for (const auto& [k, vs] : ref) ExpectSameLookup(table, ref, k);
+  table.DropKeys();
+  EXPECT_EQ(table.keys(), ref.size());
+  EXPECT_EQ(table.Ordinal(entries.front().first), -1);  // the keys are gone
+  for (uint32_t d = 0; d < whole.keys(); ++d) {
+    auto a = whole.Values(d), b = table.Values(d);
+    EXPECT_EQ(std::vector<uint32_t>(a.begin(), a.end()), std::vector<uint32_t>(b.begin(), b.end())) << d;
+  }
 }
 
 TEST(HashPostings, ZeroAndOneAreOneKey) {

@@ -103,5 +103,51 @@ TEST(NgramTables, DerivedTablesMatchWordStrings) {
   }
 }
 
+// DropPostings frees each gram's item list and RestorePostings makes it again
+// from the items' gram ids (the pipeline stage's pass 1, docs/leakage.md
+// "Memory"): the lists, seen through Coverage of one gram at a time (the
+// items holding it, ascending), and every per-gram table must be the same as
+// the index built in one go; CollectIds keeps working in between, and
+// Coverage after DropLookup. Repeated grams within an item on purpose.
+TEST(NgramTables, PostingsMadeAgainAreTheSame) {
+  const char* vocab[] = {"fern", "moss", "kelp", "reed"};
+  uint64_t state = 20261204;
+  std::vector<std::string> texts;
+  for (int i = 0; i < 300; ++i) {
+    const size_t words = 1 + UniformBelow(&state, 14);
+    std::string t;
+    for (size_t k = 0; k < words; ++k) t += (k ? " " : "") + std::string(vocab[UniformBelow(&state, 4)]);
+    texts.push_back(t);
+  }
+  NgramOptions o;
+  o.n = 4;
+  o.min_eval_words = 2;
+  NgramIndex built(texts, o), dropped(texts, o);
+  ASSERT_EQ(built.grams(), dropped.grams());
+  auto items_of = [](const NgramIndex& idx, uint32_t id) {
+    std::vector<uint32_t> items;
+    const uint32_t one[] = {id};
+    for (const CoverageHit& h : idx.Coverage(one)) items.push_back(h.item);
+    return items;
+  };
+  dropped.DropPostings();
+  for (uint32_t i = 0; i < texts.size(); ++i) {
+    std::vector<uint32_t> a, b;
+    built.CollectIds(texts[i], &a);
+    dropped.CollectIds(texts[i], &b);
+    EXPECT_EQ(a, b) << "text " << i;
+  }
+  dropped.RestorePostings();
+  dropped.DropLookup();
+  EXPECT_EQ(built.indexed_grams(), dropped.indexed_grams());
+  for (uint32_t id = 0; id < built.grams(); ++id) {
+    EXPECT_EQ(items_of(built, id), items_of(dropped, id)) << "gram " << id;
+    EXPECT_EQ(built.EvalFrequency(id), dropped.EvalFrequency(id));
+    EXPECT_EQ(built.ExampleItem(id), dropped.ExampleItem(id));
+    EXPECT_EQ(built.ExampleWord(id), dropped.ExampleWord(id));
+    EXPECT_EQ(built.GramWords(id), dropped.GramWords(id));
+  }
+}
+
 }  // namespace
 }  // namespace prefsift

@@ -41,7 +41,7 @@ Decided Collect(const ObservedRun& run) {
     const Decision& d = st.decisions[i];
     const RejectText& t = st.RejectTextOf(d);
     Json j{{"input", e.input}, {"line", e.line}, {"record", e.record}, {"rejected", d.rejected},
-           {"stage", d.stage}, {"reason", d.reason}, {"split", d.rejected ? "" : st.split_names[d.split]},
+           {"stage", st.StageOf(d)}, {"reason", st.ReasonOf(d)}, {"split", d.rejected ? "" : st.split_names[d.split]},
            {"field", t.field}, {"message", t.message}, {"detail", t.detail}, {"id", t.id}};
     if (e.record >= 0) j["record_id"] = st.records[static_cast<size_t>(e.record)].id;
     out.entries.push_back(j.dump());

@@ -53,16 +53,16 @@ Json Round(double v, double scale = 1e6) { return std::isnan(v) ? Json(nullptr) 
 // candidate gets the same value whatever its slot); -1 when the top is tied.
 int ChosenIdentity(const RecordFacts& f) {
   int best = -1;
-  for (size_t i = 0; i < f.ranks.size(); ++i) {
-    if (f.ranks[i] != 1) continue;
+  for (size_t i = 0; i < f.cands.size(); ++i) {
+    if (f.cands[i].rank != 1) continue;
     if (best >= 0) return -1;
     best = static_cast<int>(i);
   }
   if (best < 0) return -1;
   int pos = 0;
-  for (size_t i = 0; i < f.cand_hashes.size(); ++i) {
-    const auto& h = f.cand_hashes[i];
-    const auto& b = f.cand_hashes[static_cast<size_t>(best)];
+  for (size_t i = 0; i < f.cands.size(); ++i) {
+    const auto& h = f.cands[i].hash;
+    const auto& b = f.cands[static_cast<size_t>(best)].hash;
     if (h < b || (h == b && static_cast<int>(i) < best)) ++pos;
   }
   return pos;
@@ -521,7 +521,7 @@ class AnnotatorsStage : public Stage {
   static void CyclesOfPrompt(const RunState& st, const std::vector<size_t>& group, std::vector<Cycle>* out) {
     std::vector<Hash128> nodes;
     for (size_t r : group) {
-      for (const auto& h : st.records[r].cand_hashes) nodes.push_back(h);
+      for (const CandidateFacts& c : st.records[r].cands) nodes.push_back(c.hash);
     }
     std::sort(nodes.begin(), nodes.end());
     nodes.erase(std::unique(nodes.begin(), nodes.end()), nodes.end());
@@ -532,10 +532,10 @@ class AnnotatorsStage : public Stage {
     std::map<std::pair<uint32_t, uint32_t>, std::vector<size_t>> wins;
     for (size_t r : group) {
       const RecordFacts& f = st.records[r];
-      for (size_t a = 0; a < f.ranks.size(); ++a) {
-        for (size_t b = 0; b < f.ranks.size(); ++b) {
-          if (f.ranks[a] >= f.ranks[b] || f.cand_hashes[a] == f.cand_hashes[b]) continue;
-          auto& v = wins[{node(f.cand_hashes[a]), node(f.cand_hashes[b])}];
+      for (size_t a = 0; a < f.cands.size(); ++a) {
+        for (size_t b = 0; b < f.cands.size(); ++b) {
+          if (f.cands[a].rank >= f.cands[b].rank || f.cands[a].hash == f.cands[b].hash) continue;
+          auto& v = wins[{node(f.cands[a].hash), node(f.cands[b].hash)}];
           if (v.empty() || v.back() != r) v.push_back(r);
         }
       }

@@ -17,7 +17,7 @@ namespace {
 using Json = nlohmann::ordered_json;
 
 uint64_t LengthOf(const RecordFacts& f, size_t i, LengthUnit u) {
-  return u == LengthUnit::kWords ? f.cand_words[i] : f.cand_chars[i];
+  return u == LengthUnit::kWords ? f.cands[i].words : f.cands[i].chars;
 }
 
 size_t BinOf(uint64_t v, const std::vector<uint32_t>& edges) {
@@ -145,7 +145,7 @@ const std::vector<uint32_t>& CharBinEdges() {
 
 int LengthDirection(const RecordFacts& f, LengthUnit unit, double* ratio) {
   const size_t c = static_cast<size_t>(PreferredIndex(f));
-  const size_t b = f.ranks.size();
+  const size_t b = f.cands.size();
   uint64_t others = 0;
   for (size_t i = 0; i < b; ++i) {
     if (i != c) others += LengthOf(f, i, unit);
@@ -196,24 +196,24 @@ LengthStats ComputeLengthStats(const RunState& st, const std::vector<size_t>& re
     chars.Add(dc, rc);
     if (f.source_id != 0) acc_of(0, f.source_id).Add(dw, rw);
     if (f.annotator_id != 0) acc_of(1, f.annotator_id).Add(dw, rw);
-    const size_t b = f.ranks.size();
+    const size_t b = f.cands.size();
     for (size_t i = 0; i < b; ++i) {
       const bool is_chosen = static_cast<int>(i) == c;
-      ++(is_chosen ? s.chosen_words_hist : s.rejected_words_hist)[BinOf(f.cand_words[i], WordBinEdges())];
-      ++(is_chosen ? s.chosen_chars_hist : s.rejected_chars_hist)[BinOf(f.cand_chars[i], CharBinEdges())];
+      ++(is_chosen ? s.chosen_words_hist : s.rejected_words_hist)[BinOf(f.cands[i].words, WordBinEdges())];
+      ++(is_chosen ? s.chosen_chars_hist : s.rejected_chars_hist)[BinOf(f.cands[i].chars, CharBinEdges())];
     }
     // Candidate pairs with a preference between them (different ranks);
     // orientation drawn from the seeded stream.
     uint64_t state = SeededHash(seed, "length-pairs", f.id);
     for (size_t a = 0; a < b; ++a) {
       for (size_t q = a + 1; q < b; ++q) {
-        int ra = f.shape == JudgmentShape::kPairwise ? (a == 0 ? 1 : 2) : f.ranks[a];
-        int rq = f.shape == JudgmentShape::kPairwise ? (q == 0 ? 1 : 2) : f.ranks[q];
+        int ra = f.shape == JudgmentShape::kPairwise ? (a == 0 ? 1 : 2) : f.cands[a].rank;
+        int rq = f.shape == JudgmentShape::kPairwise ? (q == 0 ? 1 : 2) : f.cands[q].rank;
         if (ra == rq) continue;
         size_t x = a, y = q;
         if (SplitMix64(&state) & 1) std::swap(x, y);
         const int rx = x == a ? ra : rq, ry = x == a ? rq : ra;
-        diff.push_back(static_cast<double>(f.cand_words[x]) - static_cast<double>(f.cand_words[y]));
+        diff.push_back(static_cast<double>(f.cands[x].words) - static_cast<double>(f.cands[y].words));
         pref.push_back(rx < ry ? 1.0 : -1.0);
       }
     }

@@ -126,15 +126,15 @@ PositionStats ComputePositionStats(const RunState& st, const std::vector<size_t>
       ++s.pairwise_excluded;
       continue;
     }
-    const uint32_t b = static_cast<uint32_t>(f.ranks.size());
+    const uint32_t b = static_cast<uint32_t>(f.cands.size());
     const std::vector<uint32_t>* moved =
         new_slot_of && r < new_slot_of->size() && !(*new_slot_of)[r].empty() ? &(*new_slot_of)[r] : nullptr;
     auto slot_of = [&](size_t i) { return moved ? (*moved)[i] : static_cast<uint32_t>(i); };
     if (f.shape == JudgmentShape::kRanks || f.shape == JudgmentShape::kOrder) {
       ++s.ranking_records;
-      for (size_t i = 0; i < f.ranks.size(); ++i) {
+      for (size_t i = 0; i < f.cands.size(); ++i) {
         rank_slot.push_back(static_cast<double>(slot_of(i)));
-        rank_value.push_back(static_cast<double>(f.ranks[i]));
+        rank_value.push_back(static_cast<double>(f.cands[i].rank));
       }
     }
     if (f.chosen < 0) {
@@ -209,7 +209,7 @@ std::vector<std::vector<uint32_t>> AssignBalancedSlots(const RunState& st, const
   for (size_t r : records) {
     const RecordFacts& f = st.records[r];
     if (!HasSlots(f) || f.chosen < 0) continue;
-    groups[static_cast<uint32_t>(f.ranks.size())].emplace_back(SeededHash(seed, "position", f.id), r);
+    groups[static_cast<uint32_t>(f.cands.size())].emplace_back(SeededHash(seed, "position", f.id), r);
   }
   for (auto& [b, members] : groups) {
     std::sort(members.begin(), members.end());

@@ -120,7 +120,7 @@ class BiasStage : public Stage {
       });
     }
     records_out_ = kept.size();
-    surface_ = {};  // only the audits above read it
+    std::vector<CandidateSurfaces>().swap(surface_);  // only the audits above read it (= {} would keep the memory)
     return Status::Ok();
   }
 

@@ -82,9 +82,9 @@ class ExactDupsStage : public Stage {
         if (!st.IsKept(i)) continue;
         const RecordFacts& f = st.records[i];
         bool done = false;
-        for (size_t a = 0; a < f.cand_hashes.size() && !done; ++a) {
-          for (size_t b = a + 1; b < f.cand_hashes.size(); ++b) {
-            if (f.cand_hashes[a] == f.cand_hashes[b] && f.ranks[a] != f.ranks[b]) {
+        for (size_t a = 0; a < f.cands.size() && !done; ++a) {
+          for (size_t b = a + 1; b < f.cands.size(); ++b) {
+            if (f.cands[a].hash == f.cands[b].hash && f.cands[a].rank != f.cands[b].rank) {
               found[c].push_back(Found{i, a, b});
               done = true;
               break;
@@ -204,8 +204,8 @@ class ExactDupsStage : public Stage {
       for (size_t k = 0; k < cg.members.size(); ++k) {
         const auto& rf = st.records[cg.members[k]];
         const auto& d = st.decisions[rf.entry];
-        members.push_back(Json{{"id", rf.id}, {"judgment", cg.judgment_of[k]}, {"ranks", rf.ranks.to_vector()},
-                               {"kept", !d.rejected || d.stage != "exact" ? !d.rejected : false}});
+        members.push_back(Json{{"id", rf.id}, {"judgment", cg.judgment_of[k]}, {"ranks", RanksOf(rf)},
+                               {"kept", !d.rejected || st.StageOf(d) != "exact" ? !d.rejected : false}});
       }
       j["comparison_of"] = st.records[cg.members[0]].id;
       j["judgment_counts"] = cg.judgment_count;
@@ -230,10 +230,10 @@ class ExactDupsStage : public Stage {
 Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment) {
   // Candidates in a stable order of their hashes; no heap for up to 15
   // candidates (this runs for every record in two decide steps).
-  const size_t b = f.cand_hashes.size();
+  const size_t b = f.cands.size();
   SmallVector<uint32_t, 16> order(b);
   for (size_t k = 0; k < b; ++k) order[k] = static_cast<uint32_t>(k);
-  auto by_hash = [&](uint32_t x, uint32_t y) { return f.cand_hashes[x] < f.cand_hashes[y]; };
+  auto by_hash = [&](uint32_t x, uint32_t y) { return f.cands[x].hash < f.cands[y].hash; };
   if (b <= 16) {
     for (size_t k = 1; k < b; ++k) {  // insertion sort: stable
       for (size_t j = k; j > 0 && by_hash(order[j], order[j - 1]); --j) std::swap(order[j], order[j - 1]);
@@ -244,8 +244,8 @@ Hash128 ComparisonKeyOf(const RecordFacts& f, Hash128* judgment) {
   SmallVector<Hash128, 16> key_parts, judg;
   key_parts.push_back(f.prompt_hash);
   for (uint32_t k : order) {
-    key_parts.push_back(f.cand_hashes[k]);
-    judg.push_back(Hash128{0, static_cast<uint64_t>(f.ranks[k])});
+    key_parts.push_back(f.cands[k].hash);
+    judg.push_back(Hash128{0, static_cast<uint64_t>(f.cands[k].rank)});
   }
   *judgment = HashOfHashes(judg.data(), judg.size());
   return HashOfHashes(key_parts.data(), key_parts.size());

@@ -279,13 +279,23 @@ struct LeakIndex::Impl {
   sketch::ShingleOptions shingle;
   sketch::MinHashParams minhash;
   sketch::Banding banding;
-  // Each item's shingle set as one flat row: its informative shingles
-  // (sorted; the containment test and the prefix filter), then its template
-  // shingles (sorted). Together they are the whole set (spans).
-  FlatRows<uint64_t> shingles;
-  std::vector<uint32_t> informative_count;
-  std::span<const uint64_t> Informative(uint32_t item) const { return shingles[item].first(informative_count[item]); }
-  std::span<const uint64_t> TemplatePart(uint32_t item) const { return shingles[item].subspan(informative_count[item]); }
+  // Each item's shingle set in two flat rows: its informative shingles
+  // (sorted; the containment test and the prefix filter), and its template
+  // shingles as ranks in `template_shingles` (ascending; 4 bytes instead of
+  // 8 a shingle). Together they are the whole set (spans).
+  FlatRows<uint64_t> informative;
+  FlatRows<uint32_t> template_ranks;
+  std::span<const uint64_t> Informative(uint32_t item) const { return informative[item]; }
+  // Whether `shingle` is in item's set (informative or template part).
+  bool HasShingle(uint32_t item, uint64_t shingle) const {
+    const auto e = informative[item];
+    if (std::binary_search(e.begin(), e.end(), shingle)) return true;
+    const auto t = template_ranks[item];
+    if (t.empty()) return false;
+    auto at = std::lower_bound(template_shingles.begin(), template_shingles.end(), shingle);
+    if (at == template_shingles.end() || *at != shingle) return false;
+    return std::binary_search(t.begin(), t.end(), static_cast<uint32_t>(at - template_shingles.begin()));
+  }
   std::vector<uint8_t> sigs;
   HashPostings bands, prefixes;
   FlatStrings gram_text;   // normalised evaluation prompts (spans)
@@ -296,6 +306,8 @@ struct LeakIndex::Impl {
   // second signature of the informative shingles only (candidate generation);
   // the Jaccard test still compares the whole-set signatures in `sigs`.
   std::vector<uint64_t> template_shingles;
+  uint64_t items = 0;  // evaluation items indexed
+  bool match_tables_released = false;  // ReleaseMatchTables, until EndCollect
   // answers
   FlatStrings ref_text;
   std::vector<uint32_t> answer_train_df;
@@ -307,7 +319,9 @@ struct LeakIndex::Impl {
 };
 
 LeakIndex::LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm)
-    : corpus_(corpus), settings_(settings), norm_(norm), impl_(std::make_unique<Impl>()) {}
+    : settings_(settings), norm_(norm), impl_(std::make_unique<Impl>()) {
+  impl_->items = corpus.items.size();
+}
 LeakIndex::~LeakIndex() = default;
 
 int LeakIndex::ngram_n() const { return impl_->n; }
@@ -384,22 +398,28 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       }
       m.near_template_shingles = static_cast<uint32_t>(template_shingles.size());
     }
-    m.informative_count.resize(items);
-    m.shingles.Reserve(items, whole.values());
-    std::vector<uint64_t> informative, stock;
+    m.informative.Reserve(items, template_shingles.empty() ? whole.values() : 0);
+    m.template_ranks.Reserve(items, 0);
+    std::vector<uint64_t> informative;
+    std::vector<uint32_t> stock;
     std::vector<uint8_t> inf_sig(K);
     for (uint32_t i = 0; i < items; ++i) {
       const auto set = whole[i];
       auto sig = sketch::Sign(set, m.minhash);
       informative.clear();
       stock.clear();
-      std::set_difference(set.begin(), set.end(), template_shingles.begin(), template_shingles.end(),
-                          std::back_inserter(informative));
-      std::set_intersection(set.begin(), set.end(), template_shingles.begin(), template_shingles.end(),
-                            std::back_inserter(stock));
-      m.informative_count[i] = static_cast<uint32_t>(informative.size());
-      m.shingles.Add(informative);
-      m.shingles.Extend(stock);
+      // Both sorted: one pass splits the set, the search starting where the last ended.
+      auto from = template_shingles.begin();
+      for (uint64_t g : set) {
+        from = std::lower_bound(from, template_shingles.end(), g);
+        if (from != template_shingles.end() && *from == g) {
+          stock.push_back(static_cast<uint32_t>(from - template_shingles.begin()));
+        } else {
+          informative.push_back(g);
+        }
+      }
+      m.informative.Add(informative);
+      m.template_ranks.Add(stock);
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
       sketch::Compact(sig, compact);
       if (settings.jaccard > 0 && template_shingles.empty()) {
@@ -425,6 +445,8 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       }
     }
     whole = FlatRows<uint64_t>();
+    m.informative.ShrinkToFit();
+    m.template_ranks.ShrinkToFit();
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
     m.template_shingles = std::move(template_shingles);
@@ -518,13 +540,21 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
           sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
         }
       }
-      for (uint64_t k : keys) {
-        for (uint32_t item : m.bands.Find(k)) band_cand.push_back(item);
+      thread_local std::vector<int64_t> found;
+      found.resize(keys.size());
+      m.bands.Ordinals(keys, found);  // (batched: the reads overlap)
+      for (int64_t d : found) {
+        if (d < 0) continue;
+        for (uint32_t item : m.bands.Values(static_cast<uint32_t>(d))) band_cand.push_back(item);
       }
     }
     if (s.containment > 0) {
-      for (uint64_t g : set) {
-        for (uint32_t item : m.prefixes.Find(g)) prefix_cand.push_back(item);
+      thread_local std::vector<int64_t> found;
+      found.resize(set.size());
+      m.prefixes.Ordinals(set, found);
+      for (int64_t d : found) {
+        if (d < 0) continue;
+        for (uint32_t item : m.prefixes.Values(static_cast<uint32_t>(d))) prefix_cand.push_back(item);
       }
     }
     for (auto* v : {&band_cand, &prefix_cand}) {
@@ -578,10 +608,9 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
       auto words = sketch::Words(gram_text);
       bool chars = sketch::ResolveMode(gram_text, m.shingle) == sketch::ShingleMode::kChars;
       for (auto& f : found) {
-        const auto e = m.Informative(f.item), t = m.TemplatePart(f.item);
         size_t best_start = 0, best_len = 0, run = 0;
         for (size_t p = 0; p < ordered.size(); ++p) {
-          const bool in = std::binary_search(e.begin(), e.end(), ordered[p]) || std::binary_search(t.begin(), t.end(), ordered[p]);
+          const bool in = m.HasShingle(f.item, ordered[p]);
           run = in ? run + 1 : 0;
           if (run > best_len) {
             best_len = run;
@@ -691,7 +720,7 @@ void LeakIndex::SetTrainingFrequencies(std::vector<uint32_t> prompt_df, uint64_t
   if (m.ngram) {
     m.prompt_train_df = std::move(prompt_df);
     m.prompt_docs = prompts;
-    MarkTemplate(settings_, m.ngram.get(), corpus_.items.size(), &m.prompt_train_df, prompts);
+    MarkTemplate(settings_, m.ngram.get(), m.items, &m.prompt_train_df, prompts);
   }
   if (m.ref_ngram) {
     m.answer_train_df = std::move(answer_df);
@@ -723,16 +752,41 @@ bool LeakIndex::MatchAnswerGrams(std::span<const uint32_t> ids, int candidate, L
 
 void LeakIndex::ReleaseCheckTables() {
   Impl& m = *impl_;
-  m.prompt_hash = {};
+  FreeVector(m.prompt_hash);
   m.exact = HashPostings();
-  m.shingles = FlatRows<uint64_t>();
-  m.informative_count = {};
-  m.sigs = {};
+  m.informative = FlatRows<uint64_t>();
+  m.template_ranks = FlatRows<uint32_t>();
+  FreeVector(m.sigs);
   m.bands = HashPostings();
   m.prefixes = HashPostings();
-  m.template_shingles = {};
-  m.ref_hash = {};
+  FreeVector(m.template_shingles);
+  FreeVector(m.ref_hash);
   m.ref_exact = HashPostings();
+}
+
+void LeakIndex::ReleaseMatchTables() {
+  Impl& m = *impl_;
+  if (m.ngram) m.ngram->DropPostings();
+  if (m.ref_ngram) m.ref_ngram->DropPostings();
+  // Texts read only for spans and the template summary; on failure they stay as they are.
+  m.gram_text.Pack();
+  m.ref_text.Pack();
+  m.match_tables_released = true;
+}
+
+Status LeakIndex::EndCollect() {
+  Impl& m = *impl_;
+  bool ok = true;
+  for (NgramIndex* idx : {m.ngram.get(), m.ref_ngram.get()}) {
+    if (!idx) continue;
+    if (m.match_tables_released) ok = idx->RestorePostings() && ok;
+    idx->DropLookup();
+  }
+  ok = m.gram_text.Unpack() && ok;
+  ok = m.ref_text.Unpack() && ok;
+  m.match_tables_released = false;
+  if (!ok) return Status::Internal("leakage: the evaluation index could not be decompressed after pass 1");
+  return Status::Ok();
 }
 
 void LeakIndex::ReleaseTables() {
@@ -741,6 +795,7 @@ void LeakIndex::ReleaseTables() {
   Impl kept;
   kept.n = m.n;
   kept.ngram_entries = m.ngram_entries;
+  kept.items = m.items;
   kept.ref_items = std::move(m.ref_items);
   m = std::move(kept);
 }
@@ -751,8 +806,11 @@ std::vector<MemoryPart> LeakIndex::Memory() const {
   out.push_back({"exact: prompt hashes", VectorBytes(m.prompt_hash)});
   out.push_back({"exact: postings", m.exact.bytes()});
   if (m.ngram) m.ngram->Memory("ngram: ", &out);
-  out.push_back({"normalised evaluation texts (spans; flat)", m.gram_text.bytes()});
-  out.push_back({"near: shingle sets (flat rows: informative, then template)", m.shingles.bytes() + VectorBytes(m.informative_count)});
+  out.push_back({m.gram_text.packed() ? "normalised evaluation texts (spans; compressed)"
+                                      : "normalised evaluation texts (spans; flat)",
+                 m.gram_text.bytes()});
+  out.push_back({"near: shingle sets (flat rows: informative; template as ranks)",
+                 m.informative.bytes() + m.template_ranks.bytes()});
   out.push_back({"near: signatures", VectorBytes(m.sigs)});
   out.push_back({"near: band postings", m.bands.bytes()});
   out.push_back({"near: prefix postings", m.prefixes.bytes()});
@@ -799,7 +857,7 @@ void LeakIndex::TemplateJson(uint32_t limit, Json* out) const {
   Json j = Json::object();
   if (m.ngram) {
     Json sec;
-    list(*m.ngram, m.prompt_train_df, m.prompt_docs, corpus_.items.size(), m.gram_text, &sec);
+    list(*m.ngram, m.prompt_train_df, m.prompt_docs, m.items, m.gram_text, &sec);
     j["ngram"] = std::move(sec);
   }
   if (m.ref_ngram) {

@@ -96,8 +96,9 @@ struct LeakFinding {
 
 class LeakIndex {
  public:
-  // Indexes `corpus` (which must outlive the index). `norm` is the plan's
-  // normalisation, used by the exact detector.
+  // Indexes `corpus`, which is read only here: the caller may free its texts
+  // (or all of it) afterwards; findings name items by their index in
+  // corpus.items. `norm` is the plan's normalisation, used by the exact detector.
   static Result<std::unique_ptr<LeakIndex>> Build(const EvalCorpus& corpus, const LeakSettings& settings,
                                                   const NormalizeOptions& norm);
   ~LeakIndex();
@@ -140,7 +141,6 @@ class LeakIndex {
   void CheckAnswer(std::string_view answer, std::string_view normalized, int candidate,
                    std::vector<LeakFinding>* out, bool with_ngram = true) const;
 
-  const EvalCorpus& corpus() const { return corpus_; }
   const LeakSettings& settings() const { return settings_; }
   int ngram_n() const;             // the n in use (after "auto")
   uint64_t ngram_entries() const;
@@ -150,6 +150,19 @@ class LeakIndex {
   // the two-phase caller, once its pass 1 is over. Afterwards Check* must not
   // be called.
   void ReleaseCheckTables();
+  // The two-phase caller, before its pass 1: frees what only Match*Grams and
+  // TemplateJson read (each gram's list of items, in the prompt and answer
+  // n-gram tables), and keeps compressed the items' gram ids and the
+  // normalised evaluation texts (spans); EndCollect makes them again. In
+  // between, Check* may be called only with `with_ngram` false.
+  void ReleaseMatchTables();
+  // The two-phase caller, after its last Collect* call (pass 1 and every
+  // part's observed state are in): makes again what ReleaseMatchTables freed
+  // and frees the gram lookup (hash -> id). Afterwards Collect* and Check*
+  // must not be called. An internal error when the compressed tables cannot
+  // be decompressed (not expected); the n-gram and answer detectors cannot
+  // be used then.
+  Status EndCollect();
   // Frees every table the detectors use, once the last Check*, Collect* and
   // Match* call is made (the pipeline stage, at the end of its decide step;
   // docs/leakage.md "Memory"). Afterwards only corpus(), settings(),
@@ -161,7 +174,6 @@ class LeakIndex {
  private:
   LeakIndex(const EvalCorpus& corpus, const LeakSettings& settings, const NormalizeOptions& norm);
   struct Impl;
-  const EvalCorpus& corpus_;
   LeakSettings settings_;
   NormalizeOptions norm_;
   std::unique_ptr<Impl> impl_;

@@ -11,6 +11,7 @@
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
+#include "stages/leakage/flat_rows.h"
 #include "stages/leakage/leak_index.h"
 #include "stages/sparse_rows.h"
 
@@ -31,10 +32,21 @@ const char* ReasonOf(LeakDetector d) {
 
 class LeakageStage : public Stage {
  public:
-  LeakageStage(std::unique_ptr<EvalCorpus> corpus, std::unique_ptr<LeakIndex> index)
-      : corpus_(std::move(corpus)), index_(std::move(index)) {
+  // Keeps of `corpus` only what the reports name (the sets, each item's id
+  // and set): the index holds what the detectors need.
+  LeakageStage(const EvalCorpus& corpus, std::unique_ptr<LeakIndex> index)
+      : sets_(corpus.sets), index_(std::move(index)) {
+    size_t id_chars = 0;
+    for (const EvalItem& item : corpus.items) id_chars += item.id.size();
+    item_ids_.Reserve(corpus.items.size(), id_chars);
+    item_set_.reserve(corpus.items.size());
+    for (const EvalItem& item : corpus.items) {
+      item_ids_.Add(item.id);
+      item_set_.push_back(item.set);
+    }
     if (index_->PromptGrams()) prompt_df_ = std::make_unique<std::atomic<uint32_t>[]>(index_->PromptGrams());
     if (index_->AnswerGrams()) answer_df_ = std::make_unique<std::atomic<uint32_t>[]>(index_->AnswerGrams());
+    index_->ReleaseMatchTables();  // made again at ObserveDone (EndCollect)
   }
   std::string name() const override { return "leakage"; }
 
@@ -88,8 +100,17 @@ class LeakageStage : public Stage {
   // training frequencies the n-gram and answer findings need: make those now
   // and free the whole index before any stage decides.
   void ObserveDone(const RunState& run) override {
+    EndPass1();
+    if (end_status_.ok()) FinishGrams(run.records.size());
+  }
+
+  // Once, at the end of pass 1 (ObserveDone, or Decide when that was not
+  // called): the check tables go, the n-gram item lists and texts come back.
+  void EndPass1() {
+    if (pass1_ended_) return;
+    pass1_ended_ = true;
     index_->ReleaseCheckTables();
-    FinishGrams(run.records.size());
+    end_status_ = index_->EndCollect();
   }
 
   void SaveObserved(StateWriter& out) const override;
@@ -97,7 +118,8 @@ class LeakageStage : public Stage {
 
   // Once: the n-gram and answer findings, then nothing looks up the index
   // again: keep the template-text summary, then free the tables and the
-  // evaluation texts (only the items' ids and sets are reported from here on).
+  // normalised evaluation texts (only the items' ids and sets are reported
+  // from here on).
   void FinishGrams(size_t records) {
     if (template_json_) return;
     DecideGrams(records);
@@ -106,13 +128,6 @@ class LeakageStage : public Stage {
     index_->ReleaseTables();
     prompt_df_.reset();
     answer_df_.reset();
-    for (EvalItem& item : corpus_->items) {
-      std::string().swap(item.text);
-      std::string().swap(item.reference);
-      std::string().swap(item.thread);
-      std::string().swap(item.annotator);
-      std::string().swap(item.group);
-    }
   }
 
   // The n-gram and answer findings, once the training frequencies are known.
@@ -152,11 +167,10 @@ class LeakageStage : public Stage {
   }
 
   Json FindingJson(const LeakFinding& f) const {
-    const EvalItem& item = corpus_->items[f.item];
     Json j;
     j["detector"] = LeakDetectorName(f.detector);
-    j["eval_set"] = corpus_->sets[item.set].spec.name;
-    j["eval_item"] = item.id;
+    j["eval_set"] = SetName(f.item);
+    j["eval_item"] = ItemId(f.item);
     j["measure"] = f.measure;
     if (f.detector == LeakDetector::kNear || std::string(f.measure) == "coverage") {
       j["score"] = std::round(f.score * 1000.0) / 1000.0;
@@ -171,6 +185,8 @@ class LeakageStage : public Stage {
     RunState& st = ctx.run;
     const LeakSettings& s = index_->settings();
     records_ = st.records.size();
+    EndPass1();
+    if (!end_status_.ok()) return end_status_;
     FinishGrams(st.records.size());
     for (size_t r = 0; r < st.records.size() && r < findings_.size(); ++r) {
       const auto& fs = findings_[r];
@@ -185,8 +201,7 @@ class LeakageStage : public Stage {
       }
       std::string action = "flagged";
       if (drop) {
-        const EvalItem& item = corpus_->items[drop->item];
-        const std::string& set = corpus_->sets[item.set].spec.name;
+        const std::string& set = SetName(drop->item);
         std::string what = drop->detector == LeakDetector::kAnswer
                                ? "candidate " + std::to_string(drop->candidate) + " matches the reference answer of"
                                : "the prompt matches";
@@ -201,16 +216,16 @@ class LeakageStage : public Stage {
         Json detail = FindingJson(*drop);
         detail.erase("span");
         if (st.Reject(r, name(), ReasonOf(drop->detector),
-                      what + " evaluation item " + item.id + " of set " + set + " (" + LeakDetectorName(drop->detector) +
-                          " detector, " + how + ")",
+                      what + " evaluation item " + ItemId(drop->item) + " of set " + set + " (" +
+                          LeakDetectorName(drop->detector) + " detector, " + how + ")",
                       detail.dump())) {
           action = "dropped";
           ++dropped_;
         } else {
-          action = "rejected earlier by " + std::string(st.DecisionOf(r).stage);
+          action = "rejected earlier by " + std::string(st.StageOf(st.DecisionOf(r)));
         }
       } else if (!st.IsKept(r)) {
-        action = "rejected earlier by " + std::string(st.DecisionOf(r).stage);
+        action = "rejected earlier by " + std::string(st.StageOf(st.DecisionOf(r)));
       } else {
         ++flagged_;
       }
@@ -224,7 +239,7 @@ class LeakageStage : public Stage {
     uint64_t count = 0;
     for (size_t r : contaminated_) {
       for (const auto& f : findings_[r]) {
-        if (static_cast<int>(f.detector) != d || corpus_->items[f.item].set != si) continue;
+        if (static_cast<int>(f.detector) != d || item_set_[f.item] != si) continue;
         ++count;
         break;
       }
@@ -235,20 +250,20 @@ class LeakageStage : public Stage {
   void Figures(const RunState&, GateFigures* g) const override {
     const LeakSettings& s = index_->settings();
     g->leakage_none_flagged = flagged_ == 0;
-    for (size_t si = 0; si < corpus_->sets.size(); ++si) {
+    for (size_t si = 0; si < sets_.size(); ++si) {
       double rate = 0;
       for (int d = 0; d < kLeakDetectors; ++d) {
         if (!s.enabled[d]) continue;
         rate = std::max(rate, records_ ? double(RecordsWith(si, d)) / double(records_) : 0.0);
       }
-      g->leakage_by_set.push_back({corpus_->sets[si].spec.name, rate});
+      g->leakage_by_set.push_back({sets_[si].spec.name, rate});
     }
   }
 
   void Report(const RunState& st, Json* sec) const override {
     const LeakSettings& s = index_->settings();
     Json sets = Json::array();
-    for (const auto& set : corpus_->sets) {
+    for (const auto& set : sets_) {
       sets.push_back(Json{{"name", set.spec.name}, {"path", set.spec.path}, {"format", EvalFormatName(set.spec.format)},
                           {"items", set.items}, {"with_reference", set.with_reference}});
     }
@@ -258,7 +273,7 @@ class LeakageStage : public Stage {
     (*sec)["detectors"] = std::move(det);
     Json tmpl;
     if (template_json_) tmpl = *template_json_;
-    else index_->TemplateJson(20, &tmpl);
+    else if (pass1_ended_ && end_status_.ok()) index_->TemplateJson(20, &tmpl);  // (the item lists are back)
     (*sec)["template_text"] = std::move(tmpl);
     (*sec)["records_checked"] = records_;
     (*sec)["contaminated_records"] = contaminated_.size();
@@ -267,7 +282,7 @@ class LeakageStage : public Stage {
     (*sec)["flagged"] = flagged_;
     // Per set and detector: records with at least one finding of that detector against that set.
     Json by_set = Json::object();
-    for (size_t si = 0; si < corpus_->sets.size(); ++si) {
+    for (size_t si = 0; si < sets_.size(); ++si) {
       Json per = Json::object();
       for (int d = 0; d < kLeakDetectors; ++d) {
         if (!s.enabled[d]) continue;
@@ -276,8 +291,8 @@ class LeakageStage : public Stage {
         for (size_t r : contaminated_) {
           if (examples.size() >= s.examples) break;
           for (const auto& f : findings_[r]) {
-            if (static_cast<int>(f.detector) != d || corpus_->items[f.item].set != si) continue;
-            examples.push_back(Json{{"id", st.records[r].id}, {"eval_item", corpus_->items[f.item].id},
+            if (static_cast<int>(f.detector) != d || item_set_[f.item] != si) continue;
+            examples.push_back(Json{{"id", st.records[r].id}, {"eval_item", ItemId(f.item)},
                                     {"span", f.span}});
             break;
           }
@@ -286,7 +301,7 @@ class LeakageStage : public Stage {
             Json{{"records", count}, {"rate", records_ ? double(count) / double(records_) : 0.0},
                  {"examples", std::move(examples)}};
       }
-      by_set[corpus_->sets[si].spec.name] = std::move(per);
+      by_set[sets_[si].spec.name] = std::move(per);
     }
     (*sec)["by_set"] = std::move(by_set);
     (*sec)["report_file"] = "leakage.jsonl";
@@ -314,7 +329,12 @@ class LeakageStage : public Stage {
   }
 
  private:
-  std::unique_ptr<EvalCorpus> corpus_;
+  std::string ItemId(uint32_t item) const { return std::string(item_ids_[item]); }
+  const std::string& SetName(uint32_t item) const { return sets_[item_set_[item]].spec.name; }
+
+  std::vector<EvalSetInfo> sets_;
+  FlatStrings item_ids_;            // per evaluation item: its id within its set
+  std::vector<uint32_t> item_set_;  // per evaluation item: its set
   std::unique_ptr<LeakIndex> index_;
   // Per record: the evaluation gram ids its prompt and candidates hold (pass
   // 1), dropped in Decide. answer_ends: (candidate, end offset in `answer`).
@@ -351,6 +371,8 @@ class LeakageStage : public Stage {
   std::atomic<uint64_t> answer_docs_{0};
   SparseRows<std::vector<LeakFinding>> findings_;  // only records with a finding
   std::unique_ptr<Json> template_json_;  // made at the end of Decide, before the tables are freed
+  bool pass1_ended_ = false;
+  Status end_status_;                     // of EndCollect, returned by Decide
   std::vector<size_t> contaminated_;
   std::vector<std::string> actions_;
   uint64_t records_ = 0, dropped_ = 0, flagged_ = 0;
@@ -381,13 +403,14 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, FileSystem* fs, Status
     *error = corpus.status();
     return nullptr;
   }
-  auto owned = std::make_unique<EvalCorpus>(std::move(corpus).value());
-  auto index = LeakIndex::Build(*owned, settings.value(), plan.normalize);
+  auto index = LeakIndex::Build(corpus.value(), settings.value(), plan.normalize);
   if (!index.ok()) {
     *error = index.status();
     return nullptr;
   }
-  return std::make_unique<LeakageStage>(std::move(owned), std::move(index).value());
+  // The evaluation texts as read are freed here (with `corpus`): the index
+  // holds its own normalised copy.
+  return std::make_unique<LeakageStage>(corpus.value(), std::move(index).value());
 }
 
 }  // namespace prefsift
@@ -448,7 +471,7 @@ Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
       if (d >= kLeakDetectors) in.Fail("a detector code out of range");
       f.detector = static_cast<LeakDetector>(d);
       f.item = in.U32();
-      if (f.item >= corpus_->items.size() && in.ok()) in.Fail("a finding of an evaluation item this plan does not load");
+      if (f.item >= item_set_.size() && in.ok()) in.Fail("a finding of an evaluation item this plan does not load");
       f.score = in.F32();
       f.shared = in.U32();
       const std::string measure = in.Str();

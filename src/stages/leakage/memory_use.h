@@ -2,7 +2,8 @@
 // bytes each structure holds, counted from capacities, with the heap's own
 // overhead per block estimated (a block of n bytes takes n + 8 rounded up to
 // 16, at least 32: glibc's malloc on 64-bit, from memory). Used by the
-// benchmark that prints the index's breakdown; no decision depends on it.
+// benchmark that prints the index's breakdown; no decision depends on it. And
+// FreeVector, to give a vector's block back.
 // Thread-safety: pure functions.
 #pragma once
 
@@ -17,6 +18,13 @@ struct MemoryPart {
   std::string name;
   uint64_t bytes = 0;
 };
+
+// Frees a vector's heap block (`v = {}` keeps the capacity: it assigns an
+// empty initializer list).
+template <typename T>
+void FreeVector(std::vector<T>& v) {
+  std::vector<T>().swap(v);
+}
 
 // One heap block of `n` bytes (0 for none).
 inline uint64_t HeapBlock(uint64_t n) { return n == 0 ? 0 : std::max<uint64_t>(32, (n + 8 + 15) / 16 * 16); }

@@ -106,6 +106,39 @@ void NgramIndex::SetTemplate(std::vector<uint8_t> flags) {
   }
 }
 
+void NgramIndex::DropPostings() {
+  grams_.DropValues();
+  item_grams_.Pack();  // on failure the rows simply stay as they are
+}
+
+bool NgramIndex::RestorePostings() {
+  if (!item_grams_.Unpack()) return false;
+  // A counting sort of (id, item) over the items in ascending order: each
+  // id's items come out ascending; `last` skips an item's repeats of a gram.
+  const uint32_t k = grams();
+  std::vector<uint32_t> starts(size_t{k} + 1, 0), last(k, UINT32_MAX);
+  for (uint32_t i = 0; i < item_grams_.size(); ++i) {
+    for (uint32_t id : item_grams_[i]) {
+      if (last[id] == i) continue;
+      last[id] = i;
+      ++starts[id + 1];
+    }
+  }
+  for (uint32_t id = 0; id < k; ++id) starts[id + 1] += starts[id];
+  std::vector<uint32_t> values(starts[k]);
+  std::vector<uint32_t> next(starts.begin(), starts.end() - 1);
+  std::fill(last.begin(), last.end(), UINT32_MAX);
+  for (uint32_t i = 0; i < item_grams_.size(); ++i) {
+    for (uint32_t id : item_grams_[i]) {
+      if (last[id] == i) continue;
+      last[id] = i;
+      values[next[id]++] = i;
+    }
+  }
+  grams_.SetValues(std::move(starts), std::move(values));
+  return true;
+}
+
 uint32_t NgramIndex::TemplateOnlyItems() const {
   uint32_t n = 0;
   for (size_t i = 0; i < item_grams_.size(); ++i) n += !item_grams_[i].empty() && item_informative_[i] == 0;
@@ -115,11 +148,13 @@ uint32_t NgramIndex::TemplateOnlyItems() const {
 void NgramIndex::CollectIds(std::string_view text, std::vector<uint32_t>* ids) const {
   ids->clear();
   thread_local std::vector<uint64_t> grams;
+  thread_local std::vector<int64_t> found;
   const size_t words = sketch::CountWords(text);
   const size_t n = static_cast<size_t>(options_.n);
   auto add = [&]() {
-    for (uint64_t h : grams) {
-      const int64_t id = grams_.Ordinal(h);
+    found.resize(grams.size());
+    grams_.Ordinals(grams, found);
+    for (int64_t id : found) {
       if (id >= 0) ids->push_back(static_cast<uint32_t>(id));
     }
   };
@@ -176,8 +211,10 @@ std::vector<CoverageHit> NgramIndex::Coverage(std::span<const uint32_t> ids) con
 NgramIndex::~NgramIndex() = default;
 
 void NgramIndex::Memory(const std::string& prefix, std::vector<MemoryPart>* out) const {
-  out->push_back({prefix + "gram postings (hash -> items; id = ordinal)", grams_.bytes()});
-  out->push_back({prefix + "item -> gram ids (flat rows)", item_grams_.bytes()});
+  out->push_back({prefix + "gram lookup (sorted hashes, directory; id = rank)", grams_.key_bytes()});
+  out->push_back({prefix + "gram -> items (flat rows)", grams_.value_bytes()});
+  out->push_back({prefix + (item_grams_.packed() ? "item -> gram ids (compressed)" : "item -> gram ids (flat rows)"),
+                  item_grams_.bytes()});
   out->push_back({prefix + "per-item length, informative words; template flags",
                   VectorBytes(item_len_) + VectorBytes(item_informative_) + VectorBytes(template_)});
 }

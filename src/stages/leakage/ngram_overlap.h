@@ -105,6 +105,19 @@ class NgramIndex {
   // distinct): the coverage figures, ascending by item.
   std::vector<CoverageHit> Coverage(std::span<const uint32_t> ids) const;
 
+  // Memory while only CollectIds and IsTemplate are needed (the pipeline
+  // stage's pass 1; docs/leakage.md "Memory"). DropPostings frees each gram's
+  // item list, which only EvalFrequency, ExampleItem, ExampleWord, GramWords,
+  // Coverage, SetTemplate and MatchAll/MatchBest read, and keeps the items'
+  // gram ids compressed; RestorePostings makes both again (each gram's items
+  // ascending and distinct, as built). False when the ids cannot be
+  // decompressed (not expected; the index is then unusable). DropLookup frees
+  // the hash -> id table once CollectIds is no longer called (MatchAll and
+  // MatchBest need it too). Not thread-safe.
+  void DropPostings();
+  bool RestorePostings();
+  void DropLookup() { grams_.DropKeys(); }
+
   const NgramOptions& options() const { return options_; }
   uint64_t indexed_grams() const;   // distinct (gram, item) entries
   uint32_t short_items() const { return short_items_; }

@@ -161,8 +161,10 @@ class CandidateSets {
   // candidate's set size and each pair's intersection are counted as the
   // marks are set (a mark new to an entry: the candidate's set grows by one,
   // and it meets every candidate already on the entry): no per-candidate sort
-  // and no scan of the table. Same sets, same hashes, same division as
-  // ExactJaccard, so the same similarities to the last bit. The table is the
+  // and no scan of the table. The n-grams are keyed by AppendWordGramKeys (a
+  // cheaper mix than the XXH3 of Build; the keys stay in this table): the same
+  // set sizes and intersections but for a 2^-64 key coincidence, and the same
+  // division as ExactJaccard, so the same similarities to the last bit. The table is the
   // thread's own and is never cleared: an entry counts only when its stamp is
   // this record's.
   static constexpr size_t kTableMaxTexts = 8;
@@ -172,15 +174,11 @@ class CandidateSets {
     thread_local std::vector<uint32_t> stamps;  // the record an entry was filled for
     thread_local std::vector<uint8_t> marks;   // a bit per candidate
     thread_local uint32_t stamp = 0;
-    sketch::ShingleOptions so;
-    so.mode = sketch::ShingleMode::kWords;
-    so.word_n = n_;
-    so.seed = seed_;
     const size_t b = texts_.size();
     std::vector<size_t> ends;
     grams.clear();
     for (size_t i = 0; i < b; ++i) {
-      sketch::AppendShingles(texts_[i], so, &grams);
+      sketch::AppendWordGramKeys(texts_[i], n_, &grams);
       ends.push_back(grams.size());
     }
     size_t cap = 16;
@@ -556,7 +554,7 @@ class NearDupsStage : public Stage {
       const Decision& d = st.decisions[st.records[i].entry];
       Json j;
       j["id"] = st.records[i].id;
-      j["action"] = d.rejected && d.stage == "near" && d.reason == "near_identical_candidates" ? "rejected" : "flagged";
+      j["action"] = d.rejected && st.StageOf(d) == "near" && st.ReasonOf(d) == "near_identical_candidates" ? "rejected" : "flagged";
       j["cluster"] = cluster_of_[i] >= 0 ? Json(cluster_of_[i]) : Json(nullptr);
       j["pairs"] = std::move(pairs);
       s = g.value()->Append(j.dump() + "\n");

@@ -603,7 +603,7 @@ class SplitStage : public Stage {
     for (size_t i = 0; i < st.records.size(); ++i) {
       if (group_of_.size() <= i || group_of_[i] == UINT32_MAX) continue;
       const RecordFacts& f = st.records[i];
-      size_t b = f.ranks.size();
+      size_t b = f.cands.size();
       ++cands[b];
       if (f.shape == JudgmentShape::kPairwise) {
         ++pairwise;  // chosen/rejected fields: no slot order to speak of
@@ -624,10 +624,10 @@ class SplitStage : public Stage {
       ++shapes[JudgmentShapeName(f.shape)];
       ++scripts[i < script_.size() ? script_[i] : kNone];
       prompt_len.push_back(f.prompt_chars);
-      for (size_t k = 0; k < b && k < f.cand_chars.size(); ++k) {
-        bool best = f.ranks[k] == 1;
-        (best ? chosen_len : rejected_len).push_back(f.cand_chars[k]);
-        ++(best ? chosen_bins : rejected_bins)[Log2Bin(f.cand_chars[k])];
+      for (size_t k = 0; k < b && k < f.cands.size(); ++k) {
+        bool best = f.cands[k].rank == 1;
+        (best ? chosen_len : rejected_len).push_back(f.cands[k].chars);
+        ++(best ? chosen_bins : rejected_bins)[Log2Bin(f.cands[k].chars)];
       }
     }
     if (no_source) sources["(not given)"] += no_source;
