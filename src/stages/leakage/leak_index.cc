@@ -777,10 +777,13 @@ void LeakIndex::ReleaseMatchTables() {
 Status LeakIndex::EndCollect() {
   Impl& m = *impl_;
   bool ok = true;
+  // The lookups go first: no text is looked up after pass 1, and the item
+  // lists made again below then take the memory they held.
   for (NgramIndex* idx : {m.ngram.get(), m.ref_ngram.get()}) {
-    if (!idx) continue;
-    if (m.match_tables_released) ok = idx->RestorePostings() && ok;
-    idx->DropLookup();
+    if (idx) idx->DropLookup();
+  }
+  for (NgramIndex* idx : {m.ngram.get(), m.ref_ngram.get()}) {
+    if (idx && m.match_tables_released) ok = idx->RestorePostings() && ok;
   }
   ok = m.gram_text.Unpack() && ok;
   ok = m.ref_text.Unpack() && ok;

@@ -8,10 +8,12 @@
 #include <filesystem>
 
 #include "core/state_file.h"
+#include "core/free_memory.h"
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
 #include "stages/leakage/flat_rows.h"
+#include "stages/leakage/gram_rows.h"
 #include "stages/leakage/leak_index.h"
 #include "stages/sparse_rows.h"
 
@@ -93,7 +95,7 @@ class LeakageStage : public Stage {
     }
     answer_docs_.fetch_add(rec.candidates.size(), std::memory_order_relaxed);
     if (!f.empty()) findings_.Set(record, std::move(f));
-    if (!prompt.empty() || !answer.empty()) grams_.Set(record, RecordGrams(prompt, answer, ends));
+    if (!prompt.empty() || !answer.empty()) grams_.Set(record, prompt, answer, ends);
   }
 
   // Pass 1 made every exact, near and exact-answer finding, and counted the
@@ -110,6 +112,7 @@ class LeakageStage : public Stage {
     if (pass1_ended_) return;
     pass1_ended_ = true;
     index_->ReleaseCheckTables();
+    ReturnFreeMemory();  // their pages leave the process before EndCollect makes the n-gram tables again
     end_status_ = index_->EndCollect();
   }
 
@@ -136,10 +139,12 @@ class LeakageStage : public Stage {
     std::vector<uint32_t> pdf(pg), adf(ag);
     for (uint32_t i = 0; i < pg; ++i) pdf[i] = prompt_df_[i].load();
     for (uint32_t i = 0; i < ag; ++i) adf[i] = answer_df_[i].load();
+    prompt_df_.reset();  // copied: free the counters before the findings are made
+    answer_df_.reset();
     index_->SetTrainingFrequencies(std::move(pdf), records, std::move(adf), answer_docs_.load());
     for (size_t r = 0; r < records && r < grams_.size(); ++r) {
       if (!grams_.Has(r)) continue;  // no informative gram: no n-gram or answer finding
-      const RecordGrams& g = grams_[r];
+      const GramRow g = grams_[r];
       LeakFinding f;
       if (!g.prompt().empty() && index_->MatchPromptGrams(g.prompt(), &f)) {
         // After exact (detector order: exact, ngram, near, answer).
@@ -338,35 +343,7 @@ class LeakageStage : public Stage {
   std::unique_ptr<LeakIndex> index_;
   // Per record: the evaluation gram ids its prompt and candidates hold (pass
   // 1), dropped in Decide. answer_ends: (candidate, end offset in `answer`).
-  // One vector (one heap block, none when the record holds no evaluation
-  // gram): [prompt ids, answer ids, answer ends (candidate, end) pairs]
-  // after three counts.
-  class RecordGrams {
-   public:
-    RecordGrams() = default;
-    RecordGrams(std::span<const uint32_t> prompt, std::span<const uint32_t> answer, std::span<const uint32_t> ends) {
-      if (prompt.empty() && answer.empty() && ends.empty()) return;
-      data_.reserve(3 + prompt.size() + answer.size() + ends.size());
-      data_ = {static_cast<uint32_t>(prompt.size()), static_cast<uint32_t>(answer.size()),
-               static_cast<uint32_t>(ends.size() / 2)};
-      data_.insert(data_.end(), prompt.begin(), prompt.end());
-      data_.insert(data_.end(), answer.begin(), answer.end());
-      data_.insert(data_.end(), ends.begin(), ends.end());
-    }
-    std::span<const uint32_t> prompt() const { return Part(3, Count(0)); }
-    std::span<const uint32_t> answer() const { return Part(3 + Count(0), Count(1)); }
-    std::span<const uint32_t> ends() const { return Part(3 + Count(0) + Count(1), 2 * Count(2)); }
-    size_t answer_count() const { return Count(2); }
-    std::pair<uint32_t, uint32_t> answer_end(size_t k) const { return {ends()[2 * k], ends()[2 * k + 1]}; }
-
-   private:
-    uint32_t Count(int k) const { return data_.empty() ? 0 : data_[k]; }
-    std::span<const uint32_t> Part(size_t at, size_t n) const {
-      return n == 0 ? std::span<const uint32_t>() : std::span<const uint32_t>(data_.data() + at, n);
-    }
-    std::vector<uint32_t> data_;
-  };
-  SparseRows<RecordGrams> grams_;  // only records holding an informative gram
+  GramRows grams_;  // only records holding an informative gram have a row
   std::unique_ptr<std::atomic<uint32_t>[]> prompt_df_, answer_df_;
   std::atomic<uint64_t> answer_docs_{0};
   SparseRows<std::vector<LeakFinding>> findings_;  // only records with a finding
@@ -444,8 +421,7 @@ void LeakageStage::SaveObserved(StateWriter& out) const {
       out.I64(f.candidate);
       out.Str(f.span);
     }
-    const RecordGrams empty;
-    const RecordGrams& g = r < grams_.size() ? grams_[r] : empty;  // (grams_[r] is empty for a record without)
+    const GramRow g = r < grams_.size() ? grams_[r] : GramRow();  // (empty for a record without a row)
     out.Vec(std::vector<uint32_t>(g.prompt().begin(), g.prompt().end()));
     out.Vec(std::vector<uint32_t>(g.answer().begin(), g.answer().end()));
     out.Vec(std::vector<uint32_t>(g.ends().begin(), g.ends().end()));
@@ -509,7 +485,7 @@ Status LeakageStage::AppendObserved(StateReader& in, size_t first) {
     if (prompt.empty() && answer.empty()) {
       grams_.Reset(r);
     } else {
-      grams_.Set(r, RecordGrams(prompt, answer, ends));
+      grams_.Set(r, prompt, answer, ends);
     }
   }
   return Status::Ok();

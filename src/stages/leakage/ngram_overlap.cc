@@ -125,13 +125,14 @@ bool NgramIndex::RestorePostings() {
     }
   }
   for (uint32_t id = 0; id < k; ++id) starts[id + 1] += starts[id];
+  // The fill: `last` becomes each id's next free place (one buffer fewer);
+  // an item's repeat of a gram is the value just written for that id.
   std::vector<uint32_t> values(starts[k]);
-  std::vector<uint32_t> next(starts.begin(), starts.end() - 1);
-  std::fill(last.begin(), last.end(), UINT32_MAX);
+  std::vector<uint32_t>& next = last;
+  std::copy(starts.begin(), starts.end() - 1, next.begin());
   for (uint32_t i = 0; i < item_grams_.size(); ++i) {
     for (uint32_t id : item_grams_[i]) {
-      if (last[id] == i) continue;
-      last[id] = i;
+      if (next[id] > starts[id] && values[next[id] - 1] == i) continue;
       values[next[id]++] = i;
     }
   }

@@ -1,0 +1,107 @@
+// GramRows (src/stages/leakage/gram_rows.h, the leakage stage's per-record
+// n-gram ids) against the plain layout it replaced: three std::vectors a
+// record. Random rows (empty ones, rows longer than a block), rows written
+// from several threads at once, Reset and clear. Seeded, so a failure
+// reproduces.
+#include <gtest/gtest.h>
+
+#include <cstdint>
+#include <thread>
+#include <vector>
+
+#include "core/random.h"
+#include "stages/leakage/gram_rows.h"
+
+namespace prefsift {
+namespace {
+
+struct PlainRow {
+  std::vector<uint32_t> prompt, answer, ends;
+};
+
+std::vector<uint32_t> Values(std::span<const uint32_t> s) { return {s.begin(), s.end()}; }
+
+PlainRow RandomRow(uint64_t* state, size_t i) {
+  PlainRow r;
+  const uint64_t kind = UniformBelow(state, 10);
+  if (kind == 0) return r;  // no row
+  const size_t long_row = (i % 997 == 5) ? (size_t{1} << 18) + 17 : 0;  // longer than a block
+  const size_t np = long_row ? long_row : UniformBelow(state, 6);
+  for (size_t k = 0; k < np; ++k) r.prompt.push_back(static_cast<uint32_t>(UniformBelow(state, 1u << 30)));
+  const size_t cands = UniformBelow(state, 4);
+  for (size_t c = 0; c < cands; ++c) {
+    const size_t na = UniformBelow(state, 4);
+    if (na == 0) continue;
+    for (size_t k = 0; k < na; ++k) r.answer.push_back(static_cast<uint32_t>(UniformBelow(state, 1000)));
+    r.ends.push_back(static_cast<uint32_t>(c));
+    r.ends.push_back(static_cast<uint32_t>(r.answer.size()));
+  }
+  return r;
+}
+
+void ExpectSame(const GramRows& rows, const std::vector<PlainRow>& plain) {
+  ASSERT_EQ(rows.size(), plain.size());
+  for (size_t i = 0; i < plain.size(); ++i) {
+    const PlainRow& p = plain[i];
+    const bool empty = p.prompt.empty() && p.answer.empty() && p.ends.empty();
+    EXPECT_EQ(rows.Has(i), !empty) << i;
+    const GramRow g = rows[i];
+    EXPECT_EQ(Values(g.prompt()), p.prompt) << i;
+    EXPECT_EQ(Values(g.answer()), p.answer) << i;
+    EXPECT_EQ(Values(g.ends()), p.ends) << i;
+    ASSERT_EQ(g.answer_count(), p.ends.size() / 2) << i;
+    for (size_t k = 0; k < g.answer_count(); ++k) {
+      EXPECT_EQ(g.answer_end(k), std::make_pair(p.ends[2 * k], p.ends[2 * k + 1])) << i;
+    }
+  }
+}
+
+TEST(GramRows, EmptyRowsReadAsNoIds) {
+  GramRows rows;
+  rows.resize(3);
+  rows.Set(1, {}, {}, {});
+  for (size_t i = 0; i < 3; ++i) {
+    EXPECT_FALSE(rows.Has(i));
+    EXPECT_TRUE(rows[i].prompt().empty());
+    EXPECT_EQ(rows[i].answer_count(), 0u);
+  }
+  EXPECT_TRUE(GramRow().ends().empty());
+}
+
+TEST(GramRows, SameRowsAsPlainVectors) {
+  uint64_t state = 20261203;
+  std::vector<PlainRow> plain;
+  for (size_t i = 0; i < 5000; ++i) plain.push_back(RandomRow(&state, i));
+  GramRows rows;
+  rows.resize(plain.size());
+  for (size_t i = 0; i < plain.size(); ++i) rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends);
+  ExpectSame(rows, plain);
+  // Reset drops one row and leaves the others as they were.
+  rows.Reset(7);
+  plain[7] = PlainRow();
+  ExpectSame(rows, plain);
+  rows.clear();
+  EXPECT_EQ(rows.size(), 0u);
+  rows.resize(2);
+  rows.Set(0, plain[1].prompt, plain[1].answer, plain[1].ends);
+  EXPECT_EQ(Values(rows[0].prompt()), plain[1].prompt);
+}
+
+TEST(GramRows, RowsSetFromSeveralThreadsAtOnce) {
+  uint64_t state = 77;
+  std::vector<PlainRow> plain;
+  for (size_t i = 0; i < 40000; ++i) plain.push_back(RandomRow(&state, i));
+  GramRows rows;
+  rows.resize(plain.size());
+  std::vector<std::thread> threads;
+  for (size_t t = 0; t < 4; ++t) {
+    threads.emplace_back([&, t] {
+      for (size_t i = t; i < plain.size(); i += 4) rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends);
+    });
+  }
+  for (auto& th : threads) th.join();
+  ExpectSame(rows, plain);
+}
+
+}  // namespace
+}  // namespace prefsift
