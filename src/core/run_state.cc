@@ -1,5 +1,8 @@
 #include "core/run_state.h"
 
+#include <algorithm>
+#include <bit>
+
 namespace prefsift {
 
 void RunState::Count(const std::string& stage, const std::string& reason) {
@@ -44,11 +47,24 @@ uint32_t RunState::InternWhy(const std::string& stage, const std::string& reason
 
 uint32_t RunState::InternText(std::string_view s) {
   if (s.empty()) return 0;
-  auto it = text_ids_.find(s);
-  if (it != text_ids_.end()) return it->second;
+  if (2 * texts_.size() >= text_slots_.size()) {  // grow (and at the first text): rehash every id
+    std::vector<uint32_t> slots(std::bit_ceil(std::max<size_t>(64, 4 * texts_.size())), 0);
+    const size_t mask = slots.size() - 1;
+    for (uint32_t id = 1; id < texts_.size(); ++id) {
+      size_t i = HashBytes(texts_[id]).lo & mask;
+      while (slots[i] != 0) i = (i + 1) & mask;
+      slots[i] = id;
+    }
+    text_slots_ = std::move(slots);
+  }
+  const size_t mask = text_slots_.size() - 1;
+  size_t i = HashBytes(s).lo & mask;
+  for (; text_slots_[i] != 0; i = (i + 1) & mask) {
+    if (texts_[text_slots_[i]] == s) return text_slots_[i];
+  }
   const auto id = static_cast<uint32_t>(texts_.size());
   texts_.emplace_back(s);
-  text_ids_.emplace(texts_.back(), id);
+  text_slots_[i] = id;
   return id;
 }
 

@@ -15,7 +15,6 @@
 #include <span>
 #include <string>
 #include <string_view>
-#include <unordered_map>
 #include <vector>
 
 #include "core/hash.h"
@@ -24,11 +23,15 @@
 
 namespace prefsift {
 
+// One input line (16 bytes: one per line, so kept small). A run holds at
+// most kMaxEntries lines (RecordFacts::entry is 32-bit, a record index 31-bit);
+// pass 1 stops with a limit error before it would hold more.
 struct Entry {
-  uint32_t input = 0;
   uint64_t line = 0;      // 1-based line number in its file
-  int64_t record = -1;    // index into RunState::records, -1 when the line did not parse
+  uint32_t input = 0;
+  int32_t record = -1;    // index into RunState::records, -1 when the line did not parse
 };
+inline constexpr uint64_t kMaxEntries = INT32_MAX;
 
 // The texts of a reject, kept apart from Decision (RunState::RejectTextOf) so
 // that a kept entry costs no string storage (docs/performance.md).
@@ -83,7 +86,7 @@ struct InputStats {
 class RunState {
  public:
   explicit RunState(const Plan& plan) : plan_(plan) {}
-  RunState(const RunState&) = delete;  // text_ids_ views texts_
+  RunState(const RunState&) = delete;
   RunState& operator=(const RunState&) = delete;
   const Plan& plan() const { return plan_; }
 
@@ -142,7 +145,10 @@ class RunState {
   std::vector<std::pair<std::string_view, std::string_view>> whys_{{std::string_view(), std::string_view()}};
   std::vector<std::pair<std::string, std::map<std::string, uint64_t>>> by_stage_;
   std::deque<std::string> texts_{std::string()};  // by id (a deque: growing never moves a text)
-  std::unordered_map<std::string_view, uint32_t> text_ids_{{std::string_view(), 0}};  // views of texts_
+  // The ids of texts_ by hash, open addressing with linear probing; 0 = a free
+  // slot (id 0, "", is never looked up). A power of two in size, at most half
+  // full: 8-16 bytes a text instead of a hash-map node and bucket (about 40).
+  std::vector<uint32_t> text_slots_;
 };
 
 }  // namespace prefsift

@@ -314,7 +314,11 @@ void ObservedRun::AppendEntries(StateReader& r, const Part& part, uint64_t* entr
     e.line = r.U64();
     const int64_t rec = r.I64();
     if (rec >= 0) {
-      e.record = static_cast<int64_t>(record_base) + rec;
+      if (record_base + static_cast<uint64_t>(rec) >= kMaxEntries || entry_base + i >= kMaxEntries) {
+        r.Fail("more lines than one run holds (" + std::to_string(kMaxEntries) + ")");
+        break;
+      }
+      e.record = static_cast<int32_t>(record_base + static_cast<uint64_t>(rec));
       ++*with_record;
     }
     st_.entries.push_back(e);

@@ -200,7 +200,12 @@ Result<RunOutcome> ApplyPart(const Plan& plan, const std::vector<std::string>& s
     Entry e;
     e.input = part.input;
     e.line = r.U64();
-    e.record = r.I64();
+    const int64_t rec = r.I64();
+    if (rec >= static_cast<int64_t>(kMaxEntries) || i >= kMaxEntries) {
+      r.Fail("more lines than one run holds (" + std::to_string(kMaxEntries) + ")");
+      break;
+    }
+    e.record = static_cast<int32_t>(rec);
     st.entries.push_back(e);
     st.decisions.emplace_back();
     if (r.U8() != 0) {

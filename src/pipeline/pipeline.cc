@@ -366,6 +366,10 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     for (;;) {
       RawChunk raw = ahead.get();
       if (!raw.status.ok()) return raw.status;
+      if (st.entries.size() + raw.size() > kMaxEntries) {
+        return Status::Limit(spec.path + ": this run would hold more than " + std::to_string(kMaxEntries) +
+                             " lines, the most one run holds; split the inputs into parts (docs/scale.md)");
+      }
       const bool eof = raw.eof;
       if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), std::move(spare));
       stats.lines += raw.lines;
@@ -383,7 +387,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         size_t entry_index = st.entries.size();
         ++stats.entries;
         if (p.ok) {
-          e.record = static_cast<int64_t>(st.records.size());
+          e.record = static_cast<int32_t>(st.records.size());
           parsing_rec[i] = st.records.size();
           p.facts.entry = static_cast<uint32_t>(entry_index);
           KeepRecordFacts(p.rec, st, &p.facts);

@@ -164,14 +164,15 @@ TEST(RecordFactsPipeline, MoreThanFourCandidates) {
   EXPECT_TRUE(summary["ledger"]["balanced"].get<bool>());
 }
 
-// One RecordFacts per record and one Decision per input line: their sizes set
-// the run's memory per record (docs/performance.md, "Memory"). 96 and 16 bytes
-// with libstdc++ on x86-64 (a std::string is 32 bytes there), plus 32 bytes a
-// candidate in the run's CandidateStore.
+// One RecordFacts per record, one Entry and one Decision per input line: their
+// sizes set the run's memory per record (docs/performance.md, "Memory"). 96,
+// 16 and 16 bytes with libstdc++ on x86-64 (a std::string is 32 bytes there),
+// plus 32 bytes a candidate in the run's CandidateStore.
 TEST(RecordFacts, StayWithinTheirMemoryBudget) {
   EXPECT_EQ(sizeof(CandidateFacts), 32u);
   EXPECT_LE(sizeof(RecordFacts), 64 + sizeof(std::string));
   EXPECT_LE(sizeof(Decision), 16u);
+  EXPECT_LE(sizeof(Entry), 16u);
 }
 
 // The store keeps every record's candidates where they were put, across
