@@ -15,6 +15,7 @@
 
 #include "core/blank.h"
 #include "core/free_memory.h"
+#include "core/peak_rss.h"
 #include "core/normalize.h"
 #include "core/record_reader.h"
 #include "core/thread_pool.h"
@@ -89,6 +90,13 @@ class PhaseTimer {
     auto now = std::chrono::steady_clock::now();
     std::fprintf(log_, "timing: %-22s %8.3f s\n", phase.c_str(), std::chrono::duration<double>(now - last_).count());
     last_ = now;
+    // The peak resident size, when it grew in this phase (so the last such
+    // line names the phase that set the run's peak).
+    const uint64_t peak = PeakResidentBytes();
+    if (peak > peak_) {
+      std::fprintf(log_, "timing rss:   peak so far %8.1f MiB\n", static_cast<double>(peak) / (1024.0 * 1024.0));
+      peak_ = peak;
+    }
   }
   // A figure inside the last phase (CPU seconds of a part of it); the clock
   // runs on.
@@ -98,6 +106,7 @@ class PhaseTimer {
 
  private:
   bool on_;
+  uint64_t peak_ = 0;
   std::FILE* log_;
   std::chrono::steady_clock::time_point last_;
 };
@@ -648,8 +657,10 @@ Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, con
 Result<Json> DecideStages(const Plan& plan, Stages& stages, RunCompanion* companion, StageContext& ctx,
                           const std::vector<std::string>& command_stages, RunOutcome* outcome,
                           const std::function<void(const std::string&)>& mark) {
+  ReturnFreeMemory();  // pass 1's buffers, before ObserveDone builds what Decide needs
   for (auto& stage : stages) stage->ObserveDone(ctx.run);
   ReturnFreeMemory();
+  if (mark) mark("decide (end of pass 1)");
   for (auto& stage : stages) {
     if (Status s = stage->Decide(ctx); !s.ok()) return s;
     ReturnFreeMemory();  // the step's working set, before the next step and pass 2

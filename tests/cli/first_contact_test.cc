@@ -135,6 +135,24 @@ TEST(FirstContact, ClosedLogPipeLeavesNoPartialFolder) {
   EXPECT_TRUE(fs::exists(d + "/out/summary.json"));
 }
 
+TEST(FirstContact, TimingsNameEachPhaseAndThePeakMemory) {
+  // --timings: a line a phase, the end of pass 1 among them, and a
+  // "timing rss:" line after each phase in which the peak resident size grew
+  // (the first phase always: the process had none before).
+  std::string d = Dir("timings");
+  std::string data;
+  for (int i = 0; i < 200; ++i) data += Good(i, i % 2);
+  Write(d + "/in.jsonl", data);
+  CliRun r = Prefsift(d, "run in.jsonl --layout choice -o out -q --timings");
+  ASSERT_EQ(r.code, 0) << r.err;
+  EXPECT_NE(r.err.find("timing: observe (pass 1)"), std::string::npos) << r.err;
+  EXPECT_NE(r.err.find("timing: decide (end of pass 1)"), std::string::npos) << r.err;
+  const size_t at = r.err.find("timing rss:   peak so far");
+  ASSERT_NE(at, std::string::npos) << r.err;
+  EXPECT_GT(std::stod(r.err.substr(at + std::string("timing rss:   peak so far").size())), 1.0) << r.err;
+  EXPECT_LT(at, r.err.find("timing: decide (end of pass 1)")) << "the first phase's line follows it";
+}
+
 // --- 2. Outputs never touch inputs ------------------------------------------
 
 TEST(FirstContact, OutputThatIsTheInputIsRefused) {
