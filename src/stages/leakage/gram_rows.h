@@ -3,13 +3,13 @@
 // n-gram and answer findings are decided then). One row a record: its
 // prompt's gram ids, its candidates' gram ids, and (candidate, end) pairs that
 // cut the candidates' ids apart. Most records of template-heavy data hold a
-// few ids, so the rows sit back to back in blocks of 1 MiB that never move
-// (8 bytes a record for the row's address, 12 for its three counts, 4 an id;
-// no heap block a record: two small heap blocks a record had cost about
-// 60 bytes each in malloc's chunks; docs/leakage.md, "Memory").
+// few ids, so the rows sit back to back in a SharedArena (8 bytes a record for
+// the row's address, 12 for its three counts, 4 an id; no heap block a
+// record: two small heap blocks a record had cost about 60 bytes each in
+// malloc's chunks; docs/leakage.md, "Memory").
 //
 // Thread-safety: Set may be called from several threads at once for
-// different rows (the block list is guarded by a mutex); reserve, resize,
+// different rows (SharedArena::Allocate is); reserve, resize,
 // Reset and clear must not run concurrently with anything else. Rows read
 // while nothing writes.
 #pragma once
@@ -17,11 +17,11 @@
 #include <algorithm>
 #include <cstddef>
 #include <cstdint>
-#include <memory>
-#include <mutex>
 #include <span>
 #include <utility>
 #include <vector>
+
+#include "core/shared_arena.h"
 
 namespace prefsift {
 
@@ -53,10 +53,7 @@ class GramRows {
   // Frees every row and the blocks.
   void clear() {
     std::vector<const uint32_t*>().swap(rows_);
-    std::vector<std::unique_ptr<uint32_t[]>>().swap(blocks_);
-    std::vector<std::unique_ptr<uint32_t[]>>().swap(large_);
-    used_ = kBlock;
-    large_values_ = 0;
+    arena_.clear();
   }
 
   bool Has(size_t i) const { return rows_[i] != nullptr; }
@@ -83,35 +80,13 @@ class GramRows {
     rows_[i] = at;
   }
 
-  size_t bytes() const {
-    return rows_.capacity() * sizeof(const uint32_t*) + (blocks_.size() * kBlock + large_values_) * sizeof(uint32_t);
-  }
+  size_t bytes() const { return rows_.capacity() * sizeof(const uint32_t*) + arena_.bytes(); }
 
  private:
-  static constexpr size_t kBlock = size_t{1} << 18;  // values a block (1 MiB)
-
-  uint32_t* Allocate(size_t n) {
-    std::lock_guard<std::mutex> lock(mu_);
-    if (n > kBlock) {  // a row longer than a block: a block of its own
-      large_.push_back(std::make_unique_for_overwrite<uint32_t[]>(n));
-      large_values_ += n;
-      return large_.back().get();
-    }
-    if (n > kBlock - used_) {
-      blocks_.push_back(std::make_unique_for_overwrite<uint32_t[]>(kBlock));
-      used_ = 0;
-    }
-    uint32_t* at = blocks_.back().get() + used_;
-    used_ += n;
-    return at;
-  }
+  uint32_t* Allocate(size_t n) { return static_cast<uint32_t*>(arena_.Allocate(n * sizeof(uint32_t))); }
 
   std::vector<const uint32_t*> rows_;
-  std::mutex mu_;
-  std::vector<std::unique_ptr<uint32_t[]>> blocks_;
-  std::vector<std::unique_ptr<uint32_t[]>> large_;  // rows longer than a block
-  size_t large_values_ = 0;
-  size_t used_ = kBlock;  // values used of the last block (kBlock: no block yet)
+  SharedArena arena_;
 };
 
 }  // namespace prefsift

@@ -22,7 +22,7 @@
 #include "screen/actions.h"
 #include "screen/rules.h"
 #include "screen/screener.h"
-#include "stages/sparse_rows.h"
+#include "stages/screen/hit_rows.h"
 
 namespace prefsift {
 namespace {
@@ -35,8 +35,7 @@ using screen::FieldKind;
 constexpr const char* kStage = "screen";
 constexpr const char* kFindingsFile = "personal_data_findings.jsonl";
 
-// Where in a record a scanned string is.
-enum class Part : uint8_t { kPrompt = 0, kTurn = 1, kCandidate = 2, kMetadata = 3 };
+using Part = HitPart;
 
 FieldKind KindOf(Part p) {
   switch (p) {
@@ -47,25 +46,6 @@ FieldKind KindOf(Part p) {
   }
   return FieldKind::kPrompt;
 }
-
-// One finding as kept after Observe: the place and the span, never the text.
-struct Hit {
-  Part part = Part::kPrompt;
-  uint32_t index = 0;         // turn or candidate index; metadata: index of the string
-  uint32_t rule = 0;          // index into the rule list
-  uint32_t begin = 0, end = 0;
-  Action action = Action::kFlag;
-  float confidence = 0;
-  uint64_t text_hash = 0;     // XXH3 of the scanned string, checked again in Rewrite
-  std::string meta_pointer;   // metadata only: the pointer from the record's root
-  std::string preview;        // masked form (screen::MaskedPreview), never the value
-};
-
-struct RecordHits {
-  std::vector<Hit> hits;
-  bool drop = false;       // a finding with action drop
-  bool rewrite = false;    // a finding with action mask or pseudonymise, or drop
-};
 
 const char* const kCautions[] = {
     "The screen is an aid, not a guarantee and not legal advice: rule packs find values with a recognisable shape "
@@ -137,7 +117,7 @@ class PersonalDataStage : public Stage {
   void Observe(size_t record, const Record& rec, const RecordFacts&, const MatchText&) override {
     RecordHits out;
     ScanRecord(record, rec, &out);
-    if (!out.hits.empty() || out.drop || out.rewrite) per_record_.Set(record, std::move(out));
+    if (!out.hits.empty() || out.drop || out.rewrite) per_record_.Set(record, out);
   }
 
   // Every screened text of `rec` into *out (stops at the first scan error).
@@ -205,8 +185,8 @@ class PersonalDataStage : public Stage {
       }
     }
     for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
-      const RecordHits& r = per_record_[i];
-      if (r.hits.empty()) continue;
+      if (per_record_.hit_count(i) == 0) continue;
+      const RecordHits r = per_record_.Get(i);
       ++records_with_findings_;
       if (r.rewrite) ++records_rewritten_;
       for (const Hit& h : r.hits) {
@@ -289,8 +269,8 @@ class PersonalDataStage : public Stage {
   void Figures(const RunState& st, GateFigures* g) const override {
     long long left = 0;
     for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
-      const RecordHits& r = per_record_[i];
-      if (r.hits.empty() || r.drop || st.decisions[st.records[i].entry].rejected) continue;
+      if (per_record_.hit_count(i) == 0 || per_record_.drop(i) || st.decisions[st.records[i].entry].rejected) continue;
+      const RecordHits r = per_record_.Get(i);
       for (const Hit& h : r.hits) left += h.action == Action::kFlag ? 1 : 0;
     }
     g->personal_data_left = left;
@@ -300,8 +280,8 @@ class PersonalDataStage : public Stage {
     auto f = out.Create(kFindingsFile);
     if (!f.ok()) return f.status();
     for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
-      const RecordHits& r = per_record_[i];
-      if (r.hits.empty()) continue;
+      if (per_record_.hit_count(i) == 0) continue;
+      const RecordHits r = per_record_.Get(i);
       const RecordFacts& rf = st.records[i];
       const Entry& e = st.entries[rf.entry];
       const Decision& d = st.decisions[rf.entry];
@@ -337,11 +317,11 @@ class PersonalDataStage : public Stage {
   void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;
   Status LoadRewrites(StateReader& in, size_t count) override;
   bool Rewrites(size_t record) const override {
-    return record < per_record_.size() && per_record_[record].rewrite;
+    return record < per_record_.size() && per_record_.rewrite(record);
   }
 
   Status Rewrite(size_t record, const InputSpec& input, Json* doc) const override {
-    const RecordHits& r = per_record_[record];
+    const RecordHits r = per_record_.Get(record);
     const Layout& L = input.layout;
     size_t i = 0;
     while (i < r.hits.size()) {
@@ -394,7 +374,7 @@ class PersonalDataStage : public Stage {
   screen::Screener screener_;
   std::unique_ptr<screen::PseudonymKey> key_;
   std::map<std::string, uint32_t> rule_index_;
-  SparseRows<RecordHits> per_record_;  // only records with a finding
+  HitRows per_record_;  // only records with a finding have a row
   std::atomic<uint64_t> texts_{0};
   std::mutex error_mu_;
   size_t error_record_ = SIZE_MAX;
@@ -681,7 +661,7 @@ void PersonalDataStage::SaveObserved(StateWriter& out) const {
   }
   out.U64(per_record_.size());
   for (size_t i = 0; i < per_record_.size(); ++i) {
-    const RecordHits& r = per_record_[i];
+    const RecordHits r = per_record_.Get(i);
     out.U8(static_cast<uint8_t>((r.drop ? 1 : 0) | (r.rewrite ? 2 : 0)));
     out.U64(r.hits.size());
     for (const Hit& h : r.hits) {
@@ -734,7 +714,7 @@ Status PersonalDataStage::AppendObserved(StateReader& in, size_t first) {
     if (r.hits.empty() && !r.drop && !r.rewrite) {
       per_record_.Reset(i);
     } else {
-      per_record_.Set(i, std::move(r));
+      per_record_.Set(i, r);
     }
   }
   return Status::Ok();
@@ -751,12 +731,12 @@ namespace {
 void PersonalDataStage::SaveRewrites(StateWriter& out, size_t first, size_t count) const {
   std::vector<size_t> mine;
   for (size_t r = first; r < first + count && r < per_record_.size(); ++r) {
-    if (per_record_[r].rewrite) mine.push_back(r);
+    if (per_record_.rewrite(r)) mine.push_back(r);
   }
   out.U64(mine.size());
   for (size_t r : mine) {
     out.U64(r - first);
-    const RecordHits& h = per_record_[r];
+    const RecordHits h = per_record_.Get(r);
     out.U8(h.drop);
     out.U64(h.hits.size());
     for (const Hit& hit : h.hits) {
@@ -782,7 +762,7 @@ Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
       in.Fail("a record out of range");
       break;
     }
-    RecordHits& h = per_record_.Mutable(r);
+    RecordHits h;
     h.rewrite = true;
     h.drop = in.U8() != 0;
     h.hits.resize(in.Count(34));
@@ -801,6 +781,7 @@ Status PersonalDataStage::LoadRewrites(StateReader& in, size_t count) {
       hit.text_hash = in.U64();
       hit.meta_pointer = in.Str();
     }
+    if (in.ok()) per_record_.Set(r, h);
   }
   return Status::Ok();
 }
