@@ -478,13 +478,25 @@ void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<
   CheckAnswer(answer, NormalizeForMatch(answer, norm_), candidate, out);
 }
 
+LeakIndex::PromptTexts LeakIndex::Texts(std::string_view prompt, std::string_view normalized,
+                                        std::string* store) const {
+  const Impl& m = *impl_;
+  if (m.same_norm) return {normalized, normalized};
+  NormalizeForMatchInto(prompt, m.gram_norm, store);
+  return {normalized, *store};
+}
+
 void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text, bool all_items,
                             std::vector<LeakFinding>* out, bool with_ngram) const {
+  std::string gram_store;
+  CheckPrompt(Texts(prompt, exact_text, &gram_store), all_items, out, with_ngram);
+}
+
+void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vector<LeakFinding>* out,
+                            bool with_ngram) const {
   const Impl& m = *impl_;
   const LeakSettings& s = settings_;
-  std::string gram_store;
-  if (!m.same_norm) gram_store = NormalizeForMatch(prompt, m.gram_norm);
-  const std::string_view gram_text = m.same_norm ? exact_text : std::string_view(gram_store);
+  const std::string_view exact_text = texts.exact, gram_text = texts.gram;
   if (s.enabled[0]) {
     Hash128 h = HashBytes(exact_text);
     for (uint32_t item : m.exact.Find(h.lo)) {
@@ -715,14 +727,15 @@ uint32_t LeakIndex::AnswerGrams() const { return impl_->ref_ngram ? impl_->ref_n
 
 void LeakIndex::CollectPromptGrams(std::string_view prompt, std::string_view exact_text,
                                    std::vector<uint32_t>* ids) const {
-  const Impl& m = *impl_;
   ids->clear();
-  if (!m.ngram) return;
-  if (m.same_norm) {
-    m.ngram->CollectIds(exact_text, ids);
-  } else {
-    m.ngram->CollectIds(NormalizeForMatch(prompt, m.gram_norm), ids);
-  }
+  if (!impl_->ngram) return;
+  std::string gram_store;
+  CollectPromptGrams(Texts(prompt, exact_text, &gram_store), ids);
+}
+
+void LeakIndex::CollectPromptGrams(const PromptTexts& texts, std::vector<uint32_t>* ids) const {
+  ids->clear();
+  if (impl_->ngram) impl_->ngram->CollectIds(texts.gram, ids);
 }
 
 void LeakIndex::CollectAnswerGrams(std::string_view answer, std::string_view exact_text,
