@@ -8,7 +8,6 @@
 #include "core/hash.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
-#include "sketch/set_similarity.h"
 #include "sketch/shingles.h"
 #include "stages/leakage/flat_rows.h"
 #include "stages/leakage/hash_postings.h"
@@ -100,6 +99,28 @@ std::vector<CoverageHit> Passing(const LeakSettings& s, const NgramIndex& idx, s
   std::sort(out.begin(), out.end(), better);
   if (!all && out.size() > 1) out.resize(1);
   return out;
+}
+
+// |e ∩ t| for sorted, distinct e and t when it is at least `need`; else some
+// smaller number: the merge stops once more than |e| - need shingles of e
+// are known to be missing from t. REQUIRES: 1 <= need <= e.size().
+uint64_t IntersectionIfAtLeast(std::span<const uint64_t> e, std::span<const uint64_t> t, size_t need) {
+  const size_t may_miss = e.size() - need;
+  size_t missed = 0, i = 0, j = 0;
+  uint64_t common = 0;
+  while (i < e.size() && j < t.size()) {
+    if (e[i] < t[j]) {
+      ++i;
+      if (++missed > may_miss) return common;
+    } else if (t[j] < e[i]) {
+      ++j;
+    } else {
+      ++common;
+      ++i;
+      ++j;
+    }
+  }
+  return common;
 }
 
 LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, std::string_view item_text) {
@@ -616,14 +637,14 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
         in_prefix = true;
         if (bi < band_cand.size() && band_cand[bi] == item) ++bi;
       }
-      const auto e = m.Informative(item);
       double j = 0, c = 0;
       bool jok = false, cok = false;
       if (s.jaccard > 0) {
         j = sketch::EstimateJaccardCompact(sig, std::span<const uint8_t>(m.sigs.data() + size_t(item) * K, K));
         jok = j >= s.jaccard;
       }
-      if (!jok && in_prefix && s.containment > 0 && e.size() >= s.min_eval_shingles) {
+      if (!jok && in_prefix && s.containment > 0 && m.Informative(item).size() >= s.min_eval_shingles) {
+        const auto e = m.Informative(item);
         size_t need = static_cast<size_t>(std::ceil(s.containment * static_cast<double>(e.size()) - 1e-9));
         need = std::max<size_t>(need, 1);
         if (!have_sorted) {
@@ -632,7 +653,8 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
           sorted.erase(std::unique(sorted.begin(), sorted.end()), sorted.end());
           have_sorted = true;
         }
-        uint64_t inter = sketch::IntersectionSize(e, sorted);
+        // The exact count when the test passes (the score); a smaller one when it fails.
+        const uint64_t inter = IntersectionIfAtLeast(e, sorted, need);
         c = static_cast<double>(inter) / static_cast<double>(e.size());
         cok = inter >= need;
       }
