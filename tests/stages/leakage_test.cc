@@ -9,6 +9,7 @@
 // must match whole" are (from memory, unverified) -- see docs/leakage.md.
 #include <gtest/gtest.h>
 
+#include <cmath>
 #include <map>
 #include <random>
 #include <set>
@@ -19,6 +20,8 @@
 #include "stages/leakage/eval_index.h"
 #include "stages/leakage/leak_index.h"
 #include "stages/leakage/ngram_overlap.h"
+#include "sketch/set_similarity.h"
+#include "sketch/shingles.h"
 #include "audit/split_audit.h"
 
 namespace prefsift {
@@ -345,6 +348,64 @@ TEST(LeakIndex, NearWithTemplateItemsBandsInformativeShingles) {
   out.clear();
   f.index->CheckPrompt(stock, false, &out);
   EXPECT_TRUE(out.empty());
+}
+
+TEST(LeakIndex, ContainmentWithTemplateTextAgainstBruteForce) {
+  // The per-prompt check skips the template shingles before the prefix
+  // lookups and intersects an item's informative shingles with the prompt's
+  // informative ones only (docs/leakage.md, "Per-prompt check"). Against a
+  // brute-force containment over the whole shingle sets (template shingles:
+  // those in 10 or more items, the default cut): 40 items with 40 stock words
+  // and 40 words of their own; prompts with the stock text twice (repeated
+  // shingles), a varying part of item 7's own words, and other text. Every
+  // item at or above the threshold is found, with its containment as the
+  // score; with Jaccard on too, an item is found by one test or the other.
+  const std::string stock = Words(40, 0);
+  std::vector<std::string> items;
+  for (int i = 0; i < 40; ++i) items.push_back(stock + " " + Words(40, 1000 + 100 * i));
+  sketch::ShingleOptions so;  // the index's shingles: words, n = 5
+  so.word_n = 5;
+  std::map<uint64_t, int> item_count;
+  std::vector<std::vector<uint64_t>> sets;
+  for (const auto& t : items) {
+    sets.push_back(sketch::Shingles(t, so));
+    for (uint64_t g : sets.back()) ++item_count[g];
+  }
+  for (double jaccard : {0.0, 0.8}) {
+    LeakSettings s;
+    s.enabled[0] = s.enabled[1] = false;  // near only
+    s.jaccard = jaccard;
+    auto f = MakeIndex(items, s);
+    for (int keep = 0; keep <= 40; keep += 2) {
+      const std::string t = stock + " " + Words(30, 90000) + " " + stock + " " + Words(keep, 1700) + " " + Words(20, 95000);
+      const auto prompt = sketch::Shingles(t, so);
+      std::vector<LeakFinding> out;
+      f.index->CheckPrompt(t, true, &out);
+      std::set<uint32_t> found;
+      for (const auto& x : out) {
+        found.insert(x.item);
+        std::vector<uint64_t> e;
+        for (uint64_t g : sets[x.item]) {
+          if (item_count[g] < 10) e.push_back(g);
+        }
+        const double c = static_cast<double>(sketch::IntersectionSize(e, prompt)) / static_cast<double>(e.size());
+        if (std::string(x.measure) == "containment") {
+          EXPECT_FLOAT_EQ(x.score, static_cast<float>(c)) << "keep " << keep << " item " << x.item;
+        }
+      }
+      for (uint32_t i = 0; i < items.size(); ++i) {
+        std::vector<uint64_t> e;
+        for (uint64_t g : sets[i]) {
+          if (item_count[g] < 10) e.push_back(g);
+        }
+        const uint64_t inter = sketch::IntersectionSize(e, prompt);
+        const bool want = inter >= static_cast<uint64_t>(std::ceil(0.8 * static_cast<double>(e.size()) - 1e-9));
+        if (want) EXPECT_TRUE(found.count(i)) << "keep " << keep << " item " << i << " jaccard " << jaccard;
+        if (jaccard == 0) EXPECT_EQ(found.count(i) == 1, want) << "keep " << keep << " item " << i;
+      }
+      if (HasFailure()) return;
+    }
+  }
 }
 
 TEST(LeakIndex, ReferenceAnswers) {

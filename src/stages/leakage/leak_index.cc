@@ -8,11 +8,11 @@
 #include "core/hash.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
-#include "sketch/set_similarity.h"
 #include "sketch/shingles.h"
 #include "stages/leakage/flat_rows.h"
 #include "stages/leakage/hash_postings.h"
 #include "stages/leakage/ngram_overlap.h"
+#include "stages/leakage/sorted_keys.h"
 
 namespace prefsift {
 namespace {
@@ -99,6 +99,28 @@ std::vector<CoverageHit> Passing(const LeakSettings& s, const NgramIndex& idx, s
   std::sort(out.begin(), out.end(), better);
   if (!all && out.size() > 1) out.resize(1);
   return out;
+}
+
+// |e ∩ t| for sorted, distinct e and t when it is at least `need`; else some
+// smaller number: the merge stops once more than |e| - need shingles of e
+// are known to be missing from t. REQUIRES: 1 <= need <= e.size().
+uint64_t IntersectionIfAtLeast(std::span<const uint64_t> e, std::span<const uint64_t> t, size_t need) {
+  const size_t may_miss = e.size() - need;
+  size_t missed = 0, i = 0, j = 0;
+  uint64_t common = 0;
+  while (i < e.size() && j < t.size()) {
+    if (e[i] < t[j]) {
+      ++i;
+      if (++missed > may_miss) return common;
+    } else if (t[j] < e[i]) {
+      ++j;
+    } else {
+      ++common;
+      ++i;
+      ++j;
+    }
+  }
+  return common;
 }
 
 LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, std::string_view item_text) {
@@ -292,9 +314,8 @@ struct LeakIndex::Impl {
     if (std::binary_search(e.begin(), e.end(), shingle)) return true;
     const auto t = template_ranks[item];
     if (t.empty()) return false;
-    auto at = std::lower_bound(template_shingles.begin(), template_shingles.end(), shingle);
-    if (at == template_shingles.end() || *at != shingle) return false;
-    return std::binary_search(t.begin(), t.end(), static_cast<uint32_t>(at - template_shingles.begin()));
+    const int64_t rank = template_shingles.Rank(shingle);
+    return rank >= 0 && std::binary_search(t.begin(), t.end(), static_cast<uint32_t>(rank));
   }
   std::vector<uint8_t> sigs;
   HashPostings bands, prefixes;
@@ -305,7 +326,8 @@ struct LeakIndex::Impl {
   // Template shingles (sorted). When there are any, the bands are keyed by a
   // second signature of the informative shingles only (candidate generation);
   // the Jaccard test still compares the whole-set signatures in `sigs`.
-  std::vector<uint64_t> template_shingles;
+  // With a directory: the check looks up every training shingle.
+  SortedKeys template_shingles;
   uint64_t items = 0;  // evaluation items indexed
   bool match_tables_released = false;  // ReleaseMatchTables, until EndCollect
   // answers
@@ -449,7 +471,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     m.template_ranks.ShrinkToFit();
     m.bands.Build(std::move(band_entries));
     m.prefixes.Build(std::move(prefix_entries));
-    m.template_shingles = std::move(template_shingles);
+    m.template_shingles.Build(std::move(template_shingles));
   }
   if (settings.enabled[3]) {
     std::vector<std::pair<uint64_t, uint32_t>> e;
@@ -477,13 +499,25 @@ void LeakIndex::CheckAnswer(std::string_view answer, int candidate, std::vector<
   CheckAnswer(answer, NormalizeForMatch(answer, norm_), candidate, out);
 }
 
+LeakIndex::PromptTexts LeakIndex::Texts(std::string_view prompt, std::string_view normalized,
+                                        std::string* store) const {
+  const Impl& m = *impl_;
+  if (m.same_norm) return {normalized, normalized};
+  NormalizeForMatchInto(prompt, m.gram_norm, store);
+  return {normalized, *store};
+}
+
 void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text, bool all_items,
                             std::vector<LeakFinding>* out, bool with_ngram) const {
+  std::string gram_store;
+  CheckPrompt(Texts(prompt, exact_text, &gram_store), all_items, out, with_ngram);
+}
+
+void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vector<LeakFinding>* out,
+                            bool with_ngram) const {
   const Impl& m = *impl_;
   const LeakSettings& s = settings_;
-  std::string gram_store;
-  if (!m.same_norm) gram_store = NormalizeForMatch(prompt, m.gram_norm);
-  const std::string_view gram_text = m.same_norm ? exact_text : std::string_view(gram_store);
+  const std::string_view exact_text = texts.exact, gram_text = texts.gram;
   if (s.enabled[0]) {
     Hash128 h = HashBytes(exact_text);
     for (uint32_t item : m.exact.Find(h.lo)) {
@@ -504,13 +538,40 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     for (const auto& h : Passing(s, *m.ngram, ids, all_items)) out->push_back(GramFinding(s, h, m.gram_text[h.item]));
   }
   if (s.enabled[2]) {
-    thread_local std::vector<uint64_t> ordered;
+    // Per-thread buffers: this runs once per training prompt.
+    thread_local std::vector<uint64_t> ordered, informative, lookup, sorted;
+    thread_local std::vector<uint64_t> keys;
+    thread_local std::vector<uint8_t> sig, inf_sig;
+    thread_local std::vector<int64_t> band_found, prefix_found;
+    thread_local std::vector<uint32_t> band_cand, prefix_cand;
     ordered.clear();
-    sketch::AppendShingles(gram_text, m.shingle, &ordered);
-    std::vector<uint64_t> set(ordered);
-    std::sort(set.begin(), set.end());
-    set.erase(std::unique(set.begin(), set.end()), set.end());
+    sketch::AppendShingles(gram_text, m.shingle, &ordered);  // text order, repeats kept
     const uint32_t K = s.num_slots;
+    // The shingles that are not template text, in text order with repeats
+    // (every one of them when none is set aside). No sorted set is made
+    // unless a containment test needs it: the signatures and the lookups
+    // below do not depend on order or repeats (sketch::Sign takes a
+    // multiset; candidates are made distinct), so they are the same as over
+    // the sorted, distinct set.
+    std::span<const uint64_t> inf = ordered;
+    // Keys for the prefix filter. It indexes informative shingles only, so a
+    // template shingle cannot be found there, except that HashPostings
+    // stores key 0 as 1: a template shingle 0 or 1 is looked up anyway.
+    std::span<const uint64_t> prefix_keys = ordered;
+    if (!m.template_shingles.empty()) {
+      informative.clear();
+      lookup.clear();
+      for (uint64_t g : ordered) {
+        if (!m.template_shingles.Contains(g)) {
+          informative.push_back(g);
+          lookup.push_back(g);
+        } else if (g <= 1) {
+          lookup.push_back(g);
+        }
+      }
+      inf = informative;
+      prefix_keys = lookup;
+    }
     // Candidates from the bands and from the prefix filter, each sorted and
     // distinct. Only a prefix candidate can pass the containment test (the
     // filter is exact: an item with containment >= c shares one of its
@@ -518,41 +579,37 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
     // verification, is made only for those, and only when the Jaccard test
     // has not already matched. Most band candidates share only template text
     // and are turned down by the signature comparison alone.
-    thread_local std::vector<uint32_t> band_cand, prefix_cand;
     band_cand.clear();
     prefix_cand.clear();
-    std::vector<uint8_t> sig(K);
+    sig.resize(K);
+    bool have_sig = false;  // the whole set's signature, made when first needed
+    auto whole_sig = [&]() {
+      if (!have_sig) sketch::Compact(sketch::Sign(ordered, m.minhash), sig);
+      have_sig = true;
+    };
     if (s.jaccard > 0) {
-      sketch::Compact(sketch::Sign(set, m.minhash), sig);
-      std::vector<uint64_t> keys(m.banding.bands);
+      keys.resize(m.banding.bands);
       if (m.template_shingles.empty()) {
+        whole_sig();
         sketch::BandKeys(sig, m.banding, kBandSeed, keys);
+      } else if (inf.empty()) {
+        keys.clear();  // stock text only: no band candidates
       } else {
-        thread_local std::vector<uint64_t> informative;
-        informative.clear();
-        for (uint64_t g : set) {
-          if (!std::binary_search(m.template_shingles.begin(), m.template_shingles.end(), g)) informative.push_back(g);
-        }
-        if (informative.empty()) keys.clear();  // stock text only: no band candidates
-        else {
-          std::vector<uint8_t> inf_sig(K);
-          sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
-          sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
-        }
+        inf_sig.resize(K);
+        sketch::Compact(sketch::Sign(inf, m.minhash), inf_sig);
+        sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
       }
-      thread_local std::vector<int64_t> found;
-      found.resize(keys.size());
-      m.bands.Ordinals(keys, found);  // (batched: the reads overlap)
-      for (int64_t d : found) {
+      band_found.resize(keys.size());
+      m.bands.Ordinals(keys, band_found);  // (batched: the reads overlap)
+      for (int64_t d : band_found) {
         if (d < 0) continue;
         for (uint32_t item : m.bands.Values(static_cast<uint32_t>(d))) band_cand.push_back(item);
       }
     }
     if (s.containment > 0) {
-      thread_local std::vector<int64_t> found;
-      found.resize(set.size());
-      m.prefixes.Ordinals(set, found);
-      for (int64_t d : found) {
+      prefix_found.resize(prefix_keys.size());
+      m.prefixes.Ordinals(prefix_keys, prefix_found);
+      for (int64_t d : prefix_found) {
         if (d < 0) continue;
         for (uint32_t item : m.prefixes.Values(static_cast<uint32_t>(d))) prefix_cand.push_back(item);
       }
@@ -561,6 +618,12 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
       std::sort(v->begin(), v->end());
       v->erase(std::unique(v->begin(), v->end()), v->end());
     }
+    if (s.jaccard > 0 && (!band_cand.empty() || !prefix_cand.empty())) whole_sig();
+    // The informative shingles sorted and distinct, made for the first
+    // containment test. An item's informative shingles hold no template
+    // shingle, so their intersection with these is their intersection with
+    // the whole set.
+    bool have_sorted = false;
     std::vector<LeakFinding> found;
     size_t bi = 0, pi = 0;
     while (bi < band_cand.size() || pi < prefix_cand.size()) {
@@ -574,17 +637,24 @@ void LeakIndex::CheckPrompt(std::string_view prompt, std::string_view exact_text
         in_prefix = true;
         if (bi < band_cand.size() && band_cand[bi] == item) ++bi;
       }
-      const auto e = m.Informative(item);
       double j = 0, c = 0;
       bool jok = false, cok = false;
       if (s.jaccard > 0) {
         j = sketch::EstimateJaccardCompact(sig, std::span<const uint8_t>(m.sigs.data() + size_t(item) * K, K));
         jok = j >= s.jaccard;
       }
-      if (!jok && in_prefix && s.containment > 0 && e.size() >= s.min_eval_shingles) {
+      if (!jok && in_prefix && s.containment > 0 && m.Informative(item).size() >= s.min_eval_shingles) {
+        const auto e = m.Informative(item);
         size_t need = static_cast<size_t>(std::ceil(s.containment * static_cast<double>(e.size()) - 1e-9));
         need = std::max<size_t>(need, 1);
-        uint64_t inter = sketch::IntersectionSize(e, set);
+        if (!have_sorted) {
+          sorted.assign(inf.begin(), inf.end());
+          std::sort(sorted.begin(), sorted.end());
+          sorted.erase(std::unique(sorted.begin(), sorted.end()), sorted.end());
+          have_sorted = true;
+        }
+        // The exact count when the test passes (the score); a smaller one when it fails.
+        const uint64_t inter = IntersectionIfAtLeast(e, sorted, need);
         c = static_cast<double>(inter) / static_cast<double>(e.size());
         cok = inter >= need;
       }
@@ -679,14 +749,15 @@ uint32_t LeakIndex::AnswerGrams() const { return impl_->ref_ngram ? impl_->ref_n
 
 void LeakIndex::CollectPromptGrams(std::string_view prompt, std::string_view exact_text,
                                    std::vector<uint32_t>* ids) const {
-  const Impl& m = *impl_;
   ids->clear();
-  if (!m.ngram) return;
-  if (m.same_norm) {
-    m.ngram->CollectIds(exact_text, ids);
-  } else {
-    m.ngram->CollectIds(NormalizeForMatch(prompt, m.gram_norm), ids);
-  }
+  if (!impl_->ngram) return;
+  std::string gram_store;
+  CollectPromptGrams(Texts(prompt, exact_text, &gram_store), ids);
+}
+
+void LeakIndex::CollectPromptGrams(const PromptTexts& texts, std::vector<uint32_t>* ids) const {
+  ids->clear();
+  if (impl_->ngram) impl_->ngram->CollectIds(texts.gram, ids);
 }
 
 void LeakIndex::CollectAnswerGrams(std::string_view answer, std::string_view exact_text,
@@ -759,7 +830,7 @@ void LeakIndex::ReleaseCheckTables() {
   FreeVector(m.sigs);
   m.bands = HashPostings();
   m.prefixes = HashPostings();
-  FreeVector(m.template_shingles);
+  m.template_shingles = SortedKeys();
   FreeVector(m.ref_hash);
   m.ref_exact = HashPostings();
 }
@@ -817,7 +888,7 @@ std::vector<MemoryPart> LeakIndex::Memory() const {
   out.push_back({"near: signatures", VectorBytes(m.sigs)});
   out.push_back({"near: band postings", m.bands.bytes()});
   out.push_back({"near: prefix postings", m.prefixes.bytes()});
-  out.push_back({"near: template shingles", VectorBytes(m.template_shingles)});
+  out.push_back({"near: template shingles", m.template_shingles.bytes()});
   out.push_back({"training frequencies", VectorBytes(m.prompt_train_df) + VectorBytes(m.answer_train_df)});
   out.push_back({"answers: texts, hashes, postings",
                  m.ref_text.bytes() + VectorBytes(m.ref_items) + VectorBytes(m.ref_hash) + m.ref_exact.bytes()});

@@ -103,6 +103,18 @@ class LeakIndex {
                                                   const NormalizeOptions& norm);
   ~LeakIndex();
 
+  // A training prompt's texts: `exact` as the plan normalises it (the exact
+  // detector; the pipeline's MatchText), `gram` as the n-gram and near
+  // detectors do (punctuation removed by default). Texts() gives `exact`
+  // itself as `gram` when the two normalisations agree, else normalises
+  // `prompt` their way into *store, which must outlive the result. A caller
+  // that runs CheckPrompt and CollectPromptGrams on one prompt normalises it
+  // once this way instead of once in each.
+  struct PromptTexts {
+    std::string_view exact, gram;
+  };
+  PromptTexts Texts(std::string_view prompt, std::string_view normalized, std::string* store) const;
+
   // Two-phase n-gram detection (the pipeline stage): in pass 1 collect the
   // ids of the evaluation grams each training prompt (candidate answer)
   // holds and count their document frequencies; then SetTrainingFrequencies
@@ -110,6 +122,9 @@ class LeakIndex {
   uint32_t PromptGrams() const;   // 0 when the ngram detector is off
   uint32_t AnswerGrams() const;   // 0 when the answer detector is off
   void CollectPromptGrams(std::string_view prompt, std::string_view normalized, std::vector<uint32_t>* ids) const;
+  // The same from the texts Texts() gives (the prompt normalised once for
+  // CheckPrompt and CollectPromptGrams both).
+  void CollectPromptGrams(const PromptTexts& texts, std::vector<uint32_t>* ids) const;
   void CollectAnswerGrams(std::string_view answer, std::string_view normalized, std::vector<uint32_t>* ids) const;
   // Removes from `ids` (as Collect* gives them) the grams already set aside as
   // template text by the evaluation side alone: Match*Grams never look at
@@ -138,6 +153,8 @@ class LeakIndex {
   // `with_ngram` false leaves the n-gram part out (the two-phase caller).
   void CheckPrompt(std::string_view prompt, std::string_view normalized, bool all_items,
                    std::vector<LeakFinding>* out, bool with_ngram = true) const;
+  void CheckPrompt(const PromptTexts& texts, bool all_items, std::vector<LeakFinding>* out,
+                   bool with_ngram = true) const;
   void CheckAnswer(std::string_view answer, std::string_view normalized, int candidate,
                    std::vector<LeakFinding>* out, bool with_ngram = true) const;
 

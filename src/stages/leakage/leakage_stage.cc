@@ -65,13 +65,15 @@ class LeakageStage : public Stage {
     std::vector<LeakFinding> f;
     const std::string user_text = rec.prompt_is_chat ? rec.UserPromptText() : std::string();
     const std::string_view raw = rec.prompt_is_chat ? std::string_view(user_text) : std::string_view(rec.prompt);
-    index_->CheckPrompt(raw, text.user_prompt(), false, &f, /*with_ngram=*/false);
+    thread_local std::string gram_store;  // the prompt normalised for the n-gram and near detectors, once
+    const LeakIndex::PromptTexts texts = index_->Texts(raw, text.user_prompt(), &gram_store);
+    index_->CheckPrompt(texts, false, &f, /*with_ngram=*/false);
     thread_local std::vector<uint32_t> ids, prompt, answer, ends;
     prompt.clear();
     answer.clear();
     ends.clear();
     if (prompt_df_) {
-      index_->CollectPromptGrams(raw, text.user_prompt(), &ids);
+      index_->CollectPromptGrams(texts, &ids);
       for (uint32_t id : ids) prompt_df_[id].fetch_add(1, std::memory_order_relaxed);
       prompt = ids;
       index_->DropEvalTemplatePromptGrams(&prompt);  // counted above; never matched, so not kept

@@ -150,7 +150,6 @@ void NgramIndex::CollectIds(std::string_view text, std::vector<uint32_t>* ids) c
   ids->clear();
   thread_local std::vector<uint64_t> grams;
   thread_local std::vector<int64_t> found;
-  const size_t words = sketch::CountWords(text);
   const size_t n = static_cast<size_t>(options_.n);
   auto add = [&]() {
     found.resize(grams.size());
@@ -159,11 +158,18 @@ void NgramIndex::CollectIds(std::string_view text, std::vector<uint32_t>* ids) c
       if (id >= 0) ids->push_back(static_cast<uint32_t>(id));
     }
   };
-  if (long_entries_ && words >= n) {
+  // The text's words, counted only when the long grams do not tell: n or
+  // more words give words - n + 1 grams, fewer one (the whole text).
+  size_t words = 0;
+  bool counted = false;
+  if (long_entries_) {
     grams.clear();
     sketch::AppendShingles(text, WordGrams(options_.n, options_.seed), &grams);
-    add();
+    words = grams.size() > 1 ? grams.size() + n - 1 : sketch::CountWords(text);
+    counted = true;
+    if (words >= n) add();
   }
+  if (!short_lengths_.empty() && !counted) words = sketch::CountWords(text);
   for (int k : short_lengths_) {
     if (static_cast<size_t>(k) > words) break;
     grams.clear();

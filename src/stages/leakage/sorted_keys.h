@@ -1,0 +1,71 @@
+// SortedKeys: an immutable set of 64-bit keys (already hashes) kept sorted,
+// with a directory over the keys' top bits so that a membership test or a
+// rank costs two directory reads and a short scan instead of a binary search.
+//
+// The near detector's template shingles (docs/leakage.md, "Template text")
+// are looked up once per training shingle; with a binary search over ten
+// thousand keys that was the largest part of the per-prompt check on
+// template text ("Per-prompt check" there). A key's rank is its position in
+// keys(), the same as std::lower_bound over the sorted vector gives; unlike
+// HashPostings no key is merged with another (0 is a key like any other).
+//
+// Layout: keys_ ascending and distinct; dir_ has 2^b + 1 entries, dir_[j]
+// the first key whose top b bits are >= j, b chosen for one to two keys a
+// bucket (4 bytes of directory for about 1.5 keys: 2.7 bytes a key). A bucket
+// crowded by keys that are not hashes falls back to a binary search.
+// Thread-safety: Build once on one thread; const members may then run concurrently.
+#pragma once
+
+#include <algorithm>
+#include <cstdint>
+#include <span>
+#include <vector>
+
+namespace prefsift {
+
+class SortedKeys {
+ public:
+  // REQUIRES: `keys` ascending and distinct.
+  void Build(std::vector<uint64_t> keys) {
+    keys_ = std::move(keys);
+    int bits = 1;
+    while ((size_t{1} << bits) * 2 < keys_.size() && bits < 32) ++bits;
+    shift_ = 64 - bits;
+    const size_t buckets = size_t{1} << bits;
+    std::vector<uint32_t>(buckets + 1).swap(dir_);
+    size_t k = 0;
+    for (size_t j = 0; j <= buckets; ++j) {
+      while (k < keys_.size() && (keys_[k] >> shift_) < j) ++k;
+      dir_[j] = static_cast<uint32_t>(k);
+    }
+  }
+
+  // The position of `key` in keys(), or -1 when absent.
+  int64_t Rank(uint64_t key) const {
+    if (keys_.empty()) return -1;
+    const size_t b = static_cast<size_t>(key >> shift_);
+    const uint64_t* const base = keys_.data();
+    const uint64_t* p = base + dir_[b];
+    const uint64_t* const end = base + dir_[b + 1];
+    if (end - p > kLinearRun) p = std::lower_bound(p, end, key);
+    for (; p < end; ++p) {
+      if (*p >= key) return *p == key ? p - base : -1;
+    }
+    return -1;
+  }
+  bool Contains(uint64_t key) const { return Rank(key) >= 0; }
+
+  std::span<const uint64_t> keys() const { return keys_; }
+  size_t size() const { return keys_.size(); }
+  bool empty() const { return keys_.empty(); }
+  // Heap bytes held (capacities, without the allocator's overhead).
+  uint64_t bytes() const { return keys_.capacity() * 8 + dir_.capacity() * 4; }
+
+ private:
+  static constexpr ptrdiff_t kLinearRun = 16;
+  std::vector<uint64_t> keys_;
+  std::vector<uint32_t> dir_;
+  int shift_ = 63;
+};
+
+}  // namespace prefsift
