@@ -10,6 +10,7 @@
 # stage's Decide and the gate), of pass 2, of provenance hashing, and of the
 # rest (set-up such as building the leakage index, stage outputs, summary,
 # datasheet and report). Then:
+#   Each run is pinned to its thread count's cores (taskset -c 0-(t-1)).
 #   - Amdahl fit: with T1 the wall time on 1 thread and Tp on p threads,
 #     T_p = T1 (s + (1 - s) / p) gives s = (Tp/T1 - 1/p) / (1 - 1/p) for each p > 1.
 #     It needs a quiet machine: on a shared one, other processes' load enters s.
@@ -34,7 +35,13 @@ mkdir -p "$OUT"
 
 one_run() {  # threads -> "wall cpu rss_mb pass1 decide pass2 provenance rest"
   local t=$1 log=$OUT/time-$1.log
-  /usr/bin/time -v "$PREFSIFT" run --plan "$PLAN" --out "$OUT/out" --overwrite -q --timings --threads "$t" \
+  # Pinned to t cores (the first t), so that the reader, the writer and the
+  # main thread cannot run on an idle core a run with fewer threads leaves: an
+  # unpinned `--threads 1` run still used the second core and understated the
+  # serial share.
+  local pin=()
+  if command -v taskset >/dev/null && [ "$t" -le "$(nproc)" ]; then pin=(taskset -c "0-$((t - 1))"); fi
+  "${pin[@]}" /usr/bin/time -v "$PREFSIFT" run --plan "$PLAN" --out "$OUT/out" --overwrite -q --timings --threads "$t" \
     >/dev/null 2>"$log" || {
     local rc=$?
     [ $rc -eq 4 ] || [ $rc -eq 5 ] || { cat "$log" >&2; exit $rc; }  # 4, 5: complete runs
