@@ -3,13 +3,14 @@
 
 namespace prefsift::sketch {
 
-uint64_t IntersectionSize(std::span<const uint64_t> a, std::span<const uint64_t> b) {
+uint64_t IntersectionIfAtLeast(std::span<const uint64_t> a, std::span<const uint64_t> b, size_t need) {
+  const size_t may_miss = a.size() - need;
+  size_t missed = 0, i = 0, j = 0;
   uint64_t common = 0;
-  size_t i = 0;
-  size_t j = 0;
   while (i < a.size() && j < b.size()) {
     if (a[i] < b[j]) {
       ++i;
+      if (++missed > may_miss) return common;
     } else if (b[j] < a[i]) {
       ++j;
     } else {
@@ -19,6 +20,10 @@ uint64_t IntersectionSize(std::span<const uint64_t> a, std::span<const uint64_t>
     }
   }
   return common;
+}
+
+uint64_t IntersectionSize(std::span<const uint64_t> a, std::span<const uint64_t> b) {
+  return IntersectionIfAtLeast(a, b, 0);
 }
 
 double ExactJaccard(std::span<const uint64_t> a, std::span<const uint64_t> b) {

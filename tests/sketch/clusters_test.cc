@@ -10,6 +10,7 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <iterator>
 #include <random>
 #include <string>
 #include <vector>
@@ -43,6 +44,32 @@ TEST(SetSimilarity, HandComputed) {
   EXPECT_DOUBLE_EQ(Containment(b, a), 2.0 / 3.0);
   EXPECT_DOUBLE_EQ(ExactJaccard({}, {}), 1.0);
   EXPECT_DOUBLE_EQ(Containment({}, b), 0.0);
+}
+
+// IntersectionIfAtLeast against the plain count of std::set_intersection on
+// random sorted sets: the exact size whenever it reaches `need`, something
+// below `need` otherwise.
+TEST(SetSimilarity, IntersectionIfAtLeastIsExactWhenItReachesNeed) {
+  std::mt19937_64 rng(20261203);
+  for (int trial = 0; trial < 3000; ++trial) {
+    std::vector<uint64_t> a, b;
+    const uint64_t universe = 1 + rng() % 60;
+    for (uint64_t x = 0; x < universe; ++x) {
+      if (rng() % 2) a.push_back(x);
+      if (rng() % 3 == 0) b.push_back(x);
+    }
+    std::vector<uint64_t> both;
+    std::set_intersection(a.begin(), a.end(), b.begin(), b.end(), std::back_inserter(both));
+    for (size_t need = 0; need <= a.size(); ++need) {
+      const uint64_t got = IntersectionIfAtLeast(a, b, need);
+      if (both.size() >= need) {
+        ASSERT_EQ(got, both.size()) << trial << " " << need;
+      } else {
+        ASSERT_LT(got, need) << trial << " " << need;
+      }
+    }
+    ASSERT_EQ(IntersectionSize(a, b), both.size());
+  }
 }
 
 // Synthetic prompts: sentences of words from a fixed vocabulary; 35% of the

@@ -26,7 +26,10 @@
 #include <cstdint>
 #include <span>
 #include <utility>
+#include <tuple>
 #include <vector>
+
+#include "stages/leakage/sorted_keys.h"
 
 namespace prefsift {
 
@@ -40,13 +43,13 @@ class HashPostings {
     entries.erase(std::unique(entries.begin(), entries.end()), entries.end());
     size_t distinct = 0;
     for (size_t i = 0; i < entries.size(); ++i) distinct += i == 0 || entries[i].first != entries[i - 1].first;
-    std::vector<uint64_t>(distinct).swap(keys_);
+    std::vector<uint64_t> keys(distinct);
     std::vector<uint32_t>(distinct + 1).swap(starts_);
     std::vector<uint32_t>(entries.size()).swap(values_);
     size_t d = 0;
     for (size_t i = 0; i < entries.size(); ++i) {
       if (i == 0 || entries[i].first != entries[i - 1].first) {
-        keys_[d] = entries[i].first;
+        keys[d] = entries[i].first;
         starts_[d++] = static_cast<uint32_t>(i);
       }
       values_[i] = entries[i].second;
@@ -55,7 +58,7 @@ class HashPostings {
     num_keys_ = distinct;
     num_entries_ = entries.size();
     std::vector<std::pair<uint64_t, uint32_t>>().swap(entries);
-    MakeDirectory();
+    keys_.Build(std::move(keys), 8);
   }
 
   // The values stored under `key` (empty when absent).
@@ -69,10 +72,7 @@ class HashPostings {
   // 1 counted as 1), or -1 when absent. A caller can use it as a dense id.
   // REQUIRES: no DropKeys since the last Build.
   int64_t Ordinal(uint64_t key) const {
-    if (keys_.empty()) return -1;
-    key = Fix(key);
-    const size_t b = static_cast<size_t>(key >> shift_);
-    return Search(key, dir_[b], dir_[b + 1]);
+    return keys_.Rank(Fix(key));
   }
 
   // Ordinal of each of `keys` into out[i] (out.size() == keys.size()): the
@@ -88,14 +88,12 @@ class HashPostings {
     uint32_t lo[kBatch], hi[kBatch];
     for (size_t base = 0; base < keys.size(); base += kBatch) {
       const size_t m = std::min(kBatch, keys.size() - base);
-      for (size_t j = 0; j < m; ++j) __builtin_prefetch(dir_.data() + (Fix(keys[base + j]) >> shift_));
+      for (size_t j = 0; j < m; ++j) keys_.PrefetchBucket(Fix(keys[base + j]));
       for (size_t j = 0; j < m; ++j) {
-        const size_t b = static_cast<size_t>(Fix(keys[base + j]) >> shift_);
-        lo[j] = dir_[b];
-        hi[j] = dir_[b + 1];
-        __builtin_prefetch(keys_.data() + lo[j]);
+        std::tie(lo[j], hi[j]) = keys_.Bucket(Fix(keys[base + j]));
+        keys_.PrefetchRun(lo[j]);
       }
-      for (size_t j = 0; j < m; ++j) out[base + j] = Search(Fix(keys[base + j]), lo[j], hi[j]);
+      for (size_t j = 0; j < m; ++j) out[base + j] = keys_.Search(Fix(keys[base + j]), lo[j], hi[j]);
     }
   }
 
@@ -107,8 +105,7 @@ class HashPostings {
 
   // Frees the keys and the directory: Values still work, Ordinal and Find not.
   void DropKeys() {
-    std::vector<uint64_t>().swap(keys_);  // (`keys_ = {}` would keep the capacity)
-    std::vector<uint32_t>().swap(dir_);
+    keys_ = SortedKeys();  // (a move: the old vectors' blocks are freed)
   }
   // Frees the values: Ordinal still works, Values and Find not.
   void DropValues() {
@@ -128,47 +125,16 @@ class HashPostings {
   size_t keys() const { return num_keys_; }
   // Heap bytes held (capacities; docs/leakage.md "Memory").
   uint64_t bytes() const { return key_bytes() + value_bytes(); }
-  uint64_t key_bytes() const { return keys_.capacity() * 8 + dir_.capacity() * 4; }
+  uint64_t key_bytes() const { return keys_.bytes(); }
   uint64_t value_bytes() const { return starts_.capacity() * 4 + values_.capacity() * 4; }
 
  private:
-  static constexpr ptrdiff_t kLinearRun = 16;
   static uint64_t Fix(uint64_t k) { return k == 0 ? 1 : k; }
 
-  // `key` (fixed) among keys_[lo, hi), its bucket's run: its position or -1.
-  int64_t Search(uint64_t key, uint32_t lo, uint32_t hi) const {
-    const uint64_t* const base = keys_.data();
-    const uint64_t* p = base + lo;
-    const uint64_t* const end = base + hi;
-    if (end - p > kLinearRun) p = std::lower_bound(p, end, key);  // a crowded bucket (unhashed keys)
-    for (; p < end; ++p) {
-      if (*p >= key) return *p == key ? p - base : -1;
-    }
-    return -1;
-  }
-
-  // 2^b buckets, b >= 1, with at most 8 keys a bucket on average (4 to 8
-  // once there are 16 keys or more); dir_[j] = the first key whose top b
-  // bits are >= j.
-  void MakeDirectory() {
-    int bits = 1;
-    while ((size_t{1} << bits) * 8 < keys_.size() && bits < 32) ++bits;
-    shift_ = 64 - bits;
-    const size_t buckets = size_t{1} << bits;
-    std::vector<uint32_t>(buckets + 1).swap(dir_);
-    size_t k = 0;
-    for (size_t j = 0; j <= buckets; ++j) {
-      while (k < keys_.size() && (keys_[k] >> shift_) < j) ++k;
-      dir_[j] = static_cast<uint32_t>(k);
-    }
-  }
-
-  std::vector<uint64_t> keys_;    // distinct keys, ascending; ordinal = position
-  std::vector<uint32_t> dir_;     // bucket -> first key of the bucket; dir_[buckets] = keys
+  SortedKeys keys_;                // distinct keys, ascending; ordinal = position (8 keys a bucket)
   std::vector<uint32_t> starts_;  // key of rank d: values_[starts_[d], starts_[d + 1])
   std::vector<uint32_t> values_;
   size_t num_keys_ = 0, num_entries_ = 0;
-  int shift_ = 63;
 };
 
 }  // namespace prefsift

@@ -8,6 +8,7 @@
 #include "core/hash.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
+#include "sketch/set_similarity.h"
 #include "sketch/shingles.h"
 #include "stages/leakage/flat_rows.h"
 #include "stages/leakage/hash_postings.h"
@@ -99,28 +100,6 @@ std::vector<CoverageHit> Passing(const LeakSettings& s, const NgramIndex& idx, s
   std::sort(out.begin(), out.end(), better);
   if (!all && out.size() > 1) out.resize(1);
   return out;
-}
-
-// |e ∩ t| for sorted, distinct e and t when it is at least `need`; else some
-// smaller number: the merge stops once more than |e| - need shingles of e
-// are known to be missing from t. REQUIRES: 1 <= need <= e.size().
-uint64_t IntersectionIfAtLeast(std::span<const uint64_t> e, std::span<const uint64_t> t, size_t need) {
-  const size_t may_miss = e.size() - need;
-  size_t missed = 0, i = 0, j = 0;
-  uint64_t common = 0;
-  while (i < e.size() && j < t.size()) {
-    if (e[i] < t[j]) {
-      ++i;
-      if (++missed > may_miss) return common;
-    } else if (t[j] < e[i]) {
-      ++j;
-    } else {
-      ++common;
-      ++i;
-      ++j;
-    }
-  }
-  return common;
 }
 
 LeakFinding GramFinding(const LeakSettings& s, const CoverageHit& h, std::string_view item_text) {
@@ -654,7 +633,7 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
           have_sorted = true;
         }
         // The exact count when the test passes (the score); a smaller one when it fails.
-        const uint64_t inter = IntersectionIfAtLeast(e, sorted, need);
+        const uint64_t inter = sketch::IntersectionIfAtLeast(e, sorted, need);
         c = static_cast<double>(inter) / static_cast<double>(e.size());
         cok = inter >= need;
       }

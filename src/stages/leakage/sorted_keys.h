@@ -19,17 +19,20 @@
 #include <algorithm>
 #include <cstdint>
 #include <span>
+#include <utility>
 #include <vector>
 
 namespace prefsift {
 
 class SortedKeys {
  public:
-  // REQUIRES: `keys` ascending and distinct.
-  void Build(std::vector<uint64_t> keys) {
+  // REQUIRES: `keys` ascending and distinct. `keys_per_bucket`: the mean
+  // bucket size the directory aims at (a power of two; 2 by default; 8 for
+  // HashPostings, which trades lookups for memory).
+  void Build(std::vector<uint64_t> keys, size_t keys_per_bucket = 2) {
     keys_ = std::move(keys);
     int bits = 1;
-    while ((size_t{1} << bits) * 2 < keys_.size() && bits < 32) ++bits;
+    while ((size_t{1} << bits) * keys_per_bucket < keys_.size() && bits < 32) ++bits;
     shift_ = 64 - bits;
     const size_t buckets = size_t{1} << bits;
     std::vector<uint32_t>(buckets + 1).swap(dir_);
@@ -43,17 +46,30 @@ class SortedKeys {
   // The position of `key` in keys(), or -1 when absent.
   int64_t Rank(uint64_t key) const {
     if (keys_.empty()) return -1;
+    const auto [lo, hi] = Bucket(key);
+    return Search(key, lo, hi);
+  }
+  bool Contains(uint64_t key) const { return Rank(key) >= 0; }
+
+  // The steps of Rank, for callers that look up many keys at once and keep
+  // several reads in flight (HashPostings::Ordinals). REQUIRES: !empty().
+  void PrefetchBucket(uint64_t key) const { __builtin_prefetch(dir_.data() + (key >> shift_)); }
+  std::pair<uint32_t, uint32_t> Bucket(uint64_t key) const {
     const size_t b = static_cast<size_t>(key >> shift_);
+    return {dir_[b], dir_[b + 1]};
+  }
+  void PrefetchRun(uint32_t lo) const { __builtin_prefetch(keys_.data() + lo); }
+  // `key` among keys()[lo, hi), its bucket's run: its position or -1.
+  int64_t Search(uint64_t key, uint32_t lo, uint32_t hi) const {
     const uint64_t* const base = keys_.data();
-    const uint64_t* p = base + dir_[b];
-    const uint64_t* const end = base + dir_[b + 1];
-    if (end - p > kLinearRun) p = std::lower_bound(p, end, key);
+    const uint64_t* p = base + lo;
+    const uint64_t* const end = base + hi;
+    if (end - p > kLinearRun) p = std::lower_bound(p, end, key);  // a crowded bucket (keys that are not hashes)
     for (; p < end; ++p) {
       if (*p >= key) return *p == key ? p - base : -1;
     }
     return -1;
   }
-  bool Contains(uint64_t key) const { return Rank(key) >= 0; }
 
   std::span<const uint64_t> keys() const { return keys_; }
   size_t size() const { return keys_.size(); }
