@@ -18,6 +18,7 @@
 #include <vector>
 
 #include "sketch/set_similarity.h"
+#include "adversarial_text.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -323,6 +324,36 @@ TEST(Shingles, GramKeysPartitionNgramsLikeTheHashes) {
     EXPECT_GT(key_of_hash.size(), n == 1 ? 20u : 100u);  // n = 1: the 20 words and the empty text
   }
 }
+
+
+// AppendWordGramKeys unrolls the chaining for n = 3 and 5; its keys must be
+// the plain loop's (AppendWordGramKeysReference) for every n, on adversarial
+// texts (random bytes, malformed UTF-8, runs of punctuation) and on plain
+// word texts, appended after keys already in the vector.
+TEST(Shingles, GramKeysMatchTheirReference) {
+  std::mt19937_64 rng(20261203);
+  std::vector<std::string> texts;
+  for (size_t len : prefsift::testing::AdversarialLengths()) texts.push_back(prefsift::testing::AdversarialText(rng, len));
+  for (int t = 0; t < 50; ++t) {
+    std::string s;
+    for (int w = 0; w < t * 7; ++w) {
+      s += 'w';
+      s += std::to_string(rng() % 40);
+      s += rng() % 4 ? " " : ". ";
+    }
+    texts.push_back(s);
+  }
+  for (int n = 1; n <= 7; ++n) {
+    for (const std::string& text : texts) {
+      std::vector<uint64_t> fast = {1, 2}, ref = {1, 2};
+      AppendWordGramKeys(text, n, &fast);
+      AppendWordGramKeysReference(text, n, &ref);
+      ASSERT_EQ(fast, ref) << "n=" << n << " length " << text.size();
+    }
+  }
+}
+
+
 
 }  // namespace
 }  // namespace prefsift::sketch
