@@ -14,8 +14,7 @@
 
 #include "sketch/mix.h"
 
-#define XXH_INLINE_ALL
-#include <xxhash.h>
+#include "sketch/xxh3_small.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -309,7 +308,7 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
   word_hashes.clear();
   const uint64_t word_seed = seed ^ kWordSeedTweak;
   ForEachWord(text, [&](size_t start, size_t end) {
-    word_hashes.push_back(XXH3_64bits_withSeed(text.data() + start, end - start, word_seed));
+    word_hashes.push_back(Xxh3Seeded(text.data() + start, end - start, word_seed));
   });
   const uint64_t gram_seed = seed ^ kGramSeedTweak;
   const size_t un = static_cast<size_t>(n);
@@ -320,8 +319,14 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
     return;
   }
   const size_t count = word_hashes.size() - un + 1;
-  for (size_t k = 0; k < count; ++k) {
-    out->push_back(XXH3_64bits_withSeed(word_hashes.data() + k, un * sizeof(uint64_t), gram_seed));
+  const size_t at = out->size();
+  out->resize(at + count);
+  uint64_t* dst = out->data() + at;
+  const uint64_t* words = word_hashes.data();
+  if (un == 5) {  // the default: a constant length, so one path of the hash is left
+    for (size_t k = 0; k < count; ++k) dst[k] = Xxh3Seeded(words + k, 5 * sizeof(uint64_t), gram_seed);
+  } else {
+    for (size_t k = 0; k < count; ++k) dst[k] = Xxh3Seeded(words + k, un * sizeof(uint64_t), gram_seed);
   }
 }
 
@@ -362,7 +367,7 @@ void AppendCharShingles(std::string_view text, int n, uint64_t seed,
   }
   const size_t count = cps.size() - un + 1;
   for (size_t k = 0; k < count; ++k) {
-    out->push_back(XXH3_64bits_withSeed(cps.data() + k, un * sizeof(uint32_t), char_seed));
+    out->push_back(Xxh3Seeded(cps.data() + k, un * sizeof(uint32_t), char_seed));
   }
 }
 

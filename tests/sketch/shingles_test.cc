@@ -19,6 +19,7 @@
 
 #include "sketch/set_similarity.h"
 #include "adversarial_text.h"
+#include "sketch/xxh3_small.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -354,6 +355,22 @@ TEST(Shingles, GramKeysMatchTheirReference) {
 }
 
 
+// Xxh3Seeded (the shingler's inlined XXH3) must equal XXH3_64bits_withSeed,
+// its reference, at every length up to 300 bytes (each of its paths and both
+// edges of each), at every alignment of the input, for several seeds.
+TEST(Shingles, InlinedXxh3MatchesTheLibrary) {
+  std::mt19937_64 rng(20261203);
+  std::vector<unsigned char> bytes(320 + 8);
+  for (auto& b : bytes) b = static_cast<unsigned char>(rng());
+  for (uint64_t seed : {uint64_t{0}, uint64_t{1}, uint64_t{0x70726566}, rng(), ~uint64_t{0}}) {
+    for (size_t len = 0; len <= 300; ++len) {
+      for (size_t off = 0; off < 8; ++off) {
+        ASSERT_EQ(Xxh3Seeded(bytes.data() + off, len, seed), XXH3_64bits_withSeed(bytes.data() + off, len, seed))
+            << "length " << len << " offset " << off;
+      }
+    }
+  }
+}
 
 }  // namespace
 }  // namespace prefsift::sketch
