@@ -334,7 +334,7 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
 // length into one 64-bit value, which the bijective Mix spreads: two such
 // words never share a key. Longer words: XXH3 (seedless; these keys only meet
 // each other).
-inline uint64_t WordKey(std::string_view text, size_t start, size_t end) {
+[[gnu::always_inline]] inline uint64_t WordKey(std::string_view text, size_t start, size_t end) {
   const size_t len = end - start;
   if (len < 8) {
     uint64_t v = 0;
