@@ -14,8 +14,7 @@
 
 #include "sketch/mix.h"
 
-#define XXH_INLINE_ALL
-#include <xxhash.h>
+#include "sketch/xxh3_small.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -309,7 +308,7 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
   word_hashes.clear();
   const uint64_t word_seed = seed ^ kWordSeedTweak;
   ForEachWord(text, [&](size_t start, size_t end) {
-    word_hashes.push_back(XXH3_64bits_withSeed(text.data() + start, end - start, word_seed));
+    word_hashes.push_back(Xxh3Seeded(text.data() + start, end - start, word_seed));
   });
   const uint64_t gram_seed = seed ^ kGramSeedTweak;
   const size_t un = static_cast<size_t>(n);
@@ -320,8 +319,14 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
     return;
   }
   const size_t count = word_hashes.size() - un + 1;
-  for (size_t k = 0; k < count; ++k) {
-    out->push_back(XXH3_64bits_withSeed(word_hashes.data() + k, un * sizeof(uint64_t), gram_seed));
+  const size_t at = out->size();
+  out->resize(at + count);
+  uint64_t* dst = out->data() + at;
+  const uint64_t* words = word_hashes.data();
+  if (un == 5) {  // the default: a constant length, so one path of the hash is left
+    for (size_t k = 0; k < count; ++k) dst[k] = Xxh3Seeded(words + k, 5 * sizeof(uint64_t), gram_seed);
+  } else {
+    for (size_t k = 0; k < count; ++k) dst[k] = Xxh3Seeded(words + k, un * sizeof(uint64_t), gram_seed);
   }
 }
 
@@ -329,7 +334,7 @@ void AppendWordShingles(std::string_view text, int n, uint64_t seed,
 // length into one 64-bit value, which the bijective Mix spreads: two such
 // words never share a key. Longer words: XXH3 (seedless; these keys only meet
 // each other).
-inline uint64_t WordKey(std::string_view text, size_t start, size_t end) {
+[[gnu::always_inline]] inline uint64_t WordKey(std::string_view text, size_t start, size_t end) {
   const size_t len = end - start;
   if (len < 8) {
     uint64_t v = 0;
@@ -362,7 +367,7 @@ void AppendCharShingles(std::string_view text, int n, uint64_t seed,
   }
   const size_t count = cps.size() - un + 1;
   for (size_t k = 0; k < count; ++k) {
-    out->push_back(XXH3_64bits_withSeed(cps.data() + k, un * sizeof(uint32_t), char_seed));
+    out->push_back(Xxh3Seeded(cps.data() + k, un * sizeof(uint32_t), char_seed));
   }
 }
 
@@ -373,26 +378,53 @@ void SortUnique(std::vector<uint64_t>* v) {
 
 }  // namespace
 
-void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out) {
+namespace {
+
+// An n-gram's key: its words' keys chained by multiply-rotate, then Mix.
+inline uint64_t ChainKeys(const uint64_t* w, size_t count) {
+  uint64_t h = kGramSeedTweak;
+  for (size_t j = 0; j < count; ++j) h = std::rotl(h * 0x9e3779b97f4a7c15ULL, 27) ^ w[j];
+  return Mix(h ^ count);
+}
+
+// ChainKeys with the count known at compile time: the loop unrolled and its
+// first step (from the constant seed) folded; the same keys.
+template <size_t N>
+void ChainAllFixed(const uint64_t* words, size_t count, uint64_t* dst) {
+  for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words + k, N);
+}
+
+template <bool kFixed>
+void AppendWordGramKeysImpl(std::string_view text, int n, std::vector<uint64_t>* out) {
   thread_local std::vector<uint64_t> words;
   words.clear();
   ForEachWord(text, [&](size_t start, size_t end) { words.push_back(WordKey(text, start, end)); });
-  // An n-gram's key: its words' keys chained by multiply-rotate, then Mix.
-  const auto chain = [](const uint64_t* w, size_t count) {
-    uint64_t h = kGramSeedTweak;
-    for (size_t j = 0; j < count; ++j) h = std::rotl(h * 0x9e3779b97f4a7c15ULL, 27) ^ w[j];
-    return Mix(h ^ count);
-  };
   const size_t un = static_cast<size_t>(n);
   if (words.size() < un) {  // fewer than n words (including none): the whole text is one shingle
-    out->push_back(chain(words.data(), words.size()));
+    out->push_back(ChainKeys(words.data(), words.size()));
     return;
   }
   const size_t count = words.size() - un + 1;
   const size_t at = out->size();
   out->resize(at + count);
   uint64_t* dst = out->data() + at;
-  for (size_t k = 0; k < count; ++k) dst[k] = chain(words.data() + k, un);
+  if (kFixed && un == 3) {
+    ChainAllFixed<3>(words.data(), count, dst);
+  } else if (kFixed && un == 5) {
+    ChainAllFixed<5>(words.data(), count, dst);
+  } else {
+    for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words.data() + k, un);
+  }
+}
+
+}  // namespace
+
+void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out) {
+  AppendWordGramKeysImpl<true>(text, n, out);
+}
+
+void AppendWordGramKeysReference(std::string_view text, int n, std::vector<uint64_t>* out) {
+  AppendWordGramKeysImpl<false>(text, n, out);
 }
 
 WordClass WordClassOf(char32_t cp) {

@@ -104,6 +104,9 @@ std::vector<uint64_t> CharNgramHashes(std::string_view text, int n, uint64_t see
 // same as over AppendShingles' hashes but for such a coincidence. A text with
 // fewer than n words is one shingle, as there. REQUIRES: n >= 1.
 void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out);
+// The same keys with the plain chaining loop for every n (AppendWordGramKeys
+// unrolls it for n = 3 and 5); the reference of a differential test.
+void AppendWordGramKeysReference(std::string_view text, int n, std::vector<uint64_t>* out);
 
 // Appends the hash of every shingle of `text` to *out in text order,
 // duplicates included (no sort). The signer uses this to avoid building a set.

@@ -18,6 +18,8 @@
 #include <vector>
 
 #include "sketch/set_similarity.h"
+#include "adversarial_text.h"
+#include "sketch/xxh3_small.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -321,6 +323,52 @@ TEST(Shingles, GramKeysPartitionNgramsLikeTheHashes) {
       }
     }
     EXPECT_GT(key_of_hash.size(), n == 1 ? 20u : 100u);  // n = 1: the 20 words and the empty text
+  }
+}
+
+
+// AppendWordGramKeys unrolls the chaining for n = 3 and 5; its keys must be
+// the plain loop's (AppendWordGramKeysReference) for every n, on adversarial
+// texts (random bytes, malformed UTF-8, runs of punctuation) and on plain
+// word texts, appended after keys already in the vector.
+TEST(Shingles, GramKeysMatchTheirReference) {
+  std::mt19937_64 rng(20261203);
+  std::vector<std::string> texts;
+  for (size_t len : prefsift::testing::AdversarialLengths()) texts.push_back(prefsift::testing::AdversarialText(rng, len));
+  for (int t = 0; t < 50; ++t) {
+    std::string s;
+    for (int w = 0; w < t * 7; ++w) {
+      s += 'w';
+      s += std::to_string(rng() % 40);
+      s += rng() % 4 ? " " : ". ";
+    }
+    texts.push_back(s);
+  }
+  for (int n = 1; n <= 7; ++n) {
+    for (const std::string& text : texts) {
+      std::vector<uint64_t> fast = {1, 2}, ref = {1, 2};
+      AppendWordGramKeys(text, n, &fast);
+      AppendWordGramKeysReference(text, n, &ref);
+      ASSERT_EQ(fast, ref) << "n=" << n << " length " << text.size();
+    }
+  }
+}
+
+
+// Xxh3Seeded (the shingler's inlined XXH3) must equal XXH3_64bits_withSeed,
+// its reference, at every length up to 300 bytes (each of its paths and both
+// edges of each), at every alignment of the input, for several seeds.
+TEST(Shingles, InlinedXxh3MatchesTheLibrary) {
+  std::mt19937_64 rng(20261203);
+  std::vector<unsigned char> bytes(320 + 8);
+  for (auto& b : bytes) b = static_cast<unsigned char>(rng());
+  for (uint64_t seed : {uint64_t{0}, uint64_t{1}, uint64_t{0x70726566}, rng(), ~uint64_t{0}}) {
+    for (size_t len = 0; len <= 300; ++len) {
+      for (size_t off = 0; off < 8; ++off) {
+        ASSERT_EQ(Xxh3Seeded(bytes.data() + off, len, seed), XXH3_64bits_withSeed(bytes.data() + off, len, seed))
+            << "length " << len << " offset " << off;
+      }
+    }
   }
 }
 

@@ -168,50 +168,57 @@ class CandidateSets {
   // thread's own and is never cleared: an entry counts only when its stamp is
   // this record's.
   static constexpr size_t kTableMaxTexts = 8;
+  // One entry of the table: its key, the record it was filled for and the
+  // candidates' bits, side by side (one cache line a probe, not three).
+  struct Entry {
+    uint64_t key = 0;
+    uint32_t stamp = 0;  // the record the entry was filled for
+    uint32_t marks = 0;  // a bit per candidate
+  };
   void BuildTable() {
     thread_local std::vector<uint64_t> grams;
-    thread_local std::vector<uint64_t> keys;
-    thread_local std::vector<uint32_t> stamps;  // the record an entry was filled for
-    thread_local std::vector<uint8_t> marks;   // a bit per candidate
+    thread_local std::vector<Entry> table;
     thread_local uint32_t stamp = 0;
     const size_t b = texts_.size();
-    std::vector<size_t> ends;
+    size_t ends[kTableMaxTexts];
     grams.clear();
     for (size_t i = 0; i < b; ++i) {
       sketch::AppendWordGramKeys(texts_[i], n_, &grams);
-      ends.push_back(grams.size());
+      ends[i] = grams.size();
     }
     size_t cap = 16;
     while (cap < 2 * grams.size()) cap <<= 1;
-    if (keys.size() < cap || ++stamp == 0) {  // a bigger table, or the stamps wrapped: start clean
-      keys.assign(std::max(cap, keys.size()), 0);
-      stamps.assign(keys.size(), 0);
-      marks.assign(keys.size(), 0);
+    if (table.size() < cap || ++stamp == 0) {  // a bigger table, or the stamps wrapped: start clean
+      table.assign(std::max(cap, table.size()), Entry{});
       stamp = 1;
     }
     const size_t mask = cap - 1;
+    Entry* const t = table.data();
     size_.assign(b, 0);
     inter_.assign(b * b, 0);
     size_t begin = 0;
     for (size_t i = 0; i < b; ++i) {
-      const auto bit = static_cast<uint8_t>(1u << i);
+      const auto bit = 1u << i;
+      uint64_t grown = 0;
       for (size_t g = begin; g < ends[i]; ++g) {
         const uint64_t h = grams[g];
         size_t slot = static_cast<size_t>(h ^ (h >> 29)) & mask;
-        while (stamps[slot] == stamp && keys[slot] != h) slot = (slot + 1) & mask;
-        if (stamps[slot] != stamp) {  // new to this record
-          stamps[slot] = stamp;
-          keys[slot] = h;
-          marks[slot] = bit;
-          ++size_[i];
+        while (t[slot].stamp == stamp && t[slot].key != h) slot = (slot + 1) & mask;
+        Entry& e = t[slot];
+        if (e.stamp != stamp) {  // new to this record
+          e.stamp = stamp;
+          e.key = h;
+          e.marks = bit;
+          ++grown;
           continue;
         }
-        const unsigned m = marks[slot];
+        const unsigned m = e.marks;
         if (m & bit) continue;  // a repeat within candidate i
-        marks[slot] = static_cast<uint8_t>(m | bit);
-        ++size_[i];
+        e.marks = m | bit;
+        ++grown;
         for (unsigned rest = m; rest != 0; rest &= rest - 1) ++inter_[static_cast<size_t>(__builtin_ctz(rest)) * b + i];
       }
+      size_[i] = grown;
       begin = ends[i];
     }
     table_built_ = true;
