@@ -6,10 +6,10 @@
 #include <gtest/gtest.h>
 
 #include <cstdint>
-#include <thread>
 #include <vector>
 
 #include "core/random.h"
+#include "on_threads.h"
 #include "stages/leakage/gram_rows.h"
 
 namespace prefsift {
@@ -93,13 +93,7 @@ TEST(GramRows, RowsSetFromSeveralThreadsAtOnce) {
   for (size_t i = 0; i < 40000; ++i) plain.push_back(RandomRow(&state, i));
   GramRows rows;
   rows.resize(plain.size());
-  std::vector<std::thread> threads;
-  for (size_t t = 0; t < 4; ++t) {
-    threads.emplace_back([&, t] {
-      for (size_t i = t; i < plain.size(); i += 4) rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends);
-    });
-  }
-  for (auto& th : threads) th.join();
+  OnThreads(plain.size(), 4, [&](size_t i) { rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends); });
   ExpectSame(rows, plain);
 }
 

@@ -7,10 +7,10 @@
 
 #include <cstdint>
 #include <string>
-#include <thread>
 #include <vector>
 
 #include "core/random.h"
+#include "on_threads.h"
 #include "stages/screen/hit_rows.h"
 
 namespace prefsift {
@@ -91,13 +91,7 @@ TEST(HitRows, RowsSetFromSeveralThreadsAtOnce) {
   for (size_t i = 0; i < 20000; ++i) plain.push_back(RandomHits(&state, i));
   HitRows rows;
   rows.resize(plain.size());
-  std::vector<std::thread> threads;
-  for (size_t t = 0; t < 4; ++t) {
-    threads.emplace_back([&, t] {
-      for (size_t i = t; i < plain.size(); i += 4) rows.Set(i, plain[i]);
-    });
-  }
-  for (auto& th : threads) th.join();
+  OnThreads(plain.size(), 4, [&](size_t i) { rows.Set(i, plain[i]); });
   for (size_t i = 0; i < plain.size(); ++i) ExpectSame(rows.Get(i), plain[i], i);
 }
 
