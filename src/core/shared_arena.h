@@ -20,9 +20,10 @@ namespace prefsift {
 
 class SharedArena {
  public:
-  // `bytes` bytes, 8-byte aligned, valid until clear() or destruction.
+  // `bytes` bytes, 8-byte aligned, valid until clear() or destruction (at
+  // least one word, so that even a request of 0 bytes gets a place of its own).
   void* Allocate(size_t bytes) {
-    const size_t words = (bytes + 7) / 8;
+    const size_t words = bytes == 0 ? 1 : (bytes + 7) / 8;
     std::lock_guard<std::mutex> lock(mu_);
     if (words > kBlockWords) {  // longer than a block: a block of its own
       large_.push_back(std::make_unique_for_overwrite<uint64_t[]>(words));

@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "core/random.h"
+#include "core/shared_arena.h"
 #include "on_threads.h"
 #include "stages/leakage/gram_rows.h"
 
@@ -54,6 +55,29 @@ void ExpectSame(const GramRows& rows, const std::vector<PlainRow>& plain) {
       EXPECT_EQ(g.answer_end(k), std::make_pair(p.ends[2 * k], p.ends[2 * k + 1])) << i;
     }
   }
+}
+
+// SharedArena (src/core/shared_arena.h), which GramRows and HitRows allocate
+// from: distinct, 8-byte aligned places that keep what was written, a request
+// of 0 bytes included, across blocks.
+TEST(SharedArena, PlacesAreAlignedDistinctAndKeepTheirBytes) {
+  SharedArena arena;
+  std::vector<std::pair<unsigned char*, size_t>> got;
+  uint64_t state = 3;
+  for (size_t k = 0; k < 3000; ++k) {
+    const size_t n = k == 0 ? 0 : UniformBelow(&state, 3000);
+    auto* p = static_cast<unsigned char*>(arena.Allocate(n));
+    ASSERT_EQ(reinterpret_cast<uintptr_t>(p) % 8, 0u);
+    for (size_t b = 0; b < n; ++b) p[b] = static_cast<unsigned char>(k + b);
+    got.emplace_back(p, n);
+  }
+  for (size_t k = 1; k < got.size(); ++k) ASSERT_NE(got[k].first, got[k - 1].first);
+  for (size_t k = 0; k < got.size(); ++k) {
+    for (size_t b = 0; b < got[k].second; ++b) ASSERT_EQ(got[k].first[b], static_cast<unsigned char>(k + b)) << k;
+  }
+  EXPECT_GE(arena.bytes(), size_t{1} << 20);
+  arena.clear();
+  EXPECT_EQ(arena.bytes(), 0u);
 }
 
 TEST(GramRows, EmptyRowsReadAsNoIds) {
