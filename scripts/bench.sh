@@ -74,7 +74,7 @@ timed() {
     # Exit 4 (gate) and 5 (strict) still mean a complete run.
     if [ $rc -ne 4 ] && [ $rc -ne 5 ]; then cat "$log" "$DATA/cmd.out" >&2; return $rc; fi
   }
-  grep '^timing:' "$log" >"$DATA/timings.log" || true
+  grep '^timing' "$log" >"$DATA/timings.log" || true
   local wall kb
   wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {print $2}' "$log")
   kb=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$log")
@@ -134,7 +134,7 @@ for n in "${SIZES[@]}"; do
       'BEGIN { if (s <= 0) s = 0.01;
                printf "  %-8s %9.2f %8.2f %11.0f %9.1f %10.1f %8.0f %8.1f%%\n", st, s, cpu, n / s, b / 1e6 / s,
                       kb / 1024, (kb - base) * 1024 / n, 100 * c / s }'
-    [ "$stage" = run ] && sed 's/^timing: /    /' "$DATA/timings.log"  # per-phase seconds of the whole run
+    [ "$stage" = run ] && sed 's/^timing: /    /; s/^timing \([a-z]*\): */    \1: /' "$DATA/timings.log"  # the whole run's phases, pass 1's CPU by part, peak memory by phase
     rm -rf "$DATA/out-$n-$stage"
   done
 done
