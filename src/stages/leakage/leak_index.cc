@@ -539,17 +539,23 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
     std::span<const uint64_t> prefix_keys = ordered;
     if (!m.template_shingles.empty()) {
       informative.clear();
-      lookup.clear();
+      bool template_low = false;  // a template shingle 0 or 1 (chance about 2^-63 a shingle)
       for (uint64_t g : ordered) {
         if (!m.template_shingles.Contains(g)) {
           informative.push_back(g);
-          lookup.push_back(g);
-        } else if (g <= 1) {
-          lookup.push_back(g);
+        } else {
+          template_low |= g <= 1;
         }
       }
       inf = informative;
-      prefix_keys = lookup;
+      prefix_keys = informative;
+      if (template_low) {  // the lookups also take it (candidates are made distinct below, so order is free)
+        lookup.assign(informative.begin(), informative.end());
+        for (uint64_t g : ordered) {
+          if (g <= 1 && m.template_shingles.Contains(g)) lookup.push_back(g);
+        }
+        prefix_keys = lookup;
+      }
     }
     // Candidates from the bands and from the prefix filter, each sorted and
     // distinct. Only a prefix candidate can pass the containment test (the
