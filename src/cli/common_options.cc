@@ -28,6 +28,9 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_option("--seed", o->seed, "Seed for every random choice (default 0, or the plan's)");
   cmd->add_flag("-q,--quiet", o->quiet, "No ledger table or progress on stderr");
   cmd->add_flag("--timings", o->timings, "Print the wall time of each phase and stage on stderr (not in any output file)");
+  cmd->add_flag("--buffered-output", o->buffered_output,
+                "Write the split files and rejects.jsonl through the page cache (default: past it, O_DIRECT, where "
+                "the file system allows; same bytes either way)");
   cmd->add_flag("--progress", o->progress,
                 "When stderr is not a terminal (logs, CI), print a progress line every 5 seconds (on a terminal "
                 "the line is always shown)");

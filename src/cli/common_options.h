@@ -28,6 +28,7 @@ struct CommonOptions {
   unsigned threads = 0;
   bool quiet = false;
   bool timings = false;
+  bool buffered_output = false;  // split files and rejects.jsonl through the page cache
   bool progress = false;
   double progress_seconds = 5;
   long long seed = -1;

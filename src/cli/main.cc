@@ -45,7 +45,8 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
   opts.progress_seconds = o.progress_seconds;
   opts.table = !o.quiet;
   opts.timings = o.timings;
-  auto outcome = RunPipeline(plan.value(), opts, DefaultFileSystem(), stderr);
+  auto outcome =
+      RunPipeline(plan.value(), opts, o.buffered_output ? BufferedFileSystem() : DefaultFileSystem(), stderr);
   if (!outcome.ok()) {
     std::fprintf(stderr, "prefsift: %s\n", PlanMessage(o, outcome.status()).c_str());
     return ExitFor(outcome.status());

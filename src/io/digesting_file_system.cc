@@ -77,6 +77,13 @@ Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenWrite(const std::
   return std::unique_ptr<WritableFile>(std::make_unique<DigestingWritableFile>(std::move(f).value(), this, path));
 }
 
+Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenWriteStream(const std::string& path) {
+  Forget(path);
+  auto f = base_->OpenWriteStream(path);
+  if (!f.ok()) return f.status();
+  return std::unique_ptr<WritableFile>(std::make_unique<DigestingWritableFile>(std::move(f).value(), this, path));
+}
+
 Result<std::unique_ptr<ReadableFile>> DigestingFileSystem::OpenRead(const std::string& path) {
   auto f = base_->OpenRead(path);
   if (!f.ok()) return f.status();

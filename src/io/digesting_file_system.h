@@ -32,6 +32,7 @@ class DigestingFileSystem : public FileSystem {
 
   Result<std::unique_ptr<ReadableFile>> OpenRead(const std::string& path) override;
   Result<std::unique_ptr<WritableFile>> OpenWrite(const std::string& path) override;
+  Result<std::unique_ptr<WritableFile>> OpenWriteStream(const std::string& path) override;
   // A rename moves the digests held for `from` (and inside it) to `to`; a
   // removal forgets them.
   Status Rename(const std::string& from, const std::string& to) override;

@@ -8,6 +8,8 @@
 #include <cstring>
 #include <filesystem>
 
+#include "io/stream_file.h"
+
 namespace prefsift {
 namespace {
 
@@ -75,6 +77,7 @@ class PosixReadable : public ReadableFile {
 
 class PosixFileSystem : public FileSystem {
  public:
+  explicit PosixFileSystem(bool direct_streams) : direct_streams_(direct_streams) {}
   Result<std::unique_ptr<ReadableFile>> OpenRead(const std::string& path) override {
     struct stat st;
     if (::stat(path.c_str(), &st) != 0) return Status::Input(Errno("cannot open", path));
@@ -87,6 +90,9 @@ class PosixFileSystem : public FileSystem {
     std::FILE* f = std::fopen(path.c_str(), "wb");
     if (!f) return Status::Io(Errno("cannot create", path));
     return std::unique_ptr<WritableFile>(new PosixWritable(f, path));
+  }
+  Result<std::unique_ptr<WritableFile>> OpenWriteStream(const std::string& path) override {
+    return OpenStreamFile(path, direct_streams_);
   }
   Status Rename(const std::string& from, const std::string& to) override {
     if (std::rename(from.c_str(), to.c_str()) != 0) return Status::Io(Errno("cannot rename " + from + " to", to));
@@ -122,12 +128,20 @@ class PosixFileSystem : public FileSystem {
     std::sort(names.begin(), names.end());
     return names;
   }
+
+ private:
+  bool direct_streams_;
 };
 
 }  // namespace
 
 FileSystem* DefaultFileSystem() {
-  static PosixFileSystem fs;
+  static PosixFileSystem fs(/*direct_streams=*/true);
+  return &fs;
+}
+
+FileSystem* BufferedFileSystem() {
+  static PosixFileSystem fs(/*direct_streams=*/false);
   return &fs;
 }
 

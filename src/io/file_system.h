@@ -10,7 +10,10 @@
 
 namespace prefsift {
 
-// The real, POSIX file system.
+// The real, POSIX file system. OpenWriteStream writes past the page cache
+// (O_DIRECT) where the file system allows it (io/stream_file.h).
 FileSystem* DefaultFileSystem();
+// The same, with OpenWriteStream through the page cache (run --buffered-output).
+FileSystem* BufferedFileSystem();
 
 }  // namespace prefsift

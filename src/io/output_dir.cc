@@ -39,6 +39,10 @@ Result<std::unique_ptr<WritableFile>> OutputDir::Create(const std::string& name)
   return fs_->OpenWrite(staging_ + "/" + name);
 }
 
+Result<std::unique_ptr<WritableFile>> OutputDir::CreateStream(const std::string& name) {
+  return fs_->OpenWriteStream(staging_ + "/" + name);
+}
+
 Status OutputDir::Write(const std::string& name, std::string_view bytes) {
   auto f = Create(name);
   if (!f.ok()) return f.status();

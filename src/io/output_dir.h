@@ -25,6 +25,8 @@ class OutputDir {
 
   // A new file in the staging folder; `name` is a plain file name.
   Result<std::unique_ptr<WritableFile>> Create(const std::string& name);
+  // The same for a large file written once, start to end (FileSystem::OpenWriteStream).
+  Result<std::unique_ptr<WritableFile>> CreateStream(const std::string& name);
   // A whole small file at once: Create, Append, Close.
   Status Write(const std::string& name, std::string_view bytes);
   // Path of a file in the staging folder (for tools that write by path).

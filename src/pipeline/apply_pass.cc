@@ -223,7 +223,7 @@ class ApplyFiles {
   Result<WritableFile*> File(const std::string& name, OutputDir& out) {
     auto it = files_.find(name);
     if (it != files_.end()) return it->second.get();
-    auto f = out.Create(name);
+    auto f = out.CreateStream(name);
     if (!f.ok()) return f.status();
     return (files_[name] = std::move(f).value()).get();
   }
