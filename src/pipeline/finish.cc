@@ -2,6 +2,7 @@
 #include "pipeline/finish.h"
 
 #include <nlohmann/json.hpp>
+#include <simdjson.h>
 
 #include <algorithm>
 #include <cmath>
@@ -92,6 +93,35 @@ Json MaskedFinding(const Json& f) {
   return m;
 }
 
+// Most lines of a large findings file add nothing to the examples: their
+// kind has an example already and their record is no reject example. A quick
+// look at three fields (simdjson, no tree) finds those lines, so that only the
+// rest are parsed whole; any line it cannot read plainly (a field missing or
+// of another type) is left to the whole parse, so the examples do not change.
+class FindingSkipper {
+ public:
+  bool Unneeded(std::string_view line, const std::map<std::pair<std::string, uint64_t>, size_t>& example_of,
+                const std::set<std::string>& kinds_seen) {
+    padded_.assign(line);
+    padded_.resize(line.size() + simdjson::SIMDJSON_PADDING);
+    simdjson::ondemand::document doc;
+    if (parser_.iterate(padded_.data(), line.size(), padded_.size()).get(doc) != simdjson::SUCCESS) return false;
+    simdjson::ondemand::object obj;
+    if (doc.get_object().get(obj) != simdjson::SUCCESS) return false;
+    std::string_view kind, input;
+    if (obj.find_field_unordered("kind").get_string().get(kind) != simdjson::SUCCESS || kind.empty()) return false;
+    if (!kinds_seen.count(std::string(kind))) return false;
+    if (obj.find_field_unordered("input").get_string().get(input) != simdjson::SUCCESS) return false;
+    uint64_t no = 0;
+    if (obj.find_field_unordered("line").get_uint64().get(no) != simdjson::SUCCESS) return false;
+    return !example_of.count({std::string(input), no});
+  }
+
+ private:
+  simdjson::ondemand::parser parser_;
+  std::string padded_;
+};
+
 // The reject examples (passes.h RejectExamples) with their records' masked
 // findings, and one example per personal-data kind from the findings file. Examples never
 // carry record text: the place, the reason's sentence, and for records with
@@ -113,7 +143,9 @@ Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summa
   if (!sec) return ex;
   std::string name = Text(*sec, "findings_file").empty() ? "personal_data_findings.jsonl" : Text(*sec, "findings_file");
   std::set<std::string> kinds_seen;
+  FindingSkipper skip;
   ForEachLine(fs, out.StagingPath(name), [&](std::string_view line) {
+    if (skip.Unneeded(line, example_of, kinds_seen)) return;
     Json j = Json::parse(line, nullptr, false);
     if (!j.is_object()) return;
     Json masked = MaskedFinding(j);

@@ -22,6 +22,7 @@
 #include <iostream>
 #include <map>
 #include <set>
+#include <sstream>
 
 #include "e2e/e2e_helpers.h"
 
@@ -214,6 +215,45 @@ TEST(PersonalDataE2E, FullDemoRunEchoesNoPlantedValue) {
   // The whole pipeline with the demo plan (every stage).
   ExpectNoEcho(DemoOutput(), "");
   EXPECT_TRUE(DemoSummary()["stages"].contains("screen"));
+}
+
+// summary.json's examples, worked out again from the findings file with a
+// plain parse of every line: one example per kind (its first finding in file
+// order), and each reject example carrying the masked forms of its record's
+// findings. (The run skips most lines without parsing them whole; this checks
+// that it skips none it needed.)
+TEST(PersonalDataE2E, ExamplesAreTheFirstFindingOfEachKindAndTheRejectsFindings) {
+  const std::string dir = DemoOutput();
+  Json summary = Json::parse(ReadFile(dir + "/summary.json"));
+  const Json& ex = summary["examples"];
+  Json by_kind = Json::array();
+  std::set<std::string> kinds;
+  std::map<std::pair<std::string, uint64_t>, Json> masked_of;
+  std::istringstream lines(ReadFile(dir + "/personal_data_findings.jsonl"));
+  for (std::string line; std::getline(lines, line);) {
+    Json f = Json::parse(line);
+    Json m{{"kind", f["kind"]}, {"pointer", f["pointer"]}, {"preview", f["preview"]}, {"applied", f["applied"]}};
+    masked_of[{f["input"].get<std::string>(), f["line"].get<uint64_t>()}].push_back(m);
+    if (!kinds.insert(f["kind"].get<std::string>()).second) continue;
+    m["input"] = f["input"];
+    m["line"] = f["line"];
+    m["id"] = f["id"];
+    by_kind.push_back(m);
+  }
+  ASSERT_GE(kinds.size(), 3u);
+  EXPECT_EQ(ex["personal_data"], by_kind);
+  size_t with_findings = 0;
+  for (const Json& r : ex["rejects"]) {
+    auto it = masked_of.find({r["input"].get<std::string>(), r["line"].get<uint64_t>()});
+    if (it == masked_of.end()) {
+      EXPECT_FALSE(r.contains("masked")) << r.dump();
+      continue;
+    }
+    ++with_findings;
+    EXPECT_EQ(r["masked"], it->second) << r.dump();
+  }
+  std::cout << "[screen] demo examples: " << by_kind.size() << " kinds, " << ex["rejects"].size()
+            << " reject examples, " << with_findings << " with findings\n";
 }
 
 TEST(PersonalDataE2E, SameOutputWithOneAndFourThreads) {
