@@ -12,6 +12,8 @@
 // when the file system refuses O_DIRECT at open or on a write (EINVAL: tmpfs
 // before Linux 6.6, alignments larger than 4 KiB), and for the file's last
 // partial block. Errors name the path, as PosixWritable's do.
+// One full block is written on a background thread while the caller fills the
+// next; an error surfaces at the next Append or at Close.
 // Thread-safety: one thread at a time per file.
 #pragma once
 
