@@ -18,6 +18,7 @@
 #include "core/hash.h"
 #include "core/state_file.h"
 #include "core/sha256.h"
+#include "core/thread_pool.h"
 #include "io/output_dir.h"
 #include "screen/actions.h"
 #include "screen/rules.h"
@@ -276,42 +277,65 @@ class PersonalDataStage : public Stage {
     g->personal_data_left = left;
   }
 
+  // One line per finding, in record order: blocks of records formatted in
+  // parallel, a round of blocks at a time (bounded memory), appended in order.
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
-    auto f = out.Create(kFindingsFile);
+    auto f = out.CreateStream(kFindingsFile);
     if (!f.ok()) return f.status();
-    for (size_t i = 0; i < per_record_.size() && i < st.records.size(); ++i) {
-      if (per_record_.hit_count(i) == 0) continue;
-      const RecordHits r = per_record_.Get(i);
-      const RecordFacts& rf = st.records[i];
-      const Entry& e = st.entries[rf.entry];
-      const Decision& d = st.decisions[rf.entry];
-      const Layout& L = st.plan().inputs[e.input].layout;
-      for (const Hit& h : r.hits) {
-        Json j;
-        j["id"] = rf.id;
-        j["input"] = st.plan().inputs[e.input].name;
-        j["line"] = e.line;
-        j["field"] = std::string(screen::FieldKindName(KindOf(h.part)));
-        if (h.part == Part::kCandidate) j["candidate"] = h.index;
-        if (h.part == Part::kTurn) j["turn"] = h.index;
-        j["pointer"] = PointerOf(L, h);
-        j["kind"] = rules_.rules[h.rule].kind;
-        if (!rules_.rules[h.rule].vendor.empty()) j["vendor"] = rules_.rules[h.rule].vendor;
-        j["family"] = rules_.rules[h.rule].family;
-        j["begin"] = h.begin;
-        j["end"] = h.end;
-        j["action"] = std::string(screen::ActionName(h.action));
-        j["applied"] = r.drop ? "masked (record dropped)"
-                       : h.action == Action::kFlag ? "none"
-                       : h.action == Action::kMask ? "masked" : "pseudonymised";
-        j["certainty"] = std::round(static_cast<double>(h.confidence) * 1000.0) / 1000.0;
-        j["preview"] = h.preview;
-        j["kept"] = !d.rejected;
-        Status s = f.value()->Append(j.dump() + "\n");
+    constexpr size_t kBlock = 4096, kRound = 64;
+    const size_t n = std::min(per_record_.size(), st.records.size());
+    const size_t blocks = (n + kBlock - 1) / kBlock;
+    ThreadPool pool(st.plan().threads);  // 0: one per hardware thread
+    std::vector<std::string> text(kRound);
+    for (size_t first = 0; first < blocks; first += kRound) {
+      const size_t count = std::min(kRound, blocks - first);
+      pool.ParallelFor(count, [&](size_t b, unsigned) {
+        std::string& t = text[b];
+        t.clear();
+        const size_t begin = (first + b) * kBlock;
+        for (size_t i = begin; i < std::min(n, begin + kBlock); ++i) AppendFindingLines(st, i, &t);
+      });
+      for (size_t b = 0; b < count; ++b) {
+        if (text[b].empty()) continue;
+        Status s = f.value()->Append(text[b]);
         if (!s.ok()) return s;
       }
     }
     return f.value()->Close();
+  }
+
+  // The findings file's lines of record i (none when it has no finding).
+  void AppendFindingLines(const RunState& st, size_t i, std::string* t) const {
+    if (per_record_.hit_count(i) == 0) return;
+    const RecordHits r = per_record_.Get(i);
+    const RecordFacts& rf = st.records[i];
+    const Entry& e = st.entries[rf.entry];
+    const Decision& d = st.decisions[rf.entry];
+    const Layout& L = st.plan().inputs[e.input].layout;
+    for (const Hit& h : r.hits) {
+      Json j;
+      j["id"] = rf.id;
+      j["input"] = st.plan().inputs[e.input].name;
+      j["line"] = e.line;
+      j["field"] = std::string(screen::FieldKindName(KindOf(h.part)));
+      if (h.part == Part::kCandidate) j["candidate"] = h.index;
+      if (h.part == Part::kTurn) j["turn"] = h.index;
+      j["pointer"] = PointerOf(L, h);
+      j["kind"] = rules_.rules[h.rule].kind;
+      if (!rules_.rules[h.rule].vendor.empty()) j["vendor"] = rules_.rules[h.rule].vendor;
+      j["family"] = rules_.rules[h.rule].family;
+      j["begin"] = h.begin;
+      j["end"] = h.end;
+      j["action"] = std::string(screen::ActionName(h.action));
+      j["applied"] = r.drop ? "masked (record dropped)"
+                     : h.action == Action::kFlag ? "none"
+                     : h.action == Action::kMask ? "masked" : "pseudonymised";
+      j["certainty"] = std::round(static_cast<double>(h.confidence) * 1000.0) / 1000.0;
+      j["preview"] = h.preview;
+      j["kept"] = !d.rejected;
+      *t += j.dump();
+      *t += '\n';
+    }
   }
 
   void SaveRewrites(StateWriter& out, size_t first, size_t count) const override;

@@ -503,7 +503,7 @@ class SplitStage : public Stage {
   // One line per kept record, in record order: blocks of records formatted in
   // parallel, a round of blocks at a time (bounded memory), appended in order.
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
-    auto f = out.Create(kAssignmentsFile);
+    auto f = out.CreateStream(kAssignmentsFile);
     if (!f.ok()) return f.status();
     constexpr size_t kBlock = 4096, kRound = 64;
     const size_t n = st.records.size();
