@@ -52,9 +52,9 @@ class FileSystem {
   virtual ~FileSystem() = default;
   virtual Result<std::unique_ptr<ReadableFile>> OpenRead(const std::string& path) = 0;
   virtual Result<std::unique_ptr<WritableFile>> OpenWrite(const std::string& path) = 0;
-  // A large file written once, start to end, and not read back by the run
-  // (pass 2's outputs). The default is OpenWrite; the real file system writes
-  // it past the page cache where it can (io/stream_file.h).
+  // A large file written once, start to end (pass 2's outputs, the stages'
+  // files of a line per record). The default is OpenWrite; the real file
+  // system writes it past the page cache where it can (io/stream_file.h).
   virtual Result<std::unique_ptr<WritableFile>> OpenWriteStream(const std::string& path) { return OpenWrite(path); }
   virtual Status Rename(const std::string& from, const std::string& to) = 0;
   virtual Status MakeDir(const std::string& path) = 0;

@@ -1,6 +1,7 @@
-// A large output file written once, start to end, and not read back by the
-// run (pass 2's split files and rejects.jsonl): written past the page cache
-// (O_DIRECT) in large aligned blocks where the file system allows it.
+// A large output file written once, start to end (pass 2's split files and
+// rejects.jsonl, the stages' files of a line per record or finding): written
+// past the page cache (O_DIRECT) in large aligned blocks where the file system
+// allows it. Reading it back afterwards is fine (from the disk, not the cache).
 //
 // Why: copying gigabytes into the page cache costs the writing thread far
 // more than the disk write itself on machines where fresh page-cache pages
