@@ -221,17 +221,21 @@ std::vector<double> SymmetricEigen(Matrix a, size_t d, Matrix& vectors) {
 // column by `scale`, at their places in data.features; rows of comparisons
 // outside the subset are left unset (never read), so their pages are never
 // touched.
-std::unique_ptr<double[]> RescaledRows(const ChoiceData& data, const std::vector<size_t>* subset,
-                                       const std::vector<double>& scale) {
+// The subset's rows divided by `scale`, written into *out (resized to the
+// size of data.features; rows outside the subset are left as they were and
+// never read). A caller running several fits passes one buffer per thread, so
+// a fit after the first writes into memory already faulted in.
+void RescaledRows(const ChoiceData& data, const std::vector<size_t>* subset, const std::vector<double>& scale,
+                  std::vector<double>* out) {
   const size_t d = static_cast<size_t>(data.dim);
-  std::unique_ptr<double[]> out(new double[data.features.size()]);
+  out->resize(data.features.size());
+  double* o = out->data();
   const size_t count = subset ? subset->size() : data.size();
   for (size_t idx = 0; idx < count; ++idx) {
     const size_t i = subset ? (*subset)[idx] : idx;
     for (size_t r = data.offsets[i]; r < data.offsets[i + 1]; ++r)
-      for (size_t f = 0; f < d; ++f) out[r * d + f] = data.features[r * d + f] / scale[f];
+      for (size_t f = 0; f < d; ++f) o[r * d + f] = data.features[r * d + f] / scale[f];
   }
-  return out;
 }
 // After the iterations: is there a direction v in which the Hessian (unit-
 // normalised by its value at w = 0) is numerically singular? If so, say
@@ -279,8 +283,9 @@ ChoiceFitOutcome Diagnose(const ChoiceData& data, const double* features, const 
   return ChoiceFitOutcome::kNotIdentified;
 }
 
+// `scratch` (may be null) holds the rescaled rows; see RescaledRows.
 Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* subset,
-                              const ChoiceFitOptions& options) {
+                              const ChoiceFitOptions& options, std::vector<double>* scratch) {
   const size_t d = static_cast<size_t>(raw.dim);
   std::vector<double> scale(d, 1.0);
   if (options.standardize) {
@@ -306,11 +311,12 @@ Result<ChoiceFit> FitOnSubset(const ChoiceData& raw, const std::vector<size_t>* 
     }
   }
   // The fit reads rescaled rows of the subset only (no copy of the rest).
-  std::unique_ptr<double[]> scaled;
+  std::vector<double> own;
+  if (!scratch) scratch = &own;
   const double* features = raw.features.data();
   if (options.standardize) {
-    scaled = RescaledRows(raw, subset, scale);
-    features = scaled.get();
+    RescaledRows(raw, subset, scale, scratch);
+    features = scratch->data();
   }
   const double l2 = options.l2;
   const size_t count = subset ? subset->size() : raw.size();
@@ -491,7 +497,7 @@ ChoiceObjective EvaluateChoiceObjective(const ChoiceData& data, const std::vecto
 
 Result<ChoiceFit> FitChoiceModel(const ChoiceData& data, const ChoiceFitOptions& options) {
   if (Status s = Validate(data, options); !s.ok()) return s;
-  return FitOnSubset(data, nullptr, options);
+  return FitOnSubset(data, nullptr, options, nullptr);
 }
 
 double ChoiceAccuracy(const ChoiceData& data, const std::vector<double>& w) {
@@ -544,11 +550,12 @@ struct FoldResult {
 };
 
 // Fold k: fitted on the other folds, credited on its own comparisons.
-FoldResult RunFold(const ChoiceData& data, const ChoiceFitOptions& options, const std::vector<int>& fold, int k) {
+FoldResult RunFold(const ChoiceData& data, const ChoiceFitOptions& options, const std::vector<int>& fold, int k,
+                   std::vector<double>* scratch) {
   FoldResult r;
   std::vector<size_t> train, test;
   for (size_t i = 0; i < fold.size(); ++i) (fold[i] == k ? test : train).push_back(i);
-  Result<ChoiceFit> fit = FitOnSubset(data, &train, options);
+  Result<ChoiceFit> fit = FitOnSubset(data, &train, options, scratch);
   if (!fit.ok()) {
     r.status = fit.status();
     return r;
@@ -587,8 +594,9 @@ Result<CrossValidation> CrossValidatedAccuracy(const ChoiceData& data,
   // The folds are independent fits: run them on their own threads (at most one
   // per core at a time), then combine in fold order.
   std::vector<FoldResult> results(static_cast<size_t>(folds));
-  pool.ParallelFor(static_cast<size_t>(folds), [&](size_t k, unsigned) {
-    results[k] = RunFold(data, options, fold.value(), static_cast<int>(k));
+  std::vector<std::vector<double>> scratch(pool.size());  // one per worker, reused by its fits
+  pool.ParallelFor(static_cast<size_t>(folds), [&](size_t k, unsigned worker) {
+    results[k] = RunFold(data, options, fold.value(), static_cast<int>(k), &scratch[worker]);
   });
   return Combine(results, data.size());
 }
@@ -606,11 +614,12 @@ CrossValidatedFit CrossValidateAndFit(const ChoiceData& data, const ChoiceFitOpt
   std::vector<FoldResult> results(fold.ok() ? static_cast<size_t>(folds) : 0);
   // Task 0 is the fit on every comparison (the largest, so it starts first),
   // tasks 1..folds the folds; each task writes only its own result.
-  pool.ParallelFor(results.size() + 1, [&](size_t t, unsigned) {
+  std::vector<std::vector<double>> scratch(pool.size());  // one per worker, reused by its fits
+  pool.ParallelFor(results.size() + 1, [&](size_t t, unsigned worker) {
     if (t == 0) {
-      out.fit = FitOnSubset(data, nullptr, options);
+      out.fit = FitOnSubset(data, nullptr, options, &scratch[worker]);
     } else {
-      results[t - 1] = RunFold(data, options, fold.value(), static_cast<int>(t - 1));
+      results[t - 1] = RunFold(data, options, fold.value(), static_cast<int>(t - 1), &scratch[worker]);
     }
   });
   out.cv = fold.ok() ? Combine(results, data.size()) : Result<CrossValidation>(fold.status());
