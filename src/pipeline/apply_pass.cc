@@ -16,6 +16,7 @@
 #include <vector>
 
 #include "core/blank.h"
+#include "core/json_dump.h"
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "pipeline/passes.h"
@@ -173,7 +174,8 @@ Status BuildLine(const Plan& plan, const RunState& st, const std::vector<std::un
       Status rs = stage->Rewrite(r, plan.inputs[e.input], &doc);
       if (!rs.ok()) return rs;
     }
-    rewritten = doc.dump();
+    rewritten.reserve(raw.size() + raw.size() / 8 + 16);
+    AppendCompactJson(doc, &rewritten);  // the bytes of doc.dump()
     raw = rewritten;
   }
   *out = d.rejected ? RejectLine(plan, st, e, d, raw) : std::move(rewritten);

@@ -15,6 +15,7 @@
 
 #include "core/blank.h"
 #include "core/free_memory.h"
+#include "core/json_dump.h"
 #include "core/peak_rss.h"
 #include "core/normalize.h"
 #include "core/record_reader.h"
@@ -528,7 +529,8 @@ std::string RejectLine(const Plan& plan, const RunState& st, const Entry& e, con
     head += ",\"record\":";
     head.append(raw);
   } else {
-    head += ",\"record_text\":" + Json(std::string(raw)).dump();
+    head += ",\"record_text\":";
+    AppendJsonString(raw, &head);  // the bytes of Json(std::string(raw)).dump()
   }
   head += "}\n";
   return head;
