@@ -5,7 +5,8 @@
 # and evaluation items share stock sentences), runs every stage alone and the whole
 # pipeline on each, and prints records/s, MB/s of input, peak RSS and RSS per
 # record, beside the machine's ceiling on the same file (bench/pipeline/ceiling.cc:
-# read + simdjson parse + XXH3_128bits, one thread).
+# read + simdjson parse + XXH3_128bits, one thread), and this disk's write
+# speed for as many bytes (dd, direct and through the page cache).
 #
 #   scripts/bench.sh [SIZES...]          default: 10000 100000 1000000
 #   env: BUILD=build-perf  DATA=/tmp/prefsift-bench-$SHAPE-e$EVAL  THREADS=(all cores)
@@ -126,6 +127,17 @@ for n in "${SIZES[@]}"; do
   ceil=$("$BUILD/bench/pipeline/ceiling" "$f" 2>/dev/null)
   echo "$ceil" | tail -n 4 | sed 's/^/  ceiling: /'
   ceil_s=$(echo "$ceil" | awk '$1=="ceiling" {print $2}')
+  # This disk's write speed for as many bytes (a run writes about its input's
+  # size again): past the page cache, as prefsift writes its large files, and
+  # through it (--buffered-output). dd's own time, system seconds beside it.
+  for mode in direct buffered; do
+    flag=; [ "$mode" = direct ] && flag=oflag=direct
+    /usr/bin/time -f '%e %S' -o "$DATA/dd.time" dd if="$f" of="$DATA/write-floor" bs=4M $flag 2>/dev/null
+    rm -f "$DATA/write-floor"
+    read -r ws wsys < "$DATA/dd.time"
+    awk -v m="$mode" -v s="$ws" -v sys="$wsys" -v b="$bytes" \
+      'BEGIN { if (s <= 0) s = 0.01; printf "  write (%s): %.2f s, %.1f MB/s, system %.2f s\n", m, s, b / 1e6 / s, sys }'
+  done
   printf '  %-8s %9s %8s %11s %9s %10s %8s %9s\n' stage seconds cpu_s records/s MB/s peakRSS_MB B/rec "ceiling%"
   for stage in $STAGES run; do
     read -r s kb < <(timed $(run_cmd "$n" "$stage"))
