@@ -17,6 +17,7 @@
 
 #include "core/blank.h"
 #include "core/json_dump.h"
+#include "core/json_parse.h"
 #include "core/thread_pool.h"
 #include "io/line_reader.h"
 #include "pipeline/passes.h"
@@ -162,9 +163,12 @@ Status BuildLine(const Plan& plan, const RunState& st, const std::vector<std::un
   std::string rewritten;
   if (rewrite) {
     const size_t r = static_cast<size_t>(e.record);
+    // The tree nlohmann's parse would build, built from simdjson's DOM
+    // (core/json_parse.h); anything it declines goes to nlohmann as before.
     // simdjson accepted this line in pass 1; parse without exceptions so a
     // disagreement between the two parsers is an error value, never an abort.
-    Json doc = Json::parse(raw, nullptr, /*allow_exceptions=*/false);
+    Json doc;
+    if (!ParseJsonFast(raw, &doc)) doc = Json::parse(raw, nullptr, /*allow_exceptions=*/false);
     if (doc.is_discarded()) {
       return Status::Internal(plan.inputs[e.input].path + ":" + std::to_string(e.line) +
                               ": the record parsed in pass 1 but not when rewriting it; nothing was written");
