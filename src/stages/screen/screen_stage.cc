@@ -16,9 +16,9 @@
 
 #include "core/file_system.h"
 #include "core/hash.h"
+#include "core/ordered_lines.h"
 #include "core/state_file.h"
 #include "core/sha256.h"
-#include "core/thread_pool.h"
 #include "io/output_dir.h"
 #include "screen/actions.h"
 #include "screen/rules.h"
@@ -277,30 +277,14 @@ class PersonalDataStage : public Stage {
     g->personal_data_left = left;
   }
 
-  // One line per finding, in record order: blocks of records formatted in
-  // parallel, a round of blocks at a time (bounded memory), appended in order.
+  // One line per finding, in record order (formatted in parallel blocks).
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
     auto f = out.CreateStream(kFindingsFile);
     if (!f.ok()) return f.status();
-    constexpr size_t kBlock = 4096, kRound = 64;
     const size_t n = std::min(per_record_.size(), st.records.size());
-    const size_t blocks = (n + kBlock - 1) / kBlock;
-    ThreadPool pool(st.plan().threads);  // 0: one per hardware thread
-    std::vector<std::string> text(kRound);
-    for (size_t first = 0; first < blocks; first += kRound) {
-      const size_t count = std::min(kRound, blocks - first);
-      pool.ParallelFor(count, [&](size_t b, unsigned) {
-        std::string& t = text[b];
-        t.clear();
-        const size_t begin = (first + b) * kBlock;
-        for (size_t i = begin; i < std::min(n, begin + kBlock); ++i) AppendFindingLines(st, i, &t);
-      });
-      for (size_t b = 0; b < count; ++b) {
-        if (text[b].empty()) continue;
-        Status s = f.value()->Append(text[b]);
-        if (!s.ok()) return s;
-      }
-    }
+    Status s = AppendLinesInOrder(f.value().get(), n, st.plan().threads,
+                                  [&](size_t i, std::string* t) { AppendFindingLines(st, i, t); });
+    if (!s.ok()) return s;
     return f.value()->Close();
   }
 

@@ -15,6 +15,7 @@
 #include <unordered_map>
 
 #include "core/key_groups.h"
+#include "core/ordered_lines.h"
 #include "core/state_file.h"
 #include "core/thread_pool.h"
 #include "io/file_system.h"
@@ -500,41 +501,23 @@ class SplitStage : public Stage {
     j["composition"] = Composition(st);
   }
 
-  // One line per kept record, in record order: blocks of records formatted in
-  // parallel, a round of blocks at a time (bounded memory), appended in order.
+  // One line per kept record, in record order (formatted in parallel blocks).
   Status WriteOutputs(const RunState& st, OutputDir& out) const override {
     auto f = out.CreateStream(kAssignmentsFile);
     if (!f.ok()) return f.status();
-    constexpr size_t kBlock = 4096, kRound = 64;
-    const size_t n = st.records.size();
-    const size_t blocks = (n + kBlock - 1) / kBlock;
-    ThreadPool pool(st.plan().threads);  // 0: one per hardware thread
-    std::vector<std::string> text(kRound);
-    for (size_t first = 0; first < blocks; first += kRound) {
-      const size_t count = std::min(kRound, blocks - first);
-      pool.ParallelFor(count, [&](size_t b, unsigned) {
-        std::string& t = text[b];
-        t.clear();
-        const size_t begin = (first + b) * kBlock;
-        for (size_t i = begin; i < std::min(n, begin + kBlock); ++i) {
-          if (group_of_.size() <= i || group_of_[i] == UINT32_MAX) continue;
-          const Entry& e = st.entries[st.records[i].entry];
-          const Group& g = groups_[group_of_[i]];
-          Json j{{"id", st.records[i].id},
-                 {"input", st.plan().inputs[e.input].name},
-                 {"line", e.line},
-                 {"split", s_.splits[g.split].first},
-                 {"group", Hex16(g.key)}};
-          t += j.dump();
-          t += '\n';
-        }
-      });
-      for (size_t b = 0; b < count; ++b) {
-        if (text[b].empty()) continue;
-        Status s = f.value()->Append(text[b]);
-        if (!s.ok()) return s;
-      }
-    }
+    Status s = AppendLinesInOrder(f.value().get(), st.records.size(), st.plan().threads, [&](size_t i, std::string* t) {
+      if (group_of_.size() <= i || group_of_[i] == UINT32_MAX) return;
+      const Entry& e = st.entries[st.records[i].entry];
+      const Group& g = groups_[group_of_[i]];
+      Json j{{"id", st.records[i].id},
+             {"input", st.plan().inputs[e.input].name},
+             {"line", e.line},
+             {"split", s_.splits[g.split].first},
+             {"group", Hex16(g.key)}};
+      *t += j.dump();
+      *t += '\n';
+    });
+    if (!s.ok()) return s;
     return f.value()->Close();
   }
 
