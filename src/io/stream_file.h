@@ -6,8 +6,8 @@
 // Why: copying gigabytes into the page cache costs the writing thread far
 // more than the disk write itself on machines where fresh page-cache pages
 // are expensive (virtual machines that hand free memory back to the host;
-// docs/performance.md measures 3.7 GB at 18 s of system time buffered
-// against 1.1 s direct). The bytes on disk are the same either way.
+// docs/performance.md: a 3.7 GB copy took 12-29 s of system time buffered,
+// under 1.2 s direct). The bytes on disk are the same either way.
 //
 // Falls back to ordinary buffered writes, silently and with the same bytes,
 // when the file system refuses O_DIRECT at open or on a write (EINVAL: tmpfs

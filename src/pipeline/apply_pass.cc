@@ -163,10 +163,10 @@ Status BuildLine(const Plan& plan, const RunState& st, const std::vector<std::un
   std::string rewritten;
   if (rewrite) {
     const size_t r = static_cast<size_t>(e.record);
-    // The tree nlohmann's parse would build, built from simdjson's DOM
-    // (core/json_parse.h); anything it declines goes to nlohmann as before.
-    // simdjson accepted this line in pass 1; parse without exceptions so a
-    // disagreement between the two parsers is an error value, never an abort.
+    // The tree nlohmann's parse would build, made from simdjson's DOM
+    // (core/json_parse.h); what that declines, nlohmann parses, without
+    // exceptions: simdjson accepted this line in pass 1, so a disagreement
+    // between the two parsers is an error value, never an abort.
     Json doc;
     if (!ParseJsonFast(raw, &doc)) doc = Json::parse(raw, nullptr, /*allow_exceptions=*/false);
     if (doc.is_discarded()) {
