@@ -74,19 +74,6 @@ void AppendEscapedValid(std::string_view s, std::string* out) {
   out->append(run, static_cast<size_t>(end - run));
 }
 
-void AppendQuoted(const std::string& s, std::string* out) {
-  // nlohmann's decoder (Hoehrmann's DFA) accepts exactly the Unicode
-  // standard's well-formed UTF-8 (no overlong forms, surrogates or code
-  // points past U+10FFFF), as simdjson's validator does; the tests check it.
-  if (!simdjson::validate_utf8(s.data(), s.size())) {
-    out->append(Json(s).dump());  // throws type_error 316 as j.dump() would
-    return;
-  }
-  out->push_back('"');
-  AppendEscapedValid(s, out);
-  out->push_back('"');
-}
-
 template <typename Int>
 void AppendInteger(Int v, std::string* out) {
   char buf[24];
@@ -127,7 +114,7 @@ void Append(const Json& j, std::string* out) {
       return;
     }
     case Json::value_t::string:
-      AppendQuoted(j.get_ref<const Json::string_t&>(), out);
+      AppendJsonString(j.get_ref<const Json::string_t&>(), out);
       return;
     case Json::value_t::array: {
       out->push_back('[');
@@ -146,7 +133,7 @@ void Append(const Json& j, std::string* out) {
       for (auto it = j.begin(); it != j.end(); ++it) {
         if (!first) out->push_back(',');
         first = false;
-        AppendQuoted(it.key(), out);
+        AppendJsonString(it.key(), out);
         out->push_back(':');
         Append(it.value(), out);
       }
@@ -166,6 +153,9 @@ void Append(const Json& j, std::string* out) {
 void AppendCompactJson(const nlohmann::ordered_json& j, std::string* out) { Append(j, out); }
 
 void AppendJsonString(std::string_view s, std::string* out) {
+  // nlohmann's decoder (Hoehrmann's DFA) accepts exactly the Unicode
+  // standard's well-formed UTF-8 (no overlong forms, surrogates or code
+  // points past U+10FFFF), as simdjson's validator does; the tests check it.
   if (!simdjson::validate_utf8(s.data(), s.size())) {
     out->append(Json(std::string(s)).dump());  // throws type_error 316 as that would
     return;

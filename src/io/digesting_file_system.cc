@@ -71,15 +71,16 @@ class DigestingWritableFile : public WritableFile {
 };
 
 Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenWrite(const std::string& path) {
-  Forget(path);
-  auto f = base_->OpenWrite(path);
-  if (!f.ok()) return f.status();
-  return std::unique_ptr<WritableFile>(std::make_unique<DigestingWritableFile>(std::move(f).value(), this, path));
+  return OpenDigested(path, /*stream=*/false);
 }
 
 Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenWriteStream(const std::string& path) {
+  return OpenDigested(path, /*stream=*/true);
+}
+
+Result<std::unique_ptr<WritableFile>> DigestingFileSystem::OpenDigested(const std::string& path, bool stream) {
   Forget(path);
-  auto f = base_->OpenWriteStream(path);
+  auto f = stream ? base_->OpenWriteStream(path) : base_->OpenWrite(path);
   if (!f.ok()) return f.status();
   return std::unique_ptr<WritableFile>(std::make_unique<DigestingWritableFile>(std::move(f).value(), this, path));
 }

@@ -44,6 +44,8 @@ class DigestingFileSystem : public FileSystem {
 
  private:
   friend class RunningDigest;
+  // OpenWrite or OpenWriteStream of the wrapped file system, digested.
+  Result<std::unique_ptr<WritableFile>> OpenDigested(const std::string& path, bool stream);
   void Record(const std::string& path, FileDigest d);
   void Forget(const std::string& path);
   // Digests of `path` and of paths inside it, removed from the map.

@@ -101,7 +101,7 @@ Json MaskedFinding(const Json& f) {
 class FindingSkipper {
  public:
   bool Unneeded(std::string_view line, const std::map<std::pair<std::string, uint64_t>, size_t>& example_of,
-                const std::set<std::string>& kinds_seen) {
+                const std::set<std::string, std::less<>>& kinds_seen) {
     padded_.assign(line);
     padded_.resize(line.size() + simdjson::SIMDJSON_PADDING);
     simdjson::ondemand::document doc;
@@ -110,7 +110,7 @@ class FindingSkipper {
     if (doc.get_object().get(obj) != simdjson::SUCCESS) return false;
     std::string_view kind, input;
     if (obj.find_field_unordered("kind").get_string().get(kind) != simdjson::SUCCESS || kind.empty()) return false;
-    if (!kinds_seen.count(std::string(kind))) return false;
+    if (!kinds_seen.count(kind)) return false;
     if (obj.find_field_unordered("input").get_string().get(input) != simdjson::SUCCESS) return false;
     uint64_t no = 0;
     if (obj.find_field_unordered("line").get_uint64().get(no) != simdjson::SUCCESS) return false;
@@ -142,7 +142,7 @@ Examples CollectExamples(FileSystem* fs, const OutputDir& out, const Json& summa
   const Json* sec = FindPath(summary, {"stages", "screen"});
   if (!sec) return ex;
   std::string name = Text(*sec, "findings_file").empty() ? "personal_data_findings.jsonl" : Text(*sec, "findings_file");
-  std::set<std::string> kinds_seen;
+  std::set<std::string, std::less<>> kinds_seen;
   FindingSkipper skip;
   ForEachLine(fs, out.StagingPath(name), [&](std::string_view line) {
     if (skip.Unneeded(line, example_of, kinds_seen)) return;

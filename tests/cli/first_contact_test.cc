@@ -65,6 +65,13 @@ std::string Good(int i, int choice) {
          "}\n";
 }
 
+// Good(i, i % 2) for i in [0, n): n valid records, choices alternating.
+std::string GoodLines(int n) {
+  std::string lines;
+  for (int i = 0; i < n; ++i) lines += Good(i, i % 2);
+  return lines;
+}
+
 // --- 1. No input can crash the process -----------------------------------
 
 TEST(FirstContact, NonUtf8LinesAreRejectedLosslesslyNotACrash) {
@@ -92,9 +99,7 @@ TEST(FirstContact, NonUtf8LinesAreRejectedLosslesslyNotACrash) {
 
 TEST(FirstContact, SigtermRemovesThePartialFolder) {
   std::string d = Dir("sigterm");
-  std::string big;
-  for (int i = 0; i < 60000; ++i) big += Good(i, i % 2);
-  Write(d + "/in.jsonl", big);
+  Write(d + "/in.jsonl", GoodLines(60000));
   pid_t pid = ::fork();
   ASSERT_GE(pid, 0);
   if (pid == 0) {
@@ -123,9 +128,7 @@ TEST(FirstContact, ClosedLogPipeLeavesNoPartialFolder) {
   // first byte. The run neither dies half-way leaving its staging folder (the
   // default action of SIGPIPE) nor loses its output: it finishes.
   std::string d = Dir("closed_pipe");
-  std::string data;
-  for (int i = 0; i < 3000; ++i) data += Good(i, i % 2);
-  Write(d + "/in.jsonl", data);
+  Write(d + "/in.jsonl", GoodLines(3000));
   std::string cmd = "cd '" + d + "' && { " + std::string(PREFSIFT_BINARY) +
                     " run in.jsonl --layout choice -o out --progress --progress-seconds 0 --timings 2>&1; "
                     "echo \"rc=$?\" > rc.txt; } | head -c 1 >/dev/null";
@@ -140,9 +143,7 @@ TEST(FirstContact, TimingsNameEachPhaseAndThePeakMemory) {
   // "timing rss:" line after each phase in which the peak resident size grew
   // (the first phase always: the process had none before).
   std::string d = Dir("timings");
-  std::string data;
-  for (int i = 0; i < 200; ++i) data += Good(i, i % 2);
-  Write(d + "/in.jsonl", data);
+  Write(d + "/in.jsonl", GoodLines(200));
   CliRun r = Prefsift(d, "run in.jsonl --layout choice -o out -q --timings");
   ASSERT_EQ(r.code, 0) << r.err;
   EXPECT_NE(r.err.find("timing: observe (pass 1)"), std::string::npos) << r.err;
@@ -213,9 +214,7 @@ TEST(FirstContact, AnExistingFileIsNeverReplacedByTheOutputFolder) {
 
 TEST(FirstContact, APointerTypoThatRejectsEverythingStops) {
   std::string d = Dir("pointer_typo");
-  std::string in;
-  for (int i = 0; i < 20; ++i) in += Good(i, i % 2);
-  Write(d + "/in.jsonl", in);
+  Write(d + "/in.jsonl", GoodLines(20));
   CliRun r = Prefsift(d, "run in.jsonl --field prompt=/promt --field candidates=/candidates --field choice=/choice -q -o out");
   EXPECT_EQ(r.code, 8) << r.err;
   EXPECT_NE(r.err.find("/promt"), std::string::npos) << "names the pointer: " << r.err;

@@ -92,10 +92,16 @@ TEST(GramRows, EmptyRowsReadAsNoIds) {
   EXPECT_TRUE(GramRow().ends().empty());
 }
 
+// n rows of RandomRow from one generator state seeded with `seed`.
+std::vector<PlainRow> RandomRows(uint64_t seed, size_t n) {
+  uint64_t state = seed;
+  std::vector<PlainRow> rows;
+  for (size_t i = 0; i < n; ++i) rows.push_back(RandomRow(&state, i));
+  return rows;
+}
+
 TEST(GramRows, SameRowsAsPlainVectors) {
-  uint64_t state = 20261203;
-  std::vector<PlainRow> plain;
-  for (size_t i = 0; i < 5000; ++i) plain.push_back(RandomRow(&state, i));
+  std::vector<PlainRow> plain = RandomRows(20261203, 5000);
   GramRows rows;
   rows.resize(plain.size());
   for (size_t i = 0; i < plain.size(); ++i) rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends);
@@ -112,9 +118,7 @@ TEST(GramRows, SameRowsAsPlainVectors) {
 }
 
 TEST(GramRows, RowsSetFromSeveralThreadsAtOnce) {
-  uint64_t state = 77;
-  std::vector<PlainRow> plain;
-  for (size_t i = 0; i < 40000; ++i) plain.push_back(RandomRow(&state, i));
+  std::vector<PlainRow> plain = RandomRows(77, 40000);
   GramRows rows;
   rows.resize(plain.size());
   OnThreads(plain.size(), 4, [&](size_t i) { rows.Set(i, plain[i].prompt, plain[i].answer, plain[i].ends); });
