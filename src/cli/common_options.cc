@@ -31,6 +31,9 @@ void AddCommon(CLI::App* cmd, CommonOptions* o) {
   cmd->add_flag("--buffered-output", o->buffered_output,
                 "Write the split files and rejects.jsonl through the page cache (default: past it, O_DIRECT, where "
                 "the file system allows; same bytes either way)");
+  cmd->add_flag("--buffered-input", o->buffered_input,
+                "Read input files through the page cache (default: files of 64 MiB or more past it, O_DIRECT, a "
+                "block read ahead, where the file system allows; same bytes either way)");
   cmd->add_flag("--progress", o->progress,
                 "When stderr is not a terminal (logs, CI), print a progress line every 5 seconds (on a terminal "
                 "the line is always shown)");

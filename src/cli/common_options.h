@@ -29,6 +29,7 @@ struct CommonOptions {
   bool quiet = false;
   bool timings = false;
   bool buffered_output = false;  // split files and rejects.jsonl through the page cache
+  bool buffered_input = false;   // the inputs through the page cache
   bool progress = false;
   double progress_seconds = 5;
   long long seed = -1;

@@ -46,7 +46,7 @@ int RunWith(const CommonOptions& o, const std::vector<std::string>& stages, cons
   opts.table = !o.quiet;
   opts.timings = o.timings;
   auto outcome =
-      RunPipeline(plan.value(), opts, o.buffered_output ? BufferedFileSystem() : DefaultFileSystem(), stderr);
+      RunPipeline(plan.value(), opts, PosixFileSystemWith(!o.buffered_output, !o.buffered_input), stderr);
   if (!outcome.ok()) {
     std::fprintf(stderr, "prefsift: %s\n", PlanMessage(o, outcome.status()).c_str());
     return ExitFor(outcome.status());

@@ -8,6 +8,7 @@
 #include <cstring>
 #include <filesystem>
 
+#include "io/read_ahead_file.h"
 #include "io/stream_file.h"
 
 namespace prefsift {
@@ -77,11 +78,15 @@ class PosixReadable : public ReadableFile {
 
 class PosixFileSystem : public FileSystem {
  public:
-  explicit PosixFileSystem(bool direct_streams) : direct_streams_(direct_streams) {}
+  PosixFileSystem(bool direct_streams, bool direct_reads)
+      : direct_streams_(direct_streams), direct_reads_(direct_reads) {}
   Result<std::unique_ptr<ReadableFile>> OpenRead(const std::string& path) override {
     struct stat st;
     if (::stat(path.c_str(), &st) != 0) return Status::Input(Errno("cannot open", path));
     if (S_ISDIR(st.st_mode)) return Status::Input("cannot read " + path + ": it is a directory, not a file");
+    if (direct_reads_ && S_ISREG(st.st_mode) && static_cast<uint64_t>(st.st_size) >= kReadAheadMinBytes) {
+      return OpenReadAheadFile(path, /*direct=*/true);
+    }
     std::FILE* f = std::fopen(path.c_str(), "rb");
     if (!f) return Status::Input(Errno("cannot open", path));
     return std::unique_ptr<ReadableFile>(new PosixReadable(f, path));
@@ -131,18 +136,17 @@ class PosixFileSystem : public FileSystem {
 
  private:
   bool direct_streams_;
+  bool direct_reads_;
 };
 
 }  // namespace
 
-FileSystem* DefaultFileSystem() {
-  static PosixFileSystem fs(/*direct_streams=*/true);
-  return &fs;
-}
+FileSystem* DefaultFileSystem() { return PosixFileSystemWith(/*direct_writes=*/true, /*direct_reads=*/true); }
 
-FileSystem* BufferedFileSystem() {
-  static PosixFileSystem fs(/*direct_streams=*/false);
-  return &fs;
+FileSystem* PosixFileSystemWith(bool direct_writes, bool direct_reads) {
+  static PosixFileSystem both(true, true), writes(true, false), reads(false, true), neither(false, false);
+  if (direct_writes) return direct_reads ? &both : &writes;
+  return direct_reads ? &reads : &neither;
 }
 
 }  // namespace prefsift

@@ -11,9 +11,12 @@
 namespace prefsift {
 
 // The real, POSIX file system. OpenWriteStream writes past the page cache
-// (O_DIRECT) where the file system allows it (io/stream_file.h).
+// (O_DIRECT) where the file system allows it (io/stream_file.h), and OpenRead
+// reads a regular file of at least kReadAheadMinBytes past it, with a block
+// read ahead (io/read_ahead_file.h).
 FileSystem* DefaultFileSystem();
-// The same, with OpenWriteStream through the page cache (run --buffered-output).
-FileSystem* BufferedFileSystem();
+// The same, with either direction through the page cache instead
+// (run --buffered-output, --buffered-input).
+FileSystem* PosixFileSystemWith(bool direct_writes, bool direct_reads);
 
 }  // namespace prefsift

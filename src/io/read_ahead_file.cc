@@ -1,0 +1,175 @@
+#include "io/read_ahead_file.h"
+
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cstdlib>
+#include <cstring>
+#include <future>
+
+namespace prefsift {
+namespace {
+
+// O_DIRECT needs the buffer address, the length and the file offset aligned
+// to the device's logical block size; 4 KiB covers 512-byte and 4-KiB
+// devices (a larger one answers EINVAL and the file goes on buffered).
+constexpr size_t kAlign = 4096;
+constexpr size_t kBlock = 4u << 20;  // bytes per read
+
+std::string Errno(const std::string& what, const std::string& path, int err) {
+  return what + " " + path + ": " + std::strerror(err);
+}
+
+// Two buffers take turns: the caller copies out of the current block while
+// the next one is read on a background thread.
+class ReadAheadFile : public ReadableFile {
+ public:
+  ReadAheadFile(int fd, std::string path, bool direct, uint64_t size)
+      : fd_(fd), path_(std::move(path)), direct_(direct), size_(size) {}
+  ~ReadAheadFile() override {
+    if (in_flight_.valid()) (void)in_flight_.get();
+    ::close(fd_);
+    std::free(bufs_[0]);
+    std::free(bufs_[1]);
+  }
+
+  // Fills buf with up to n bytes, fewer only at the end of the file (as fread).
+  Result<size_t> Read(char* buf, size_t n) override {
+    if (!failed_.ok()) return failed_;
+    size_t done = 0;
+    while (done < n) {
+      if (pos_ == len_) {
+        if (at_end_) break;
+        if (Status s = NextBlock(); !s.ok()) return s;
+        continue;
+      }
+      const size_t take = std::min(n - done, len_ - pos_);
+      std::memcpy(buf + done, bufs_[cur_] + pos_, take);
+      pos_ += take;
+      done += take;
+    }
+    return done;
+  }
+
+  Status Skip(uint64_t n) override {
+    if (!failed_.ok()) return failed_;
+    if (n <= len_ - pos_) {
+      pos_ += n;
+      return Status::Ok();
+    }
+    const uint64_t target = cur_offset_ + pos_ + n;
+    if (target > size_) {
+      return Status::Input(path_ + " ends before the part's start (the file is " + std::to_string(size_) +
+                           " bytes)");
+    }
+    if (in_flight_.valid()) (void)in_flight_.get();  // a block this skip passes over (or an error there)
+    next_ = target / kAlign * kAlign;
+    skip_ = static_cast<size_t>(target - next_);
+    cur_offset_ = target;
+    pos_ = len_ = 0;
+    at_end_ = false;
+    return Status::Ok();
+  }
+
+ private:
+  // Makes the block at next_ current (the background read's, or read now),
+  // then starts reading the one after it.
+  Status NextBlock() {
+    if (!bufs_[0]) {
+      for (char*& b : bufs_) {
+        b = static_cast<char*>(std::aligned_alloc(kAlign, kBlock));
+        if (!b) return Fail(Status::Input("cannot read " + path_ + ": out of memory for its read buffers"));
+      }
+    }
+    const int other = cur_ ^ 1;
+    Result<size_t> got = in_flight_.valid() ? in_flight_.get() : ReadBlock(bufs_[other], next_);
+    if (!got.ok()) return Fail(got.status());
+    cur_ = other;
+    cur_offset_ = next_;
+    len_ = got.value();
+    pos_ = std::min(skip_, len_);
+    skip_ = 0;
+    next_ += len_;
+    at_end_ = len_ < kBlock;  // ReadBlock fills the block unless the file ends
+    if (!at_end_) {
+      in_flight_ = std::async(std::launch::async, [this, buf = bufs_[cur_ ^ 1], at = next_] {
+        return ReadBlock(buf, at);
+      });
+    }
+    return Status::Ok();
+  }
+
+  // Reads kBlock bytes at `offset` into buf, fewer only at the end of the
+  // file. One read at a time (NextBlock waits for the one in flight).
+  Result<size_t> ReadBlock(char* buf, uint64_t offset) {
+    size_t have = 0;
+    while (have < kBlock) {
+      const ssize_t r = ::pread(fd_, buf + have, kBlock - have, static_cast<off_t>(offset + have));
+      if (r < 0) {
+        const int err = errno;
+        if (err == EINTR) continue;
+        if (err == EINVAL && direct_) {  // an alignment the device refuses (or an unaligned tail): go on buffered
+          if (Status s = DropDirect(); !s.ok()) return s;
+          continue;
+        }
+        return Status::Input(Errno("cannot read", path_, err));
+      }
+      if (r == 0) break;
+      have += static_cast<size_t>(r);
+    }
+    return have;
+  }
+
+  Status DropDirect() {
+    const int flags = ::fcntl(fd_, F_GETFL);
+    if (flags < 0 || ::fcntl(fd_, F_SETFL, flags & ~O_DIRECT) != 0) {
+      return Status::Input(Errno("cannot read", path_, errno));
+    }
+    direct_ = false;
+    return Status::Ok();
+  }
+
+  Status Fail(Status s) {
+    failed_ = s;
+    return s;
+  }
+
+  int fd_;
+  std::string path_;
+  bool direct_;                         // touched by one read at a time
+  uint64_t size_;                       // at open, for Skip's message
+  char* bufs_[2] = {nullptr, nullptr};  // kBlock bytes each, kAlign-aligned; allocated on the first read
+  int cur_ = 0;                         // the buffer being taken from
+  uint64_t cur_offset_ = 0;             // file offset of the current buffer's pos_ 0 (after a Skip: of the target)
+  size_t pos_ = 0, len_ = 0;            // taken so far, and held, in the current buffer
+  uint64_t next_ = 0;                   // file offset of the next block (aligned unless the file went buffered)
+  size_t skip_ = 0;                     // bytes of the next block before a Skip's target
+  bool at_end_ = false;                 // the current block is the file's last
+  std::future<Result<size_t>> in_flight_;
+  Status failed_ = Status::Ok();
+};
+
+}  // namespace
+
+Result<std::unique_ptr<ReadableFile>> OpenReadAheadFile(const std::string& path, bool direct) {
+  constexpr int kFlags = O_RDONLY | O_CLOEXEC;
+  int fd = -1;
+  if (direct) {
+    fd = ::open(path.c_str(), kFlags | O_DIRECT);
+    if (fd < 0 && errno == EINVAL) direct = false;  // the file system has no O_DIRECT
+  }
+  if (fd < 0) fd = ::open(path.c_str(), kFlags);
+  if (fd < 0) return Status::Input(Errno("cannot open", path, errno));
+  struct stat st {};
+  if (::fstat(fd, &st) != 0) {
+    const int err = errno;
+    ::close(fd);
+    return Status::Input(Errno("cannot open", path, err));
+  }
+  return std::unique_ptr<ReadableFile>(new ReadAheadFile(fd, path, direct, static_cast<uint64_t>(st.st_size)));
+}
+
+}  // namespace prefsift
