@@ -101,19 +101,6 @@ const uint32_t* ScalarProbes(ProbeTable& t) {
   return t.by_bin.data();
 }
 
-const uint8_t* WideProbes(ProbeTable& t) {
-  if (t.by_attempt.empty()) {
-    const size_t stride = WideStride(t.k);
-    t.by_attempt.assign(kWideProbes * stride, 0);
-    for (uint32_t a = 0; a < kWideProbes; ++a) {
-      for (uint32_t i = 0; i < t.k; ++i) {
-        t.by_attempt[a * stride + i] = static_cast<uint8_t>(ProbeBin(t.probe_seed, i, a + 1, t.k));
-      }
-    }
-  }
-  return t.by_attempt.data();
-}
-
 // Fills each bin with the smallest mixed value falling in it, kEmpty where
 // none does. x == kEmpty (probability 2^-64) is moved one below so that
 // kEmpty can mark an empty bin. Branch-free bin minimum.
@@ -179,6 +166,21 @@ void DensifyScalar(uint64_t* out, uint32_t k, uint64_t seed) {
   }
 }
 
+#if PREFSIFT_SIGN_X86
+
+const uint8_t* WideProbes(ProbeTable& t) {
+  if (t.by_attempt.empty()) {
+    const size_t stride = WideStride(t.k);
+    t.by_attempt.assign(kWideProbes * stride, 0);
+    for (uint32_t a = 0; a < kWideProbes; ++a) {
+      for (uint32_t i = 0; i < t.k; ++i) {
+        t.by_attempt[a * stride + i] = static_cast<uint8_t>(ProbeBin(t.probe_seed, i, a + 1, t.k));
+      }
+    }
+  }
+  return t.by_attempt.data();
+}
+
 // What a wide path leaves for the common finish: src[i] is the bin that bin
 // i copies (i itself when filled), filled[i] 0xff for a filled bin, 0 else;
 // unresolved[b] has bit l set when bin 64b+l is empty and none of its first
@@ -198,8 +200,6 @@ void ResolveRest(WideScratch& w, uint32_t k, uint64_t probe_seed) {
     }
   }
 }
-
-#if PREFSIFT_SIGN_X86
 
 #define PREFSIFT_AVX512 __attribute__((target("avx512f,avx512bw,avx512vbmi")))
 #define PREFSIFT_AVX2 __attribute__((target("avx2")))
