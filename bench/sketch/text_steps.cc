@@ -3,7 +3,8 @@
 // word segmentation (counting words), word 3-gram shingles (XXH3, as before
 // the candidate check had its own keys), word 3-gram keys (the near stage's
 // candidate check, AppendWordGramKeys) and word 5-gram shingles with a
-// 256-slot MinHash signature (the near stage's prompt signature); and the
+// 256-slot MinHash signature (the near stage's prompt signature; also the
+// signature alone, with 128 slots, and both compact as a run makes them); and the
 // byte scans of the bias stage's surface features and of the record facts
 // (code points, words), each beside its plain byte-loop reference
 // (docs/performance.md, "Vectorised scans").
@@ -127,6 +128,27 @@ int main(int argc, char** argv) {
                 for (const auto& g : prompt_grams) {
                   prefsift::sketch::Sign(g, mh, sig);
                   sink += sig[0] & 1;
+                }
+              }));
+  // K = 128 is the leakage stage's signature; in a run both stages sign
+  // every prompt on the same thread, K = 256 then 128 (their compact bytes).
+  prefsift::sketch::MinHashParams mh128 = mh;
+  mh128.num_slots = 128;
+  std::vector<uint64_t> sig128(mh128.num_slots);
+  std::printf("prompts: MinHash K=128   %7.0f MB/s\n", BestMBps(prompt_bytes, [&] {
+                for (const auto& g : prompt_grams) {
+                  prefsift::sketch::Sign(g, mh128, sig128);
+                  sink += sig128[0] & 1;
+                }
+              }));
+  std::vector<uint8_t> compact(mh.num_slots), compact128(mh128.num_slots);
+  std::printf("prompts: compact 256+128 %7.0f MB/s\n", BestMBps(prompt_bytes, [&] {
+                for (const auto& g : prompt_grams) {
+                  prefsift::sketch::Sign(g, mh, sig);
+                  prefsift::sketch::Compact(sig, compact);
+                  prefsift::sketch::Sign(g, mh128, sig128);
+                  prefsift::sketch::Compact(sig128, compact128);
+                  sink += compact[0] + compact128[0];
                 }
               }));
   auto features = [&](auto compute) {

@@ -42,6 +42,16 @@ void Sign(std::span<const uint64_t> shingles, const MinHashParams& params,
           std::span<uint64_t> out);
 std::vector<uint64_t> Sign(std::span<const uint64_t> shingles, const MinHashParams& params);
 
+// Compact(Sign(...)) in one call, without the full signature's copies into
+// empty bins. REQUIRES: out.size() == params.num_slots >= 1.
+void SignCompact(std::span<const uint64_t> shingles, const MinHashParams& params,
+                 std::span<uint8_t> out);
+
+// The plain loops Sign is checked against: each empty bin's probes are
+// hashed afresh, one at a time (no cached probes, no wide path).
+void SignReference(std::span<const uint64_t> shingles, const MinHashParams& params,
+                   std::span<uint64_t> out);
+
 // Low 8 bits of each slot. REQUIRES: out.size() == signature.size().
 void Compact(std::span<const uint64_t> signature, std::span<uint8_t> out);
 

@@ -15,7 +15,11 @@
 #include <algorithm>
 #include <cmath>
 #include <random>
+#include <string>
 #include <vector>
+
+#include "sketch/minhash_paths.h"
+#include "sketch/mix.h"
 
 namespace prefsift::sketch {
 namespace {
@@ -181,6 +185,166 @@ TEST(MinHash, ManyTextsSameForAnyThreadCount) {
   std::vector<uint8_t> single(mp.num_slots);
   SignTextCompact(views[501], so, mp, single);
   EXPECT_TRUE(std::equal(single.begin(), single.end(), one.begin() + 501 * mp.num_slots));
+}
+
+}  // namespace
+}  // namespace prefsift::sketch
+
+namespace prefsift::sketch {
+namespace {
+
+// Inverse of Mix (sketch/mix.h) by inverting each step: the xor-shifts by 33
+// undo themselves, the odd multipliers have inverses mod 2^64 (Newton's
+// iteration, each step doubling the correct low bits). It lets a test choose
+// a shingle whose mixed value is any word it likes.
+uint64_t InverseOdd(uint64_t a) {
+  uint64_t x = a;  // a * a = 1 mod 8: three correct bits
+  for (int i = 0; i < 5; ++i) x *= 2 - a * x;
+  return x;
+}
+uint64_t Unmix(uint64_t x) {
+  x ^= x >> 33;
+  x *= InverseOdd(0xc4ceb9fe1a85ec53ULL);
+  x ^= x >> 33;
+  x *= InverseOdd(0xff51afd7ed558ccdULL);
+  x ^= x >> 33;
+  return x;
+}
+
+// n random shingles with the awkward cases mixed in: repeats, UINT64_MAX, small
+// values, and the shingle whose mixed value is UINT64_MAX, the word that marks
+// an empty bin (Sign moves it one below).
+std::vector<uint64_t> AwkwardShingles(std::mt19937_64& rng, size_t n, uint64_t seed) {
+  std::vector<uint64_t> v;
+  v.reserve(n);
+  for (size_t i = 0; i < n; ++i) {
+    const uint64_t r = rng();
+    switch (r % 16) {
+      case 0: v.push_back(UINT64_MAX); break;
+      case 1: v.push_back(Unmix(UINT64_MAX) ^ Mix(seed)); break;
+      case 2: v.push_back(r >> 61); break;
+      case 3:
+      case 4: v.push_back(v.empty() ? r : v[(r >> 8) % v.size()]); break;
+      default: v.push_back(rng()); break;
+    }
+  }
+  return v;
+}
+
+// Slot counts the plans accept: near 8..4096, leakage 16..1024 (any integer),
+// with the defaults 256 and 128 and the edges of 64-bin blocks.
+const std::vector<uint32_t> kSlotCounts = {8,   9,   16,  17,  63,  64,  65,  100, 127, 128,
+                                           129, 200, 255, 256, 257, 512, 1000, 1024, 4096};
+
+std::vector<size_t> InputSizes(uint32_t k) { return {0, 1, 2, 3, 5, 8, k / 2, k, 4 * size_t{k}}; }
+
+TEST(MinHash, AwkwardShinglesHitTheEmptyMarker) {
+  EXPECT_EQ(Unmix(Mix(0x0123456789abcdefULL)), 0x0123456789abcdefULL);
+  const uint64_t seed = MinHashParams{}.seed;
+  EXPECT_EQ(Mix(Unmix(UINT64_MAX) ^ Mix(seed) ^ Mix(seed)), UINT64_MAX);
+}
+
+// Pins the signatures of the awkward inputs to the values the code gave before
+// the signing paths were added (recorded from commit 3423dc6's Sign, not an
+// outside source): the paths and the reference must all keep them.
+TEST(MinHash, AwkwardInputsKeepTheirRecordedSignatures) {
+  std::mt19937_64 rng(20261203);
+  uint64_t digest = 0;
+  for (uint32_t k : kSlotCounts) {
+    for (size_t n : InputSizes(k)) {
+      for (int t = 0; t < 3; ++t) {
+        const MinHashParams params{k, rng()};
+        const auto in = AwkwardShingles(rng, n, params.seed);
+        for (uint64_t v : Sign(in, params)) digest = Mix(digest ^ v);
+      }
+    }
+  }
+  EXPECT_EQ(digest, 0x879bc14b499c551cULL);
+}
+
+// Differential test of the signing paths. The method is Shrivastava 2017
+// (arXiv:1703.04664); what is checked here is not the paper but exact
+// agreement with the project's own plain implementation, SignReference:
+// every path this CPU runs (scalar always; AVX2 and AVX-512 where present)
+// must give the same 64-bit slots and the same compact bytes on thousands of
+// seeded random inputs, for every slot count the plans accept.
+std::vector<detail::SignPath> AvailablePaths() {
+  std::vector<detail::SignPath> paths;
+  for (auto p : {detail::SignPath::kScalar, detail::SignPath::kAvx2, detail::SignPath::kAvx512}) {
+    if (detail::SignPathAvailable(p)) paths.push_back(p);
+  }
+  return paths;
+}
+
+struct PathGuard {
+  ~PathGuard() { detail::ResetSignPath(); }
+};
+
+void ExpectPathsAgree(uint32_t k, int trials, uint64_t rng_seed) {
+  std::mt19937_64 rng(rng_seed);
+  PathGuard guard;
+  std::vector<uint64_t> want(k), got(k);
+  std::vector<uint8_t> want_compact(k), got_compact(k);
+  for (size_t n : InputSizes(k)) {
+    for (int t = 0; t < trials; ++t) {
+      // A few seeds repeat so that the cached probes are reused, not only made.
+      const MinHashParams params{k, t % 4 == 0 ? 7 : rng()};
+      const auto in = AwkwardShingles(rng, n, params.seed);
+      SignReference(in, params, want);
+      Compact(want, want_compact);
+      for (detail::SignPath path : AvailablePaths()) {
+        detail::ForceSignPath(path);
+        SCOPED_TRACE("K=" + std::to_string(k) + " n=" + std::to_string(n) + " trial " + std::to_string(t) +
+                     " path " + std::to_string(static_cast<int>(path)));
+        std::fill(got.begin(), got.end(), 0x5a5a5a5a5a5a5a5aULL);  // stale values must not survive
+        Sign(in, params, got);
+        ASSERT_EQ(got, want);
+        std::fill(got_compact.begin(), got_compact.end(), 0x5a);
+        SignCompact(in, params, got_compact);
+        ASSERT_EQ(got_compact, want_compact);
+      }
+    }
+  }
+}
+
+TEST(MinHashPaths, ScalarIsAlwaysAvailable) {
+  EXPECT_TRUE(detail::SignPathAvailable(detail::SignPath::kScalar));
+  EXPECT_TRUE(detail::SignPathAvailable(detail::CurrentSignPath()));
+}
+
+TEST(MinHashPaths, AgreeWithReferenceUpTo256Slots) {
+  for (uint32_t k : kSlotCounts) {
+    if (k <= 256) ExpectPathsAgree(k, 200, 100 + k);
+  }
+}
+
+TEST(MinHashPaths, AgreeWithReferenceAbove256Slots) {
+  for (uint32_t k : kSlotCounts) {
+    if (k > 256) ExpectPathsAgree(k, k >= 4096 ? 4 : 20, 100 + k);
+  }
+}
+
+// Every K from 1 to 300 (the wide paths' edge at 256 and every block
+// remainder), fewer inputs each.
+TEST(MinHashPaths, AgreeWithReferenceForEveryKUpTo300) {
+  for (uint32_t k = 1; k <= 300; ++k) ExpectPathsAgree(k, 6, 7000 + k);
+}
+
+// The near and leakage stages sign alternately with K = 256 and 128; more
+// (seed, K) pairs than a thread caches must still give the same slots.
+TEST(MinHashPaths, AlternatingSeedsAndSlotCountsAgree) {
+  std::mt19937_64 rng(42);
+  PathGuard guard;
+  for (detail::SignPath path : AvailablePaths()) {
+    detail::ForceSignPath(path);
+    for (int t = 0; t < 300; ++t) {
+      const MinHashParams params{t % 2 == 0 ? 256u : 128u + static_cast<uint32_t>(t % 7), static_cast<uint64_t>(t % 9)};
+      const auto in = AwkwardShingles(rng, 1 + rng() % 80, params.seed);
+      std::vector<uint64_t> want(params.num_slots);
+      SignReference(in, params, want);
+      ASSERT_EQ(Sign(in, params), want) << "path " << static_cast<int>(path) << " trial " << t;
+    }
+  }
 }
 
 }  // namespace

@@ -406,7 +406,6 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     std::vector<uint8_t> inf_sig(K);
     for (uint32_t i = 0; i < items; ++i) {
       const auto set = whole[i];
-      auto sig = sketch::Sign(set, m.minhash);
       informative.clear();
       stock.clear();
       // Both sorted: one pass splits the set, the search starting where the last ended.
@@ -422,7 +421,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
       m.informative.Add(informative);
       m.template_ranks.Add(stock);
       std::span<uint8_t> compact(m.sigs.data() + size_t(i) * K, K);
-      sketch::Compact(sig, compact);
+      sketch::SignCompact(set, m.minhash, compact);
       if (settings.jaccard > 0 && template_shingles.empty()) {
         sketch::BandKeys(compact, m.banding, kBandSeed, keys);
         for (uint64_t k : keys) band_entries.emplace_back(k, i);
@@ -431,7 +430,7 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
         // prompt written with the same stock sentences a candidate of every
         // item: band the informative shingles instead. An item with none
         // (all stock text) is left to the exact detector.
-        sketch::Compact(sketch::Sign(informative, m.minhash), inf_sig);
+        sketch::SignCompact(informative, m.minhash, inf_sig);
         sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
         for (uint64_t k : keys) band_entries.emplace_back(k, i);
       }
@@ -569,7 +568,7 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
     sig.resize(K);
     bool have_sig = false;  // the whole set's signature, made when first needed
     auto whole_sig = [&]() {
-      if (!have_sig) sketch::Compact(sketch::Sign(ordered, m.minhash), sig);
+      if (!have_sig) sketch::SignCompact(ordered, m.minhash, sig);
       have_sig = true;
     };
     if (s.jaccard > 0) {
@@ -581,7 +580,7 @@ void LeakIndex::CheckPrompt(const PromptTexts& texts, bool all_items, std::vecto
         keys.clear();  // stock text only: no band candidates
       } else {
         inf_sig.resize(K);
-        sketch::Compact(sketch::Sign(inf, m.minhash), inf_sig);
+        sketch::SignCompact(inf, m.minhash, inf_sig);
         sketch::BandKeys(inf_sig, m.banding, kBandSeed, keys);
       }
       band_found.resize(keys.size());

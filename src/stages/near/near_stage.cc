@@ -268,12 +268,9 @@ class NearDupsStage : public Stage {
     chars_mode_[i] = so.mode == sketch::ShingleMode::kChars;
     // One shingling serves the signature and the key sketch.
     thread_local std::vector<uint64_t> shingles;
-    thread_local std::vector<uint64_t> full;
     shingles.clear();
     sketch::AppendShingles(prompt, so, &shingles);
-    full.resize(s_.slots);
-    sketch::Sign(shingles, minhash_, full);
-    sketch::Compact(full, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
+    sketch::SignCompact(shingles, minhash_, std::span<uint8_t>(signatures_.data() + i * s_.slots, s_.slots));
     if (s_.keys > 0) sketch::KeySketch(shingles, kKeySeed, std::span<uint32_t>(keys_.data() + i * s_.keys, s_.keys));
     if (s_.exact) sets_[i] = sketch::Shingles(prompt, so);
     if (s_.cand_action == CandidateAction::kOff || rec.candidates.size() < 2) return;
