@@ -101,6 +101,10 @@ class PhaseTimer {
   }
   // A figure inside the last phase (CPU seconds of a part of it); the clock
   // runs on.
+  // Wall seconds of a part of the last phase (no CPU clock): --timings.
+  void NoteWall(const std::string& what, double wall_seconds) {
+    if (on_) std::fprintf(log_, "timing wall:  %-18s %8.3f s\n", what.c_str(), wall_seconds);
+  }
   void Note(const std::string& what, double cpu_seconds) {
     if (on_) std::fprintf(log_, "timing cpu:   %-18s %8.3f s\n", what.c_str(), cpu_seconds);
   }
@@ -284,6 +288,14 @@ class Pass1Cpu {
   }
   // Part 0 is reading; part 1 + s is stage s.
   void Add(unsigned worker, size_t part, double seconds) { seconds_[worker * parts_ + part] += seconds; }
+  // Wall seconds on the calling thread alone, while the workers wait: waiting
+  // for the reader's next chunk, and the in-order work between two parallel
+  // loops (numbering entries, keeping facts, growing the stages). What a
+  // larger machine cannot shorten.
+  static double Wall() {
+    return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+  }
+  double waiting = 0, in_order = 0;
   double Total(size_t part) const {
     double sum = 0;
     for (size_t w = 0; w < seconds_.size() / parts_; ++w) sum += seconds_[w * parts_ + part];
@@ -374,7 +386,9 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       });
     };
     for (;;) {
+      double w0 = cpu ? Pass1Cpu::Wall() : 0;
       RawChunk raw = ahead.get();
+      if (cpu) cpu->waiting += Pass1Cpu::Wall() - w0;
       if (!raw.status.ok()) return raw.status;
       if (st.entries.size() + raw.size() > kMaxEntries) {
         return Status::Limit(spec.path + ": this run would hold more than " + std::to_string(kMaxEntries) +
@@ -387,6 +401,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       const size_t n = raw.size();
       parsing.resize(n);
       observe_and_parse(&raw);
+      w0 = cpu ? Pass1Cpu::Wall() : 0;
       // Number this chunk's entries and records in input order.
       parsing_rec.assign(n, SIZE_MAX);
       for (size_t i = 0; i < n; ++i) {
@@ -423,6 +438,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       }
       if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
       for (auto& s : stages) s->Grow(st.records.size());
+      if (cpu) cpu->in_order += Pass1Cpu::Wall() - w0;
       std::swap(observing, parsing);
       std::swap(observing_rec, parsing_rec);
       progress.Tick(spec.name, stats.lines, raw.bytes_read);
@@ -734,6 +750,8 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (cpu) {
     timer.Note("read and facts", cpu->Total(0));
     for (size_t k = 0; k < stages.size(); ++k) timer.Note("observe " + stages[k]->name(), cpu->Total(1 + k));
+    timer.NoteWall("waiting for input", cpu->waiting);
+    timer.NoteWall("in order", cpu->in_order);
   }
 
   // Decide, the gate last.
