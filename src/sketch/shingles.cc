@@ -8,6 +8,7 @@
 #include <atomic>
 #include <bit>
 #include <cstring>
+#include <type_traits>
 
 #if defined(__SSE2__)
 #include <emmintrin.h>
@@ -338,31 +339,6 @@ template <typename C, typename F>
   return true;
 }
 
-// ScanAsciiWords with each classifier, one function a path. The wide ones
-// carry their target and `flatten`, which inlines the scan, the classifier
-// and f into them.
-template <typename F>
-bool ScanAsciiWordsScalar(std::string_view text, F& f, size_t* resume) {
-  return ScanAsciiWords<ScalarClasses>(text, f, resume);
-}
-#if defined(__SSE2__)
-template <typename F>
-bool ScanAsciiWordsSse2(std::string_view text, F& f, size_t* resume) {
-  return ScanAsciiWords<Sse2Classes>(text, f, resume);
-}
-#endif
-#if defined(PREFSIFT_WORD_SCAN_X86)
-template <typename F>
-[[PREFSIFT_TARGET_AVX2, gnu::flatten]] bool ScanAsciiWordsAvx2(std::string_view text, F& f, size_t* resume) {
-  return ScanAsciiWords<Avx2Classes>(text, f, resume);
-}
-template <typename F>
-[[PREFSIFT_TARGET_AVX512, gnu::flatten]] bool ScanAsciiWordsAvx512(std::string_view text, F& f,
-                                                                             size_t* resume) {
-  return ScanAsciiWords<Avx512Classes>(text, f, resume);
-}
-#endif
-
 // The path segmenting ASCII text: the widest this CPU runs, chosen on first
 // use (a race stores the same value), or the one a test forced.
 std::atomic<uint8_t> g_word_scan_path{0xFF};  // 0xFF: not chosen yet
@@ -477,55 +453,118 @@ void ForEachWordFrom(std::string_view text, size_t from, F&& f) {
   }
 }
 
+// How ForEachWordWith finds words: the general loop alone, or the masks of
+// classifier C while the text is ASCII.
+struct GeneralScan {};
+template <typename C>
+struct MaskScan {
+  using Classes = C;
+};
+
 // Calls f(start, end) for every word of `text` (see ForEachWordFrom), in
-// order: while the text is ASCII by masks, the rest by the general loop.
-template <typename F>
-void ForEachWord(std::string_view text, F&& f) {
+// order, the way `Scan` says.
+template <typename Scan, typename F>
+[[gnu::always_inline]] inline void ForEachWordWith(Scan, std::string_view text, F&& f) {
   size_t resume = 0;
-  switch (ActiveWordScanPath()) {
-#if defined(PREFSIFT_WORD_SCAN_X86)
-    case WordScanPath::kAvx512:
-      if (ScanAsciiWordsAvx512(text, f, &resume)) return;
-      break;
-    case WordScanPath::kAvx2:
-      if (ScanAsciiWordsAvx2(text, f, &resume)) return;
-      break;
-#endif
-#if defined(__SSE2__)
-    case WordScanPath::kSse2:
-      if (ScanAsciiWordsSse2(text, f, &resume)) return;
-      break;
-#endif
-    case WordScanPath::kScalar:
-      if (ScanAsciiWordsScalar(text, f, &resume)) return;
-      break;
-    default:  // kGeneral, or a path this build lacks (never chosen)
-      break;
+  if constexpr (!std::is_same_v<Scan, GeneralScan>) {
+    if (ScanAsciiWords<typename Scan::Classes>(text, f, &resume)) return;
   }
   ForEachWordFrom(text, resume, f);
 }
 
+// Returns body(scan) for the active path's scan. The caller's whole loop over
+// the words is the body, so that what it keeps a word (a count, a buffer's
+// end) stays in registers; each wide path is a function with its target and
+// `flatten` (functions with a target are inlined only into callers with it),
+// which inlines the body, the scan, the classifier and the callback into it.
+#if defined(PREFSIFT_WORD_SCAN_X86)
+template <typename Body>
+[[PREFSIFT_TARGET_AVX2, gnu::flatten]] auto RunAvx2(Body& body) {
+  return body(MaskScan<Avx2Classes>{});
+}
+template <typename Body>
+[[PREFSIFT_TARGET_AVX512, gnu::flatten]] auto RunAvx512(Body& body) {
+  return body(MaskScan<Avx512Classes>{});
+}
+#endif
+
+template <typename Body>
+auto WithWordScan(Body&& body) {
+  switch (ActiveWordScanPath()) {
+#if defined(PREFSIFT_WORD_SCAN_X86)
+    case WordScanPath::kAvx512: return RunAvx512(body);
+    case WordScanPath::kAvx2: return RunAvx2(body);
+#endif
+#if defined(__SSE2__)
+    case WordScanPath::kSse2: return body(MaskScan<Sse2Classes>{});
+#endif
+    case WordScanPath::kScalar: return body(MaskScan<ScalarClasses>{});
+    default: return body(GeneralScan{});  // kGeneral, or a path this build lacks (never chosen)
+  }
+}
+
+// Per-word values of one text (word hashes, word keys) in a thread's buffer
+// that only grows. Push keeps the count and room in registers when the
+// object is a local of the loop (its address never escapes: Grow takes the
+// buffer, not the object); a vector's push_back would load and store its end
+// pointer in memory for every word, a dependency from one word to the next.
+class WordValues {
+ public:
+  WordValues() : buffer_(Buffer()), data_(buffer_.data()), room_(buffer_.size()) {}
+  void Push(uint64_t v) {
+    if (size_ == room_) [[unlikely]] {
+      data_ = Grow(buffer_);
+      room_ = buffer_.size();
+    }
+    data_[size_++] = v;
+  }
+  // The values pushed; valid until the thread's next WordValues.
+  const uint64_t* data() const { return data_; }
+  size_t size() const { return size_; }
+
+ private:
+  static std::vector<uint64_t>& Buffer() {
+    thread_local std::vector<uint64_t> buffer;
+    return buffer;
+  }
+  [[gnu::noinline]] static uint64_t* Grow(std::vector<uint64_t>& buffer) {
+    buffer.resize(std::max<size_t>(64, 2 * buffer.size()));
+    return buffer.data();
+  }
+  std::vector<uint64_t>& buffer_;
+  uint64_t* data_;
+  size_t room_;
+  size_t size_ = 0;
+};
+
+// Values pushed by a WordValues (which stays a local of the scan's body).
+struct WordSpan {
+  const uint64_t* data;
+  size_t size;
+};
+
 void AppendWordShingles(std::string_view text, int n, uint64_t seed,
                         std::vector<uint64_t>* out) {
-  thread_local std::vector<uint64_t> word_hashes;
-  word_hashes.clear();
   const uint64_t word_seed = seed ^ kWordSeedTweak;
-  ForEachWord(text, [&](size_t start, size_t end) {
-    word_hashes.push_back(Xxh3Seeded(text.data() + start, end - start, word_seed));
+  const WordSpan word_hashes = WithWordScan([&](auto scan) {
+    WordValues hashes;
+    ForEachWordWith(scan, text, [&](size_t start, size_t end) {
+      hashes.Push(Xxh3Seeded(text.data() + start, end - start, word_seed));
+    });
+    return WordSpan{hashes.data(), hashes.size()};
   });
   const uint64_t gram_seed = seed ^ kGramSeedTweak;
   const size_t un = static_cast<size_t>(n);
-  if (word_hashes.size() < un) {
+  if (word_hashes.size < un) {
     // Fewer than n words (including none): the whole text is one shingle.
-    out->push_back(XXH3_64bits_withSeed(word_hashes.data(),
-                                        word_hashes.size() * sizeof(uint64_t), gram_seed));
+    out->push_back(XXH3_64bits_withSeed(word_hashes.data, word_hashes.size * sizeof(uint64_t), gram_seed));
     return;
   }
-  const size_t count = word_hashes.size() - un + 1;
+  const size_t count = word_hashes.size - un + 1;
   const size_t at = out->size();
   out->resize(at + count);
   uint64_t* dst = out->data() + at;
-  const uint64_t* words = word_hashes.data();
+  const uint64_t* words = word_hashes.data;
   if (un == 5) {  // the default: a constant length, so one path of the hash is left
     for (size_t k = 0; k < count; ++k) dst[k] = Xxh3Seeded(words + k, 5 * sizeof(uint64_t), gram_seed);
   } else {
@@ -599,24 +638,27 @@ void ChainAllFixed(const uint64_t* words, size_t count, uint64_t* dst) {
 
 template <bool kFixed>
 void AppendWordGramKeysImpl(std::string_view text, int n, std::vector<uint64_t>* out) {
-  thread_local std::vector<uint64_t> words;
-  words.clear();
-  ForEachWord(text, [&](size_t start, size_t end) { words.push_back(WordKey(text, start, end)); });
+  const WordSpan word_keys = WithWordScan([&](auto scan) {
+    WordValues keys;
+    ForEachWordWith(scan, text, [&](size_t start, size_t end) { keys.Push(WordKey(text, start, end)); });
+    return WordSpan{keys.data(), keys.size()};
+  });
+  const uint64_t* const words = word_keys.data;
   const size_t un = static_cast<size_t>(n);
-  if (words.size() < un) {  // fewer than n words (including none): the whole text is one shingle
-    out->push_back(ChainKeys(words.data(), words.size()));
+  if (word_keys.size < un) {  // fewer than n words (including none): the whole text is one shingle
+    out->push_back(ChainKeys(words, word_keys.size));
     return;
   }
-  const size_t count = words.size() - un + 1;
+  const size_t count = word_keys.size - un + 1;
   const size_t at = out->size();
   out->resize(at + count);
   uint64_t* dst = out->data() + at;
   if (kFixed && un == 3) {
-    ChainAllFixed<3>(words.data(), count, dst);
+    ChainAllFixed<3>(words, count, dst);
   } else if (kFixed && un == 5) {
-    ChainAllFixed<5>(words.data(), count, dst);
+    ChainAllFixed<5>(words, count, dst);
   } else {
-    for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words.data() + k, un);
+    for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words + k, un);
   }
 }
 
@@ -703,14 +745,18 @@ WordClass WordClassOf(char32_t cp) {
 
 std::vector<std::string_view> Words(std::string_view text) {
   std::vector<std::string_view> words;
-  ForEachWord(text, [&](size_t start, size_t end) { words.push_back(text.substr(start, end - start)); });
+  WithWordScan([&](auto scan) {
+    ForEachWordWith(scan, text, [&](size_t start, size_t end) { words.push_back(text.substr(start, end - start)); });
+  });
   return words;
 }
 
 size_t CountWords(std::string_view text) {
-  size_t count = 0;
-  ForEachWord(text, [&](size_t, size_t) { ++count; });
-  return count;
+  return WithWordScan([&](auto scan) {
+    size_t count = 0;
+    ForEachWordWith(scan, text, [&](size_t, size_t) { ++count; });
+    return count;
+  });
 }
 
 std::vector<char32_t> DecodeUtf8(std::string_view text) {

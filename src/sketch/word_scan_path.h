@@ -1,7 +1,8 @@
 // Which code segments ASCII text into words (sketch/shingles.cc), for tests
-// only: every path gives the same words, and tests/sketch/shingles_test.cc
-// runs each one this CPU has against the general UTF-8 loop. Programs never
-// call these; the widest path the CPU runs is chosen on first use.
+// and benchmarks only: every path gives the same words, and
+// tests/sketch/shingles_test.cc runs each one this CPU has against the
+// general UTF-8 loop (bench/sketch/text_steps times each). The pipeline never
+// calls these; the widest path the CPU runs is chosen on first use.
 //
 // Thread-safety: SetWordScanPathForTesting changes the path of every thread;
 // call it only while no other thread segments text.
