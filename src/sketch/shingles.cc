@@ -636,8 +636,40 @@ void ChainAllFixed(const uint64_t* words, size_t count, uint64_t* dst) {
   for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words + k, N);
 }
 
+// AppendWordGramKeys for n = 3 with each 3-gram's key made as its last word
+// is found, in the scan's loop (no second pass over the word keys).
+void AppendWord3GramKeys(std::string_view text, std::vector<uint64_t>* out) {
+  struct Result {
+    WordSpan grams;
+    uint64_t last[3];  // the last three word keys, the latest at [2]
+    size_t words;
+  };
+  const Result r = WithWordScan([&](auto scan) {
+    WordValues grams;
+    uint64_t w0 = 0, w1 = 0, w2 = 0;
+    size_t words = 0;
+    ForEachWordWith(scan, text, [&](size_t start, size_t end) {
+      w0 = w1;
+      w1 = w2;
+      w2 = WordKey(text, start, end);
+      const uint64_t w[3] = {w0, w1, w2};
+      if (++words >= 3) grams.Push(ChainKeys(w, 3));
+    });
+    return Result{{grams.data(), grams.size()}, {w0, w1, w2}, words};
+  });
+  if (r.words < 3) {  // fewer than 3 words (including none): the whole text is one shingle
+    out->push_back(ChainKeys(r.last + 3 - r.words, r.words));
+    return;
+  }
+  out->insert(out->end(), r.grams.data, r.grams.data + r.grams.size);
+}
+
 template <bool kFixed>
 void AppendWordGramKeysImpl(std::string_view text, int n, std::vector<uint64_t>* out) {
+  if (kFixed && n == 3) {
+    AppendWord3GramKeys(text, out);
+    return;
+  }
   const WordSpan word_keys = WithWordScan([&](auto scan) {
     WordValues keys;
     ForEachWordWith(scan, text, [&](size_t start, size_t end) { keys.Push(WordKey(text, start, end)); });
@@ -653,9 +685,7 @@ void AppendWordGramKeysImpl(std::string_view text, int n, std::vector<uint64_t>*
   const size_t at = out->size();
   out->resize(at + count);
   uint64_t* dst = out->data() + at;
-  if (kFixed && un == 3) {
-    ChainAllFixed<3>(words, count, dst);
-  } else if (kFixed && un == 5) {
+  if (kFixed && un == 5) {
     ChainAllFixed<5>(words, count, dst);
   } else {
     for (size_t k = 0; k < count; ++k) dst[k] = ChainKeys(words + k, un);
