@@ -152,20 +152,21 @@ int main(int argc, char** argv) {
   // Word segmentation by each path this CPU runs (the lines above use the
   // widest; sketch/word_scan_path.h): the general UTF-8 loop, the byte-table
   // masks, SSE2 and the wide paths chosen at run time.
-  for (const auto path : prefsift::sketch::AvailableWordScanPaths()) {
-    const auto before = prefsift::sketch::SetWordScanPathForTesting(path);
-    std::printf("count words, %-11s %7.0f MB/s\n", prefsift::sketch::WordScanPathName(path), BestMBps(bytes, [&] {
+  for (const auto path : prefsift::sketch::detail::AvailableWordScanPaths()) {
+    prefsift::sketch::detail::ForceWordScanPath(path);
+    const char* name = prefsift::sketch::detail::WordScanPathName(path);
+    std::printf("count words, %-11s %7.0f MB/s\n", name, BestMBps(bytes, [&] {
                   for (const auto& t : texts) sink += prefsift::sketch::CountWords(t);
                 }));
-    std::printf("3-gram keys, %-11s %7.0f MB/s\n", prefsift::sketch::WordScanPathName(path), BestMBps(bytes, [&] {
+    std::printf("3-gram keys, %-11s %7.0f MB/s\n", name, BestMBps(bytes, [&] {
                   for (const auto& t : texts) {
                     grams.clear();
                     prefsift::sketch::AppendWordGramKeys(t, 3, &grams);
                     sink += grams.size();
                   }
                 }));
-    prefsift::sketch::SetWordScanPathForTesting(before);
   }
+  prefsift::sketch::detail::ResetWordScanPath();
   std::printf("(checksum %zu)\n", sink);
   return 0;
 }

@@ -30,6 +30,8 @@
 namespace prefsift::sketch {
 namespace {
 
+using detail::WordScanPath;
+
 // Distinct seeds for the two stages of word hashing and for character mode,
 // so a one-word text and a one-code-point text never share a hash by design.
 constexpr uint64_t kWordSeedTweak = 0x9e3779b97f4a7c15ULL;
@@ -347,7 +349,7 @@ WordScanPath WidestWordScanPath() {
 #if defined(PREFSIFT_WORD_SCAN_X86)
   __builtin_cpu_init();
   const bool bmi = __builtin_cpu_supports("bmi") && __builtin_cpu_supports("bmi2");
-  if (bmi && __builtin_cpu_supports("avx512bw")) return WordScanPath::kAvx512;
+  if (bmi && __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512bw")) return WordScanPath::kAvx512;
   if (bmi && __builtin_cpu_supports("avx2")) return WordScanPath::kAvx2;
 #endif
 #if defined(__SSE2__)
@@ -702,6 +704,8 @@ void AppendWordGramKeysReference(std::string_view text, int n, std::vector<uint6
   AppendWordGramKeysImpl<false>(text, n, out);
 }
 
+namespace detail {
+
 std::vector<WordScanPath> AvailableWordScanPaths() {
   std::vector<WordScanPath> paths = {WordScanPath::kGeneral, WordScanPath::kScalar};
 #if defined(__SSE2__)
@@ -713,11 +717,11 @@ std::vector<WordScanPath> AvailableWordScanPaths() {
   return paths;
 }
 
-WordScanPath SetWordScanPathForTesting(WordScanPath path) {
-  const WordScanPath before = ActiveWordScanPath();
+void ForceWordScanPath(WordScanPath path) {
   g_word_scan_path.store(static_cast<uint8_t>(path), std::memory_order_relaxed);
-  return before;
 }
+
+void ResetWordScanPath() { ForceWordScanPath(WidestWordScanPath()); }
 
 const char* WordScanPathName(WordScanPath path) {
   switch (path) {
@@ -729,6 +733,8 @@ const char* WordScanPathName(WordScanPath path) {
   }
   return "?";
 }
+
+}  // namespace detail
 
 WordClass WordClassOf(char32_t cp) {
   if (cp < 0x80) {

@@ -150,16 +150,15 @@ TEST(Words, SplitsOnAsciiWhitespace) {
   EXPECT_EQ(CountWords("   "), 0u);
 }
 
-// Forces one word-scan path for a scope, then puts the previous one back.
+using detail::WordScanPath;
+
+// Forces one word-scan path for a scope, then goes back to the widest.
 class ScopedWordScanPath {
  public:
-  explicit ScopedWordScanPath(WordScanPath path) : before_(SetWordScanPathForTesting(path)) {}
-  ~ScopedWordScanPath() { SetWordScanPathForTesting(before_); }
+  explicit ScopedWordScanPath(WordScanPath path) { detail::ForceWordScanPath(path); }
+  ~ScopedWordScanPath() { detail::ResetWordScanPath(); }
   ScopedWordScanPath(const ScopedWordScanPath&) = delete;
   ScopedWordScanPath& operator=(const ScopedWordScanPath&) = delete;
-
- private:
-  WordScanPath before_;
 };
 
 // What a path makes of a text: each word's byte range, the word count, and
@@ -198,10 +197,10 @@ std::string Describe(const WordScan& scan) {
 void ExpectEveryPathAgrees(const std::string& text) {
   const WordScan general = ScanWith(WordScanPath::kGeneral, text);
   ASSERT_EQ(general.count, general.words.size());
-  for (WordScanPath path : AvailableWordScanPaths()) {
+  for (WordScanPath path : detail::AvailableWordScanPaths()) {
     if (path == WordScanPath::kGeneral) continue;
     const WordScan scan = ScanWith(path, text);
-    ASSERT_TRUE(scan == general) << WordScanPathName(path) << " on [" << text << "] (" << text.size()
+    ASSERT_TRUE(scan == general) << detail::WordScanPathName(path) << " on [" << text << "] (" << text.size()
                                  << " bytes): " << Describe(scan) << "; general loop: " << Describe(general);
   }
 }
