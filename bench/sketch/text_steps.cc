@@ -7,7 +7,8 @@
 // signature alone, with 128 slots, and both compact as a run makes them); and the
 // byte scans of the bias stage's surface features and of the record facts
 // (code points, words), each beside its plain byte-loop reference
-// (docs/performance.md, "Vectorised scans").
+// (docs/performance.md, "Vectorised scans"); then word counts and word
+// 3-gram keys by each word-segmentation path this CPU runs.
 //
 // Usage: text_steps PREFS.jsonl [RECORDS=20000]
 // Reads "prompt" (a string) and "candidates" (strings) of the first RECORDS
@@ -25,6 +26,7 @@
 #include "core/normalize.h"
 #include "sketch/minhash.h"
 #include "sketch/shingles.h"
+#include "sketch/word_scan_path.h"
 #include "stages/facts.h"
 #include "stats/surface_features.h"
 
@@ -169,6 +171,24 @@ int main(int argc, char** argv) {
   std::printf("facts counts            %7.0f MB/s\n", BestMBps(bytes, [&] {
                 for (const auto& t : texts) sink += prefsift::CountCodePoints(t) + prefsift::CountWords(t);
               }));
+  // Word segmentation by each path this CPU runs (the lines above use the
+  // widest; sketch/word_scan_path.h): the general UTF-8 loop, the byte-table
+  // masks, SSE2 and the wide paths chosen at run time.
+  for (const auto path : prefsift::sketch::detail::AvailableWordScanPaths()) {
+    prefsift::sketch::detail::ForceWordScanPath(path);
+    const char* name = prefsift::sketch::detail::WordScanPathName(path);
+    std::printf("count words, %-11s %7.0f MB/s\n", name, BestMBps(bytes, [&] {
+                  for (const auto& t : texts) sink += prefsift::sketch::CountWords(t);
+                }));
+    std::printf("3-gram keys, %-11s %7.0f MB/s\n", name, BestMBps(bytes, [&] {
+                  for (const auto& t : texts) {
+                    grams.clear();
+                    prefsift::sketch::AppendWordGramKeys(t, 3, &grams);
+                    sink += grams.size();
+                  }
+                }));
+  }
+  prefsift::sketch::detail::ResetWordScanPath();
   std::printf("(checksum %zu)\n", sink);
   return 0;
 }

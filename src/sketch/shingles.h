@@ -104,8 +104,9 @@ std::vector<uint64_t> CharNgramHashes(std::string_view text, int n, uint64_t see
 // same as over AppendShingles' hashes but for such a coincidence. A text with
 // fewer than n words is one shingle, as there. REQUIRES: n >= 1.
 void AppendWordGramKeys(std::string_view text, int n, std::vector<uint64_t>* out);
-// The same keys with the plain chaining loop for every n (AppendWordGramKeys
-// unrolls it for n = 3 and 5); the reference of a differential test.
+// The same keys with the plain chaining loop for every n, over the word keys
+// once all are found (AppendWordGramKeys chains n = 3 as it finds each word
+// and unrolls n = 5); the reference of a differential test.
 void AppendWordGramKeysReference(std::string_view text, int n, std::vector<uint64_t>* out);
 
 // Appends the hash of every shingle of `text` to *out in text order,

@@ -15,10 +15,12 @@
 #include <random>
 #include <sstream>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "sketch/set_similarity.h"
 #include "adversarial_text.h"
+#include "sketch/word_scan_path.h"
 #include "sketch/xxh3_small.h"
 
 namespace prefsift::sketch {
@@ -148,36 +150,133 @@ TEST(Words, SplitsOnAsciiWhitespace) {
   EXPECT_EQ(CountWords("   "), 0u);
 }
 
-// RFC 3629 section 7: "\x41\xE2\x89\xA2\xCE\x91\x2E" is U+0041 U+2262 U+0391 U+002E;
-// "\xED\x95\x9C\xEA\xB5\xAD\xEC\x96\xB4" is U+D55C U+AD6D U+C5B4;
-// "\xEF\xBB\xBF\xF0\xA3\x8E\xB4" is U+FEFF U+233B4.
-TEST(Words, AsciiMaskPathAgreesWithTheGeneralLoop) {
-  // All-ASCII text takes a bit-mask path; appending " \u00e9" (a letter
-  // outside ASCII) sends the same bytes through the general loop, which the
-  // Unicode WordBreakTest.txt check above covers. Random text dense in the
-  // classes that matter (letters, digits, '_', the MidLetter/MidNum/MidNumLet
-  // bytes ' . : , ;), across 64-byte block edges.
-  std::mt19937 rng(20261203);
-  const std::string alphabet = "aZk09_._.':,;  \t-!?\"(x";
-  for (int trial = 0; trial < 20000; ++trial) {
-    std::string s;
-    const int len = static_cast<int>(rng() % 200);
-    for (int i = 0; i < len; ++i) s.push_back(alphabet[rng() % alphabet.size()]);
-    std::vector<std::string_view> fast = Words(s);
-    const std::string forced = s + " \xC3\xA9";
-    std::vector<std::string_view> general = Words(forced);
-    ASSERT_FALSE(general.empty());
-    ASSERT_EQ(general.back(), "\xC3\xA9");
-    general.pop_back();
-    ASSERT_EQ(fast.size(), general.size()) << "text [" << s << "]";
-    for (size_t i = 0; i < fast.size(); ++i) {
-      ASSERT_EQ(fast[i].data() - s.data(), general[i].data() - forced.data()) << "text [" << s << "] word " << i;
-      ASSERT_EQ(fast[i], general[i]) << "text [" << s << "] word " << i;
-    }
-    ASSERT_EQ(CountWords(s), fast.size());
+using detail::WordScanPath;
+
+// Forces one word-scan path for a scope, then goes back to the widest.
+class ScopedWordScanPath {
+ public:
+  explicit ScopedWordScanPath(WordScanPath path) { detail::ForceWordScanPath(path); }
+  ~ScopedWordScanPath() { detail::ResetWordScanPath(); }
+  ScopedWordScanPath(const ScopedWordScanPath&) = delete;
+  ScopedWordScanPath& operator=(const ScopedWordScanPath&) = delete;
+};
+
+// What a path makes of a text: each word's byte range, the word count, and
+// the word 3-gram keys and 5-gram hashes (each caller inlines the scan, so
+// each is checked).
+struct WordScan {
+  std::vector<std::pair<size_t, size_t>> words;
+  size_t count = 0;
+  std::vector<uint64_t> keys, hashes;
+  bool operator==(const WordScan&) const = default;
+};
+
+WordScan ScanWith(WordScanPath path, const std::string& text) {
+  ScopedWordScanPath forced(path);
+  WordScan scan;
+  for (std::string_view w : Words(text)) {
+    const auto start = static_cast<size_t>(w.data() - text.data());
+    scan.words.emplace_back(start, start + w.size());
+  }
+  scan.count = CountWords(text);
+  AppendWordGramKeys(text, 3, &scan.keys);
+  ShingleOptions options;
+  options.mode = ShingleMode::kWords;
+  AppendShingles(text, options, &scan.hashes);
+  return scan;
+}
+
+std::string Describe(const WordScan& scan) {
+  std::string out = std::to_string(scan.count) + " words:";
+  for (const auto& [start, end] : scan.words) out += " [" + std::to_string(start) + "," + std::to_string(end) + ")";
+  return out;
+}
+
+// Every path this CPU runs against the general loop (WordScanPath::kGeneral)
+// on `text`: the same words at the same byte offsets, count, keys and hashes.
+void ExpectEveryPathAgrees(const std::string& text) {
+  const WordScan general = ScanWith(WordScanPath::kGeneral, text);
+  ASSERT_EQ(general.count, general.words.size());
+  for (WordScanPath path : detail::AvailableWordScanPaths()) {
+    if (path == WordScanPath::kGeneral) continue;
+    const WordScan scan = ScanWith(path, text);
+    ASSERT_TRUE(scan == general) << detail::WordScanPathName(path) << " on [" << text << "] (" << text.size()
+                                 << " bytes): " << Describe(scan) << "; general loop: " << Describe(general);
   }
 }
 
+// Random ASCII text dense in the bytes that decide ASCII words: letters,
+// digits, '_', the MidLetter/MidNumLet/MidNum bytes ' . : , ; and spaces,
+// with other punctuation and control bytes.
+std::string RandomAsciiWordText(std::mt19937_64& rng, size_t length) {
+  static const std::string kAlphabet =
+      "abcdefxyzQRSTUVW0123456789__.....'''::,,;;     \t\n-!?\"()/@#$%&*+=<>[]{}|~^`\\\x01\x7f";
+  std::string s;
+  s.reserve(length);
+  while (s.size() < length) {
+    const uint64_t r = rng();
+    if (r % 8 == 0) {  // a run of one byte, so words and joins also cross 64-byte blocks
+      const char c = kAlphabet[(r >> 8) % kAlphabet.size()];
+      s.append(std::min<size_t>(length - s.size(), 1 + (r >> 32) % 70), c);
+    } else {
+      s.push_back(kAlphabet[(r >> 8) % kAlphabet.size()]);
+    }
+  }
+  return s;
+}
+
+// The ASCII paths build 64-byte bit masks (SSE2, AVX2 or AVX-512BW chosen at
+// run time; a byte-at-a-time build of the same masks) instead of the general
+// UTF-8 loop's branch a byte. This check is differential: each path this CPU
+// runs against the project's general loop (ForEachWordFrom in shingles.cc,
+// the UAX #29 word-boundary rules that the WordBreakTest.txt check above
+// covers), on seeded random text at every length up to 300 bytes (every
+// place in a block, texts ending mid-block, up to 5 blocks) and some long
+// ones, with words and joiners across block edges.
+TEST(Words, AsciiMaskPathAgreesWithTheGeneralLoop) {
+  std::mt19937_64 rng(20261203);
+  for (size_t length = 0; length <= 300; ++length) {
+    for (int trial = 0; trial < 60; ++trial) ExpectEveryPathAgrees(RandomAsciiWordText(rng, length));
+  }
+  for (size_t length : {511u, 512u, 513u, 1000u, 4095u, 4096u, 4097u, 20000u}) {
+    for (int trial = 0; trial < 5; ++trial) ExpectEveryPathAgrees(RandomAsciiWordText(rng, length));
+  }
+  // Whole blocks of one byte: a word, a number or a run of '_' across blocks.
+  for (const char c : std::string("a7_.' ")) {
+    for (size_t length : {63u, 64u, 65u, 128u, 129u}) {
+      ExpectEveryPathAgrees(std::string(length, c));
+      ExpectEveryPathAgrees(std::string(length, c) + "x");
+      ExpectEveryPathAgrees("_" + std::string(length, c) + "_");
+    }
+  }
+}
+
+// Text with bytes >= 0x80: the mask paths stop before the block ahead of
+// the first such byte and the general loop goes on from a word boundary
+// there; the words must be the general loop's alone. Random ASCII with
+// non-ASCII pieces (letters, an Extend mark, an ideograph, U+2019 which joins
+// letters, a malformed byte) at random places, and tests/adversarial_text.h's
+// texts. Differential against the general loop, as above.
+TEST(Words, MaskPathHandsNonAsciiTextToTheGeneralLoop) {
+  static const std::vector<std::string> kPieces = {"\xC3\xA9", "\xCC\x81", "\xE4\xB8\x80", "\xE2\x80\x99",
+                                                   "\xFF", "\xC3", "\xE0\xB8\x81"};
+  std::mt19937_64 rng(20261204);
+  for (size_t length = 0; length <= 300; ++length) {
+    for (int trial = 0; trial < 20; ++trial) {
+      std::string s = RandomAsciiWordText(rng, length);
+      const size_t at = rng() % (s.size() + 1);
+      s.insert(at, kPieces[rng() % kPieces.size()]);
+      ExpectEveryPathAgrees(s);
+    }
+  }
+  for (size_t length : testing::AdversarialLengths()) {
+    for (int trial = 0; trial < 3; ++trial) ExpectEveryPathAgrees(testing::AdversarialText(rng, length));
+  }
+}
+
+// RFC 3629 section 7: "\x41\xE2\x89\xA2\xCE\x91\x2E" is U+0041 U+2262 U+0391 U+002E;
+// "\xED\x95\x9C\xEA\xB5\xAD\xEC\x96\xB4" is U+D55C U+AD6D U+C5B4;
+// "\xEF\xBB\xBF\xF0\xA3\x8E\xB4" is U+FEFF U+233B4.
 TEST(DecodeUtf8, Rfc3629Examples) {
   EXPECT_EQ(DecodeUtf8("\x41\xE2\x89\xA2\xCE\x91\x2E"),
             (std::vector<char32_t>{0x41, 0x2262, 0x391, 0x2E}));
