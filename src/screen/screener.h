@@ -1,12 +1,17 @@
 // The personal-data screening engine: scans one UTF-8 text of a given field
 // kind and returns non-overlapping findings.
 //
-// Method: every active rule's pattern for a field kind is compiled into one
-// RE2::Set, so a text is scanned once; only the rules the Set reports are
-// run again (individual RE2 objects) to find their spans; each span is checked
-// by the rule's check and nearby words; overlapping spans are resolved by
-// (1) higher certainty (the rule's base certainty after nearby words),
-// (2) longer span, (3) earlier rule in load order, (4) earlier start.
+// Method: every active rule's pattern for a field kind, except rules with
+// "beside", is compiled into one RE2::Set, so a text is scanned once; only
+// the rules the Set reports are run again (individual RE2 objects) to find
+// their spans; each span is checked by the rule's check and nearby words;
+// overlapping spans are resolved by (1) higher certainty (the rule's base
+// certainty after nearby words), (2) longer span, (3) earlier rule in load
+// order, (4) earlier start. A rule with "beside" can only add a finding
+// within reach of a kept finding of a kind it lists, so it is run only when
+// one exists, and stops at the last match that could be within reach (on
+// help-desk text the two-capitalised-words rule matches in most texts, and
+// re-running it everywhere cost more than the Set pass itself).
 //
 // Word boundaries: patterns use RE2's \b, which is ASCII-only. After a match,
 // a span whose first/last byte is an ASCII letter or digit is also refused if
@@ -65,8 +70,9 @@ class Screener {
   Result<std::vector<Finding>> Scan(std::string_view text, FieldKind field) const;
 
   // The reference for the differential test (tests/screen/differential_test.cc):
-  // no RE2::Set; every rule of the field kind is run alone over the text,
-  // with the same checks and overlap resolution. Gives exactly Scan's findings,
+  // no RE2::Set and no shortcut for "beside" rules; every rule of the field
+  // kind is run alone over the whole text, with the same checks and overlap
+  // resolution. Gives exactly Scan's findings,
   // slower. Unlike Scan it has no memory-error path (each rule's own RE2 falls
   // back to its slower engine).
   std::vector<Finding> ScanEachRule(std::string_view text, FieldKind field) const;
