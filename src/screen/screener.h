@@ -1,17 +1,16 @@
 // The personal-data screening engine: scans one UTF-8 text of a given field
 // kind and returns non-overlapping findings.
 //
-// Method: every active rule's pattern for a field kind, except rules with
-// "beside", is compiled into one RE2::Set, so a text is scanned once; only
-// the rules the Set reports are run again (individual RE2 objects) to find
-// their spans; each span is checked by the rule's check and nearby words;
-// overlapping spans are resolved by (1) higher certainty (the rule's base
-// certainty after nearby words), (2) longer span, (3) earlier rule in load
-// order, (4) earlier start. A rule with "beside" can only add a finding
-// within reach of a kept finding of a kind it lists, so it is run only when
-// one exists, and stops at the last match that could be within reach (on
-// help-desk text the two-capitalised-words rule matches in most texts, and
-// re-running it everywhere cost more than the Set pass itself).
+// Method: every active rule's pattern for a field kind is compiled into one
+// RE2::Set, so a text is scanned once; only the rules the Set reports are
+// run again (individual RE2 objects) to find their spans; each span is checked
+// by the rule's check and nearby words; overlapping spans are resolved by
+// (1) higher certainty (the rule's base certainty after nearby words),
+// (2) longer span, (3) earlier rule in load order, (4) earlier start. A rule
+// with "beside" can only add a finding within reach of a kept finding of a
+// kind it lists, so a reported one is run after the others have been
+// resolved, only when such a finding exists, and only up to the last match
+// that could be within reach of one.
 //
 // Word boundaries: patterns use RE2's \b, which is ASCII-only. After a match,
 // a span whose first/last byte is an ASCII letter or digit is also refused if

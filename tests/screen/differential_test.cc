@@ -1,7 +1,7 @@
 // Differential test of the screen's fast path: Screener::Scan (one RE2::Set
-// pass over the text with the rules without "beside", then only the rules the
-// Set reports; rules with "beside" only where a kept finding of a kind they
-// list exists, and only as far as one can reach) against the project's own
+// pass over the text, then only the rules the Set reports; reported rules
+// with "beside" only where a kept finding of a kind they list exists, and
+// only as far as one can reach) against the project's own
 // per-rule scan, Screener::ScanEachRule (no Set: every rule of the field kind,
 // "beside" or not, run alone over the whole text, with the same checks and
 // overlap resolution). The shortcuts only skip work whose candidates could
@@ -208,8 +208,8 @@ const Screener& AwkwardScreener(double certainty_floor) {
 }
 
 // The awkward pack's "beside" rules and t-only-meta alone: prompts and
-// candidates then have only "beside" rules (no Set at all), metadata one
-// rule without "beside".
+// candidates then have only "beside" rules (nothing they could stand next
+// to), metadata one rule without "beside".
 const Screener& AwkwardAloneScreener() {
   static const Screener* s = [] {
     auto pack = ParseRulePack(kAwkwardPack, "awkward.json");
