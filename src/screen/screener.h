@@ -6,7 +6,11 @@
 // run again (individual RE2 objects) to find their spans; each span is checked
 // by the rule's check and nearby words; overlapping spans are resolved by
 // (1) higher certainty (the rule's base certainty after nearby words),
-// (2) longer span, (3) earlier rule in load order, (4) earlier start.
+// (2) longer span, (3) earlier rule in load order, (4) earlier start. A rule
+// with "beside" can only add a finding within reach of a kept finding of a
+// kind it lists, so a reported one is run after the others have been
+// resolved, only when such a finding exists, and only up to the last match
+// that could be within reach of one.
 //
 // Word boundaries: patterns use RE2's \b, which is ASCII-only. After a match,
 // a span whose first/last byte is an ASCII letter or digit is also refused if
@@ -65,8 +69,9 @@ class Screener {
   Result<std::vector<Finding>> Scan(std::string_view text, FieldKind field) const;
 
   // The reference for the differential test (tests/screen/differential_test.cc):
-  // no RE2::Set; every rule of the field kind is run alone over the text,
-  // with the same checks and overlap resolution. Gives exactly Scan's findings,
+  // no RE2::Set and no shortcut for "beside" rules; every rule of the field
+  // kind is run alone over the whole text, with the same checks and overlap
+  // resolution. Gives exactly Scan's findings,
   // slower. Unlike Scan it has no memory-error path (each rule's own RE2 falls
   // back to its slower engine).
   std::vector<Finding> ScanEachRule(std::string_view text, FieldKind field) const;
