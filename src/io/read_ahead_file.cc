@@ -1,6 +1,7 @@
 #include "io/read_ahead_file.h"
 
 #include <fcntl.h>
+#include <sys/mman.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
@@ -9,6 +10,7 @@
 #include <cstdlib>
 #include <cstring>
 #include <future>
+#include <vector>
 
 namespace prefsift {
 namespace {
@@ -152,22 +154,47 @@ class ReadAheadFile : public ReadableFile {
   Status failed_ = Status::Ok();
 };
 
+// Share of the file's pages the page cache holds now (mincore over a
+// read-only mapping, 1 GiB at a time; nothing is read). 0 when it cannot
+// tell.
+double CachedShare(int fd, uint64_t size) {
+  if (size == 0) return 0;
+  const auto page = static_cast<uint64_t>(::sysconf(_SC_PAGESIZE));
+  constexpr uint64_t kWindow = uint64_t{1} << 30;
+  std::vector<unsigned char> in_core;
+  uint64_t resident = 0, pages = 0;
+  for (uint64_t at = 0; at < size; at += kWindow) {
+    const auto len = static_cast<size_t>(std::min(kWindow, size - at));
+    void* map = ::mmap(nullptr, len, PROT_READ, MAP_SHARED, fd, static_cast<off_t>(at));
+    if (map == MAP_FAILED) return 0;
+    in_core.resize((len + page - 1) / page);
+    const bool ok = ::mincore(map, len, in_core.data()) == 0;
+    ::munmap(map, len);
+    if (!ok) return 0;
+    for (unsigned char c : in_core) resident += c & 1u;
+    pages += in_core.size();
+  }
+  return static_cast<double>(resident) / static_cast<double>(pages);
+}
+
 }  // namespace
 
 Result<std::unique_ptr<ReadableFile>> OpenReadAheadFile(const std::string& path, bool direct) {
-  constexpr int kFlags = O_RDONLY | O_CLOEXEC;
-  int fd = -1;
-  if (direct) {
-    fd = ::open(path.c_str(), kFlags | O_DIRECT);
-    if (fd < 0 && errno == EINVAL) direct = false;  // the file system has no O_DIRECT
-  }
-  if (fd < 0) fd = ::open(path.c_str(), kFlags);
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
   if (fd < 0) return Status::Input(Errno("cannot open", path, errno));
   struct stat st {};
   if (::fstat(fd, &st) != 0) {
     const int err = errno;
     ::close(fd);
     return Status::Input(Errno("cannot open", path, err));
+  }
+  // A file the cache mostly holds already costs little to read through it,
+  // and reading it from the disk again would take the disk from pass 2's
+  // writes; one it does not hold goes past the cache.
+  if (direct && CachedShare(fd, static_cast<uint64_t>(st.st_size)) >= kCachedEnough) direct = false;
+  if (direct) {
+    const int flags = ::fcntl(fd, F_GETFL);
+    if (flags < 0 || ::fcntl(fd, F_SETFL, flags | O_DIRECT) != 0) direct = false;  // the file system has no O_DIRECT
   }
   return std::unique_ptr<ReadableFile>(new ReadAheadFile(fd, path, direct, static_cast<uint64_t>(st.st_size)));
 }
