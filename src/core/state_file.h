@@ -50,8 +50,8 @@ class StateWriter {
     U64(n);
     Raw(data, n * sizeof(T));
   }
-  template <typename T>
-  void Vec(const std::vector<T>& v) { Array(v.data(), v.size()); }
+  template <typename T, typename A>
+  void Vec(const std::vector<T, A>& v) { Array(v.data(), v.size()); }
 
   // The whole file for `kind` (e.g. "observed"); the writer is spent after.
   std::string Finish(std::string_view kind);
@@ -86,16 +86,16 @@ class StateReader {
   // A count that must fit the section's rest at `min_bytes` each (so a damaged
   // count never makes a huge allocation).
   uint64_t Count(size_t min_bytes);
-  template <typename T>
-  void Vec(std::vector<T>* out) {
+  template <typename T, typename A>
+  void Vec(std::vector<T, A>* out) {
     static_assert(std::is_trivially_copyable_v<T>);
     uint64_t n = Count(sizeof(T));
     out->resize(n);
     Raw(out->data(), n * sizeof(T));
   }
   // Appends the array's values to *out.
-  template <typename T>
-  void AppendVec(std::vector<T>* out) {
+  template <typename T, typename A>
+  void AppendVec(std::vector<T, A>* out) {
     static_assert(std::is_trivially_copyable_v<T>);
     uint64_t n = Count(sizeof(T));
     size_t at = out->size();

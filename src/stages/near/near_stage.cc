@@ -9,6 +9,7 @@
 #include <span>
 #include <thread>
 
+#include "core/default_init.h"
 #include "core/state_file.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
@@ -255,7 +256,7 @@ class NearDupsStage : public Stage {
   }
   void Grow(size_t n) override {
     signatures_.resize(n * s_.slots);
-    keys_.resize(n * s_.keys, sketch::kNoKey);
+    keys_.resize(n * s_.keys);  // KeySketch writes all s_.keys places (kNoKey past the distinct keys)
     chars_mode_.resize(n);
     if (s_.exact) sets_.resize(n);
     if (s_.cand_action != CandidateAction::kOff) cand_pairs_.resize(n);
@@ -298,7 +299,7 @@ class NearDupsStage : public Stage {
     cluster_of_.assign(n, -1);
     if (ctx.results.want_signatures) {  // a store keeps them (src/store, docs/store.md)
       NearSignatures sig;
-      sig.bytes = signatures_;
+      sig.bytes.assign(signatures_.begin(), signatures_.end());
       sig.slots = s_.slots;
       sig.bands = banding_.bands;
       sig.rows = banding_.rows;
@@ -332,7 +333,7 @@ class NearDupsStage : public Stage {
       // The kept records' signatures, moved to the front in place (kept[j] >= j,
       // so no row is overwritten before it is moved): no second copy of the
       // signature table (256 bytes a record by default).
-      std::vector<uint8_t> sub = std::move(signatures_);
+      FillLaterVector<uint8_t> sub = std::move(signatures_);
       for (size_t j = 0; j < kept.size(); ++j) {
         if (kept[j] != j) std::memmove(sub.data() + j * K, sub.data() + kept[j] * K, K);
       }
@@ -349,7 +350,7 @@ class NearDupsStage : public Stage {
       bool from_keys = false;
       if (s_.keys > 0 && kept.size() * s_.keys < 0xffffffffULL) {  // places are numbered in 32 bits
         const uint32_t M = s_.keys;
-        std::vector<uint32_t> keys = std::move(keys_);
+        FillLaterVector<uint32_t> keys = std::move(keys_);
         for (size_t j = 0; j < kept.size(); ++j) {
           if (kept[j] != j) std::memmove(keys.data() + j * M, keys.data() + kept[j] * M, M * sizeof(uint32_t));
         }
@@ -576,8 +577,10 @@ class NearDupsStage : public Stage {
   sketch::MinHashParams minhash_;
   sketch::Banding banding_;
   // Per record (Observe).
-  std::vector<uint8_t> signatures_;                  // K bytes a record
-  std::vector<uint32_t> keys_;                       // key sketch: s_.keys keys a record (4 bytes each)
+  // Grown without zeros (core/default_init.h): Observe writes every byte of
+  // its record's rows, on the worker threads.
+  FillLaterVector<uint8_t> signatures_;              // K bytes a record
+  FillLaterVector<uint32_t> keys_;                   // key sketch: s_.keys keys a record (4 bytes each)
   std::vector<int64_t> cluster_of_;                   // per record: its cluster id (smallest member), -1 = none
   std::vector<uint8_t> chars_mode_;                  // 1 = code-point shingles
   std::vector<std::vector<uint64_t>> sets_;          // "verify": "exact" only
