@@ -12,18 +12,14 @@
 #include <future>
 #include <vector>
 
+#include "io/direct_io.h"
+
 namespace prefsift {
 namespace {
 
-// O_DIRECT needs the buffer address, the length and the file offset aligned
-// to the device's logical block size; 4 KiB covers 512-byte and 4-KiB
-// devices (a larger one answers EINVAL and the file goes on buffered).
-constexpr size_t kAlign = 4096;
-constexpr size_t kBlock = 4u << 20;  // bytes per read
-
-std::string Errno(const std::string& what, const std::string& path, int err) {
-  return what + " " + path + ": " + std::strerror(err);
-}
+using direct_io::Errno;
+using direct_io::kAlign;
+using direct_io::kBlock;
 
 // Two buffers take turns: the caller copies out of the current block while
 // the next one is read on a background thread.
@@ -126,10 +122,7 @@ class ReadAheadFile : public ReadableFile {
   }
 
   Status DropDirect() {
-    const int flags = ::fcntl(fd_, F_GETFL);
-    if (flags < 0 || ::fcntl(fd_, F_SETFL, flags & ~O_DIRECT) != 0) {
-      return Status::Input(Errno("cannot read", path_, errno));
-    }
+    if (!direct_io::SetDirect(fd_, false)) return Status::Input(Errno("cannot read", path_, errno));
     direct_ = false;
     return Status::Ok();
   }
@@ -193,8 +186,7 @@ Result<std::unique_ptr<ReadableFile>> OpenReadAheadFile(const std::string& path,
   // writes; one it does not hold goes past the cache.
   if (direct && CachedShare(fd, static_cast<uint64_t>(st.st_size)) >= kCachedEnough) direct = false;
   if (direct) {
-    const int flags = ::fcntl(fd, F_GETFL);
-    if (flags < 0 || ::fcntl(fd, F_SETFL, flags | O_DIRECT) != 0) direct = false;  // the file system has no O_DIRECT
+    if (!direct_io::SetDirect(fd, true)) direct = false;  // the file system has no O_DIRECT
   }
   return std::unique_ptr<ReadableFile>(new ReadAheadFile(fd, path, direct, static_cast<uint64_t>(st.st_size)));
 }

@@ -9,18 +9,14 @@
 #include <cstring>
 #include <future>
 
+#include "io/direct_io.h"
+
 namespace prefsift {
 namespace {
 
-// O_DIRECT needs the buffer address, the length and the file offset aligned
-// to the device's logical block size; 4 KiB covers 512-byte and 4-KiB
-// devices (a larger one answers EINVAL and the file goes on buffered).
-constexpr size_t kAlign = 4096;
-constexpr size_t kBlock = 4u << 20;  // bytes per write
-
-std::string Errno(const std::string& what, const std::string& path, int err) {
-  return what + " " + path + ": " + std::strerror(err);
-}
+using direct_io::Errno;
+using direct_io::kAlign;
+using direct_io::kBlock;
 
 // Two buffers take turns: while one full block is written on a background
 // thread (the disk's time, with O_DIRECT), the caller fills the other, so the
@@ -119,10 +115,7 @@ class StreamFile : public WritableFile {
   }
 
   Status DropDirect() {
-    const int flags = ::fcntl(fd_, F_GETFL);
-    if (flags < 0 || ::fcntl(fd_, F_SETFL, flags & ~O_DIRECT) != 0) {
-      return Status::Io(Errno("cannot write", path_, errno));
-    }
+    if (!direct_io::SetDirect(fd_, false)) return Status::Io(Errno("cannot write", path_, errno));
     direct_ = false;
     return Status::Ok();
   }
