@@ -8,7 +8,9 @@
 #include <cstdlib>
 #include <filesystem>
 #include <map>
+#include <random>
 #include <set>
+#include <vector>
 
 #include "report/datasheet.h"
 #include "report/gate.h"
@@ -243,6 +245,53 @@ TEST(Splits, DominantScript) {
   EXPECT_EQ(DominantScript("番茄种子怎么保存"), "Han");
   EXPECT_EQ(DominantScript("كيف أحفظ البذور"), "Arabic");
   EXPECT_EQ(DominantScript("12345 !!"), "none");
+}
+
+// The reference: the script of every code point counted one at a time (the
+// loop before ASCII runs were counted in bulk), with the same block ranges.
+std::string DominantScriptByCodePoint(std::string_view s) {
+  std::map<std::string, uint32_t> counts;
+  std::string best = "none";
+  std::vector<std::string> order;
+  for (size_t i = 0; i < s.size();) {
+    const auto b = static_cast<unsigned char>(s[i]);
+    size_t len = b < 0x80 ? 1 : (b >> 5) == 6 ? 2 : (b >> 4) == 14 ? 3 : (b >> 3) == 30 ? 4 : 1;
+    if (len > 1 && i + len > s.size()) len = 1;
+    // An ASCII byte: a letter is Latin, anything else no script (the ranges
+    // above); another code point: its script alone, by the stage's own
+    // block table (the part the bulk count does not touch).
+    const std::string one = b < 0x80 ? (((b >= 'A' && b <= 'Z') || (b >= 'a' && b <= 'z')) ? "Latin" : "none")
+                                     : DominantScript(s.substr(i, len));
+    ++counts[one];
+    i += len;
+  }
+  // The same choice as the stage: the most code points among the scripts
+  // other than "none", ties to the earlier script in the stage's list.
+  const char* const kOrder[] = {"Latin", "Greek", "Cyrillic", "Armenian", "Hebrew", "Arabic", "Devanagari",
+                                "Bengali", "Tamil", "Thai", "Georgian", "Hangul", "Kana", "Han", "other"};
+  uint32_t most = 0;
+  for (const char* k : kOrder) {
+    if (counts[k] > most) {
+      most = counts[k];
+      best = k;
+    }
+  }
+  return best;
+}
+
+// Mixed texts: ASCII runs between letters of other scripts, digits, symbols,
+// stray and cut-short UTF-8 bytes. Differential against the code point by
+// code point count above.
+TEST(Splits, DominantScriptCountsAsciiRunsLikeCodePoints) {
+  const char* const kPieces[] = {"a", "Z", "7", " ", "?", "_", "@", "[", "`", "{", "é", "Ж", "ж", "α", "ש", "ب", "क", "ক", "த", "ก",
+                                 "ა", "한", "カ", "の", "中", "\xF0\x9F\x98\x80", "\xFF", "\xC3", "—", "€"};
+  std::mt19937 rng(20261203);
+  for (int t = 0; t < 3000; ++t) {
+    std::string text;
+    const int n = static_cast<int>(rng() % 40);
+    for (int k = 0; k < n; ++k) text += kPieces[rng() % (sizeof kPieces / sizeof kPieces[0])];
+    ASSERT_EQ(DominantScript(text), DominantScriptByCodePoint(text)) << text;
+  }
 }
 
 // ----- the gate -----

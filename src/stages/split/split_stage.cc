@@ -70,6 +70,14 @@ Script DominantScriptOf(std::string_view s) {
   uint32_t counts[kScriptCount] = {};
   for (size_t i = 0; i < s.size();) {
     unsigned char b = static_cast<unsigned char>(s[i]);
+    if (b < 0x80) {  // a run of ASCII: only its letters count (kNone's count never decides, see below)
+      uint32_t letters = 0;
+      for (; i < s.size() && static_cast<unsigned char>(s[i]) < 0x80; ++i) {
+        letters += static_cast<unsigned char>((static_cast<unsigned char>(s[i]) | 0x20) - 'a') < 26;
+      }
+      counts[kLatin] += letters;
+      continue;
+    }
     uint32_t c = b;
     size_t len = b < 0x80 ? 1 : (b >> 5) == 6 ? 2 : (b >> 4) == 14 ? 3 : (b >> 3) == 30 ? 4 : 1;
     if (len > 1 && i + len <= s.size()) {
@@ -79,6 +87,8 @@ Script DominantScriptOf(std::string_view s) {
     i += len;
     ++counts[ScriptOf(c)];
   }
+  // counts[kNone] is never compared with a count above 0 while best is kNone,
+  // so it is not kept.
   Script best = kNone;
   for (int k = 1; k < kScriptCount; ++k) {
     if (counts[k] > counts[best] || (best == kNone && counts[k] > 0)) best = static_cast<Script>(k);
