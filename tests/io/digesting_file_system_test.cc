@@ -120,6 +120,26 @@ TEST(DigestingFileSystem, WritesAreDigestedOnClose) {
   EXPECT_EQ(fs.DigestOf("/out/abc")->sha256, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
 }
 
+// Pieces of 1 MiB and more are hashed on a helper thread beside the write;
+// the digest must still be the one of the bytes in call order, whichever
+// side of that size each piece falls.
+TEST(DigestingFileSystem, LargeAppendsAreHashedInCallOrder) {
+  MemoryFileSystem mem;
+  DigestingFileSystem fs(&mem);
+  const size_t mib = size_t{1} << 20;
+  const std::string whole(3 * mib + 5, 'a');
+  WriteThrough(fs, "/a", {whole.substr(0, mib - 1), whole.substr(mib - 1, mib), whole.substr(2 * mib - 1, 3),
+                          whole.substr(2 * mib + 2)});
+  // Python 3's hashlib.sha256(b"a" * (3 * 2**20 + 5)).hexdigest(), a
+  // reference library outside the project.
+  EXPECT_EQ(fs.DigestOf("/a")->sha256, "aff2c7498aae939dfb2fb1dc6c0c83fa3708b069428e51338801af7f5dc2bf0f");
+  EXPECT_EQ(fs.DigestOf("/a")->bytes, whole.size());
+  std::string mixed;
+  for (int i = 0; mixed.size() < 5 * mib; ++i) mixed += "record " + std::to_string(i * 7919) + "\n";
+  WriteThrough(fs, "/b", {mixed.substr(0, 2 * mib + 3), mixed.substr(2 * mib + 3, 10), mixed.substr(2 * mib + 13)});
+  EXPECT_EQ(fs.DigestOf("/b")->sha256, Sha256Hex(mixed));
+}
+
 TEST(DigestingFileSystem, RenamesCarryDigestsAndRemovalsDropThem) {
   MemoryFileSystem mem;
   DigestingFileSystem fs(&mem);
@@ -149,6 +169,14 @@ TEST(DigestingFileSystem, NoDigestWhenAWriteFails) {
   EXPECT_FALSE(f.value()->Append("defgh").ok());
   (void)f.value()->Close();
   EXPECT_FALSE(fs.DigestOf("/x").has_value());
+  // The same for a piece large enough to be hashed beside the write.
+  faulty.fail_writes_after = (3LL << 20) + 4;
+  auto g = fs.OpenWrite("/y");
+  ASSERT_TRUE(g.ok());
+  EXPECT_TRUE(g.value()->Append(std::string(size_t{3} << 20, 'b')).ok());
+  EXPECT_FALSE(g.value()->Append(std::string(size_t{2} << 20, 'c')).ok());
+  (void)g.value()->Close();
+  EXPECT_FALSE(fs.DigestOf("/y").has_value());
 }
 
 }  // namespace
