@@ -24,9 +24,10 @@ Result<std::unique_ptr<OutputDir>> OutputDir::Begin(FileSystem* fs, const std::s
     Status s = fs->RemoveAll(staging);
     if (!s.ok()) return s;
   }
-  Status s = fs->MakeDir(staging);
+  // Made and listed for removal as one step (a stop signal between the two
+  // would leave the folder behind).
+  Status s = CreatePartialOutput(staging, [&] { return fs->MakeDir(staging); });
   if (!s.ok()) return s;
-  RegisterPartialOutput(staging);
   return std::unique_ptr<OutputDir>(new OutputDir(fs, dir, staging, overwrite));
 }
 

@@ -20,6 +20,12 @@ std::set<std::string>& Paths() {
   static std::set<std::string> paths;
   return paths;
 }
+// Set (under Mu) once a stop signal has arrived; from then on nothing new is
+// made that the cleanup could miss.
+bool& Stopping() {
+  static bool stopping = false;
+  return stopping;
+}
 
 sigset_t StopSignals() {
   sigset_t set;
@@ -36,6 +42,7 @@ void WaitAndClean() {
   if (sigwait(&set, &sig) != 0) return;
   {
     std::lock_guard<std::mutex> lock(Mu());
+    Stopping() = true;
     for (const auto& p : Paths()) {
       std::error_code ec;
       std::filesystem::remove_all(p, ec);
@@ -61,9 +68,14 @@ void RemovePartialOutputsOnSignal() {
   std::thread(WaitAndClean).detach();
 }
 
-void RegisterPartialOutput(const std::string& path) {
+Status CreatePartialOutput(const std::string& path, const std::function<Status()>& create) {
+  // Under the lock the signal-waiting thread takes before it removes the
+  // listed paths: made and listed before it looks, or not made at all.
   std::lock_guard<std::mutex> lock(Mu());
-  Paths().insert(path);
+  if (Stopping()) return Status::Io("not creating " + path + ": the run is being stopped by a signal");
+  Status s = create();
+  if (s.ok()) Paths().insert(path);
+  return s;
 }
 
 void UnregisterPartialOutput(const std::string& path) {

@@ -8,7 +8,10 @@
 // Thread-safety: all functions may be called from any thread.
 #pragma once
 
+#include <functional>
 #include <string>
+
+#include "core/status.h"
 
 namespace prefsift {
 
@@ -18,8 +21,12 @@ namespace prefsift {
 // the run without cleaning up.
 void RemovePartialOutputsOnSignal();
 
-// Adds / removes a path (file or folder) to remove if a signal stops the run.
-void RegisterPartialOutput(const std::string& path);
+// Makes a path (file or folder) with `create` and adds it to the paths to
+// remove if a signal stops the run, as one step: a signal finds it either
+// made and listed or not made. Once a signal has arrived nothing is made
+// (an error). `create` must not call these functions.
+Status CreatePartialOutput(const std::string& path, const std::function<Status()>& create);
+// Takes a path off that list.
 void UnregisterPartialOutput(const std::string& path);
 
 }  // namespace prefsift
