@@ -301,7 +301,7 @@ Result<AuditOutcome> RunSplitAudit(const AuditOptions& o, FileSystem* fs) {
   if (!corpus.ok()) return corpus.status();
   LeakSettings settings = o.detectors;
   settings.enabled[static_cast<int>(LeakDetector::kAnswer)] = false;
-  auto index = LeakIndex::Build(corpus.value(), settings, o.normalize);
+  auto index = LeakIndex::Build(corpus.value(), settings, o.normalize, o.threads);
   if (!index.ok()) return index.status();
   const EvalCorpus& ev = corpus.value();
   const LeakIndex& idx = *index.value();

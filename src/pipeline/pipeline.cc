@@ -726,6 +726,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   const auto steady_start = std::chrono::steady_clock::now();
   if (plan.inputs.empty()) return Status::Usage("no input files: name them on the command line or in the plan's \"inputs\"");
   if (plan.output.empty()) return Status::Usage("no output folder: pass --out DIR or set \"output\" in the plan");
+  PhaseTimer timer(options.timings, log);
   Stages stages;
   if (Status s = MakeRunStages(plan, options.stages, fs, &stages); !s.ok()) return s;
   if (Status s = ValidateFinishPlan(plan); !s.ok()) return s;
@@ -740,7 +741,7 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   ThreadPool pool(plan.threads);  // 0: one per hardware thread
   RunState st(plan);
   Progress progress(options.progress, options.progress_lines, options.progress_seconds, log, InputBytes(plan));
-  PhaseTimer timer(options.timings, log);
+  timer.Mark("set-up");  // the stages' own set-up (evaluation index, rule packs) and the output folder
   std::optional<Pass1Cpu> cpu;
   if (options.timings) cpu.emplace(stages.size(), pool.size());
   Status s = Observe(plan, st, stages, &digesting, pool, progress, nullptr, nullptr, cpu ? &*cpu : nullptr);

@@ -148,10 +148,12 @@ TEST(FirstContact, TimingsNameEachPhaseAndThePeakMemory) {
   ASSERT_EQ(r.code, 0) << r.err;
   EXPECT_NE(r.err.find("timing: observe (pass 1)"), std::string::npos) << r.err;
   EXPECT_NE(r.err.find("timing: decide (end of pass 1)"), std::string::npos) << r.err;
+  // The stages' set-up first, on a line of its own.
+  EXPECT_LT(r.err.find("timing: set-up"), r.err.find("timing: observe (pass 1)")) << r.err;
   const size_t at = r.err.find("timing rss:   peak so far");
   ASSERT_NE(at, std::string::npos) << r.err;
   EXPECT_GT(std::stod(r.err.substr(at + std::string("timing rss:   peak so far").size())), 1.0) << r.err;
-  EXPECT_LT(at, r.err.find("timing: decide (end of pass 1)")) << "the first phase's line follows it";
+  EXPECT_LT(at, r.err.find("timing: observe (pass 1)")) << "the first phase's line follows it";
   // Pass 1's one-thread parts, after its CPU lines and before the next phase.
   const size_t wait = r.err.find("timing wall:  waiting for input"), in_order = r.err.find("timing wall:  in order");
   ASSERT_NE(wait, std::string::npos) << r.err;

@@ -4,6 +4,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <future>
+#include <memory>
+#include <system_error>
+#include <utility>
 
 #include "core/hash.h"
 #include "sketch/lsh.h"
@@ -69,6 +73,35 @@ uint64_t TemplateCut(const LeakSettings& s, uint64_t docs) {
   return std::max<uint64_t>(s.template_min_docs,
                             static_cast<uint64_t>(std::ceil(s.template_share * static_cast<double>(docs) - 1e-9)));
 }
+
+// Work that runs when `on`: on a helper thread from construction when
+// `beside` (here when no thread can be had), else here at once; waited for by
+// Wait or the destructor, so every path out of the caller, an early error
+// return too, waits for it first.
+class Beside {
+ public:
+  template <typename F>
+  Beside(bool beside, bool on, const F& work) {
+    if (!on) return;
+    if (beside) {
+      try {
+        done_ = std::async(std::launch::async, work);
+        return;
+      } catch (const std::system_error&) {
+      }
+    }
+    work();
+  }
+  Beside(const Beside&) = delete;
+  Beside& operator=(const Beside&) = delete;
+  ~Beside() { Wait(); }
+  void Wait() {
+    if (done_.valid()) done_.get();
+  }
+
+ private:
+  std::future<void> done_;
+};
 
 // Marks the grams of `idx` frequent among its own items, or (when given)
 // among `train_docs` training documents.
@@ -330,7 +363,7 @@ uint64_t LeakIndex::ngram_entries() const { return impl_->ngram ? impl_->ngram->
 uint64_t LeakIndex::references() const { return impl_->ref_items.size(); }
 
 Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, const LeakSettings& settings,
-                                                    const NormalizeOptions& norm) {
+                                                    const NormalizeOptions& norm, unsigned threads) {
   std::unique_ptr<LeakIndex> idx(new LeakIndex(corpus, settings, norm));
   Impl& m = *idx->impl_;
   const size_t items = corpus.items.size();
@@ -361,10 +394,30 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
   no.n = m.n;
   no.min_eval_words = settings.min_eval_words;
   no.min_shared = settings.min_shared;
-  if (settings.enabled[1]) {
+  // The n-gram index, the MinHash tables and the answers' index read the
+  // normalised texts and write members of their own, so the first and the
+  // last are built on helper threads while this one builds the second (the
+  // run's set-up is on one thread otherwise). Each is built the same way on
+  // any thread: the index does not depend on the split.
+  const bool beside = threads != 1;
+  Beside ngram_built(beside, settings.enabled[1], [&] {
     m.ngram = std::make_unique<NgramIndex>(m.gram_text, no);
     MarkTemplate(settings, m.ngram.get(), items, nullptr, 0);
-  }
+  });
+  Beside refs_built(beside, settings.enabled[3], [&] {
+    std::vector<std::pair<uint64_t, uint32_t>> e;
+    for (uint32_t i = 0; i < items; ++i) {
+      if (corpus.items[i].reference.empty()) continue;
+      uint32_t r = static_cast<uint32_t>(m.ref_items.size());
+      m.ref_items.push_back(i);
+      m.ref_hash.push_back(HashBytes(NormalizeForMatch(corpus.items[i].reference, norm)));
+      e.emplace_back(m.ref_hash.back().lo, r);
+      m.ref_text.Add(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
+    }
+    m.ref_exact.Build(std::move(e));
+    m.ref_ngram = std::make_unique<NgramIndex>(m.ref_text, no);
+    MarkTemplate(settings, m.ref_ngram.get(), m.ref_items.size(), nullptr, 0);
+  });
   if (settings.enabled[2]) {
     m.shingle.mode = sketch::ShingleMode::kAuto;
     m.shingle.word_n = settings.shingle_words;
@@ -451,20 +504,8 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
     m.prefixes.Build(std::move(prefix_entries));
     m.template_shingles.Build(std::move(template_shingles));
   }
-  if (settings.enabled[3]) {
-    std::vector<std::pair<uint64_t, uint32_t>> e;
-    for (uint32_t i = 0; i < items; ++i) {
-      if (corpus.items[i].reference.empty()) continue;
-      uint32_t r = static_cast<uint32_t>(m.ref_items.size());
-      m.ref_items.push_back(i);
-      m.ref_hash.push_back(HashBytes(NormalizeForMatch(corpus.items[i].reference, norm)));
-      e.emplace_back(m.ref_hash.back().lo, r);
-      m.ref_text.Add(NormalizeForMatch(corpus.items[i].reference, m.gram_norm));
-    }
-    m.ref_exact.Build(std::move(e));
-    m.ref_ngram = std::make_unique<NgramIndex>(m.ref_text, no);
-    MarkTemplate(settings, m.ref_ngram.get(), m.ref_items.size(), nullptr, 0);
-  }
+  ngram_built.Wait();
+  refs_built.Wait();
   return idx;
 }
 

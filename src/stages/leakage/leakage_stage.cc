@@ -382,7 +382,7 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, FileSystem* fs, Status
     *error = corpus.status();
     return nullptr;
   }
-  auto index = LeakIndex::Build(corpus.value(), settings.value(), plan.normalize);
+  auto index = LeakIndex::Build(corpus.value(), settings.value(), plan.normalize, plan.threads);
   if (!index.ok()) {
     *error = index.status();
     return nullptr;
