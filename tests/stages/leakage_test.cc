@@ -209,7 +209,8 @@ struct Fixture {
   std::unique_ptr<LeakIndex> index;
 };
 
-Fixture MakeIndex(const std::vector<std::string>& prompts, LeakSettings s, std::vector<std::string> refs = {}) {
+Fixture MakeIndex(const std::vector<std::string>& prompts, LeakSettings s, std::vector<std::string> refs = {},
+                  unsigned threads = 1) {
   Fixture f;
   f.corpus.sets.push_back(EvalSetInfo{});
   f.corpus.sets[0].spec.name = "t";
@@ -220,7 +221,7 @@ Fixture MakeIndex(const std::vector<std::string>& prompts, LeakSettings s, std::
     if (i < refs.size()) it.reference = refs[i];
     f.corpus.items.push_back(it);
   }
-  auto idx = LeakIndex::Build(f.corpus, s, NormalizeOptions{});
+  auto idx = LeakIndex::Build(f.corpus, s, NormalizeOptions{}, threads);
   EXPECT_TRUE(idx.ok()) << idx.status().message();
   f.index = std::move(idx).value();
   return f;
@@ -422,6 +423,45 @@ TEST(LeakIndex, ReferenceAnswers) {
   f.index->CheckAnswer(kEval20, 0, &out);
   ASSERT_EQ(out.size(), 1u);
   EXPECT_STREQ(out[0].measure, "exact");
+}
+
+TEST(LeakIndex, TablesBuiltSideBySideGiveTheSameFindings) {
+  // With threads other than 1 the n-gram and answers' indexes are built on
+  // helper threads beside the MinHash tables; every detector's findings must
+  // be those of the one-thread build (the project's own build as reference).
+  const std::string stock = Words(30, 0);
+  std::vector<std::string> items, refs;
+  for (int i = 0; i < 60; ++i) {
+    items.push_back((i % 3 ? stock + " " : "") + Words(25, 1000 + 100 * i));
+    refs.push_back(i % 4 ? Words(20, 50000 + 100 * i) : "");
+  }
+  LeakSettings s;
+  s.enabled[0] = s.enabled[1] = s.enabled[2] = s.enabled[3] = true;
+  s.jaccard = 0.6;
+  auto one = MakeIndex(items, s, refs, 1);
+  for (unsigned threads : {0u, 2u, 4u}) {
+    auto many = MakeIndex(items, s, refs, threads);
+    int found = 0;
+    for (int i = 0; i < 60; ++i) {
+      for (const std::string& t : {items[i], stock + " " + Words(14, 1000 + 100 * i), Words(18, 1003 + 100 * i),
+                                   refs[i] + " thanks"}) {
+        std::vector<LeakFinding> a, b;
+        one.index->CheckPrompt(t, true, &a);
+        many.index->CheckPrompt(t, true, &b);
+        one.index->CheckAnswer(t, 1, &a);
+        many.index->CheckAnswer(t, 1, &b);
+        ASSERT_EQ(a.size(), b.size()) << "threads " << threads << " item " << i;
+        for (size_t k = 0; k < a.size(); ++k) {
+          EXPECT_EQ(a[k].detector, b[k].detector);
+          EXPECT_EQ(a[k].item, b[k].item);
+          EXPECT_STREQ(a[k].measure, b[k].measure);
+          EXPECT_EQ(a[k].score, b[k].score);
+        }
+        found += static_cast<int>(a.size());
+      }
+    }
+    EXPECT_GT(found, 200) << "the prompts must find items by every detector";
+  }
 }
 
 TEST(EvalSets, FormatsAndErrors) {
