@@ -11,6 +11,7 @@
 #include <future>
 #include <optional>
 #include <set>
+#include <system_error>
 #include <thread>
 
 #include "core/blank.h"
@@ -651,15 +652,19 @@ Status CheckOutputIsClear(const Plan& plan, const PipelineOptions& options) {
   return CheckOutputClear(plan.output, reads);
 }
 
-// The stages' own files, and the ledger invariant: every entry is in exactly one output.
-Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, const Stages& stages, OutputDir& out,
-                         const RunOutcome& outcome, const std::map<std::string, uint64_t>& written) {
+// The stages' own files (they need the decisions only, not pass 2).
+Status WriteStageOutputs(const PipelineOptions& options, const RunState& st, const Stages& stages, OutputDir& out) {
   for (const auto& stage : stages) {
     if (Status s = stage->WriteOutputs(st, out); !s.ok()) return s;
   }
   if (options.companion) {
     if (Status s = options.companion->WriteOutputs(st, out); !s.ok()) return s;
   }
+  return Status::Ok();
+}
+
+// The ledger invariant: every entry is in exactly one output.
+Status CheckLedger(const RunOutcome& outcome, const std::map<std::string, uint64_t>& written) {
   uint64_t out_lines = 0;
   for (const auto& [name, n] : written) out_lines += n;
   if (outcome.kept + outcome.rejected != outcome.entries || out_lines != outcome.entries) {
@@ -764,18 +769,38 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
                            [&](const std::string& step) { timer.Mark(step); });
   if (!gate.ok()) return gate.status();
 
-  // Apply: pass 2, then the stages' files.
+  // Apply: pass 2, and beside it the stages' own files and summary sections,
+  // which need only the decisions (pass 2 reads them too and changes
+  // nothing the stages keep): pass 2 is mostly the disk's time and leaves
+  // the cores idle. One after the other with --threads 1. Either's error is
+  // returned after both have stopped, pass 2's first.
   std::map<std::string, uint64_t> written;
+  using Sections = std::vector<std::pair<std::string, Json>>;
+  auto stage_files = [&]() -> Result<Sections> {
+    if (Status fs_status = WriteStageOutputs(options, st, stages, *out.value()); !fs_status.ok()) return fs_status;
+    return StageSections(stages, options.companion, st);
+  };
+  std::future<Result<Sections>> beside;
+  if (plan.threads != 1) {
+    try {
+      beside = std::async(std::launch::async, stage_files);
+    } catch (const std::system_error&) {  // no thread to spare: after pass 2
+    }
+  }
   s = ApplyInputs(plan, st, stages, fs, *out.value(), nullptr, &written, &pool, &progress);
   progress.Done();
-  if (!s.ok()) return s;
   timer.Mark("apply (pass 2)");
-  s = WriteStageOutputs(options, st, stages, *out.value(), outcome, written);
+  std::optional<Result<Sections>> sections;
+  const bool was_beside = beside.valid();
+  if (was_beside) sections = beside.get();
   if (!s.ok()) return s;
-  timer.Mark("stage outputs");
+  if (!sections) sections = stage_files();
+  if (!sections->ok()) return sections->status();
+  timer.Mark(was_beside ? "stage outputs (after pass 2)" : "stage outputs");
+  if (s = CheckLedger(outcome, written); !s.ok()) return s;
 
   // Render: summary, provenance, datasheet, report; then the folder appears.
-  Json summary = BuildSummary(plan, st, StageSections(stages, options.companion, st), written);
+  Json summary = BuildSummary(plan, st, std::move(*sections).value(), written);
   timer.Mark("summary");
   RunClock clock;
   clock.start_unix_seconds = std::chrono::duration_cast<std::chrono::seconds>(wall_start.time_since_epoch()).count();
