@@ -1,5 +1,5 @@
 // A FileSystem that computes the SHA-256 of every file read or written
-// through it, as it is read or written: pass 1 reads each input through one,
+// through it, as it is read or written: pass 2 reads each input through one,
 // and the run's output folder writes through one, so the provenance digests
 // of inputs and outputs cost no extra read of them (docs/architecture.md).
 //

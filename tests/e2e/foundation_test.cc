@@ -141,5 +141,32 @@ TEST(DemoFoundation, RejectsNameFileLineReasonAndKeepTheRecord) {
   }
 }
 
+// The provenance's digest of every input (taken while pass 2 reads it) and of
+// every output (taken while it is written) against Python's hashlib
+// (FIPS 180-4 SHA-256) over the files as they lie on disk, and their sizes
+// against the file system's; the demo's gate fails on purpose (exit 4), so
+// this also covers a run whose gate failed.
+TEST(DemoFoundation, ProvenanceDigestsAreTheFilesOwn) {
+  const Json ds = Json::parse(ReadFile(DemoOutput() + "/datasheet.json"));
+  const std::string py = std::string(PREFSIFT_REF_PYTHON) +
+                         " -c \"import hashlib,os,sys;p=sys.argv[1];"
+                         "print(hashlib.sha256(open(p,'rb').read()).hexdigest(), os.path.getsize(p))\" ";
+  ASSERT_FALSE(ds["provenance"]["inputs"].empty());
+  for (const auto& in : ds["provenance"]["inputs"]) {
+    std::string out;
+    ASSERT_EQ(Shell(py + in["path"].get<std::string>(), &out), 0) << out;
+    EXPECT_EQ(in["sha256"].get<std::string>() + " " + std::to_string(in["bytes"].get<uint64_t>()) + "\n", out)
+        << in["path"];
+  }
+  ASSERT_GT(ds["provenance"]["outputs"].size(), 5u);
+  for (const auto& o : ds["provenance"]["outputs"]) {
+    std::string out;
+    ASSERT_EQ(Shell(py + DemoOutput() + "/" + o["file"].get<std::string>(), &out), 0) << out;
+    EXPECT_EQ(o["sha256"].get<std::string>() + " " + std::to_string(o["bytes"].get<uint64_t>()) + "\n", out)
+        << o["file"];
+  }
+}
+
+
 }  // namespace
 }  // namespace prefsift::e2e
