@@ -11,8 +11,12 @@
 //
 // Layout: keys_ ascending and distinct; dir_ has 2^b + 1 entries, dir_[j]
 // the first key whose top b bits are >= j, b chosen for one to two keys a
-// bucket (4 bytes of directory for about 1.5 keys: 2.7 bytes a key). A bucket
-// crowded by keys that are not hashes falls back to a binary search.
+// bucket (4 bytes of directory for about 1.5 keys: 2.7 bytes a key; 4.7
+// with the filter below). A bucket crowded by keys that are not hashes falls
+// back to a binary search.
+// Before the directory, a KeyFilter (key_filter.h, two bytes a key) turns
+// away most absent keys: the directory and the keys of a large set are far
+// larger than the cache, and most keys looked up are absent.
 // Thread-safety: Build once on one thread; const members may then run concurrently.
 #pragma once
 
@@ -21,6 +25,8 @@
 #include <span>
 #include <utility>
 #include <vector>
+
+#include "stages/leakage/key_filter.h"
 
 namespace prefsift {
 
@@ -41,18 +47,21 @@ class SortedKeys {
       while (k < keys_.size() && (keys_[k] >> shift_) < j) ++k;
       dir_[j] = static_cast<uint32_t>(k);
     }
+    filter_.Build(keys_);
   }
 
   // The position of `key` in keys(), or -1 when absent.
   int64_t Rank(uint64_t key) const {
-    if (keys_.empty()) return -1;
+    if (!filter_.MayContain(key)) return -1;  // (always so when empty)
     const auto [lo, hi] = Bucket(key);
     return Search(key, lo, hi);
   }
   bool Contains(uint64_t key) const { return Rank(key) >= 0; }
 
   // The steps of Rank, for callers that look up many keys at once and keep
-  // several reads in flight (HashPostings::Ordinals). REQUIRES: !empty().
+  // several reads in flight (HashPostings::Ordinals): MayContain first (a
+  // false means absent), then the bucket. REQUIRES: !empty().
+  bool MayContain(uint64_t key) const { return filter_.MayContain(key); }
   void PrefetchBucket(uint64_t key) const { __builtin_prefetch(dir_.data() + (key >> shift_)); }
   std::pair<uint32_t, uint32_t> Bucket(uint64_t key) const {
     const size_t b = static_cast<size_t>(key >> shift_);
@@ -75,12 +84,13 @@ class SortedKeys {
   size_t size() const { return keys_.size(); }
   bool empty() const { return keys_.empty(); }
   // Heap bytes held (capacities, without the allocator's overhead).
-  uint64_t bytes() const { return keys_.capacity() * 8 + dir_.capacity() * 4; }
+  uint64_t bytes() const { return keys_.capacity() * 8 + dir_.capacity() * 4 + filter_.bytes(); }
 
  private:
   static constexpr ptrdiff_t kLinearRun = 16;
   std::vector<uint64_t> keys_;
   std::vector<uint32_t> dir_;
+  KeyFilter filter_;  // over keys_
   int shift_ = 63;
 };
 
