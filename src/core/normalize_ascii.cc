@@ -23,13 +23,14 @@ uint64_t PunctMask(const Block64& b) {
 
 // The 64 bytes at p as they may be written: ASCII lowercase, white space as
 // ' ' (only the first white space byte of a gap is ever written). A plain
-// loop, which the compiler vectorises.
+// loop, which the compiler vectorises; its arithmetic stays in bytes, else
+// the vectors are widened to 32-bit lanes and back.
 void LowerBlock(const unsigned char* p, unsigned char* low) {
   for (int k = 0; k < 64; ++k) {
-    const unsigned c = p[k];
-    const bool upper = c - 'A' < 26u;
-    const bool space = c - kSpaceLo <= static_cast<unsigned>(kSpaceHi - kSpaceLo);
-    low[k] = static_cast<unsigned char>(space ? ' ' : c + (upper ? 32u : 0u));
+    const uint8_t c = p[k];
+    const bool upper = static_cast<uint8_t>(c - 'A') < uint8_t{26};
+    const bool space = static_cast<uint8_t>(c - kSpaceLo) <= uint8_t{kSpaceHi - kSpaceLo};
+    low[k] = space ? uint8_t{' '} : static_cast<uint8_t>(c + (upper ? 32 : 0));
   }
 }
 
