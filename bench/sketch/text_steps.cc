@@ -10,6 +10,9 @@
 // (docs/performance.md, "Vectorised scans"); then word counts and word
 // 3-gram keys by each word-segmentation path this CPU runs.
 //
+// Matching normalisation is timed twice more as pass 1 runs it (into a
+// reused buffer), punctuation kept and stripped.
+//
 // Usage: text_steps PREFS.jsonl [RECORDS=20000]
 // Reads "prompt" (a string) and "candidates" (strings) of the first RECORDS
 // lines; prints MB/s of each step over those texts, best of 3 repetitions.
@@ -77,6 +80,19 @@ int main(int argc, char** argv) {
   std::printf("normalise for matching   %7.0f MB/s\n", BestMBps(bytes, [&] {
                 for (const auto& t : texts) sink += prefsift::NormalizeForMatch(t).size();
               }));
+  // As pass 1 calls it (core/normalize.h): into a reused buffer, with the
+  // plan's punctuation setting kept or stripped.
+  std::string norm_out;
+  for (const bool strip : {false, true}) {
+    prefsift::NormalizeOptions o;
+    o.strip_punctuation = strip;
+    std::printf("normalise into, %s %7.0f MB/s\n", strip ? "strip   " : "keep    ", BestMBps(bytes, [&] {
+                  for (const auto& t : texts) {
+                    prefsift::NormalizeForMatchInto(t, o, &norm_out);
+                    sink += norm_out.size();
+                  }
+                }));
+  }
   std::printf("count words (UAX #29)    %7.0f MB/s\n", BestMBps(bytes, [&] {
                 for (const auto& t : texts) sink += prefsift::sketch::CountWords(t);
               }));

@@ -6,8 +6,33 @@
 #include <cstdlib>
 #include <cstring>
 
+#include "core/normalize_ascii.h"
+
 namespace prefsift {
+namespace detail {
+
+// Steps 3 and 2's classes (core/normalize.h); the ASCII path's masks are
+// checked against them (core/normalize_ascii.h).
+bool IsSpaceCodepoint(int32_t cp) {
+  if (cp == 0x09 || cp == 0x0A || cp == 0x0B || cp == 0x0C || cp == 0x0D || cp == 0x20 || cp == 0x85) return true;
+  if (cp < 0x80) return false;
+  auto cat = utf8proc_category(cp);
+  return cat == UTF8PROC_CATEGORY_ZS || cat == UTF8PROC_CATEGORY_ZL || cat == UTF8PROC_CATEGORY_ZP;
+}
+
+bool IsPunctCodepoint(int32_t cp) {
+  auto cat = utf8proc_category(cp);
+  return cat == UTF8PROC_CATEGORY_PC || cat == UTF8PROC_CATEGORY_PD || cat == UTF8PROC_CATEGORY_PS ||
+         cat == UTF8PROC_CATEGORY_PE || cat == UTF8PROC_CATEGORY_PI || cat == UTF8PROC_CATEGORY_PF ||
+         cat == UTF8PROC_CATEGORY_PO;
+}
+
+}  // namespace detail
+
 namespace {
+
+using detail::IsPunctCodepoint;
+using detail::IsSpaceCodepoint;
 
 // 64 bytes a step (eight 8-byte words OR-ed, which the compiler vectorises),
 // the rest a byte at a time.
@@ -38,20 +63,6 @@ std::string MapWith(std::string_view text, int options) {
   std::string result(reinterpret_cast<char*>(out), static_cast<size_t>(n));
   std::free(out);
   return result;
-}
-
-bool IsSpaceCodepoint(utf8proc_int32_t cp) {
-  if (cp == 0x09 || cp == 0x0A || cp == 0x0B || cp == 0x0C || cp == 0x0D || cp == 0x20 || cp == 0x85) return true;
-  if (cp < 0x80) return false;
-  auto cat = utf8proc_category(cp);
-  return cat == UTF8PROC_CATEGORY_ZS || cat == UTF8PROC_CATEGORY_ZL || cat == UTF8PROC_CATEGORY_ZP;
-}
-
-bool IsPunctCodepoint(utf8proc_int32_t cp) {
-  auto cat = utf8proc_category(cp);
-  return cat == UTF8PROC_CATEGORY_PC || cat == UTF8PROC_CATEGORY_PD || cat == UTF8PROC_CATEGORY_PS ||
-         cat == UTF8PROC_CATEGORY_PE || cat == UTF8PROC_CATEGORY_PI || cat == UTF8PROC_CATEGORY_PF ||
-         cat == UTF8PROC_CATEGORY_PO;
 }
 
 // The ASCII character a look-alike punctuation mark stands for, or 0: single
@@ -111,62 +122,6 @@ std::string FoldSpaceAndPunct(std::string_view s, bool strip_punct) {
   return out;
 }
 
-// Byte classes of ASCII for FoldAscii, taken from the same predicates as
-// FoldSpaceAndPunct so the two paths cannot disagree.
-struct AsciiClasses {
-  bool space[128];
-  bool punct[128];
-  AsciiClasses() {
-    for (int c = 0; c < 128; ++c) {
-      space[c] = IsSpaceCodepoint(c);
-      punct[c] = IsPunctCodepoint(c);
-    }
-  }
-};
-
-// Lowercases ASCII `text` into `out` (same size) and says whether the text's
-// spacing is already folded: no white space but single U+0020 between other
-// bytes (none leading or trailing). Branch-free, so the compiler vectorises it.
-bool LowerAsciiSimplySpaced(std::string_view text, char* out) {
-  const auto* p = reinterpret_cast<const unsigned char*>(text.data());
-  const size_t n = text.size();
-  unsigned other_space = 0, double_space = 0;
-  for (size_t i = 0; i < n; ++i) {
-    const unsigned c = p[i];
-    out[i] = static_cast<char>(c + (static_cast<unsigned>(c - 'A') < 26u ? 32u : 0u));
-    other_space |= static_cast<unsigned>(c - 0x09u) < 5u;  // TAB LF VT FF CR
-  }
-  for (size_t i = 1; i < n; ++i) double_space |= static_cast<unsigned>(p[i] == ' ') & static_cast<unsigned>(p[i - 1] == ' ');
-  return other_space == 0 && double_space == 0 && (n == 0 || (p[0] != ' ' && p[n - 1] != ' '));
-}
-
-// FoldSpaceAndPunct(lowercase(text)) for ASCII text, in one pass, into
-// *out_text (its buffer reused).
-void FoldAscii(std::string_view text, bool strip_punct, std::string* out_text) {
-  static const AsciiClasses k;
-  std::string& out = *out_text;
-  out.resize(text.size());
-  // The common case, spacing already folded and punctuation kept: only the
-  // case changes (the loop below gives the same bytes, one byte at a time).
-  if (!strip_punct && LowerAsciiSimplySpaced(text, out.data())) return;
-  char* o = out.data();
-  char* const begin = o;
-  bool pending_space = false;
-  for (char ch : text) {
-    auto c = static_cast<unsigned char>(ch);
-    if (k.space[c]) {
-      pending_space = o != begin;
-    } else if (strip_punct && k.punct[c]) {
-      // dropped
-    } else {
-      if (pending_space) *o++ = ' ';
-      pending_space = false;
-      *o++ = (c >= 'A' && c <= 'Z') ? static_cast<char>(c - 'A' + 'a') : ch;
-    }
-  }
-  out.resize(static_cast<size_t>(o - begin));
-}
-
 }  // namespace
 
 void NormalizeForMatchInto(std::string_view text, const NormalizeOptions& options, std::string* out) {
@@ -174,7 +129,7 @@ void NormalizeForMatchInto(std::string_view text, const NormalizeOptions& option
   // default-ignorables, full case folding of ASCII is ASCII lowercase, and
   // lowercasing never changes whether a byte is space or punctuation.
   if (IsAscii(text)) {
-    FoldAscii(text, options.strip_punctuation, out);
+    detail::FoldAscii(text, options.strip_punctuation, out);
     return;
   }
   std::string folded = MapWith(text, UTF8PROC_STABLE | UTF8PROC_COMPOSE | UTF8PROC_COMPAT | UTF8PROC_CASEFOLD |

@@ -3,7 +3,8 @@
 // Steps, in order (docs/normalisation.md):
 //   1. Unicode NFKC with full case folding, dropping default-ignorable code
 //      points (utf8proc: STABLE|COMPOSE|COMPAT|CASEFOLD|IGNORE). Pure-ASCII
-//      text takes an exact fast path (ASCII lowercase).
+//      text takes an exact fast path (ASCII lowercase, in 64-byte blocks:
+//      core/normalize_ascii.h).
 //   1b. Look-alike punctuation becomes ASCII: curly and low single quotes,
 //      primes and the modifier apostrophe become ', curly/low double quotes,
 //      double primes and guillemets become ", hyphen and dash variants and the

@@ -1,8 +1,11 @@
 #include "core/normalize.h"
+#include "core/normalize_ascii.h"
 
 #include <gtest/gtest.h>
 
+#include <cctype>
 #include <cstdio>
+#include <cstring>
 #include <random>
 #include <sstream>
 #include <string>
@@ -105,10 +108,11 @@ TEST(Normalize, AsciiFastPathAgreesOnRandomText) {
 }
 
 TEST(Normalize, AsciiFastPathAgreesOnSinglySpacedText) {
-  // Words of printable ASCII joined by single spaces (the lowercase-only
-  // path), and the same with one spacing fault (a double space, a tab, a line
-  // feed, a leading or trailing space) that sends it back to the byte loop;
-  // reference: utf8proc's NFKC + case folding (forced by a leading e-acute).
+  // Words of printable ASCII joined by single spaces (blocks the ASCII path
+  // copies whole), and the same with one spacing fault (a double space, a
+  // tab, a line feed, a leading or trailing space) that makes it drop or
+  // replace a byte; reference: utf8proc's NFKC + case folding (forced by a
+  // leading e-acute).
   std::mt19937 rng(11);
   for (int trial = 0; trial < 3000; ++trial) {
     std::string s;
@@ -185,6 +189,106 @@ TEST(NormalizeForMatch, IntoAReusedBufferGivesTheSameText) {
         ASSERT_EQ(buffer, NormalizeForMatch(t, o)) << t;
       }
     }
+  }
+}
+
+// The masks of the ASCII block path name exactly the bytes the general
+// path's predicates call white space and punctuation: every byte below 0x80
+// at every place of a block (the other bytes 'a', in neither class).
+TEST(NormalizeAscii, BlockMasksAgreeWithThePredicatesOnEveryByte) {
+  for (int c = 0; c < 128; ++c) {
+    for (int at = 0; at < 64; ++at) {
+      unsigned char block[64];
+      std::memset(block, 'a', sizeof block);
+      block[at] = static_cast<unsigned char>(c);
+      const uint64_t bit = uint64_t{1} << at;
+      ASSERT_EQ(detail::AsciiSpaceMask(block), detail::IsSpaceCodepoint(c) ? bit : 0) << "byte " << c << " at " << at;
+      ASSERT_EQ(detail::AsciiPunctMask(block), detail::IsPunctCodepoint(c) ? bit : 0) << "byte " << c << " at " << at;
+    }
+  }
+}
+
+// Differential test of the ASCII block path (detail::FoldAscii) against the
+// per-byte loop it replaced (detail::FoldAsciiReference, the project's own
+// reference; why that loop is exact for ASCII is said in
+// NormalizeForMatchInto's comment, core/normalize.cc).
+void ExpectFoldsAgree(const std::string& text, bool strip, std::string* buffer) {
+  std::string want;
+  detail::FoldAsciiReference(text, strip, &want);
+  detail::FoldAscii(text, strip, buffer);
+  ASSERT_EQ(*buffer, want) << "strip " << strip << " text [" << text << "] (" << text.size() << " bytes)";
+}
+
+TEST(NormalizeAscii, BlockPathAgreesWithTheByteLoopOnEdgeCases) {
+  std::vector<std::string> texts = {
+      "", " ", "\n", " \t\r\n\v\f ", ",", " , ", "a", "A", "a , b", "a ,b", "a, b", "a,b", ", a ,", " a ", "a  b",
+      "a\n\nb", "a \n b", "Hello, World!", "(a) [b] {c}", "x$y+z<w>v^u`t|s~r", "--a--", "a -- b", "a-b",
+      "'quoted' \"twice\"", "end.", ".start", "a\r\nb\r\n", "#1: @me_you", "A\tB\vC\fD"};
+  // Gaps, words and punctuation at and across the block edges (63, 64, 65,
+  // 127, 128 ...): leading, trailing and lone gaps of every length there.
+  for (size_t len : {1, 2, 62, 63, 64, 65, 66, 127, 128, 129, 191, 192, 193}) {
+    for (const char* fill : {"A", " ", "\n", ",", " ,", ", ", "a ", " a", "a,", "ab, "}) {
+      std::string t;
+      while (t.size() < len) t += fill;
+      t.resize(len);
+      texts.push_back(t);
+      texts.push_back(" " + t);
+      texts.push_back(t + " ");
+      texts.push_back("x" + t + "y");
+      texts.push_back(std::string(len, 'Q') + fill + "z");
+    }
+  }
+  std::string buffer;
+  for (bool strip : {false, true}) {
+    for (const std::string& t : texts) {
+      ExpectFoldsAgree(t, strip, &buffer);
+      if (HasFatalFailure()) return;
+    }
+  }
+  // Hand-checked results, beside the agreement.
+  std::string out;
+  detail::FoldAscii("a , b", true, &out);
+  EXPECT_EQ(out, "a b");
+  detail::FoldAscii("a , b", false, &out);
+  EXPECT_EQ(out, "a , b");
+  detail::FoldAscii(" ,A,\n\n,B, ", true, &out);
+  EXPECT_EQ(out, "a b");
+  detail::FoldAscii("a,,b", true, &out);
+  EXPECT_EQ(out, "ab");
+}
+
+TEST(NormalizeAscii, BlockPathAgreesWithTheByteLoopOnRandomText) {
+  // Biased toward what the block path treats apart: white space of each
+  // kind (runs of it), punctuation and symbols, capitals; lengths 0..300
+  // cross up to four block edges. A reused buffer, as pass 1 uses it.
+  const std::string letters = "abcxyzABCXYZ0189";
+  const std::string spaces = " \t\n\r\x0b\x0c";
+  std::string punct_and_symbols;
+  for (int c = 0x21; c < 0x7F; ++c) {
+    if (!std::isalnum(c)) punct_and_symbols.push_back(static_cast<char>(c));
+  }
+  std::mt19937 rng(20261203);
+  std::string buffer;
+  for (int trial = 0; trial < 20000; ++trial) {
+    const size_t len = rng() % 301;
+    // Each text has its own mix, from almost all letters to almost all gaps.
+    const unsigned space_pct = rng() % 60, punct_pct = rng() % 40;
+    std::string t;
+    while (t.size() < len) {
+      const unsigned r = rng() % 100;
+      if (r < space_pct) {
+        for (unsigned run = 1 + rng() % 3; run > 0; --run) t.push_back(spaces[rng() % spaces.size()]);
+      } else if (r < space_pct + punct_pct) {
+        t.push_back(punct_and_symbols[rng() % punct_and_symbols.size()]);
+      } else if (r % 7 == 0) {
+        t.push_back(static_cast<char>(rng() % 128));  // any ASCII byte, controls too
+      } else {
+        t.push_back(letters[rng() % letters.size()]);
+      }
+    }
+    t.resize(len);
+    for (bool strip : {false, true}) ExpectFoldsAgree(t, strip, &buffer);
+    if (HasFatalFailure()) return;
   }
 }
 
