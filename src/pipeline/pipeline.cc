@@ -40,8 +40,11 @@ namespace {
 using Json = nlohmann::ordered_json;
 // Lines per chunk of pass 1. Two chunks are in memory at once (one being read
 // ahead), each held as text, parsed record and normalised text: about 11 KB a
-// line for 3.6 KB records, so 1024 lines keep that near 25 MB.
-constexpr size_t kChunkLines = 1024;
+// line for 3.6 KB records, so 256 lines keep that near 6 MB. A chunk is parsed
+// in one parallel loop and observed in the next; small enough, its records
+// are still in the cache when the stages read them (1M records: 1024 lines a
+// chunk took 7-11% more CPU in pass 1; docs/performance.md, ninth session).
+constexpr size_t kChunkLines = 256;
 
 std::string Base64(std::string_view in) {
   static const char* k = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
