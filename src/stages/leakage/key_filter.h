@@ -23,6 +23,8 @@
 #include <span>
 #include <vector>
 
+#include "sketch/mix.h"
+
 namespace prefsift {
 
 class KeyFilter {
@@ -31,7 +33,7 @@ class KeyFilter {
   void Build(std::span<const uint64_t> keys) {
     words_.assign(keys.empty() ? 0 : (keys.size() + kKeysPerWord - 1) / kKeysPerWord, 0);
     for (uint64_t k : keys) {
-      const uint64_t h = Mix(k);
+      const uint64_t h = sketch::Mix(k);
       words_[Word(h)] |= Mask(h);
     }
   }
@@ -40,7 +42,7 @@ class KeyFilter {
   // for an empty filter); true for every key built with.
   bool MayContain(uint64_t key) const {
     if (words_.empty()) return false;
-    const uint64_t h = Mix(key);
+    const uint64_t h = sketch::Mix(key);
     const uint64_t m = Mask(h);
     return (words_[Word(h)] & m) == m;
   }
@@ -51,15 +53,6 @@ class KeyFilter {
  private:
   static constexpr size_t kKeysPerWord = 4;
 
-  // murmur3's 64-bit finaliser: every output bit depends on every key bit.
-  static uint64_t Mix(uint64_t k) {
-    k ^= k >> 33;
-    k *= 0xff51afd7ed558ccdULL;
-    k ^= k >> 33;
-    k *= 0xc4ceb9fe1a85ec53ULL;
-    k ^= k >> 33;
-    return k;
-  }
   // The word from the top bits (a multiply-shift range reduction, any word
   // count), the 4 bits from the low 24: disjoint bits of the mix.
   size_t Word(uint64_t h) const {
