@@ -135,7 +135,7 @@ TEST(DigestingFileSystem, LargeAppendsAreHashedInCallOrder) {
   EXPECT_EQ(fs.DigestOf("/a")->sha256, "aff2c7498aae939dfb2fb1dc6c0c83fa3708b069428e51338801af7f5dc2bf0f");
   EXPECT_EQ(fs.DigestOf("/a")->bytes, whole.size());
   std::string mixed;
-  for (int i = 0; mixed.size() < 5 * mib; ++i) mixed += "record " + std::to_string(i * 7919) + "\n";
+  for (uint64_t i = 0; mixed.size() < 5 * mib; ++i) mixed += "record " + std::to_string(i * 7919) + "\n";
   WriteThrough(fs, "/b", {mixed.substr(0, 2 * mib + 3), mixed.substr(2 * mib + 3, 10), mixed.substr(2 * mib + 13)});
   EXPECT_EQ(fs.DigestOf("/b")->sha256, Sha256Hex(mixed));
 }
