@@ -1,9 +1,7 @@
 // Digests while reading; see digesting_file_system.h.
 #include "io/digesting_file_system.h"
 
-#include <future>
-#include <system_error>
-
+#include "core/beside.h"
 #include "core/sha256.h"
 
 namespace prefsift {
@@ -65,16 +63,9 @@ class DigestingWritableFile : public WritableFile {
   // ninth session). The hash is finished before Append returns, so pieces
   // are still hashed in call order, and `bytes` outlives the helper's read.
   Status Append(std::string_view bytes) override {
-    std::future<void> hashing;
-    if (bytes.size() >= kHashAside) {
-      try {
-        hashing = std::async(std::launch::async, [this, bytes] { digest_.Add(bytes); });
-      } catch (const std::system_error&) {  // no thread to spare: hashed below
-      }
-    }
+    Beside hashing(bytes.size() >= kHashAside, [this, bytes] { digest_.Add(bytes); });
     Status s = base_->Append(bytes);
-    if (hashing.valid()) hashing.get();
-    else if (s.ok()) digest_.Add(bytes);
+    hashing.Wait();
     if (!s.ok()) failed_ = true;  // the digest is never recorded
     return s;
   }

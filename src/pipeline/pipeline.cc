@@ -11,9 +11,9 @@
 #include <future>
 #include <optional>
 #include <set>
-#include <system_error>
 #include <thread>
 
+#include "core/beside.h"
 #include "core/blank.h"
 #include "core/free_memory.h"
 #include "core/json_dump.h"
@@ -780,28 +780,19 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   // the cores idle. One after the other with --threads 1. Either's error is
   // returned after both have stopped, pass 2's first.
   std::map<std::string, uint64_t> written;
-  using Sections = std::vector<std::pair<std::string, Json>>;
-  auto stage_files = [&]() -> Result<Sections> {
-    if (Status fs_status = WriteStageOutputs(options, st, stages, *out.value()); !fs_status.ok()) return fs_status;
-    return StageSections(stages, options.companion, st);
-  };
-  std::future<Result<Sections>> beside;
-  if (plan.threads != 1) {
-    try {
-      beside = std::async(std::launch::async, stage_files);
-    } catch (const std::system_error&) {  // no thread to spare: after pass 2
-    }
-  }
+  std::optional<Result<std::vector<std::pair<std::string, Json>>>> sections;
+  Beside stage_files(plan.threads != 1, [&] {
+    Status files = WriteStageOutputs(options, st, stages, *out.value());
+    if (files.ok()) sections = StageSections(stages, options.companion, st);
+    else sections = std::move(files);
+  });
   s = ApplyInputs(plan, st, stages, &digesting, *out.value(), nullptr, &written, &pool, &progress);
   progress.Done();
   timer.Mark("apply (pass 2)");
-  std::optional<Result<Sections>> sections;
-  const bool was_beside = beside.valid();
-  if (was_beside) sections = beside.get();
-  if (!s.ok()) return s;
-  if (!sections) sections = stage_files();
+  if (!s.ok()) return s;  // (stage_files' destructor waits for its thread first)
+  stage_files.Wait();
   if (!sections->ok()) return sections->status();
-  timer.Mark(was_beside ? "stage outputs (after pass 2)" : "stage outputs");
+  timer.Mark(stage_files.on_thread() ? "stage outputs (after pass 2)" : "stage outputs");
   if (s = CheckLedger(outcome, written); !s.ok()) return s;
 
   // Render: summary, provenance, datasheet, report; then the folder appears.

@@ -4,11 +4,10 @@
 
 #include <algorithm>
 #include <cmath>
-#include <future>
 #include <memory>
-#include <system_error>
 #include <utility>
 
+#include "core/beside.h"
 #include "core/hash.h"
 #include "sketch/lsh.h"
 #include "sketch/minhash.h"
@@ -73,35 +72,6 @@ uint64_t TemplateCut(const LeakSettings& s, uint64_t docs) {
   return std::max<uint64_t>(s.template_min_docs,
                             static_cast<uint64_t>(std::ceil(s.template_share * static_cast<double>(docs) - 1e-9)));
 }
-
-// Work that runs when `on`: on a helper thread from construction when
-// `beside` (here when no thread can be had), else here at once; waited for by
-// Wait or the destructor, so every path out of the caller, an early error
-// return too, waits for it first.
-class Beside {
- public:
-  template <typename F>
-  Beside(bool beside, bool on, const F& work) {
-    if (!on) return;
-    if (beside) {
-      try {
-        done_ = std::async(std::launch::async, work);
-        return;
-      } catch (const std::system_error&) {
-      }
-    }
-    work();
-  }
-  Beside(const Beside&) = delete;
-  Beside& operator=(const Beside&) = delete;
-  ~Beside() { Wait(); }
-  void Wait() {
-    if (done_.valid()) done_.get();
-  }
-
- private:
-  std::future<void> done_;
-};
 
 // Marks the grams of `idx` frequent among its own items, or (when given)
 // among `train_docs` training documents.
@@ -397,14 +367,17 @@ Result<std::unique_ptr<LeakIndex>> LeakIndex::Build(const EvalCorpus& corpus, co
   // The n-gram index, the MinHash tables and the answers' index read the
   // normalised texts and write members of their own, so the first and the
   // last are built on helper threads while this one builds the second (the
-  // run's set-up is on one thread otherwise). Each is built the same way on
-  // any thread: the index does not depend on the split.
+  // run's set-up is on one thread otherwise; with threads 1 they are built
+  // after it). Each is built the same way on any thread: the index does not
+  // depend on the split.
   const bool beside = threads != 1;
-  Beside ngram_built(beside, settings.enabled[1], [&] {
+  Beside ngram_built(beside, [&] {
+    if (!settings.enabled[1]) return;
     m.ngram = std::make_unique<NgramIndex>(m.gram_text, no);
     MarkTemplate(settings, m.ngram.get(), items, nullptr, 0);
   });
-  Beside refs_built(beside, settings.enabled[3], [&] {
+  Beside refs_built(beside, [&] {
+    if (!settings.enabled[3]) return;
     std::vector<std::pair<uint64_t, uint32_t>> e;
     for (uint32_t i = 0; i < items; ++i) {
       if (corpus.items[i].reference.empty()) continue;
