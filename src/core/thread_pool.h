@@ -5,7 +5,10 @@
 // pool of size T starts T - 1 threads, once, for its whole life. Indexes are
 // handed out in small batches (1 to 16, fewer when n is small and towards the end) in increasing order; which worker runs which
 // index is not deterministic, so fn must write only to storage owned by i
-// (or by `worker`, e.g. a per-worker parser).
+// (or by `worker`, e.g. a per-worker parser). A contract callers may rely
+// on: index i is taken (and its batch run in order) before any index above
+// it, so fn(j) may wait for something fn(i < j) does without a deadlock
+// (pass 1's in-order step, pipeline.cc).
 //
 // Not reentrant: one ParallelFor at a time, from one thread.
 #pragma once

@@ -6,6 +6,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <atomic>
 #include <chrono>
 #include <filesystem>
 #include <future>
@@ -281,7 +282,7 @@ Status CheckInputSanity(const Plan& plan, const InputSpec& spec, const InputStat
 // Thread CPU clocks, so a busy machine does not inflate the figures.
 class Pass1Cpu {
  public:
-  Pass1Cpu(size_t stages, unsigned workers) : parts_(stages + 1), seconds_(parts_ * workers, 0.0) {}
+  Pass1Cpu(size_t stages, unsigned workers) : parts_(stages + 3), seconds_(parts_ * workers, 0.0) {}
   // Records timed together (between two clock reads).
   static constexpr size_t kBlock = 64;
   static size_t Blocks(size_t n) { return (n + kBlock - 1) / kBlock; }
@@ -292,14 +293,19 @@ class Pass1Cpu {
   }
   // Part 0 is reading; part 1 + s is stage s.
   void Add(unsigned worker, size_t part, double seconds) { seconds_[worker * parts_ + part] += seconds; }
-  // Wall seconds on the calling thread alone, while the workers wait: waiting
-  // for the reader's next chunk, and the in-order work between two parallel
-  // loops (numbering entries, keeping facts, growing the stages). What a
-  // larger machine cannot shorten.
+  // The in-order step's own seconds (numbering a chunk, keeping its facts,
+  // growing the stages: on one worker, beside the parsing of the next chunk),
+  // and the wall seconds workers waited for it before they could observe.
+  void AddInOrder(unsigned worker, double seconds) { Add(worker, parts_ - 2, seconds); }
+  void AddWaited(unsigned worker, double seconds) { Add(worker, parts_ - 1, seconds); }
+  double InOrder() const { return Total(parts_ - 2); }
+  double Waited() const { return Total(parts_ - 1); }
+  // Wall seconds on the calling thread alone, while the workers wait for the
+  // reader's next chunk. What a larger machine cannot shorten.
   static double Wall() {
     return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
   }
-  double waiting = 0, in_order = 0;
+  double waiting = 0;
   double Total(size_t part) const {
     double sum = 0;
     for (size_t w = 0; w < seconds_.size() / parts_; ++w) sum += seconds_[w * parts_ + part];
@@ -321,7 +327,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
   // one chunk's records are observed, the next chunk's lines are parsed, in
   // the same parallel loop, so the workers meet at one barrier a chunk.
   std::vector<Parsed> observing, parsing;
-  std::vector<size_t> observing_rec, parsing_rec;  // a line's record index, SIZE_MAX for none
+  std::vector<size_t> observing_rec;  // a line of `observing`: its record index, SIZE_MAX for none
   for (uint32_t in = 0; in < plan.inputs.size(); ++in) {
     if (part && in != part->input) continue;
     const InputSpec& spec = plan.inputs[in];
@@ -341,13 +347,24 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
     // The next chunk is read on its own thread while the current one is parsed
     // and observed; chunks are still handled strictly in input order. Every
     // path out of the loop waits for that read first (the future's destructor).
-    // Two chunks' storage take turns.
-    RawChunk spare;
+    // Three chunks' storage take turns: the one being read, the one being
+    // parsed, and the one before it, numbered and observed (its lines are read
+    // for the ingest tallies).
+    RawChunk spare, prev_raw;
     std::future<RawChunk> ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), RawChunk());
-    // The records of `observing` (numbered, facts kept, stages grown), seen
-    // by every stage's Observe; lines of `parsing` (from `raw`) parsed into
-    // records with their facts. One parallel loop does both; the items are
-    // independent (each writes its own line or record).
+    // One parallel loop a chunk (a "round"), items in this order:
+    //   [number]   the chunk before (`observing`, from prev_raw): its entries
+    //              and records numbered in input order, facts kept, stages
+    //              grown. One item, on one worker: the part that must run in
+    //              input order;
+    //   [parse]    this chunk's lines (`parsing`, from `raw`) parsed into
+    //              records with their facts, beside the numbering;
+    //   [observe]  the chunk before's records seen by every stage's Observe,
+    //              once the numbering is done (they wait for it).
+    // Indexes are handed out in increasing order (core/thread_pool.h), so the
+    // numbering is always taken before any observe item waits for it (with
+    // one worker it simply runs first). Parse items touch neither the run
+    // state nor the stages; the numbering touches nothing a parse item reads.
     const auto observe_one = [&](size_t i, size_t k) {
       stages[k]->Observe(observing_rec[i], observing[i].rec, st.records[observing_rec[i]], observing[i].text);
     };
@@ -361,55 +378,12 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
                               /*padded=*/true);
       if (p.ok) p.facts = ComputeFacts(p.rec, plan.normalize, &p.text, &p.cands);
     };
-    const auto observe_and_parse = [&](const RawChunk* raw) {
-      const size_t to_observe = observing_rec.size(), to_parse = raw ? raw->size() : 0, total = to_observe + to_parse;
-      if (!cpu) {
-        pool.ParallelFor(total, [&](size_t i, unsigned t) {
-          if (i >= to_observe) return parse_one(*raw, i - to_observe, t);
-          if (observing_rec[i] == SIZE_MAX) return;
-          for (size_t k = 0; k < stages.size(); ++k) observe_one(i, k);
-        });
-        return;
-      }
-      // --timings: a block of records between two reads of the thread's CPU
-      // clock (a system call), not around every record, so timing does not
-      // slow the run it measures; each stage over the block's records in turn.
-      pool.ParallelFor(Pass1Cpu::Blocks(total), [&](size_t b, unsigned t) {
-        const size_t lo = b * Pass1Cpu::kBlock, hi = std::min(total, lo + Pass1Cpu::kBlock);
-        double t0 = Pass1Cpu::Now();
-        for (size_t k = 0; k < stages.size(); ++k) {
-          for (size_t i = lo; i < std::min(hi, to_observe); ++i) {
-            if (observing_rec[i] != SIZE_MAX) observe_one(i, k);
-          }
-          const double t1 = Pass1Cpu::Now();
-          cpu->Add(t, 1 + k, t1 - t0);
-          t0 = t1;
-        }
-        for (size_t i = std::max(lo, to_observe); i < hi; ++i) parse_one(*raw, i - to_observe, t);
-        cpu->Add(t, 0, Pass1Cpu::Now() - t0);
-      });
-    };
-    for (;;) {
-      double w0 = cpu ? Pass1Cpu::Wall() : 0;
-      RawChunk raw = ahead.get();
-      if (cpu) cpu->waiting += Pass1Cpu::Wall() - w0;
-      if (!raw.status.ok()) return raw.status;
-      if (st.entries.size() + raw.size() > kMaxEntries) {
-        return Status::Limit(spec.path + ": this run would hold more than " + std::to_string(kMaxEntries) +
-                             " lines, the most one run holds; split the inputs into parts (docs/scale.md)");
-      }
-      const bool eof = raw.eof;
-      if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), std::move(spare));
-      stats.lines += raw.lines;
-      stats.blank_lines += raw.blank_lines;
+    bool first_chunk = !part && in == 0;  // the first chunk of the run: sizes the reservations
+    const auto number = [&](const RawChunk& raw) {
       const size_t n = raw.size();
-      parsing.resize(n);
-      observe_and_parse(&raw);
-      w0 = cpu ? Pass1Cpu::Wall() : 0;
-      // Number this chunk's entries and records in input order.
-      parsing_rec.assign(n, SIZE_MAX);
+      observing_rec.assign(n, SIZE_MAX);
       for (size_t i = 0; i < n; ++i) {
-        Parsed& p = parsing[i];
+        Parsed& p = observing[i];
         Entry e;
         e.input = in;
         e.line = p.line;
@@ -417,7 +391,7 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
         ++stats.entries;
         if (p.ok) {
           e.record = static_cast<int32_t>(st.records.size());
-          parsing_rec[i] = st.records.size();
+          observing_rec[i] = st.records.size();
           p.facts.entry = static_cast<uint32_t>(entry_index);
           KeepRecordFacts(p.rec, st, &p.facts);
           st.records.push_back(std::move(p.facts));
@@ -440,19 +414,101 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
           }
         }
       }
-      if (!part && in == 0 && st.entries.size() == n && n > 0) ReserveForInputs(plan, raw, st, stages);
+      if (first_chunk && n > 0) ReserveForInputs(plan, raw, st, stages);
+      first_chunk = false;
       for (auto& s : stages) s->Grow(st.records.size());
-      if (cpu) cpu->in_order += Pass1Cpu::Wall() - w0;
+    };
+    // `prev`: the chunk before `raw` (numbered and observed this round), or
+    // null in the first round; `raw`: this chunk, or null after the last.
+    const auto round = [&](const RawChunk* prev, const RawChunk* raw) {
+      const size_t to_number = prev ? 1 : 0, to_parse = raw ? raw->size() : 0;
+      const size_t to_observe = prev ? prev->size() : 0, total = to_number + to_parse + to_observe;
+      const size_t observe_from = to_number + to_parse;
+      std::atomic<bool> numbered{prev == nullptr};
+      if (raw) parsing.resize(to_parse);
+      const auto run_number = [&] {
+        number(*prev);
+        numbered.store(true, std::memory_order_release);
+        numbered.notify_all();
+      };
+      // Waits until the numbering is done; returns the seconds waited.
+      const auto await_number = [&]() -> double {
+        if (numbered.load(std::memory_order_acquire)) return 0;
+        const double w0 = Pass1Cpu::Wall();
+        numbered.wait(false, std::memory_order_acquire);
+        return Pass1Cpu::Wall() - w0;
+      };
+      if (!cpu) {
+        pool.ParallelFor(total, [&](size_t i, unsigned t) {
+          if (i < to_number) return run_number();
+          if (i < observe_from) return parse_one(*raw, i - to_number, t);
+          const size_t r = i - observe_from;
+          await_number();
+          if (observing_rec[r] == SIZE_MAX) return;
+          for (size_t k = 0; k < stages.size(); ++k) observe_one(r, k);
+        });
+        return;
+      }
+      // --timings: a block of records between two reads of the thread's CPU
+      // clock (a system call), not around every record, so timing does not
+      // slow the run it measures; each stage over the block's records in turn.
+      // The numbering's own seconds are "in order"; the seconds workers waited
+      // for it are "waiting for the in-order step".
+      const size_t parse_blocks = Pass1Cpu::Blocks(to_parse), observe_blocks = Pass1Cpu::Blocks(to_observe);
+      pool.ParallelFor(to_number + parse_blocks + observe_blocks, [&](size_t b, unsigned t) {
+        if (b < to_number) {
+          const double t0 = Pass1Cpu::Now();
+          run_number();
+          cpu->AddInOrder(t, Pass1Cpu::Now() - t0);
+          return;
+        }
+        double t0 = Pass1Cpu::Now();
+        if (b < to_number + parse_blocks) {
+          const size_t lo = (b - to_number) * Pass1Cpu::kBlock, hi = std::min(to_parse, lo + Pass1Cpu::kBlock);
+          for (size_t i = lo; i < hi; ++i) parse_one(*raw, i, t);
+          cpu->Add(t, 0, Pass1Cpu::Now() - t0);
+          return;
+        }
+        cpu->AddWaited(t, await_number());
+        t0 = Pass1Cpu::Now();
+        const size_t lo = (b - to_number - parse_blocks) * Pass1Cpu::kBlock, hi = std::min(to_observe, lo + Pass1Cpu::kBlock);
+        for (size_t k = 0; k < stages.size(); ++k) {
+          for (size_t i = lo; i < hi; ++i) {
+            if (observing_rec[i] != SIZE_MAX) observe_one(i, k);
+          }
+          const double t1 = Pass1Cpu::Now();
+          cpu->Add(t, 1 + k, t1 - t0);
+          t0 = t1;
+        }
+      });
+    };
+    size_t lines_held = st.entries.size();  // entries numbered or about to be
+    bool have_prev = false;                 // a chunk of this input was parsed in the round before
+    for (;;) {
+      double w0 = cpu ? Pass1Cpu::Wall() : 0;
+      RawChunk raw = ahead.get();
+      if (cpu) cpu->waiting += Pass1Cpu::Wall() - w0;
+      if (!raw.status.ok()) return raw.status;
+      if (lines_held + raw.size() > kMaxEntries) {
+        return Status::Limit(spec.path + ": this run would hold more than " + std::to_string(kMaxEntries) +
+                             " lines, the most one run holds; split the inputs into parts (docs/scale.md)");
+      }
+      lines_held += raw.size();
+      const bool eof = raw.eof;
+      if (!eof) ahead = std::async(std::launch::async, ReadChunk, std::ref(reader), std::move(spare));
+      stats.lines += raw.lines;
+      stats.blank_lines += raw.blank_lines;
+      round(have_prev ? &prev_raw : nullptr, &raw);
+      have_prev = true;
       std::swap(observing, parsing);
-      std::swap(observing_rec, parsing_rec);
       progress.Tick(spec.name, stats.lines, raw.bytes_read);
+      spare = std::move(prev_raw);
+      prev_raw = std::move(raw);
       if (eof) {
-        observe_and_parse(nullptr);  // the last chunk's records
-        observing_rec.clear();       // the next input starts with nothing to observe
-        progress.InputDone(raw.bytes_read);
+        round(&prev_raw, nullptr);  // the last chunk's records
+        progress.InputDone(prev_raw.bytes_read);
         break;
       }
-      spare = std::move(raw);
     }
     BaseEvidence evidence;
     for (const auto& r : parsers) evidence.Add(r->base_evidence());
@@ -761,8 +817,9 @@ Result<RunOutcome> RunPipeline(const Plan& plan, const PipelineOptions& options,
   if (cpu) {
     timer.Note("read and facts", cpu->Total(0));
     for (size_t k = 0; k < stages.size(); ++k) timer.Note("observe " + stages[k]->name(), cpu->Total(1 + k));
+    timer.Note("in order (beside parsing)", cpu->InOrder());
     timer.NoteWall("waiting for input", cpu->waiting);
-    timer.NoteWall("in order", cpu->in_order);
+    timer.NoteWall("in order", cpu->Waited());
   }
 
   // Decide, the gate last.

@@ -97,6 +97,42 @@ TEST(RecordReader, RejectReasons) {
   EXPECT_EQ(Reason(c, R"({"id":"a","prompt":"hello","candidates":["a","b"],"choice":0})", lim), "text_too_long");
 }
 
+// A line is kept only if the whole line is valid JSON, also in values no
+// field of the layout reads: kept lines are copied to the splits byte for
+// byte (pipeline/apply_pass.cc), so a line with a malformed value anywhere
+// would put invalid JSON in a split. This is why the reader validates every
+// value (a full parse), not only the values it reads (docs/architecture.md,
+// "Why every line is parsed whole"). Each malformed value below breaks the
+// grammar of RFC 8259 (section in the comment). Python 3.11's json.loads
+// refuses each too (checked when this test was written), but for 1e400,
+// which it reads as infinity; RFC 8259 section 6 lets an implementation
+// refuse numbers beyond its range, and prefsift does (docs/reasons.md).
+TEST(RecordReader, MalformedValueInAnUnreadFieldRejectsTheLine) {
+  Layout c = L(Json{{"preset", "choice"}});
+  const std::string head = R"({"id":"a","prompt":"p","candidates":["a","b"],"choice":0,"note":)";
+  for (const char* bad : {
+           R"([1,2,])",       // section 5: no value after the last comma
+           R"({"k":})",       // section 4: a member without a value
+           R"(tru)",          // section 3: not a literal name
+           R"("\q")",         // section 7: not an escape
+           R"(01)",           // section 6: a leading zero
+           R"(-)",            // section 6: a minus sign without digits
+           R"(1.)",           // section 6: a fraction without digits
+           R"(1e400)",        // section 6: beyond a double (an implementation's limit)
+           R"({"k" 1})",      // section 4: no name separator
+           R"(["a" "b"])",    // section 5: no value separator
+       }) {
+    SCOPED_TRACE(bad);
+    EXPECT_EQ(Reason(c, head + bad + "}"), "not_json");
+  }
+  // Text after the object (section 2: one value per JSON text).
+  EXPECT_EQ(Reason(c, head + "1} x"), "not_json");
+  EXPECT_EQ(Reason(c, head + "1}}"), "not_json");
+  EXPECT_EQ(Reason(c, head + "1}{}"), "not_json");
+  // The same line with a well-formed value is kept.
+  EXPECT_EQ(Reason(c, head + R"([1,{"k":"\n"},-0.5e-3,true,null])" + "}"), "ok");
+}
+
 TEST(RecordReader, ChoiceBaseOne) {
   Layout c = L(Json{{"preset", "choice"}, {"choice_base", 1}});
   EXPECT_EQ(Reason(c, R"({"id":"a","prompt":"p","candidates":["a","b"],"choice":2})"), "ok");

@@ -136,6 +136,90 @@ TEST(Pipeline, ThreadCountDoesNotChangeOutputs) {
   ::unsetenv("SOURCE_DATE_EPOCH");
 }
 
+// Pass 1 numbers a chunk of 256 lines on one worker while the next chunk is
+// parsed, and observes it once numbered (pipeline.cc, "round"). Records in
+// many chunks, two inputs, rejects on both sides of chunk borders and
+// annotators first seen late (their ids are given in input order) must give
+// the same bytes on any number of threads, with --timings (its own loop) or
+// without.
+TEST(Pipeline, ChunksNumberedBesideParsingKeepInputOrder) {
+  ::setenv("SOURCE_DATE_EPOCH", "1775000000", 1);
+  auto lines = [](int n, int salt) {
+    std::string data;
+    for (int i = 0; i < n; ++i) {
+      const std::string id = "\"id\":\"r" + std::to_string(salt) + "-" + std::to_string(i) + "\"";
+      if (i % 97 == 5 || i == 255 || i == 256 || i == 511 || i == 768) {
+        data += "{" + id + ",\"candidates\":[\"a\",\"b\"],\"choice\":0}\n";  // missing_field
+      } else if (i % 131 == 7) {
+        data += "{" + id + ",\"prompt\":\"p\",\"candidates\":[\"a\",\"b\"],\"choi\n";  // not_json
+      } else {
+        data += "{" + id + ",\"prompt\":\"prompt " + std::to_string((i * 7 + salt) % 400) +
+                "\",\"candidates\":[\"a " + std::to_string(i % 5) + "\",\"b\"],\"choice\":" +
+                std::to_string(i % 2) + ",\"who\":\"annotator " + std::to_string((i * i + salt) % (5 + i / 50)) +
+                "\"}\n";
+      }
+    }
+    return data;
+  };
+  const std::string in1 = WriteFile("chunks1.jsonl", lines(700, 1)), in2 = WriteFile("chunks2.jsonl", lines(1300, 2));
+  std::vector<std::string> outs;
+  for (unsigned threads : {1u, 2u, 3u, 8u}) {
+    for (bool timings : {false, true}) {
+      outs.push_back(TempPath("chunks_out" + std::to_string(threads) + (timings ? "t" : "")));
+      Plan plan = PlanFor({in1, in2}, Json{{"preset", "choice"}, {"annotator", "/who"}}, outs.back());
+      plan.threads = threads;
+      PipelineOptions o;
+      o.stages = {"annotators", "exact", "near", "split"};
+      o.table = false;
+      o.timings = timings;
+      std::FILE* log = std::tmpfile();
+      ASSERT_TRUE(RunPipeline(plan, o, DefaultFileSystem(), log).ok()) << threads;
+      std::fclose(log);
+    }
+  }
+  const std::string rejects = ReadFile(outs[0] + "/rejects.jsonl");
+  // 2,000 lines; every reject once, in input order: first chunk's then later ones'.
+  EXPECT_NE(rejects.find("r1-5\""), std::string::npos);
+  EXPECT_LT(rejects.find("r1-255\""), rejects.find("r1-256\""));
+  EXPECT_LT(rejects.find("r1-511\""), rejects.find("r2-5\""));
+  EXPECT_LT(rejects.find("r2-5\""), rejects.find("r2-768\""));
+  EXPECT_NE(rejects.find("r2-1266\""), std::string::npos);  // 1266 % 97 == 5: in the last chunk
+  for (size_t k = 1; k < outs.size(); ++k) {
+    for (const char* f : {"/train.jsonl", "/test.jsonl", "/rejects.jsonl", "/summary.json", "/annotators.json"}) {
+      if (!std::filesystem::exists(outs[0] + f)) continue;
+      EXPECT_EQ(ReadFile(outs[0] + f), ReadFile(outs[k] + f)) << outs[k] << f;
+    }
+  }
+  ::unsetenv("SOURCE_DATE_EPOCH");
+}
+
+// The layout check names the first line of a reason and that line's keys,
+// read from the chunk's lines while a later chunk is already being read: a
+// first bad line in the second chunk must still be named right.
+TEST(Pipeline, LayoutSuspectNamesTheFirstBadLineOfALaterChunk) {
+  std::string data;
+  for (int i = 0; i < 1000; ++i) {
+    if (i < 300) {
+      data += R"({"id":"g)" + std::to_string(i) + R"(","prompt":"p )" + std::to_string(i) +
+              R"(","candidates":["a","b"],"choice":0})" "\n";
+    } else {
+      data += R"({"id":"q)" + std::to_string(i) + R"(","question":"p","candidates":["a","b"],"choice":0})" "\n";
+    }
+  }
+  const std::string in = WriteFile("suspect_late.jsonl", data);
+  for (unsigned threads : {1u, 2u, 4u}) {
+    Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("suspect_late_out"));
+    plan.threads = threads;
+    PipelineOptions o;
+    o.stages = {"exact"};
+    o.table = false;
+    auto r = RunPipeline(plan, o, DefaultFileSystem(), stderr);
+    ASSERT_FALSE(r.ok()) << threads;
+    EXPECT_NE(r.status().message().find(R"((line 301) has the keys: "id", "question", "candidates", "choice")"), std::string::npos)
+        << r.status().message();
+  }
+}
+
 TEST(Pipeline, ExistingOutputNotOverwrittenUnasked) {
   std::string in = WriteFile("exists.jsonl", R"({"id":"a","prompt":"p","candidates":["a","b"],"choice":0})" "\n");
   std::string out = TempPath("exists_out");
