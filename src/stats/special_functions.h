@@ -12,7 +12,7 @@
 
 namespace prefsift::stats {
 
-// log Gamma(x) for x > 0 (wraps std::lgamma).
+// log Gamma(x) for x > 0 (std::lgamma's value, without its write to the global signgam).
 double LogGamma(double x);
 
 // Regularised lower incomplete gamma P(a, x) = gamma(a, x) / Gamma(a), and
