@@ -33,13 +33,14 @@ TEST(FreeMemory, ActiveWithGlibc) {
 #endif
 }
 
-// AddressSanitizer replaces malloc with its own allocator, which keeps freed
-// blocks in quarantine and ignores malloc_trim (GCC defines
-// __SANITIZE_ADDRESS__, Clang answers __has_feature(address_sanitizer)).
-#if defined(__SANITIZE_ADDRESS__)
+// AddressSanitizer and ThreadSanitizer replace malloc with their own
+// allocators, which ignore malloc_trim (GCC defines __SANITIZE_ADDRESS__ and
+// __SANITIZE_THREAD__, Clang answers __has_feature(address_sanitizer) and
+// __has_feature(thread_sanitizer)).
+#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
 #define PREFSIFT_OWN_ALLOCATOR 1
 #elif defined(__has_feature)
-#if __has_feature(address_sanitizer)
+#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
 #define PREFSIFT_OWN_ALLOCATOR 1
 #endif
 #endif
