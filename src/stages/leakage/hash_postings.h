@@ -90,8 +90,13 @@ class HashPostings {
     constexpr size_t kBatch = 16;
     uint64_t key[kBatch];
     uint32_t at[kBatch], lo[kBatch], hi[kBatch];
+    // The first batch's filter words, then each batch asks for the next
+    // batch's while it checks its own (prefetches: the answers are the same).
+    for (size_t j = 0; j < std::min(kBatch, keys.size()); ++j) keys_.PrefetchFilter(Fix(keys[j]));
     for (size_t base = 0; base < keys.size(); base += kBatch) {
       const size_t m = std::min(kBatch, keys.size() - base);
+      const size_t next_end = std::min(keys.size(), base + 2 * kBatch);
+      for (size_t j = base + kBatch; j < next_end; ++j) keys_.PrefetchFilter(Fix(keys[j]));
       // The keys that pass the filter, packed without branches (the filter's
       // reads are independent, so they overlap too).
       size_t live = 0;

@@ -47,6 +47,13 @@ class KeyFilter {
     return (words_[Word(h)] & m) == m;
   }
 
+  // Starts reading the word MayContain(key) will read (a hint, no effect on
+  // any answer): a caller looking up many keys asks for the next ones' words
+  // while it checks these, so the reads overlap instead of waiting in turn.
+  void Prefetch(uint64_t key) const {
+    if (!words_.empty()) __builtin_prefetch(words_.data() + Word(sketch::Mix(key)));
+  }
+
   // Heap bytes held (capacity).
   uint64_t bytes() const { return words_.capacity() * 8; }
 

@@ -62,6 +62,7 @@ class SortedKeys {
   // several reads in flight (HashPostings::Ordinals): MayContain first (a
   // false means absent), then the bucket. REQUIRES: !empty().
   bool MayContain(uint64_t key) const { return filter_.MayContain(key); }
+  void PrefetchFilter(uint64_t key) const { filter_.Prefetch(key); }
   void PrefetchBucket(uint64_t key) const { __builtin_prefetch(dir_.data() + (key >> shift_)); }
   std::pair<uint32_t, uint32_t> Bucket(uint64_t key) const {
     const size_t b = static_cast<size_t>(key >> shift_);
