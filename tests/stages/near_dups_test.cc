@@ -328,6 +328,34 @@ TEST(NearDups, CandidateSimilaritiesMatchBruteForceJaccard) {
   EXPECT_GT(checked, 200u);
 }
 
+// The shingle mode of each text follows its scripts, per candidate. Worked by
+// hand: code-point 3-grams of two 13-character Chinese answers that
+// differ in the last character share 10 of 12 (J = 0.833); word 3-grams of two
+// 12-word answers that differ in the last word share 9 of 11 (J = 0.818),
+// ASCII or accented Latin alike; a Chinese prompt is shingled by code points.
+TEST(NearDups, ShingleModeOfEachCandidateFollowsItsScripts) {
+  const std::string words = "the quick brown fox jumps over the lazy dog near the ";
+  const std::string accented = "le café très chaud sur la table près de la fenêtre ";
+  std::string data = Line("zh", "我们今天去公园散步然后回家吗", "我们今天去公园散步然后回家", "我们今天去公园散步然后回去") +
+                     Line("en", "an ascii prompt of a few words", words + "river", words + "rives") +
+                     Line("fr", "une question en français", accented + "ouverte", accented + "fermée") +
+                     Line("mixed", "an ascii prompt of other words", words + "river", "我们今天去公园散步然后回家");
+  std::string in = WriteFile(&MemoryFiles(), "near_modes.jsonl", data);
+  std::string out = TempPath("near_modes_out");
+  Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, out);
+  plan.stages["near"] = Json{{"candidate_threshold", 0.8}};
+  ASSERT_TRUE(RunNear(plan, {"near"}).ok());
+  auto flagged = ReadJsonl(&MemoryFiles(), out + "/near_identical.jsonl");
+  ASSERT_EQ(flagged.size(), 3u);
+  EXPECT_EQ(flagged[0]["id"], "zh");
+  EXPECT_NEAR(flagged[0]["pairs"][0]["similarity"].get<double>(), 10.0 / 12.0, 1e-6);
+  EXPECT_EQ(flagged[1]["id"], "en");
+  EXPECT_NEAR(flagged[1]["pairs"][0]["similarity"].get<double>(), 9.0 / 11.0, 1e-6);
+  EXPECT_EQ(flagged[2]["id"], "fr");
+  EXPECT_NEAR(flagged[2]["pairs"][0]["similarity"].get<double>(), 9.0 / 11.0, 1e-6);
+  EXPECT_EQ(NearSummary(out)["shingle_modes"]["chars"], 1);  // the Chinese prompt
+}
+
 TEST(NearDups, NearIdenticalCandidatesFlagOrReject) {
   auto long0 = WordList("ans", 30);
   auto long1 = long0;
