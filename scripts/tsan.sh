@@ -3,7 +3,7 @@
 # suite: the check for data races in the threaded parts (pass 1's workers and
 # in-order step, the read-ahead and writer threads, output hashing beside the
 # write, the leakage index built side by side, stage outputs beside pass 2).
-# Not part of CI (the instrumented build and run take about 40 minutes on 2
+# Not part of CI (the instrumented build and run take about 30 minutes on 2
 # cores); results go into docs/performance.md. A report fails its test
 # (ThreadSanitizer's exit code 66).
 #   PREFSIFT_TSAN_BUILD_DIR=DIR   build folder (default build-tsan)

@@ -452,8 +452,8 @@ Status Observe(const Plan& plan, RunState& st, std::vector<std::unique_ptr<Stage
       // --timings: a block of records between two reads of the thread's CPU
       // clock (a system call), not around every record, so timing does not
       // slow the run it measures; each stage over the block's records in turn.
-      // The numbering's own seconds are "in order"; the seconds workers waited
-      // for it are "waiting for the in-order step".
+      // The numbering's own CPU seconds are printed as "in order (beside
+      // parsing)", the seconds workers waited for it as the wall line "in order".
       const size_t parse_blocks = Pass1Cpu::Blocks(to_parse), observe_blocks = Pass1Cpu::Blocks(to_observe);
       pool.ParallelFor(to_number + parse_blocks + observe_blocks, [&](size_t b, unsigned t) {
         if (b < to_number) {
