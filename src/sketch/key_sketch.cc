@@ -89,13 +89,16 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   // when pairs are wanted) sorts the partitions again and pairs the members of
   // informative runs. Two sweeps cost a second sort of every partition, but
   // with none set aside and options.only_with_template no pair is ever made.
+  // Partitions are handed out one at a time (template text makes some far
+  // larger than others); what a thread finds is merged in an order-free way
+  // (counts summed, places marked, pairs and set-aside keys sorted below).
+  std::atomic<uint32_t> next_part{0};
+  const size_t largest = parts == 0 ? 0 : *std::max_element(part_size.begin(), part_size.end());
   auto work = [&](uint32_t t, bool make_pairs) {
-    size_t largest = 0;
-    for (uint32_t part = t; part < parts; part += threads) largest = std::max(largest, part_size[part]);
     std::vector<uint64_t> buf, part_pairs;
     buf.reserve(largest);
     PartResult& mine = acc[t];
-    for (uint32_t part = t; part < parts; part += threads) {
+    for (uint32_t part; (part = next_part.fetch_add(1, std::memory_order_relaxed)) < parts;) {
       buf.clear();
       for (size_t place = 0; place < total; ++place) {
         const uint32_t k = keys[place];
@@ -140,6 +143,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
     }
   };
   auto sweep = [&](bool make_pairs) {
+    next_part.store(0, std::memory_order_relaxed);
     if (threads == 1) {
       work(0, make_pairs);
       return;
@@ -157,7 +161,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
     aside_keys.insert(aside_keys.end(), r.aside.begin(), r.aside.end());
     std::vector<uint64_t>().swap(r.aside);
   }
-  std::sort(aside_keys.begin(), aside_keys.end());
+  SortWords(aside_keys);
   auto aside_count = [&](uint32_t key) -> uint64_t {
     auto it = std::lower_bound(aside_keys.begin(), aside_keys.end(), static_cast<uint64_t>(key) << 32);
     return *it & 0xffffffffu;  // the key is there: its place is marked
@@ -190,7 +194,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   for (size_t place = 0; place < total; ++place) {
     informative[place / m] += static_cast<uint8_t>(keys[place] != kNoKey && !is_aside(place));
   }
-  std::sort(raw.begin(), raw.end());
+  SortWords(raw);
   std::vector<uint64_t> pairs;
   for (size_t x = 0; x < raw.size();) {
     size_t y = x + 1;

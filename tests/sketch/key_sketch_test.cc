@@ -268,19 +268,50 @@ TEST(KeySketchPairs, CopiesOfOnePromptAreLinked) {
 TEST(KeySketchPairs, SameForAnyThreadCount) {
   Corpus c = MakeAllotmentCorpus(3000, 11);
   Signed s = SignCorpus(c);
-  // Enough places for several key partitions.
+  // Copies of the corpus: the same keys, all held by many records.
   std::vector<uint32_t> many;
   for (int rep = 0; rep < 12; ++rep) many.insert(many.end(), s.keys.begin(), s.keys.end());
-  for (const auto* keys : {&s.keys, &many}) {
+  // Over 2^21 places, so the key space is cut into partitions (4 here), which
+  // threads take one at a time: each copy's keys moved by its own offset and
+  // squeezed into the lower half of the key space on odd copies, so the
+  // partitions differ in size; each sketch sorted again (kNoKey stays last).
+  std::vector<uint32_t> skewed;
+  for (uint32_t rep = 0; rep < 60; ++rep) {
+    for (size_t r = 0; r < s.keys.size() / 32; ++r) {
+      std::vector<uint32_t> row(s.keys.begin() + static_cast<std::ptrdiff_t>(r * 32),
+                                s.keys.begin() + static_cast<std::ptrdiff_t>(r * 32 + 32));
+      for (uint32_t& k : row) {
+        if (k == kNoKey) continue;
+        k = k + rep * 0x9e3779b9u;
+        if (rep % 2) k >>= 1;
+        if (k == kNoKey) k -= 1;
+      }
+      std::sort(row.begin(), row.end());
+      row.erase(std::unique(row.begin(), row.end()), row.end());
+      row.resize(32, kNoKey);
+      skewed.insert(skewed.end(), row.begin(), row.end());
+    }
+  }
+  ASSERT_GT(skewed.size(), size_t{1} << 22);
+  for (const auto* keys : {&s.keys, &many, &skewed}) {
     KeyPairOptions opt;
     KeyPairStats one_stats, st;
     std::vector<uint64_t> one = KeySketchPairs(*keys, 32, opt, &one_stats);
+    if (keys == &skewed) {
+      EXPECT_GT(one_stats.informative_pairs, 1000u);
+      EXPECT_GT(one_stats.keys_set_aside, 0u);
+    }
     for (uint32_t t : {2u, 3u, 5u}) {
       opt.threads = t;
       EXPECT_EQ(KeySketchPairs(*keys, 32, opt, &st), one) << t;
+      EXPECT_EQ(st.keys, one_stats.keys);
       EXPECT_EQ(st.keys_set_aside, one_stats.keys_set_aside);
+      EXPECT_EQ(st.entries_set_aside, one_stats.entries_set_aside);
       EXPECT_EQ(st.informative_pairs, one_stats.informative_pairs);
+      EXPECT_EQ(st.pairs_below_share, one_stats.pairs_below_share);
       EXPECT_EQ(st.chain_pairs, one_stats.chain_pairs);
+      EXPECT_EQ(st.unique_pairs, one_stats.unique_pairs);
+      EXPECT_EQ(st.largest_run, one_stats.largest_run);
     }
   }
 }
