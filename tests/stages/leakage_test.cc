@@ -555,6 +555,61 @@ TEST(LeakageStage, NgramDropWhenNearFlags) {
   EXPECT_EQ(rejects[0]["reason"], "eval_leak_ngram");
 }
 
+// The n-gram and answer findings are decided record by record on the pool's
+// threads once pass 1 is over (DecideGrams): any thread count gives the same
+// files. 200 evaluation items with reference answers; 1,200 records (6 an
+// item, under the 10 documents that make a gram template text) holding a
+// stretch of an item in the prompt, an item's answer in a candidate, both, an
+// exact copy, or nothing.
+TEST(LeakageStage, SameFindingsOnAnyThreadCount) {
+  ::setenv("SOURCE_DATE_EPOCH", "1775000000", 1);
+  std::string eval;
+  for (int i = 0; i < 200; ++i) {
+    eval += Json{{"question", Words(30, 100000 + 100 * i)}, {"answer", Words(25, 400000 + 100 * i)}}.dump() + "\n";
+  }
+  const std::string eval_path = WriteFile("leak_threads_eval.jsonl", eval);
+  std::string data;
+  for (int r = 0; r < 1200; ++r) {
+    const int item = r % 200, shift = r / 200;
+    const std::string id = "r" + std::to_string(r);
+    switch (item % 5) {
+      case 0: data += Rec(id, Words(20, 50000 + r) + " " + Words(24, 100000 + 100 * item + shift)); break;
+      case 1: data += Rec(id, Words(25, 60000 + r), "so " + Words(22, 400000 + 100 * item + shift % 3), "no"); break;
+      case 2: data += Rec(id, Words(26, 100000 + 100 * item + shift % 4), Words(23, 400000 + 100 * item + 1)); break;
+      case 3: data += Rec(id, Words(30, 100000 + 100 * item)); break;
+      default: data += Rec(id, Words(25, 70000 + r)); break;
+    }
+  }
+  const std::string in = WriteFile("leak_threads_in.jsonl", data);
+  std::vector<std::string> outs;
+  for (unsigned threads : {1u, 2u, 5u}) {
+    outs.push_back(TempPath("leak_threads_out" + std::to_string(threads)));
+    Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, outs.back());
+    plan.threads = threads;
+    plan.stages["leakage"] = Json{{"eval_sets", {{{"name", "held"}, {"path", eval_path}, {"text", "/question"},
+                                                  {"reference", "/answer"}}}},
+                                  {"ngram", "flag"}, {"near", "flag"}, {"answers", "flag"}};
+    auto r = RunLeakage(plan);
+    ASSERT_TRUE(r.ok()) << r.status().message();
+  }
+  ::unsetenv("SOURCE_DATE_EPOCH");
+  const auto report = ReadJsonl(outs[0] + "/leakage.jsonl");
+  size_t ngram = 0, answer = 0;
+  for (const auto& j : report) {
+    for (const auto& m : j["matches"]) {
+      ngram += m["detector"] == "ngram";
+      answer += m["detector"] == "answer";
+    }
+  }
+  EXPECT_GT(ngram, 300u);
+  EXPECT_GT(answer, 300u);
+  for (size_t k = 1; k < outs.size(); ++k) {
+    for (const char* f : {"/leakage.jsonl", "/rejects.jsonl", "/summary.json"}) {
+      EXPECT_TRUE(ReadFile(outs[0] + f) == ReadFile(outs[k] + f)) << outs[k] << f;
+    }
+  }
+}
+
 TEST(LeakageStage, SettingsErrors) {
   std::string in = WriteFile("leak_stage_in3.jsonl", Rec("a", "hello"));
   Plan plan = PlanFor({in}, Json{{"preset", "choice"}}, TempPath("leak_stage_out3"));

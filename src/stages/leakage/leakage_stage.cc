@@ -9,6 +9,7 @@
 
 #include "core/state_file.h"
 #include "core/free_memory.h"
+#include "core/thread_pool.h"
 #include "io/file_system.h"
 #include "io/output_dir.h"
 #include "stages/facts.h"
@@ -36,8 +37,8 @@ class LeakageStage : public Stage {
  public:
   // Keeps of `corpus` only what the reports name (the sets, each item's id
   // and set): the index holds what the detectors need.
-  LeakageStage(const EvalCorpus& corpus, std::unique_ptr<LeakIndex> index)
-      : sets_(corpus.sets), index_(std::move(index)) {
+  LeakageStage(const EvalCorpus& corpus, std::unique_ptr<LeakIndex> index, unsigned threads)
+      : sets_(corpus.sets), index_(std::move(index)), threads_(threads) {
     size_t id_chars = 0;
     for (const EvalItem& item : corpus.items) id_chars += item.id.size();
     item_ids_.Reserve(corpus.items.size(), id_chars);
@@ -144,8 +145,12 @@ class LeakageStage : public Stage {
     prompt_df_.reset();  // copied: free the counters before the findings are made
     answer_df_.reset();
     index_->SetTrainingFrequencies(std::move(pdf), records, std::move(adf), answer_docs_.load());
-    for (size_t r = 0; r < records && r < grams_.size(); ++r) {
-      if (!grams_.Has(r)) continue;  // no informative gram: no n-gram or answer finding
+    // Each record's findings from its own row only, so records are decided
+    // side by side (the index is read-only here; SparseRows takes distinct
+    // rows from several threads): the same findings on any number of threads.
+    ThreadPool pool(threads_);
+    pool.ParallelFor(std::min(records, grams_.size()), [&](size_t r, unsigned) {
+      if (!grams_.Has(r)) return;  // no informative gram: no n-gram or answer finding
       const GramRow g = grams_[r];
       LeakFinding f;
       if (!g.prompt().empty() && index_->MatchPromptGrams(g.prompt(), &f)) {
@@ -168,8 +173,7 @@ class LeakageStage : public Stage {
         }
         from = end;
       }
-      grams_.Reset(r);
-    }
+    });
     grams_.clear();
   }
 
@@ -343,6 +347,7 @@ class LeakageStage : public Stage {
   FlatStrings item_ids_;            // per evaluation item: its id within its set
   std::vector<uint32_t> item_set_;  // per evaluation item: its set
   std::unique_ptr<LeakIndex> index_;
+  unsigned threads_ = 0;  // the plan's (0: one per hardware thread), for the decide's parallel loop
   // Per record: the evaluation gram ids its prompt and candidates hold (pass
   // 1), dropped in Decide. answer_ends: (candidate, end offset in `answer`).
   GramRows grams_;  // only records holding an informative gram have a row
@@ -389,7 +394,7 @@ std::unique_ptr<Stage> MakeLeakageStage(const Plan& plan, FileSystem* fs, Status
   }
   // The evaluation texts as read are freed here (with `corpus`): the index
   // holds its own normalised copy.
-  return std::make_unique<LeakageStage>(corpus.value(), std::move(index).value());
+  return std::make_unique<LeakageStage>(corpus.value(), std::move(index).value(), plan.threads);
 }
 
 }  // namespace prefsift
