@@ -24,16 +24,17 @@
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
-#include <fstream>
-#include <sstream>
 #include <string>
 #include <string_view>
+#include <utility>
 #include <vector>
 
 #include <nlohmann/json.hpp>
 
+#include "core/file_system.h"
 #include "core/layout.h"
 #include "core/record_reader.h"
+#include "io/file_system.h"
 
 namespace {
 
@@ -88,14 +89,12 @@ int main(int argc, char** argv) {
     return 2;
   }
   const size_t max_lines = argc > 2 ? std::strtoull(argv[2], nullptr, 10) : SIZE_MAX;
-  std::ifstream in(argv[1], std::ios::binary);
-  if (!in) {
-    std::perror(argv[1]);
+  auto read = prefsift::ReadWholeFile(prefsift::DefaultFileSystem(), argv[1]);
+  if (!read.ok()) {
+    std::fprintf(stderr, "%s\n", read.status().message().c_str());
     return 1;
   }
-  std::stringstream ss;
-  ss << in.rdbuf();
-  std::string data = ss.str();
+  std::string data = std::move(read).value();
   const size_t size = data.size();
   data.append(simdjson::SIMDJSON_PADDING, '\0');  // every line is followed by readable bytes
   std::vector<std::string_view> lines;

@@ -93,7 +93,7 @@ std::vector<uint64_t> KeySketchPairs(std::span<const uint32_t> keys, uint32_t m,
   // larger than others); what a thread finds is merged in an order-free way
   // (counts summed, places marked, pairs and set-aside keys sorted below).
   std::atomic<uint32_t> next_part{0};
-  const size_t largest = parts == 0 ? 0 : *std::max_element(part_size.begin(), part_size.end());
+  const size_t largest = *std::max_element(part_size.begin(), part_size.end());  // parts >= 1
   auto work = [&](uint32_t t, bool make_pairs) {
     std::vector<uint64_t> buf, part_pairs;
     buf.reserve(largest);
